@@ -1,0 +1,4 @@
+"""loopwise: stability checks for multi-loop feedback-control models."""
+from __future__ import annotations
+
+__version__ = "0.1.0"

@@ -1,0 +1,85 @@
+"""The command line: parse arguments, call the library, pick a reporter.
+
+Each subcommand lives in `loopwise.commands.<name>` and exposes
+``add_parser(subparsers)`` and ``run(args) -> int``. `main(argv) -> int` returns
+the exit code: 0 all good, 1 an instability or an unmet requirement or a
+regression, 2 input that could not be read or a usage mistake.
+"""
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+
+from . import __version__
+from .errors import LoopwiseError, UsageError
+
+__all__ = ["main", "entry", "COMMANDS"]
+
+#: subcommand name -> module under loopwise.commands (imported only when used)
+COMMANDS = {
+    "check": "Check the stability and margins of every break in models.",
+    "graph": "Print a model's structure: signals, loops, breaks, nesting.",
+    "diff": "Compare stability between two revisions of models.",
+    "plot": "Draw Nyquist, Bode and sensitivity views of a break.",
+    "report": "Write a self-contained HTML report of models.",
+}
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that raises instead of printing a usage block and exiting."""
+
+    def error(self, message: str):  # noqa: D401
+        raise UsageError(f"{self.prog}: {message} (see `{self.prog} --help`)")
+
+
+def _build_parser(command: str | None) -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="loopwise",
+        description="Stability checks for multi-loop feedback-control models.",
+        epilog="Exit codes: 0 all stable and all requirements met; 1 an instability, an unmet "
+               "requirement or a regression; 2 input that could not be read.",
+    )
+    parser.add_argument("--version", action="version", version=f"loopwise {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    for name, help_text in COMMANDS.items():
+        if name == command:
+            module = importlib.import_module(f"loopwise.commands.{name}")
+            module.add_parser(sub, help_text)
+        else:
+            # the other commands are listed without importing their modules
+            sub.add_parser(name, help=help_text, add_help=False)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    argv = list(sys.argv[1:] if argv is None else argv)
+    command = next((a for a in argv if not a.startswith("-")), None)
+    if command not in COMMANDS:
+        command = None
+    try:
+        parser = _build_parser(command)
+        if not argv:
+            parser.print_help()
+            return 2
+        args = parser.parse_args(argv)
+        if args.command is None:
+            parser.print_help()
+            return 2
+        module = importlib.import_module(f"loopwise.commands.{args.command}")
+        return int(module.run(args))
+    except UsageError as exc:
+        print(f"loopwise: {exc}", file=sys.stderr)
+        return 2
+    except LoopwiseError as exc:
+        print(f"loopwise: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("loopwise: interrupted", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        return 1
+
+
+def entry() -> None:
+    raise SystemExit(main())

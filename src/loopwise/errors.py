@@ -1,0 +1,122 @@
+"""Errors and findings that carry a source location.
+
+Finding problems and printing them are separate: the stages raise or collect
+these objects, and the reporters (or :func:`render`) turn them into text.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+__all__ = [
+    "Span",
+    "LoopwiseError",
+    "ModelError",
+    "ModelErrors",
+    "Finding",
+    "render",
+]
+
+
+@dataclass(frozen=True)
+class Span:
+    """Where something stands in a model file (1-based line and column)."""
+
+    file: str
+    line: int
+    col: int
+    end_col: int | None = None
+
+    def __str__(self) -> str:
+        return f"{self.file}:{self.line}:{self.col}"
+
+
+NOWHERE = Span("<unknown>", 0, 0)
+
+
+class LoopwiseError(Exception):
+    """Root of every error this package raises on purpose."""
+
+
+class ModelError(LoopwiseError):
+    """A mistake in a model, with a stable code, a location and a hint."""
+
+    def __init__(self, code: str, message: str, span: Span, hint: str | None = None):
+        super().__init__(message)
+        self.code = code
+        self.message = message
+        self.span = span
+        self.hint = hint
+
+    def __str__(self) -> str:
+        return f"{self.span}: {self.code} {self.message}"
+
+    def as_finding(self) -> "Finding":
+        return Finding("error", self.code, self.message, self.span, self.hint)
+
+
+class ModelErrors(LoopwiseError):
+    """Several model errors found in one pass (reported together)."""
+
+    def __init__(self, errors: list[ModelError]):
+        super().__init__(f"{len(errors)} error(s)")
+        self.errors = list(errors)
+
+
+class UsageError(LoopwiseError):
+    """A command-line or configuration mistake: reported in one line, exit 2."""
+
+
+@dataclass(frozen=True)
+class Finding:
+    """A located error, warning or note."""
+
+    severity: str  # "error" | "warning" | "note"
+    code: str
+    message: str
+    span: Span = NOWHERE
+    hint: str | None = None
+
+    def to_dict(self) -> dict:
+        return {
+            "severity": self.severity,
+            "code": self.code,
+            "file": self.span.file,
+            "line": self.span.line,
+            "col": self.span.col,
+            "message": self.message,
+            "hint": self.hint,
+        }
+
+
+def source_line(span: Span, text: str | None = None) -> str | None:
+    """The source line a span points into, read from `text` or the file."""
+    if span.line <= 0:
+        return None
+    if text is None:
+        try:
+            text = Path(span.file).read_text(encoding="utf-8", errors="replace")
+        except OSError:
+            return None
+    lines = text.splitlines()
+    if span.line > len(lines):
+        return None
+    return lines[span.line - 1]
+
+
+def render(finding: Finding, text: str | None = None) -> str:
+    """`file:line:col: severity CODE message`, the line, a caret, a hint."""
+    head = f"{finding.span}: {finding.severity} {finding.code} {finding.message}"
+    out = [head]
+    line = source_line(finding.span, text)
+    if line is not None and len(line) <= 400:
+        out.append("    " + line)
+        width = 1
+        if finding.span.end_col and finding.span.end_col > finding.span.col:
+            width = finding.span.end_col - finding.span.col
+        # keep the source's own whitespace before the caret so tabs line up
+        lead = "".join(c if c == "\t" else " " for c in line[: max(finding.span.col - 1, 0)])
+        out.append("    " + lead + "^" * width)
+    if finding.hint:
+        out.append(f"    hint: {finding.hint}")
+    return "\n".join(out)

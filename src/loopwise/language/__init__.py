@@ -1,0 +1,1 @@
+"""The `.loop` language: parsing and name resolution."""

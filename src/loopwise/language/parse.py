@@ -1,0 +1,250 @@
+"""Text -> syntax tree (lark), with lark's errors turned into located ModelErrors.
+
+Names are not checked here: lark wraps exceptions raised in callbacks, so the
+tree is built first and checked in a separate pass (`resolve`).
+"""
+from __future__ import annotations
+
+import functools
+import math
+import re
+from importlib import resources
+from pathlib import Path
+
+from lark import Lark, Token, Transformer, Tree, v_args
+from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken
+
+from ..errors import ModelError, Span
+from . import ast
+from .units import to_si
+
+__all__ = ["parse_text", "grammar_text", "MAX_MODEL_BYTES"]
+
+#: a model larger than this is refused before parsing (a clear refusal, never a hang)
+MAX_MODEL_BYTES = 4 * 1024 * 1024
+
+_NUMBER = re.compile(
+    r"(?P<num>(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?)(?P<unit>kHz|Hz|min|ms|us|ns|h|deg|rad|dB|%)?$"
+)
+
+
+def grammar_text() -> str:
+    """The grammar, from the installed package or from the source tree."""
+    try:
+        return resources.files("loopwise").joinpath("grammar/loopwise.lark").read_text("utf-8")
+    except (FileNotFoundError, OSError, ModuleNotFoundError):
+        here = Path(__file__).resolve()
+        for parent in here.parents:
+            candidate = parent / "grammar" / "loopwise.lark"
+            if candidate.is_file():
+                return candidate.read_text("utf-8")
+        raise
+
+
+@functools.lru_cache(maxsize=1)
+def _parser() -> Lark:
+    return Lark(grammar_text(), parser="lalr", propagate_positions=True, maybe_placeholders=False)
+
+
+class _ToAst(Transformer):
+    def __init__(self, file: str):
+        super().__init__()
+        self.file = file
+
+    def _span(self, item) -> Span:
+        if isinstance(item, Token):
+            return Span(self.file, item.line or 0, item.column or 0, item.end_column)
+        meta = item.meta if isinstance(item, Tree) else item
+        if getattr(meta, "empty", True):
+            return Span(self.file, 0, 0)
+        end = meta.end_column if meta.end_line == meta.line else None
+        return Span(self.file, meta.line, meta.column, end)
+
+    # --- expressions ---
+    @v_args(meta=True)
+    def number(self, meta, children):
+        tok = children[0]
+        m = _NUMBER.match(str(tok))
+        raw = float(m.group("num"))
+        unit = m.group("unit")
+        return ast.Number(self._span(tok), to_si(raw, unit), unit, str(tok))
+
+    def name(self, children):
+        tok = children[0]
+        return ast.Name(self._span(tok), str(tok))
+
+    @v_args(meta=True)
+    def binop(self, meta, children):
+        left, op, right = children
+        return ast.BinOp(self._span(meta), str(op), left, right)
+
+    @v_args(meta=True)
+    def neg(self, meta, children):
+        return ast.Neg(self._span(meta), children[-1])
+
+    def pos(self, children):
+        return children[-1]
+
+    @v_args(meta=True)
+    def power(self, meta, children):
+        base, _, exponent = children
+        return ast.Power(self._span(meta), base, exponent)
+
+    @v_args(meta=True)
+    def call(self, meta, children):
+        tok, arg = children
+        return ast.Call(self._span(meta), str(tok), self._span(tok), arg)
+
+    @v_args(meta=True)
+    def inline(self, meta, children):
+        transfer, arg = children
+        return ast.Inline(self._span(meta), transfer, arg)
+
+    # --- statements ---
+    @v_args(meta=True)
+    def model_stmt(self, meta, children):
+        return ast.ModelStmt(self._span(meta), str(children[0]))
+
+    @v_args(meta=True)
+    def use_stmt(self, meta, children):
+        return ast.UseStmt(self._span(children[0]), str(children[0])[1:-1])
+
+    @v_args(meta=True)
+    def param_stmt(self, meta, children):
+        name = children[0]
+        low = high = None
+        if len(children) == 4:
+            low, high = children[2], children[3]
+        return ast.ParamStmt(self._span(name), str(name), children[1], low, high)
+
+    @v_args(meta=True)
+    def input_stmt(self, meta, children):
+        return ast.InputStmt(self._span(meta), tuple((str(t), self._span(t)) for t in children))
+
+    @v_args(meta=True)
+    def block_stmt(self, meta, children):
+        return ast.BlockStmt(self._span(children[0]), str(children[0]), children[1])
+
+    @v_args(meta=True)
+    def equation(self, meta, children):
+        return ast.EquationStmt(self._span(children[0]), str(children[0]), children[1])
+
+    @v_args(meta=True)
+    def break_stmt(self, meta, children):
+        name, signal = children[0], children[1]
+        target = children[3] if len(children) == 4 else None
+        return ast.BreakStmt(
+            self._span(name), str(name), str(signal), self._span(signal),
+            None if target is None else str(target),
+            None if target is None else self._span(target),
+        )
+
+    @v_args(meta=True)
+    def require_stmt(self, meta, children):
+        target, metric, op, value = children
+        return ast.RequireStmt(
+            self._span(meta), str(target), self._span(target), str(metric),
+            self._span(metric), str(op), value,
+        )
+
+    def start(self, children):
+        return tuple(children)
+
+
+_TOKEN_WORDS = {
+    "NAME": "a name", "NUMBER": "a number", "_NL": "end of line", "LPAR": "`(`",
+    "RPAR": "`)`", "LSQB": "`[`", "RSQB": "`]`", "EQUAL": "`=`", "PLUS": "`+`",
+    "MINUS": "`-`", "TIMES": "`*`", "DIVIDE": "`/`", "CARET": "`^`", "COMMA": "`,`",
+    "STRING": "a quoted path", "COMPARE": "a comparison (>= <= > <)", "ARROW": "`->`",
+    "STAR": "`*`", "_IN": "`in`", "$END": "end of file",
+}
+
+
+def _expected(names) -> str:
+    words = sorted({_TOKEN_WORDS.get(n, n.lower()) for n in names})
+    if len(words) > 6:
+        return ""
+    return "expected " + ", ".join(words)
+
+
+def _syntax_error(exc: UnexpectedInput, text: str, file: str) -> ModelError:
+    line = getattr(exc, "line", 0) or 0
+    col = getattr(exc, "column", 0) or 0
+    lines = text.splitlines()
+    src = lines[line - 1] if 0 < line <= len(lines) else ""
+    hint = None
+    if isinstance(exc, UnexpectedToken):
+        tok = exc.token
+        prev = src[: col - 1].rstrip()
+        end = col + len(str(tok)) if tok.type != "$END" else None
+        span = Span(file, line, col, end)
+        if tok.type == "NAME" and re.search(r"[\d.)\]]$", prev):
+            msg = f"missing `*` before `{tok}`"
+            hint = f"multiplication is always written with `*`: `{prev.split()[-1] if prev.split() else ''}*{tok}`"
+            return ModelError("E102", msg, span, hint)
+        if tok.type in ("_NL", "$END"):
+            msg = "the statement ends too early"
+            exp = _expected(exc.expected)
+            return ModelError("E101", msg, Span(file, line, max(col, 1)), exp or None)
+        msg = f"unexpected {_TOKEN_WORDS.get(tok.type, repr(str(tok)))} `{tok}`" if tok.type in ("NAME", "NUMBER") else f"unexpected `{tok}`"
+        exp = _expected(exc.expected)
+        return ModelError("E101", msg, span, exp or None)
+    if isinstance(exc, UnexpectedCharacters):
+        span = Span(file, line, col, col + 1)
+        rest = src[col - 1:]
+        m = re.match(r"(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?([A-Za-z_]\w*)", rest)
+        if m:
+            suffix = m.group(4)
+            number = rest[: m.start(4)]
+            if suffix == "s" or suffix.startswith("s"):
+                hint = f"write `{number}*{suffix}`: `s` is the Laplace variable, not a unit (plain numbers are seconds)"
+                return ModelError("E102", f"missing `*` between `{number}` and `{suffix}`", Span(file, line, col, col + len(m.group(0))), hint)
+            hint = ("units are ns us ms min h Hz kHz deg rad dB %, written right after the number; "
+                    f"for a product write `{number}*{suffix}`")
+            return ModelError("E103", f"unknown unit or missing `*` in `{m.group(0)}`", Span(file, line, col, col + len(m.group(0))), hint)
+        ch = rest[:1]
+        if ch == "\ufffd" or (ch and not ch.isprintable()):
+            return ModelError("E104", "the file is not readable text here", span, "a model is plain UTF-8 text")
+        if re.match(r"\d", ch):
+            return ModelError("E103", "malformed number", span, "numbers look like 12, 0.5, 1e-3 or 150us")
+        return ModelError("E101", f"unexpected character `{ch}`", span, None)
+    return ModelError("E101", "syntax error", Span(file, line, col), None)
+
+
+def parse_text(text: str, file: str = "<text>") -> ast.ModelFile:
+    """Parse one model file's text into its syntax tree (includes unresolved)."""
+    if len(text) > MAX_MODEL_BYTES:
+        raise ModelError(
+            "E105", f"the model is too large ({len(text) // 1024} KiB; the limit is {MAX_MODEL_BYTES // 1024 // 1024} MiB)",
+            Span(file, 1, 1), "split it into files joined with `use`",
+        )
+    if "\x00" in text:
+        line = text.count("\n", 0, text.index("\x00")) + 1
+        raise ModelError("E104", "the file holds binary data, not model text", Span(file, line, 1),
+                         "a model is plain UTF-8 text")
+    try:
+        tree = _parser().parse(text + "\n")
+    except UnexpectedInput as exc:
+        raise _syntax_error(exc, text, file) from None
+    statements = _ToAst(file).transform(tree)
+    for stmt in _numbers(statements):
+        if not math.isfinite(stmt.value):
+            raise ModelError("E106", f"the number `{stmt.text}` is out of range", stmt.span,
+                             "numbers must be finite and within about 1e300")
+    return ast.ModelFile(file, statements)
+
+
+def _numbers(node):
+    """Every Number literal under a node (iterative: deep trees do not recurse)."""
+    stack = [node]
+    while stack:
+        n = stack.pop()
+        if isinstance(n, ast.Number):
+            yield n
+        elif isinstance(n, tuple):
+            stack.extend(n)
+        elif hasattr(n, "__dataclass_fields__"):
+            for f in n.__dataclass_fields__:
+                v = getattr(n, f)
+                if isinstance(v, (ast.Expr, ast.Statement, tuple)):
+                    stack.append(v)

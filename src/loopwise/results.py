@@ -1,0 +1,253 @@
+"""Frozen result objects: what a check finds, what every reporter renders.
+
+`to_dict()` gives the JSON contract (`"schema": 1`, see docs/results.md) with a
+stable key order, so diffs of JSON output stay clean. "No crossover" or
+"unbounded" is always ``None``.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import Finding
+
+__all__ = [
+    "SCHEMA_VERSION", "GainCrossover", "PhaseCrossover", "DiskMargin", "Peak",
+    "Margins", "RequirementResult", "LoopResponse", "BreakResult", "ModelResult",
+    "RunResult", "CAUTION",
+]
+
+SCHEMA_VERSION = 1
+
+CAUTION = (
+    "Results describe the linear model only: an analysis aid, not a substitute for "
+    "the applicable standards and a qualified engineer's review."
+)
+
+
+def _num(x: float | None) -> float | None:
+    if x is None:
+        return None
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+@dataclass(frozen=True)
+class GainCrossover:
+    """|L(j w)| = 1: the lag that would put L on -1 and the phase margin there."""
+
+    freq: float
+    lag_deg: float
+    phase_margin_deg: float
+
+    def to_dict(self) -> dict:
+        return {"freq": _num(self.freq), "lag_deg": _num(self.lag_deg),
+                "phase_margin_deg": _num(self.phase_margin_deg)}
+
+
+@dataclass(frozen=True)
+class PhaseCrossover:
+    """L(j w) real and negative: the gain factor 1/|L| that would put L on -1, in dB."""
+
+    freq: float
+    gain_margin_db: float
+
+    def to_dict(self) -> dict:
+        return {"freq": _num(self.freq), "gain_margin_db": _num(self.gain_margin_db)}
+
+
+@dataclass(frozen=True)
+class DiskMargin:
+    """Balanced disk margin (Seiler, Packard & Gahinet 2020)."""
+
+    alpha: float
+    gain_db: tuple[float, float]
+    phase_deg: float
+    freq: float
+
+    def to_dict(self) -> dict:
+        return {"alpha": _num(self.alpha), "gain_db": [_num(self.gain_db[0]), _num(self.gain_db[1])],
+                "phase_deg": _num(self.phase_deg), "freq": _num(self.freq)}
+
+
+@dataclass(frozen=True)
+class Peak:
+    value: float
+    freq: float
+
+    @property
+    def db(self) -> float:
+        return 20.0 * math.log10(self.value) if self.value > 0 else -math.inf
+
+    def to_dict(self) -> dict:
+        return {"value": _num(self.value), "db": _num(self.db), "freq": _num(self.freq)}
+
+
+@dataclass(frozen=True)
+class Margins:
+    """Every margin of one break (claimed only when the closed loop is stable)."""
+
+    gain_crossovers: tuple[GainCrossover, ...]
+    phase_crossovers: tuple[PhaseCrossover, ...]
+    phase_margin_deg: float | None
+    gain_margin_up_db: float | None
+    gain_margin_down_db: float | None
+    delay_margin_s: float | None
+    disk_margin: DiskMargin | None
+    sensitivity_peak: Peak | None
+    complementary_peak: Peak | None
+    crossover_freq: float | None
+
+    @property
+    def gain_margin_db(self) -> float | None:
+        """The smaller of the up and down margins, in dB (None: unbounded both ways)."""
+        vals = [v for v in (self.gain_margin_up_db,
+                            None if self.gain_margin_down_db is None else -self.gain_margin_down_db)
+                if v is not None]
+        return min(vals) if vals else None
+
+
+@dataclass(frozen=True)
+class RequirementResult:
+    metric: str
+    op: str
+    limit: float
+    value: float | None  # None: the metric does not exist (e.g. no crossover) or unbounded
+    met: bool
+    line: int
+    file: str = ""
+    note: str | None = None
+
+    def to_dict(self) -> dict:
+        return {"metric": self.metric, "op": self.op, "limit": _num(self.limit),
+                "value": _num(self.value), "met": bool(self.met), "line": self.line}
+
+    def describe(self) -> str:
+        v = "none" if self.value is None else f"{self.value:.4g}"
+        return f"{self.metric} {self.op} {self.limit:.4g} (value {v})"
+
+
+@dataclass(frozen=True, eq=False)
+class LoopResponse:
+    """The engine's own samples of L along the contour (the plots use these).
+
+    `s` are the contour points of the upper half (indentations and the closing
+    arc included) in traversal order; `L` the loop transfer there; `on_axis`
+    marks the points on the imaginary axis itself (used for Bode views).
+    """
+
+    s: np.ndarray
+    L: np.ndarray
+    on_axis: np.ndarray
+    axis_poles: tuple[float, ...] = ()  # frequencies of indented poles (rad/s, >= 0)
+
+    @property
+    def freq(self) -> np.ndarray:
+        return self.s[self.on_axis].imag
+
+    @property
+    def axis_L(self) -> np.ndarray:
+        return self.L[self.on_axis]
+
+
+@dataclass(frozen=True, eq=False)
+class BreakResult:
+    name: str
+    at: str
+    line: int
+    stable: bool
+    open_loop_rhp_poles: int
+    encirclements: int
+    closed_loop_rhp_poles: int
+    marginal: bool
+    marginal_freq: float | None
+    margins: Margins | None  # None when the closed loop is not stable
+    requirements: tuple[RequirementResult, ...]
+    warnings: tuple[str, ...]
+    stabilising_gains: tuple[tuple[float, float], ...] = ()  # factor intervals k with k*L stable
+    enclosed_by: str | None = None
+    separation: float | None = None
+    response: LoopResponse | None = None
+
+    @property
+    def requirements_met(self) -> bool:
+        return all(r.met for r in self.requirements)
+
+    def to_dict(self) -> dict:
+        m = self.margins
+        d = {
+            "name": self.name, "at": self.at, "line": self.line, "stable": bool(self.stable),
+            "open_loop_rhp_poles": int(self.open_loop_rhp_poles),
+            "encirclements": int(self.encirclements),
+            "closed_loop_rhp_poles": int(self.closed_loop_rhp_poles),
+            "marginal": bool(self.marginal),
+            "marginal_freq": _num(self.marginal_freq),
+            "gain_crossovers": [g.to_dict() for g in m.gain_crossovers] if m else [],
+            "phase_crossovers": [p.to_dict() for p in m.phase_crossovers] if m else [],
+            "phase_margin_deg": _num(m.phase_margin_deg) if m else None,
+            "gain_margin_up_db": _num(m.gain_margin_up_db) if m else None,
+            "gain_margin_down_db": _num(m.gain_margin_down_db) if m else None,
+            "delay_margin_s": _num(m.delay_margin_s) if m else None,
+            "disk_margin": m.disk_margin.to_dict() if m and m.disk_margin else None,
+            "sensitivity_peak": m.sensitivity_peak.to_dict() if m and m.sensitivity_peak else None,
+            "complementary_peak": m.complementary_peak.to_dict() if m and m.complementary_peak else None,
+            "crossover_freq": _num(m.crossover_freq) if m else None,
+            "enclosed_by": self.enclosed_by,
+            "separation": _num(self.separation),
+            "stabilising_gains": [[_num(a), _num(b)] for a, b in self.stabilising_gains],
+            "requirements": [r.to_dict() for r in self.requirements],
+            "warnings": list(self.warnings),
+        }
+        return d
+
+
+@dataclass(frozen=True, eq=False)
+class ModelResult:
+    file: str
+    model: str
+    stable: bool
+    closed_loop_rhp_poles: int
+    breaks: tuple[BreakResult, ...]
+    findings: tuple[Finding, ...] = ()  # warnings and notes (errors make the model unreadable)
+
+    @property
+    def requirements_met(self) -> bool:
+        return all(b.requirements_met for b in self.breaks)
+
+    @property
+    def ok(self) -> bool:
+        return self.stable and self.requirements_met
+
+    def to_dict(self) -> dict:
+        return {
+            "file": self.file, "model": self.model, "stable": bool(self.stable),
+            "closed_loop_rhp_poles": int(self.closed_loop_rhp_poles),
+            "breaks": [b.to_dict() for b in self.breaks],
+            "findings": [f.to_dict() for f in self.findings],
+        }
+
+
+@dataclass(frozen=True, eq=False)
+class RunResult:
+    """All models of one run, in a stable order, and the errors of those not read."""
+
+    models: tuple[ModelResult, ...]
+    errors: tuple[Finding, ...]
+    version: str = ""
+
+    @property
+    def exit_code(self) -> int:
+        if self.errors:
+            return 2
+        return 0 if all(m.ok for m in self.models) else 1
+
+    def to_dict(self) -> dict:
+        return {
+            "schema": SCHEMA_VERSION, "tool": "loopwise", "version": self.version,
+            "caution": CAUTION,
+            "models": [m.to_dict() for m in self.models],
+            "errors": [{"file": e.span.file, "line": e.span.line, "col": e.span.col,
+                        "code": e.code, "message": e.message, "hint": e.hint} for e in self.errors],
+        }
