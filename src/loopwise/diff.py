@@ -1,0 +1,422 @@
+"""Compare two sets of check results: what got better, what got worse.
+
+Pure: takes the results of both sides (already checked, keyed by the model's
+path relative to its root) and returns frozen records; reading files, git and
+printing live in `loopwise.commands.diff` and the `report.diff_*` modules.
+
+``None`` in a margin means "unbounded / no crossover" (see `loopwise.results`);
+here it is ordered as the best possible value of that margin, so a change from
+``None`` to a number is a loss (and reported in words, never as a number).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Mapping, Union
+
+from .errors import Finding
+from .results import BreakResult, Margins, ModelResult, RequirementResult
+from .settings import Regression
+
+__all__ = [
+    "Unreadable", "MarginSpec", "MARGINS", "MarginChange", "VerdictChange",
+    "RequirementChange", "BreakDiff", "ModelDiff", "DiffResult", "compare",
+    "compare_models", "compare_breaks",
+]
+
+#: relative tolerance below which two margin values count as equal
+#: (re-checking the same loop is deterministic; this only absorbs round-off)
+REL_TOL = 1e-6
+ABS_TOL = 1e-9
+
+
+@dataclass(frozen=True)
+class Unreadable:
+    """A model that could not be read on one side, with its located errors."""
+
+    file: str
+    errors: tuple[Finding, ...]
+    rendered: tuple[str, ...] = ()  # file:line:col, source line, caret, hint (made at the edge)
+
+
+Side = Union[ModelResult, Unreadable, None]
+
+
+@dataclass(frozen=True)
+class MarginSpec:
+    """How one margin is read: its label, unit, which way is better, what None means."""
+
+    key: str             # the key in BreakResult.to_dict() / the JSON contract
+    label: str
+    unit: str
+    higher_is_better: bool | None  # None: neither (informational, e.g. crossover frequency)
+    none_means: str      # words for a None value
+
+    def value(self, margins: Margins) -> float | None:
+        if self.key == "disk_margin_alpha":
+            return margins.disk_margin.alpha if margins.disk_margin else None
+        if self.key == "sensitivity_peak_db":
+            return margins.sensitivity_peak.db if margins.sensitivity_peak else None
+        if self.key == "complementary_peak_db":
+            return margins.complementary_peak.db if margins.complementary_peak else None
+        return getattr(margins, self.key)
+
+
+MARGINS: tuple[MarginSpec, ...] = (
+    MarginSpec("phase_margin_deg", "phase margin", "deg", True, "unbounded (no gain crossover)"),
+    MarginSpec("gain_margin_up_db", "gain margin up", "dB", True, "unbounded (no phase crossover)"),
+    # a down margin is a negative dB value: more negative is better, so "higher is better"
+    # is False and None (any gain reduction keeps the loop stable) is the best value
+    MarginSpec("gain_margin_down_db", "gain margin down", "dB", False, "unbounded (no phase crossover)"),
+    MarginSpec("delay_margin_s", "delay margin", "s", True, "unbounded (no gain crossover)"),
+    MarginSpec("disk_margin_alpha", "disk margin alpha", "", True, "not available"),
+    MarginSpec("sensitivity_peak_db", "sensitivity peak Ms", "dB", False, "not available"),
+    MarginSpec("complementary_peak_db", "complementary peak Mt", "dB", False, "not available"),
+    MarginSpec("crossover_freq", "crossover", "rad/s", None, "no gain crossover"),
+)
+
+
+@dataclass(frozen=True)
+class MarginChange:
+    key: str
+    label: str
+    unit: str
+    before: float | None
+    after: float | None
+    delta: float | None       # after - before; None when either side is None
+    direction: str            # "better" | "worse" | "changed" (no better/worse for this metric)
+    words: str | None         # the change in words when a side is None
+    regression: str | None    # why this counts as a regression under the policy, else None
+
+
+@dataclass(frozen=True)
+class VerdictChange:
+    stable_before: bool
+    stable_after: bool
+    z_before: int
+    z_after: int
+    marginal_before: bool = False
+    marginal_after: bool = False
+
+    @property
+    def direction(self) -> str:
+        if self.stable_before != self.stable_after:
+            return "better" if self.stable_after else "worse"
+        return "better" if self.z_after < self.z_before else "worse"
+
+
+@dataclass(frozen=True)
+class RequirementChange:
+    metric: str
+    op: str
+    limit_before: float | None  # None: the requirement did not exist before
+    limit_after: float | None   # None: it no longer exists
+    value_before: float | None
+    value_after: float | None
+    met_before: bool | None
+    met_after: bool | None
+    status: str                 # "stopped being met" | "now met" | "added" | "removed" | "changed"
+    regression: str | None
+
+
+@dataclass(frozen=True)
+class BreakDiff:
+    name: str
+    status: str                 # "changed" | "added" | "removed"
+    at_before: str | None
+    at_after: str | None
+    verdict: VerdictChange | None
+    margins: tuple[MarginChange, ...]
+    requirements: tuple[RequirementChange, ...]
+    regressions: tuple[str, ...]
+    stable_after: bool | None = None   # for added/removed breaks: their verdict on their side
+    stable_before: bool | None = None
+
+
+@dataclass(frozen=True)
+class ModelDiff:
+    file: str
+    status: str   # "changed" | "unchanged" | "added" | "removed" | "errors appeared"
+                  # | "errors disappeared" | "still unreadable"
+    model_before: str | None
+    model_after: str | None
+    verdict: VerdictChange | None
+    breaks: tuple[BreakDiff, ...]
+    breaks_unchanged: int
+    errors_before: tuple[Finding, ...] = ()
+    errors_after: tuple[Finding, ...] = ()
+    rendered_errors: tuple[str, ...] = ()  # the NEW side's errors, rendered at the edge
+    regressions: tuple[str, ...] = ()
+    stable_after: bool | None = None
+    breaks_after: int = 0
+
+    @property
+    def unreadable_after(self) -> bool:
+        return self.status in ("errors appeared", "still unreadable")
+
+
+@dataclass(frozen=True)
+class DiffResult:
+    old_label: str
+    new_label: str
+    models: tuple[ModelDiff, ...]
+    policy: Regression
+
+    @property
+    def regressions(self) -> tuple[str, ...]:
+        return tuple(f"{m.file}: {r}" for m in self.models for r in m.regressions)
+
+    @property
+    def unreadable(self) -> tuple[ModelDiff, ...]:
+        return tuple(m for m in self.models if m.unreadable_after)
+
+    @property
+    def exit_code(self) -> int:
+        """2 when a model cannot be read on the NEW side, 1 on a regression, else 0."""
+        if self.unreadable:
+            return 2
+        return 1 if self.regressions else 0
+
+    def count(self, status: str) -> int:
+        return sum(1 for m in self.models if m.status == status)
+
+
+# --------------------------------------------------------------------------- margins
+
+def _same(a: float | None, b: float | None) -> bool:
+    if a is None or b is None:
+        return a is None and b is None
+    return math.isclose(a, b, rel_tol=REL_TOL, abs_tol=ABS_TOL)
+
+
+def _as_number(spec: MarginSpec, x: float | None) -> float:
+    """None as the best value of the metric (unbounded), for ordering only."""
+    if x is not None:
+        return x
+    return math.inf if spec.higher_is_better else -math.inf
+
+
+def _direction(spec: MarginSpec, before: float | None, after: float | None) -> str:
+    if spec.higher_is_better is None:
+        return "changed"
+    b, a = _as_number(spec, before), _as_number(spec, after)
+    if spec.none_means == "not available" and (before is None or after is None):
+        return "changed"  # a missing value is not a better or worse one
+    improved = a > b if spec.higher_is_better else a < b
+    return "better" if improved else "worse"
+
+
+def _words(spec: MarginSpec, before: float | None, after: float | None) -> str | None:
+    if before is None and after is None:
+        return None
+    if before is None:
+        return f"was {spec.none_means}, now finite"
+    if after is None:
+        return f"now {spec.none_means}"
+    return None
+
+
+def _margin_regression(spec: MarginSpec, before: float | None, after: float | None,
+                       policy: Regression) -> str | None:
+    """The policy's loss thresholds; unbounded -> finite is an unbounded loss."""
+    if spec.key == "phase_margin_deg":
+        loss = _as_number(spec, before) - _as_number(spec, after)
+        if loss > policy.phase_margin_loss_deg:
+            return f"phase margin loss above {policy.phase_margin_loss_deg:g} deg"
+    elif spec.key == "gain_margin_up_db":
+        loss = _as_number(spec, before) - _as_number(spec, after)
+        if loss > policy.gain_margin_loss_db:
+            return f"gain margin up loss above {policy.gain_margin_loss_db:g} dB"
+    elif spec.key == "gain_margin_down_db":
+        # moving towards 0 dB (less room to reduce the gain) is the loss
+        loss = _as_number(spec, after) - _as_number(spec, before)
+        if loss > policy.gain_margin_loss_db:
+            return f"gain margin down loss above {policy.gain_margin_loss_db:g} dB"
+    elif spec.key == "delay_margin_s":
+        b, a = _as_number(spec, before), _as_number(spec, after)
+        if b > 0 and a < b:
+            fraction = 1.0 if math.isinf(b) else (b - a) / b
+            if fraction > policy.delay_margin_loss_fraction:
+                return f"delay margin loss above {policy.delay_margin_loss_fraction:.0%}"
+    return None
+
+
+def compare_margins(before: Margins, after: Margins, policy: Regression) -> tuple[MarginChange, ...]:
+    """Every margin that differs between two stable versions of one break."""
+    changes = []
+    for spec in MARGINS:
+        b, a = spec.value(before), spec.value(after)
+        if _same(b, a):
+            continue
+        delta = None if b is None or a is None else a - b
+        changes.append(MarginChange(
+            spec.key, spec.label, spec.unit, b, a, delta, _direction(spec, b, a),
+            _words(spec, b, a), _margin_regression(spec, b, a, policy)))
+    return tuple(changes)
+
+
+# --------------------------------------------------------------------------- requirements
+
+def _req_key(reqs: tuple[RequirementResult, ...]) -> dict[tuple[str, str, int], RequirementResult]:
+    """Requirements keyed by metric, operator and their order among equals (limits may change)."""
+    seen: dict[tuple[str, str], int] = {}
+    out = {}
+    for r in reqs:
+        n = seen.get((r.metric, r.op), 0)
+        seen[(r.metric, r.op)] = n + 1
+        out[(r.metric, r.op, n)] = r
+    return out
+
+
+def _requirement_change(b: RequirementResult | None, a: RequirementResult | None,
+                        policy: Regression) -> RequirementChange | None:
+    if b is not None and a is not None:
+        if b.met == a.met and _same(b.limit, a.limit) and _same(b.value, a.value):
+            return None
+        status = ("stopped being met" if b.met and not a.met else
+                  "now met" if a.met and not b.met else "changed")
+    else:
+        status = "added" if b is None else "removed"
+    regression = None
+    if policy.requirement_stops_being_met and a is not None and not a.met and (b is None or b.met):
+        regression = ("requirement stopped being met" if b is not None
+                      else "requirement added and not met")
+    r = a or b
+    return RequirementChange(
+        r.metric, r.op, b.limit if b else None, a.limit if a else None,
+        b.value if b else None, a.value if a else None,
+        b.met if b else None, a.met if a else None, status,
+        None if regression is None else f"{regression}: {r.metric} {r.op} "
+                                        f"{(a or b).limit:.4g}")
+
+
+def compare_requirements(before: tuple[RequirementResult, ...], after: tuple[RequirementResult, ...],
+                         policy: Regression) -> tuple[RequirementChange, ...]:
+    kb, ka = _req_key(before), _req_key(after)
+    keys = list(kb) + [k for k in ka if k not in kb]
+    changes = (_requirement_change(kb.get(k), ka.get(k), policy) for k in keys)
+    return tuple(c for c in changes if c is not None)
+
+
+# --------------------------------------------------------------------------- breaks
+
+def _verdict(before_stable: bool, before_z: int, after_stable: bool, after_z: int,
+             before_marginal: bool = False, after_marginal: bool = False) -> VerdictChange | None:
+    if (before_stable, before_z, before_marginal) == (after_stable, after_z, after_marginal):
+        return None
+    return VerdictChange(before_stable, after_stable, before_z, after_z, before_marginal, after_marginal)
+
+
+def _verdict_regression(v: VerdictChange | None, policy: Regression, what: str) -> str | None:
+    if v is None or not policy.verdict_to_unstable:
+        return None
+    if v.stable_before and not v.stable_after:
+        return f"{what} became unstable (Z {v.z_before} -> {v.z_after})"
+    return None
+
+
+def compare_breaks(before: BreakResult, after: BreakResult, policy: Regression) -> BreakDiff | None:
+    """The changes of one break (matched by name); None when nothing changed."""
+    verdict = _verdict(before.stable, before.closed_loop_rhp_poles, after.stable,
+                       after.closed_loop_rhp_poles, before.marginal, after.marginal)
+    margins: tuple[MarginChange, ...] = ()
+    if before.margins is not None and after.margins is not None:
+        margins = compare_margins(before.margins, after.margins, policy)
+    reqs = compare_requirements(before.requirements, after.requirements, policy)
+    if verdict is None and not margins and not reqs and before.at == after.at:
+        return None
+    regressions = [r for r in (_verdict_regression(verdict, policy, f"break {after.name}"),) if r]
+    regressions += [f"break {after.name}: {m.regression}" for m in margins if m.regression]
+    regressions += [f"break {after.name}: {r.regression}" for r in reqs if r.regression]
+    return BreakDiff(after.name, "changed", before.at, after.at, verdict, margins, reqs,
+                     tuple(regressions), stable_after=after.stable, stable_before=before.stable)
+
+
+def _added_break(after: BreakResult, policy: Regression) -> BreakDiff:
+    """A new break: a regression if it is unstable or misses a requirement (new and not met)."""
+    reqs = compare_requirements((), after.requirements, policy)
+    regressions = []
+    if policy.verdict_to_unstable and not after.stable:
+        regressions.append(f"break {after.name} added and unstable "
+                           f"(Z {after.closed_loop_rhp_poles})")
+    regressions += [f"break {after.name}: {r.regression}" for r in reqs if r.regression]
+    return BreakDiff(after.name, "added", None, after.at, None, (), reqs, tuple(regressions),
+                     stable_after=after.stable)
+
+
+def _removed_break(before: BreakResult) -> BreakDiff:
+    return BreakDiff(before.name, "removed", before.at, None, None, (), (), (),
+                     stable_before=before.stable)
+
+
+# --------------------------------------------------------------------------- models
+
+def _readable_pair(file: str, before: ModelResult, after: ModelResult, policy: Regression) -> ModelDiff:
+    verdict = _verdict(before.stable, before.closed_loop_rhp_poles,
+                       after.stable, after.closed_loop_rhp_poles)
+    old = {b.name: b for b in before.breaks}
+    new = {b.name: b for b in after.breaks}
+    diffs: list[BreakDiff] = []
+    unchanged = 0
+    for name in [b.name for b in after.breaks] + [n for n in old if n not in new]:
+        if name not in old:
+            diffs.append(_added_break(new[name], policy))
+        elif name not in new:
+            diffs.append(_removed_break(old[name]))
+        else:
+            d = compare_breaks(old[name], new[name], policy)
+            if d is None:
+                unchanged += 1
+            else:
+                diffs.append(d)
+    regressions = [r for d in diffs for r in d.regressions]
+    model_regression = _verdict_regression(verdict, policy, "model")
+    if model_regression and not any(d.verdict and d.verdict.stable_before and not d.verdict.stable_after
+                                    for d in diffs):
+        regressions.insert(0, model_regression)  # said once: a break's own line says it already
+    changed = verdict is not None or diffs or before.model != after.model
+    return ModelDiff(file, "changed" if changed else "unchanged", before.model, after.model,
+                     verdict, tuple(diffs), unchanged, regressions=tuple(regressions),
+                     stable_after=after.stable, breaks_after=len(after.breaks))
+
+
+def _new_model(file: str, after: ModelResult, policy: Regression, status: str,
+               errors_before: tuple[Finding, ...] = ()) -> ModelDiff:
+    """A model with nothing to compare against: every break counts as added."""
+    diffs = tuple(_added_break(b, policy) for b in after.breaks)
+    regressions = []
+    if policy.verdict_to_unstable and not after.stable and not any(d.regressions for d in diffs):
+        regressions.append(f"model {status} and unstable (Z {after.closed_loop_rhp_poles})")
+    regressions += [r for d in diffs for r in d.regressions]
+    return ModelDiff(file, status, None, after.model, None, diffs, 0,
+                     errors_before=errors_before, regressions=tuple(regressions),
+                     stable_after=after.stable, breaks_after=len(after.breaks))
+
+
+def compare_models(file: str, before: Side, after: Side, policy: Regression) -> ModelDiff:
+    """One model path on both sides (None: absent on that side)."""
+    if before is None and after is None:
+        raise ValueError(f"{file}: absent on both sides")
+    if isinstance(after, Unreadable):
+        status = "still unreadable" if isinstance(before, Unreadable) else "errors appeared"
+        return ModelDiff(
+            file, status, getattr(before, "model", None), None, None, (), 0,
+            errors_before=before.errors if isinstance(before, Unreadable) else (),
+            errors_after=after.errors, rendered_errors=after.rendered)
+    if after is None:
+        return ModelDiff(file, "removed", getattr(before, "model", None), None, None, (), 0,
+                         errors_before=before.errors if isinstance(before, Unreadable) else ())
+    if before is None:
+        return _new_model(file, after, policy, "added")
+    if isinstance(before, Unreadable):
+        return _new_model(file, after, policy, "errors disappeared", before.errors)
+    return _readable_pair(file, before, after, policy)
+
+
+def compare(old: Mapping[str, Side], new: Mapping[str, Side], policy: Regression | None = None,
+            old_label: str = "old", new_label: str = "new") -> DiffResult:
+    """Compare two sets of results keyed by the model's relative path (sorted output)."""
+    policy = policy or Regression()
+    files = sorted(set(old) | set(new))
+    models = tuple(compare_models(f, old.get(f), new.get(f), policy) for f in files)
+    return DiffResult(old_label, new_label, models, policy)

@@ -1,0 +1,187 @@
+"""`loopwise diff` as aligned plain text that reads without colour.
+
+Every change says its direction in words ("better", "worse") next to the
+signed delta, and a regression under the policy says so at the end of its line.
+"""
+from __future__ import annotations
+
+from ..diff import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
+from ..results import CAUTION
+from ..settings import Regression
+
+__all__ = ["render", "fmt_value", "fmt_delta", "verdict_words", "requirement_words",
+           "policy_words", "summary_words", "margin_words"]
+
+#: a requirement metric's unit (limits are stored in the metric's own unit)
+REQUIREMENT_UNITS = {
+    "phase_margin": "deg", "gain_margin": "dB", "gain_margin_up": "dB", "gain_margin_down": "dB",
+    "delay_margin": "s", "disk_gain": "dB", "disk_phase": "deg", "crossover": "rad/s",
+}
+
+
+def fmt_value(x: float | None, unit: str, none_words: str = "none") -> str:
+    """A value with its unit; delays in the most readable of s, ms, us."""
+    if x is None:
+        return none_words
+    if unit == "s":
+        for scale, name in ((1.0, "s"), (1e-3, "ms"), (1e-6, "us")):
+            if abs(x) >= scale or name == "us":
+                return f"{x / scale:.4g} {name}"
+    if unit in ("deg", "dB"):
+        return f"{x:.2f} {unit}"
+    if unit == "":
+        return f"{x:.4g}"
+    return f"{x:.4g} {unit}"
+
+
+def fmt_delta(change: MarginChange) -> str:
+    """The signed change and its direction: "-13.70, worse" or "now unbounded, better"."""
+    if change.delta is None:
+        return f"{change.words}, {change.direction}"
+    if change.unit == "s":
+        body = fmt_value(change.delta, "s")
+        if change.before:
+            body += f", {change.delta / change.before:+.0%}"
+        body = body if body.startswith("-") else "+" + body
+    elif change.unit in ("deg", "dB"):
+        body = f"{change.delta:+.2f}"
+    else:
+        body = f"{change.delta:+.4g}"
+    return f"{body}, {change.direction}"
+
+
+def margin_words(change: MarginChange) -> tuple[str, str, str, str]:
+    """(label, before, after, change) columns of one margin row."""
+    none = "unbounded" if change.words and "unbounded" in (change.words or "") else "none"
+    return (change.label, fmt_value(change.before, change.unit, none),
+            fmt_value(change.after, change.unit, none), fmt_delta(change))
+
+
+def _state(stable: bool, z: int, marginal: bool) -> str:
+    if marginal:
+        return f"marginal (Z {z})"
+    return "stable" if stable else f"UNSTABLE (Z {z})"
+
+
+def verdict_words(v: VerdictChange) -> str:
+    return (f"{_state(v.stable_before, v.z_before, v.marginal_before)} -> "
+            f"{_state(v.stable_after, v.z_after, v.marginal_after)} "
+            f"(Z {v.z_before} -> {v.z_after}, {v.direction})")
+
+
+def requirement_words(r: RequirementChange) -> str:
+    unit = REQUIREMENT_UNITS.get(r.metric, "")
+    limit = r.limit_after if r.limit_after is not None else r.limit_before
+    head = f"{r.metric} {r.op} {fmt_value(limit, unit)}"
+    if r.limit_before is not None and r.limit_after is not None and r.limit_before != r.limit_after:
+        head += f" (limit was {fmt_value(r.limit_before, unit)})"
+    met = {True: "met", False: "NOT MET", None: "absent"}
+    value = f"value {fmt_value(r.value_before, unit)} -> {fmt_value(r.value_after, unit)}"
+    if r.status == "added":
+        value = f"value {fmt_value(r.value_after, unit)}"
+    elif r.status == "removed":
+        value = f"value {fmt_value(r.value_before, unit)}"
+    return f"{head}: {met[r.met_before]} -> {met[r.met_after]} ({r.status}; {value})"
+
+
+def policy_words(p: Regression) -> str:
+    parts = [f"phase margin loss > {p.phase_margin_loss_deg:g} deg",
+             f"gain margin loss > {p.gain_margin_loss_db:g} dB (up or down)",
+             f"delay margin loss > {p.delay_margin_loss_fraction:.0%}"]
+    if p.verdict_to_unstable:
+        parts.append("a loop that becomes unstable")
+    if p.requirement_stops_being_met:
+        parts.append("a requirement that stops being met")
+    return ", ".join(parts)
+
+
+def summary_words(result: DiffResult) -> str:
+    order = ("changed", "added", "removed", "errors appeared", "errors disappeared",
+             "still unreadable", "unchanged")
+    counts = [f"{result.count(s)} {s}" for s in order if result.count(s)]
+    n = len(result.regressions)
+    tail = f"{n} regression{'s' if n != 1 else ''}"
+    if result.unreadable:
+        tail += f", {len(result.unreadable)} model(s) unreadable on the new side"
+    return f"{len(result.models)} model(s): {', '.join(counts) or 'none'}; {tail}"
+
+
+def _table(rows: list[tuple[str, ...]], indent: str) -> list[str]:
+    """Columns padded to their widest cell; the last column is left ragged."""
+    if not rows:
+        return []
+    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]) - 1)]
+    out = []
+    for row in rows:
+        cells = [c.ljust(w) for c, w in zip(row, widths)] + [row[-1]]
+        out.append((indent + "  ".join(cells)).rstrip())
+    return out
+
+
+def _break_lines(d: BreakDiff) -> list[str]:
+    at = d.at_after or d.at_before
+    if d.status == "added":
+        state = "stable" if d.stable_after else "UNSTABLE"
+        lines = [f"  + break {d.name} (at {at}): added, {state}"]
+    elif d.status == "removed":
+        return [f"  - break {d.name} (at {at}): removed"]
+    else:
+        lines = [f"  break {d.name} (at {at})"]
+        if d.at_before != d.at_after:
+            lines.append(f"    opened at {d.at_before} -> {d.at_after}")
+    rows: list[tuple[str, ...]] = []
+    if d.verdict is not None:
+        rows.append(("verdict", verdict_words(d.verdict), ""))
+    for m in d.margins:
+        label, before, after, delta = margin_words(m)
+        flag = f"REGRESSION: {m.regression}" if m.regression else ""
+        rows.append((label, f"{before} -> {after}", f"({delta})" + (f"  {flag}" if flag else "")))
+    for r in d.requirements:
+        rows.append(("requirement", requirement_words(r), "REGRESSION" if r.regression else ""))
+    if d.verdict is not None and not (d.stable_before and d.stable_after):
+        rows.append(("margins", "not compared (claimed only for a stable closed loop)", ""))
+    lines += _table(rows, "    ")
+    return lines
+
+
+def _model_lines(m: ModelDiff) -> list[str]:
+    head = f"{m.file}: {m.status}"
+    if m.status in ("added", "errors disappeared"):
+        head += f" ({'stable' if m.stable_after else 'UNSTABLE'}, {m.breaks_after} break(s))"
+    lines = [head]
+    if m.model_before and m.model_after and m.model_before != m.model_after:
+        lines.append(f"  model renamed {m.model_before} -> {m.model_after}")
+    if m.verdict is not None:
+        lines.append(f"  model verdict {verdict_words(m.verdict)}")
+    for d in m.breaks:
+        lines += _break_lines(d)
+    if m.breaks_unchanged:
+        lines.append(f"  {m.breaks_unchanged} break{'s' if m.breaks_unchanged != 1 else ''} unchanged")
+    if m.status == "errors disappeared":
+        lines.append(f"  ({len(m.errors_before)} error(s) on the old side are gone)")
+    if m.unreadable_after:
+        for block in m.rendered_errors or tuple(str(e.span) + ": " + e.message for e in m.errors_after):
+            lines += ["  " + ln for ln in block.splitlines()]
+    for r in m.regressions:
+        if r.startswith("model "):  # the break rows carry their own flags
+            lines.append(f"  REGRESSION: {r}")
+    return lines
+
+
+def render(result: DiffResult) -> str:
+    out = [f"loopwise diff: {result.old_label} -> {result.new_label}",
+           f"regression: {policy_words(result.policy)}", ""]
+    unchanged = 0
+    for m in result.models:
+        if m.status == "unchanged":
+            unchanged += 1
+            continue
+        out += _model_lines(m)
+        out.append("")
+    if unchanged:
+        out += [f"{unchanged} model{'s' if unchanged != 1 else ''} unchanged", ""]
+    out.append(summary_words(result))
+    for r in result.regressions:
+        out.append(f"  regression: {r}")
+    out += ["", CAUTION]
+    return "\n".join(out) + "\n"
