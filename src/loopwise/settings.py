@@ -23,7 +23,7 @@ from pathlib import Path
 
 from .errors import UsageError
 
-__all__ = ["Settings", "Regression", "load_settings", "find_config"]
+__all__ = ["Settings", "Regression", "load_settings", "load_settings_file", "find_config"]
 
 
 @dataclass(frozen=True)
@@ -87,6 +87,26 @@ def load_settings(start: Path | None = None) -> Settings:
     if found is None:
         return Settings()
     path, table = found
+    return _from_table(path, table)
+
+
+def load_settings_file(path: Path | str) -> Settings:
+    """Settings from one named file (`--config`): a loopwise.toml, or a pyproject.toml's
+    `[tool.loopwise]` table."""
+    path = Path(path)
+    if not path.is_file():
+        raise UsageError(f"settings file {path} does not exist")
+    table = _read(path)
+    if path.name == "pyproject.toml":
+        if "loopwise" not in table.get("tool", {}):
+            raise UsageError(f"{path} has no [tool.loopwise] table")
+        table = table["tool"]["loopwise"]
+    if not isinstance(table, dict):
+        raise UsageError(f"{path}: [tool.loopwise] must be a table")
+    return _from_table(path, table)
+
+
+def _from_table(path: Path, table: dict) -> Settings:
     where = str(path)
     known = {"requirements", "include", "exclude", "fail_on_warnings", "regression"}
     unknown = sorted(set(table) - known)
