@@ -1,0 +1,373 @@
+"""Shared generators of test loops for the engine's reference checks and its benchmark.
+
+Everything here is deterministic (fixed seeds), so a failing case can be named
+and re-run. Two kinds of material:
+
+* `delay_free_loops()`: single loop transfers L(s) in zero-pole-gain form, in
+  families that stress a Nyquist count (RHP poles, integrators up to order 3,
+  undamped pairs on the axis, lightly damped pairs down to zeta = 1e-4, RHP
+  zeros, near cancellations, biproper loops, gain sweeps).
+* `nested_cascade()`: a cascade of n nested loops (loop 1 innermost), rendered
+  both as `.loop` model text and as an independent python-control
+  interconnection, so the engine's reduction can be checked against it.
+
+python-control is imported lazily: this module is shared with bench/ scripts.
+"""
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = [
+    "LoopCase", "delay_free_loops", "closed_loop_rhp", "near_axis",
+    "Stage", "Cascade", "nested_cascade", "zpk_text", "strip_delays",
+]
+
+
+@dataclass(frozen=True)
+class LoopCase:
+    """One loop transfer L(s) = gain * prod(s - z) / prod(s - p) (conjugate pairs complete)."""
+
+    name: str
+    family: str
+    zeros: tuple[complex, ...]
+    poles: tuple[complex, ...]
+    gain: float
+    delay: float = 0.0
+
+    @property
+    def rhp_poles(self) -> int:
+        """Open-loop poles strictly in the open right half plane, counted from the zpk itself."""
+        return int(sum(1 for p in self.poles if p.real > 0))
+
+    @property
+    def axis_poles(self) -> int:
+        return int(sum(1 for p in self.poles if p.real == 0))
+
+    def num_den(self) -> tuple[np.ndarray, np.ndarray]:
+        """Descending coefficients (real: pairs are complete)."""
+        num = self.gain * np.real(np.poly(np.asarray(self.zeros, complex))) if self.zeros \
+            else np.array([self.gain], float)
+        den = np.real(np.poly(np.asarray(self.poles, complex)))
+        return np.atleast_1d(num).astype(float), den.astype(float)
+
+    def to_control(self):
+        import control
+        num, den = self.num_den()
+        return control.tf(num, den)
+
+
+# ----------------------------------------------------------------------------- building blocks
+
+def _log_uniform(rng, lo: float, hi: float) -> float:
+    return float(math.exp(rng.uniform(math.log(lo), math.log(hi))))
+
+
+def _pair(wn: float, zeta: float) -> list[complex]:
+    """The conjugate pair of s^2 + 2 zeta wn s + wn^2 (zeta < 0 puts it in the RHP)."""
+    re_ = -zeta * wn
+    im_ = wn * math.sqrt(max(1.0 - zeta * zeta, 0.0))
+    return [complex(re_, im_), complex(re_, -im_)]
+
+
+def _roots(rng, n: int, side: str = "lhp", wlo: float = 0.1, whi: float = 30.0) -> list[complex]:
+    """n roots (complete conjugate pairs) with magnitudes log-uniform in [wlo, whi].
+
+    side: "lhp" (damping 0.05..1 or real), "rhp" (mirror), "any" (each root either side).
+    """
+    out: list[complex] = []
+    while len(out) < n:
+        w = _log_uniform(rng, wlo, whi)
+        sign = -1.0 if side == "lhp" else 1.0 if side == "rhp" else rng.choice([-1.0, 1.0])
+        if n - len(out) >= 2 and rng.random() < 0.5:
+            zeta = rng.uniform(0.05, 0.95)
+            out += _pair(w, -sign * zeta)
+        else:
+            out.append(complex(sign * w, 0.0))
+    return out
+
+
+def _gain(rng, lo: float = 1e-2, hi: float = 1e2, negative: float = 0.1) -> float:
+    g = _log_uniform(rng, lo, hi)
+    return -g if rng.random() < negative else g
+
+
+def _case(family: str, i: int, zeros, poles, gain) -> LoopCase:
+    return LoopCase(f"{family}/{i:03d}", family, tuple(complex(z) for z in zeros),
+                    tuple(complex(p) for p in poles), float(gain))
+
+
+# ----------------------------------------------------------------------------- families
+
+def _stable(rng, i):
+    n = int(rng.integers(1, 11))
+    m = int(rng.integers(0, n))
+    return _case("lhp", i, _roots(rng, m, "lhp"), _roots(rng, n, "lhp"), _gain(rng))
+
+
+def _rhp_poles(rng, i):
+    n = int(rng.integers(1, 11))
+    k = int(rng.integers(1, min(n, 3) + 1))
+    m = int(rng.integers(0, n))
+    return _case("rhp-poles", i, _roots(rng, m, "lhp"),
+                 _roots(rng, k, "rhp") + _roots(rng, n - k, "lhp"), _gain(rng, 0.1, 1e3))
+
+
+def _integrators(rng, i):
+    q = int(rng.integers(1, 4))
+    n = int(rng.integers(q, 11))
+    m = int(rng.integers(0, n - q + 1 if n > q else 1))
+    m = min(m, n)
+    poles = [0j] * q + _roots(rng, n - q, "lhp" if rng.random() < 0.8 else "any")
+    return _case("integrators", i, _roots(rng, m, "lhp"), poles, _gain(rng))
+
+
+def _axis_pairs(rng, i):
+    k = int(rng.integers(1, 3))
+    q = int(rng.integers(0, 2))
+    n = int(rng.integers(2 * k + q, 11))
+    poles = [p for _ in range(k) for p in _pair(_log_uniform(rng, 0.3, 10.0), 0.0)]
+    poles += [0j] * q + _roots(rng, n - 2 * k - q, "lhp")
+    m = int(rng.integers(0, n))
+    return _case("axis-pairs", i, _roots(rng, m, "lhp"), poles, _gain(rng))
+
+
+def _light_damping(rng, i):
+    zeta = 10.0 ** rng.uniform(-4, -1)
+    n = int(rng.integers(2, 11))
+    poles = _pair(_log_uniform(rng, 0.3, 10.0), zeta) + _roots(rng, n - 2, "lhp")
+    m = int(rng.integers(0, n))
+    return _case("light-damping", i, _roots(rng, m, "any"), poles, _gain(rng))
+
+
+def _rhp_zeros(rng, i):
+    n = int(rng.integers(1, 11))
+    m = int(rng.integers(1, n + 1))
+    k = int(rng.integers(1, m + 1))
+    zeros = _roots(rng, k, "rhp") + _roots(rng, m - k, "lhp")
+    poles = _roots(rng, n, "lhp" if rng.random() < 0.7 else "any")
+    return _case("rhp-zeros", i, zeros, poles, _gain(rng))
+
+
+def _near_cancel(rng, i):
+    """A zero within a relative 1e-6..1e-2 of a pole (either half plane)."""
+    n = int(rng.integers(2, 11))
+    poles = _roots(rng, n, "lhp" if rng.random() < 0.6 else "any")
+    target = poles[int(rng.integers(0, n))]
+    rel = 10.0 ** rng.uniform(-6, -2)
+    if target.imag == 0:
+        zeros = [complex(target.real + rel * abs(target) * rng.choice([-1.0, 1.0]), 0.0)]
+    else:
+        z = target + rel * abs(target) * np.exp(1j * rng.uniform(0, 2 * math.pi))
+        zeros = [z, z.conjugate()]
+    extra = int(rng.integers(0, n - len(zeros) + 1))
+    return _case("near-cancel", i, zeros + _roots(rng, extra, "any"), poles, _gain(rng))
+
+
+def _biproper(rng, i):
+    n = int(rng.integers(1, 11))
+    return _case("biproper", i, _roots(rng, n, "any"), _roots(rng, n, "any"), _gain(rng, 0.05, 20))
+
+
+_FAMILIES = (_stable, _rhp_poles, _integrators, _axis_pairs, _light_damping,
+             _rhp_zeros, _near_cancel, _biproper)
+
+
+def _gain_sweep(rng, start: int) -> list[LoopCase]:
+    """A few base loops at gains across their stability boundaries (log-spaced 1e-2..1e3)."""
+    bases = [
+        ([], [-1, -2, -3], "3 lags"),
+        ([], [0, -1, -5], "type 1"),
+        ([-0.5], [1, -2, -10], "unstable + zero"),
+        ([-0.2, -0.3], [0, 0, -2, -5, -20], "double integrator, lead"),
+        ([2.0], [-1, -1, -3], "RHP zero"),
+        ([-1, -1], [0, 0, 0, -10, -20, -30], "triple integrator"),
+    ]
+    out = []
+    for j, (z, p, _) in enumerate(bases):
+        for g in np.logspace(-2, 3, 6):
+            out.append(_case("gain-sweep", start + len(out), z, p, g * (1 + 0.01 * j)))
+    return out
+
+
+def delay_free_loops(per_family: int = 36, seed: int = 20261201) -> list[LoopCase]:
+    """The generated delay-free set: 8 families x per_family, plus a gain sweep (36 cases)."""
+    cases: list[LoopCase] = []
+    for f_index, make in enumerate(_FAMILIES):
+        rng = np.random.default_rng([seed, f_index])
+        cases += [make(rng, i) for i in range(per_family)]
+    cases += _gain_sweep(np.random.default_rng([seed, 99]), 0)
+    return cases
+
+
+# ----------------------------------------------------------------------------- reference counts
+
+def closed_loop_rhp(case: LoopCase) -> tuple[int, np.ndarray]:
+    """RHP count of python-control's `feedback(L, 1).poles()` (unity negative feedback)."""
+    import control
+    poles = np.asarray(control.feedback(case.to_control(), 1).poles(), complex)
+    return int(np.sum(poles.real > 0)), poles
+
+
+def near_axis(poles: np.ndarray, rel: float = 1e-9) -> bool:
+    """Some pole within rel (relative to its magnitude) of the imaginary axis: too close to call."""
+    mag = np.maximum(np.abs(poles), 1e-300)
+    return bool(np.any(np.abs(poles.real) <= rel * mag))
+
+
+# ----------------------------------------------------------------------------- text helpers
+
+def _num(x: float) -> str:
+    """A literal the model grammar reads back to the same float (no sign: callers add it)."""
+    t = repr(abs(float(x)))
+    return t if "e" in t or "." in t else t + ".0"
+
+
+def _poly_text(coeffs) -> str:
+    """Descending real coefficients as `(a*s^2 + b*s + c)`."""
+    coeffs = [float(c) for c in coeffs]
+    n = len(coeffs) - 1
+    terms = []
+    for k, c in enumerate(coeffs):
+        if c == 0.0:
+            continue
+        p = n - k
+        body = _num(c) + ("" if p == 0 else "*s" if p == 1 else f"*s^{p}")
+        sign = "-" if c < 0 else "+"
+        terms.append((sign, body))
+    if not terms:
+        return "0"
+    head = ("-" if terms[0][0] == "-" else "") + terms[0][1]
+    return "(" + head + "".join(f" {sg} {b}" for sg, b in terms[1:]) + ")"
+
+
+def zpk_text(zeros, poles, gain: float) -> str:
+    """A transfer expression for the model language, factored into real first/second-order parts."""
+    def factors(roots) -> str:
+        parts = []
+        for r in roots:
+            r = complex(r)
+            if r.imag < 0:
+                continue
+            if r.imag == 0:
+                parts.append(_poly_text([1.0, -r.real]))
+            else:
+                parts.append(_poly_text([1.0, -2 * r.real, abs(r) ** 2]))
+        return "*".join(parts) if parts else "1"
+    sign = "-" if gain < 0 else ""
+    return f"{sign}{_num(gain)}*{factors(zeros)}/({factors(poles)})"
+
+
+_DELAY = re.compile(r"exp\(\s*-[^()]*(\([^()]*\)[^()]*)*\)")
+
+
+def strip_delays(text: str) -> str:
+    """The delay-free version of a model: every `exp(-T*s)` replaced by 1."""
+    return _DELAY.sub("1", text)
+
+
+# ----------------------------------------------------------------------------- nested cascades
+
+@dataclass(frozen=True)
+class Stage:
+    """Loop k of a cascade: controller C_k and the plant stage P_k it closes around."""
+
+    c_num: tuple[float, ...]
+    c_den: tuple[float, ...]
+    p_num: tuple[float, ...]
+    p_den: tuple[float, ...]
+
+
+@dataclass(frozen=True)
+class Cascade:
+    """n nested loops, loop 1 innermost.
+
+    Wiring: ref_n = r; e_k = ref_k - y_k; ref_{k-1} = C_k(e_k) (u for k = 1);
+    y_1 = P_1(u); y_k = P_k(y_{k-1}). Break k cuts only the wire y_k -> e_k
+    (y_k also drives the next plant stage).
+    """
+
+    stages: tuple[Stage, ...]
+    name: str = "cascade"
+    break_names: tuple[str, ...] = field(default=())
+
+    @property
+    def n(self) -> int:
+        return len(self.stages)
+
+    def brk(self, k: int) -> str:
+        return f"loop{k}"
+
+    def text(self) -> str:
+        lines = [f"model {self.name}", "input r", ""]
+        for k, st in enumerate(self.stages, 1):
+            lines.append(f"block C{k} = {_poly_text(st.c_num)}/{_poly_text(st.c_den)}")
+            lines.append(f"block P{k} = {_poly_text(st.p_num)}/{_poly_text(st.p_den)}")
+        lines.append("")
+        for k in range(self.n, 0, -1):
+            ref = "r" if k == self.n else f"ref{k}"
+            out = "u" if k == 1 else f"ref{k - 1}"
+            lines.append(f"e{k} = {ref} - y{k}")
+            lines.append(f"{out} = C{k}(e{k})")
+        lines.append("y1 = P1(u)")
+        lines += [f"y{k} = P{k}(y{k - 1})" for k in range(2, self.n + 1)]
+        lines.append("")
+        lines += [f"break {self.brk(k)} at y{k} -> e{k}" for k in range(1, self.n + 1)]
+        return "\n".join(lines) + "\n"
+
+    def _systems(self, cut: int | None):
+        """python-control blocks and junctions; with cut = k, e_k takes -v instead of -y_k."""
+        import control as ct
+        systems = []
+        for k, st in enumerate(self.stages, 1):
+            out = "u" if k == 1 else f"ref{k - 1}"
+            systems.append(ct.tf(list(st.c_num), list(st.c_den), inputs=f"e{k}", outputs=out,
+                                 name=f"C{k}"))
+            src = "u" if k == 1 else f"y{k - 1}"
+            systems.append(ct.tf(list(st.p_num), list(st.p_den), inputs=src, outputs=f"y{k}",
+                                 name=f"P{k}"))
+            ref = "r" if k == self.n else f"ref{k}"
+            fb = "v" if cut == k else f"y{k}"
+            systems.append(ct.summing_junction(inputs=[ref, "-" + fb], output=f"e{k}",
+                                               name=f"sum{k}"))
+        return systems
+
+    def control_closed_loop(self):
+        """The whole closed loop as one state-space system (input r, output y_n)."""
+        import control as ct
+        return ct.interconnect(self._systems(None), inplist=["r"], outlist=[f"y{self.n}"])
+
+    def control_loop(self, k: int):
+        """G from the injection v at break k to y_k (all other loops closed); L_k = -G."""
+        import control as ct
+        return ct.interconnect(self._systems(k), inplist=["v"], outlist=[f"y{k}"],
+                               check_unused=False)
+
+
+def nested_cascade(n: int, seed: int = 7, separation: float = 3.0, name: str | None = None) -> Cascade:
+    """n nested loops with bandwidths falling by `separation` from the inside out.
+
+    Loop 1 closes a PI around a first-order lag; every outer loop closes a PI
+    (or P on alternate loops) around an integrating stage a_k/s, tuned to a
+    crossover near w_{k-1}/separation (common practice for cascades). Random
+    perturbations (fixed seed) keep the loops from being copies of each other.
+    """
+    rng = np.random.default_rng([seed, n])
+    stages = []
+    w = 200.0 * rng.uniform(0.8, 1.25)
+    tau = 1.0 / (w * rng.uniform(0.5, 2.0))
+    kp = w * tau
+    stages.append(Stage((kp * 4.0 / w, kp), (4.0 / w, 0.0), (1.0,), (tau, 1.0)))
+    for k in range(2, n + 1):
+        w = w / (separation * rng.uniform(0.8, 1.25))
+        a = _log_uniform(rng, 0.5, 2.0)
+        kp = w / a
+        if k % 2:
+            ti = 5.0 / w
+            stages.append(Stage((kp * ti, kp), (ti, 0.0), (a,), (1.0, 0.0)))
+        else:
+            stages.append(Stage((kp,), (1.0,), (a,), (1.0, 0.0)))
+    return Cascade(tuple(stages), name or f"cascade_{n}")

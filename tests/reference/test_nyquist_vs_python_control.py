@@ -1,0 +1,115 @@
+"""The engine's Nyquist verdict on a generated delay-free set vs python-control.
+
+Reference (python-control 0.10.2):
+* Z: the number of poles with positive real part of `control.feedback(L, 1).poles()`
+  (unity negative feedback; the roots of den + num). Cases with a closed-loop
+  pole within 1e-9 (relative to its magnitude) of the imaginary axis are too
+  close to call from computed roots and are skipped; the count is printed.
+* P: open-loop poles strictly in the RHP, counted from the zpk the case was
+  built from (exact: no root finding involved).
+* `control.nyquist_response(L).count` is compared with Z - P but never asserted
+  on: where it disagrees the case goes to a findings list printed in the output
+  (those are python-control's miscounts, or ours if the closed-loop poles say so).
+
+The set (tests/reference/loopsets.py, fixed seeds): orders 1-10, RHP poles,
+integrators up to order 3, undamped pairs on the axis, lightly damped pairs
+down to zeta = 1e-4, RHP zeros, near cancellations, biproper loops, gain sweeps.
+"""
+from __future__ import annotations
+
+import functools
+import warnings
+
+import control
+import pytest
+
+from loopwise.analysis import analyse_loop
+from loopwise.transfer import Transfer
+
+from .loopsets import closed_loop_rhp, delay_free_loops, near_axis
+
+
+CASES = delay_free_loops()
+
+
+@functools.lru_cache(maxsize=None)
+def _reference(name: str) -> tuple[int, bool, int]:
+    """(Z from python-control's closed-loop poles, too close to the axis to call, nyquist count)."""
+    case = _BY_NAME[name]
+    z, poles = closed_loop_rhp(case)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        count = int(control.nyquist_response(case.to_control()).count)
+    return z, near_axis(poles), count
+
+
+_BY_NAME = {c.name: c for c in CASES}
+
+
+@functools.lru_cache(maxsize=None)
+def _engine(name: str):
+    case = _BY_NAME[name]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return analyse_loop(Transfer.from_zpk(list(case.zeros), list(case.poles), case.gain),
+                            name=name)
+
+
+def test_generated_set_covers_the_brief():
+    """Size and coverage of the set (at least 300 loops, orders 1..10, every family)."""
+    assert len(CASES) >= 300
+    assert {len(c.poles) for c in CASES} == set(range(1, 11))
+    integrator_orders = {sum(1 for p in c.poles if p == 0) for c in CASES}
+    assert {1, 2, 3} <= integrator_orders
+    assert any(c.axis_poles > 0 and any(p.imag != 0 for p in c.poles if p.real == 0) for c in CASES)
+    zetas = [-p.real / abs(p) for c in CASES for p in c.poles if p.imag > 0 and p.real < 0]
+    assert min(zetas) < 2e-4
+    assert any(z.real > 0 for c in CASES for z in c.zeros)
+    assert any(c.rhp_poles > 0 for c in CASES)
+    assert len({c.name for c in CASES}) == len(CASES)
+
+
+@pytest.mark.parametrize("name", [c.name for c in CASES])
+def test_verdict_matches_closed_loop_poles(name):
+    case = _BY_NAME[name]
+    res = _engine(name)
+    assert res.open_loop_rhp_poles == case.rhp_poles, (name, "P", case.rhp_poles,
+                                                       res.open_loop_rhp_poles)
+    assert res.closed_loop_rhp_poles == res.encirclements + res.open_loop_rhp_poles
+    z_ref, too_close, _ = _reference(name)
+    if too_close:
+        return  # counted and printed by test_findings_report
+    assert res.closed_loop_rhp_poles == z_ref, (name, "Z", z_ref, res.closed_loop_rhp_poles,
+                                                res.warnings)
+    assert res.stable == (z_ref == 0), (name, "stable", z_ref == 0, res.stable)
+    assert not res.marginal, (name, "marginal without an axis pole", res.marginal_freq)
+
+
+def test_findings_report(capsys):
+    """Print skipped cases and python-control's disagreements (no assertion on the latter)."""
+    skipped, miscounts, engine_off = [], [], []
+    for case in CASES:
+        z_ref, too_close, count = _reference(case.name)
+        if too_close:
+            res = _engine(case.name)
+            skipped.append(f"{case.name}: engine Z={res.closed_loop_rhp_poles} "
+                           f"marginal={res.marginal} at {res.marginal_freq}")
+            continue
+        if count != z_ref - case.rhp_poles:
+            miscounts.append(f"{case.name}: nyquist_response.count={count}, "
+                             f"Z-P={z_ref - case.rhp_poles} (Z={z_ref}, P={case.rhp_poles})")
+        res = _engine(case.name)
+        if res.closed_loop_rhp_poles != z_ref:
+            engine_off.append(case.name)
+    with capsys.disabled():
+        print(f"\n[nyquist vs python-control] {len(CASES)} loops, {len(skipped)} skipped "
+              f"(closed-loop pole within 1e-9 of the axis):")
+        for line in skipped:
+            print("  skipped", line)
+        print(f"[nyquist vs python-control] python-control's nyquist_response.count disagrees "
+              f"with its own closed-loop poles on {len(miscounts)} loops:")
+        for line in miscounts:
+            print("  ", line)
+        print(f"[nyquist vs python-control] engine disagreements: {len(engine_off)} {engine_off}")
+    # the skip rule must stay a rare exception, not a way round hard cases
+    assert len(skipped) <= len(CASES) // 50
