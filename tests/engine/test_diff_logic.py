@@ -72,7 +72,7 @@ def test_phase_margin_loss_beyond_5_deg_is_a_regression_with_signed_delta():
     assert c.delta == pytest.approx(38.4 - 52.1)
     assert c.direction == "worse" and c.regression
     assert result.exit_code == 1
-    assert "phase margin  52.10 deg -> 38.40 deg  (-13.70, worse)" in diff_text.render(result)
+    assert "phase margin  52.10 deg -> 38.40 deg  (-13.70, worse)  REGRESSION" in diff_text.render(result)
 
 
 def test_small_phase_margin_loss_is_worse_but_not_a_regression():
@@ -139,7 +139,7 @@ def test_becoming_unstable_is_a_regression_and_margins_are_not_compared():
     assert d.margins == ()
     assert result.exit_code == 1
     assert len(result.regressions) == 1  # the model's own verdict is not counted twice
-    assert "stable -> UNSTABLE (Z 2) (Z 0 -> 2, worse)" in diff_text.render(result)
+    assert "verdict stable -> UNSTABLE (Z 0 -> 2, worse)" in diff_text.render(result)
 
 
 def test_becoming_stable_is_better():

@@ -57,15 +57,13 @@ def margin_words(change: MarginChange) -> tuple[str, str, str, str]:
             fmt_value(change.after, change.unit, none), fmt_delta(change))
 
 
-def _state(stable: bool, z: int, marginal: bool) -> str:
-    if marginal:
-        return f"marginal (Z {z})"
-    return "stable" if stable else f"UNSTABLE (Z {z})"
+def _state(stable: bool, marginal: bool) -> str:
+    return "marginal" if marginal else "stable" if stable else "UNSTABLE"
 
 
 def verdict_words(v: VerdictChange) -> str:
-    return (f"{_state(v.stable_before, v.z_before, v.marginal_before)} -> "
-            f"{_state(v.stable_after, v.z_after, v.marginal_after)} "
+    return (f"{_state(v.stable_before, v.marginal_before)} -> "
+            f"{_state(v.stable_after, v.marginal_after)} "
             f"(Z {v.z_before} -> {v.z_after}, {v.direction})")
 
 
@@ -106,15 +104,18 @@ def summary_words(result: DiffResult) -> str:
     return f"{len(result.models)} model(s): {', '.join(counts) or 'none'}; {tail}"
 
 
-def _table(rows: list[tuple[str, ...]], indent: str) -> list[str]:
-    """Columns padded to their widest cell; the last column is left ragged."""
+def _margin_table(changes: tuple[MarginChange, ...], indent: str) -> list[str]:
+    """label, before (right-aligned), ->, after (right-aligned), change, flag."""
+    rows = [margin_words(c) for c in changes]
     if not rows:
         return []
-    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]) - 1)]
+    w = [max(len(r[i]) for r in rows) for i in range(3)]
     out = []
-    for row in rows:
-        cells = [c.ljust(w) for c, w in zip(row, widths)] + [row[-1]]
-        out.append((indent + "  ".join(cells)).rstrip())
+    for (label, before, after, delta), c in zip(rows, changes):
+        line = f"{indent}{label.ljust(w[0])}  {before.rjust(w[1])} -> {after.rjust(w[2])}  ({delta})"
+        if c.regression:
+            line += f"  REGRESSION: {c.regression}"
+        out.append(line)
     return out
 
 
@@ -129,18 +130,13 @@ def _break_lines(d: BreakDiff) -> list[str]:
         lines = [f"  break {d.name} (at {at})"]
         if d.at_before != d.at_after:
             lines.append(f"    opened at {d.at_before} -> {d.at_after}")
-    rows: list[tuple[str, ...]] = []
     if d.verdict is not None:
-        rows.append(("verdict", verdict_words(d.verdict), ""))
-    for m in d.margins:
-        label, before, after, delta = margin_words(m)
-        flag = f"REGRESSION: {m.regression}" if m.regression else ""
-        rows.append((label, f"{before} -> {after}", f"({delta})" + (f"  {flag}" if flag else "")))
+        lines.append(f"    verdict {verdict_words(d.verdict)}")
+        if not (d.stable_before and d.stable_after):
+            lines.append("    margins not compared (claimed only for a stable closed loop)")
+    lines += _margin_table(d.margins, "    ")
     for r in d.requirements:
-        rows.append(("requirement", requirement_words(r), "REGRESSION" if r.regression else ""))
-    if d.verdict is not None and not (d.stable_before and d.stable_after):
-        rows.append(("margins", "not compared (claimed only for a stable closed loop)", ""))
-    lines += _table(rows, "    ")
+        lines.append(f"    requirement {requirement_words(r)}" + ("  REGRESSION" if r.regression else ""))
     return lines
 
 
@@ -151,7 +147,7 @@ def _model_lines(m: ModelDiff) -> list[str]:
     lines = [head]
     if m.model_before and m.model_after and m.model_before != m.model_after:
         lines.append(f"  model renamed {m.model_before} -> {m.model_after}")
-    if m.verdict is not None:
+    if m.verdict is not None and not any(d.verdict for d in m.breaks):
         lines.append(f"  model verdict {verdict_words(m.verdict)}")
     for d in m.breaks:
         lines += _break_lines(d)

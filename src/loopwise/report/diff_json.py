@@ -1,0 +1,93 @@
+"""`loopwise diff` as JSON (schema: docs/diff.schema.json, described in docs/diff.md).
+
+Key order is fixed so that the output itself diffs cleanly. Numbers that are
+unbounded or absent are ``null``; the change is then also given in words.
+"""
+from __future__ import annotations
+
+import json
+import math
+
+from .. import __version__
+from ..diff import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
+from ..errors import Finding
+from ..results import CAUTION
+
+__all__ = ["DIFF_SCHEMA_VERSION", "to_dict", "render"]
+
+DIFF_SCHEMA_VERSION = 1
+
+
+def _num(x: float | None) -> float | None:
+    """JSON has no infinity: a non-finite number is written as null (unbounded)."""
+    return None if x is None or not math.isfinite(x) else float(x)
+
+
+def _verdict(v: VerdictChange | None) -> dict | None:
+    if v is None:
+        return None
+    return {"stable_before": v.stable_before, "stable_after": v.stable_after,
+            "closed_loop_rhp_poles_before": v.z_before, "closed_loop_rhp_poles_after": v.z_after,
+            "marginal_before": v.marginal_before, "marginal_after": v.marginal_after,
+            "direction": v.direction}
+
+
+def _margin(c: MarginChange) -> dict:
+    return {"metric": c.key, "label": c.label, "unit": c.unit, "before": _num(c.before),
+            "after": _num(c.after), "delta": _num(c.delta), "direction": c.direction,
+            "words": c.words, "regression": c.regression}
+
+
+def _requirement(r: RequirementChange) -> dict:
+    return {"metric": r.metric, "op": r.op, "limit_before": _num(r.limit_before),
+            "limit_after": _num(r.limit_after), "value_before": _num(r.value_before),
+            "value_after": _num(r.value_after), "met_before": r.met_before,
+            "met_after": r.met_after, "status": r.status, "regression": r.regression}
+
+
+def _break(d: BreakDiff) -> dict:
+    return {"name": d.name, "status": d.status, "at_before": d.at_before, "at_after": d.at_after,
+            "stable_before": d.stable_before, "stable_after": d.stable_after,
+            "verdict": _verdict(d.verdict), "margins": [_margin(c) for c in d.margins],
+            "requirements": [_requirement(r) for r in d.requirements],
+            "regressions": list(d.regressions)}
+
+
+def _error(f: Finding) -> dict:
+    return {"file": f.span.file, "line": f.span.line, "col": f.span.col, "code": f.code,
+            "message": f.message, "hint": f.hint}
+
+
+def _model(m: ModelDiff) -> dict:
+    return {"file": m.file, "status": m.status, "model_before": m.model_before,
+            "model_after": m.model_after, "stable_after": m.stable_after,
+            "verdict": _verdict(m.verdict), "breaks": [_break(d) for d in m.breaks],
+            "breaks_unchanged": m.breaks_unchanged,
+            "errors_before": [_error(e) for e in m.errors_before],
+            "errors_after": [_error(e) for e in m.errors_after],
+            "regressions": list(m.regressions)}
+
+
+def to_dict(result: DiffResult) -> dict:
+    p = result.policy
+    statuses = ("changed", "unchanged", "added", "removed", "errors appeared",
+                "errors disappeared", "still unreadable")
+    return {
+        "schema": DIFF_SCHEMA_VERSION, "kind": "diff", "tool": "loopwise", "version": __version__,
+        "caution": CAUTION,
+        "old": result.old_label, "new": result.new_label,
+        "policy": {"phase_margin_loss_deg": p.phase_margin_loss_deg,
+                   "gain_margin_loss_db": p.gain_margin_loss_db,
+                   "delay_margin_loss_fraction": p.delay_margin_loss_fraction,
+                   "verdict_to_unstable": p.verdict_to_unstable,
+                   "requirement_stops_being_met": p.requirement_stops_being_met},
+        "summary": {"models": len(result.models),
+                    **{s.replace(" ", "_"): result.count(s) for s in statuses},
+                    "regressions": len(result.regressions), "exit_code": result.exit_code},
+        "regressions": list(result.regressions),
+        "models": [_model(m) for m in result.models],
+    }
+
+
+def render(result: DiffResult) -> str:
+    return json.dumps(to_dict(result), indent=2, allow_nan=False) + "\n"
