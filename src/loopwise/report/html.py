@@ -1,0 +1,232 @@
+"""One self-contained HTML file: run summary, a table per model, requirements,
+warnings, three views per break (inline SVG) and the caution.
+
+Nothing is fetched and nothing runs: inline CSS, inline SVG, no scripts. The
+output is also well-formed XML (void elements closed, text escaped), so a
+strict parser can check it. Status is always a word (STABLE, UNSTABLE, PASS,
+FAIL, MET, NOT MET); colour only repeats it, so the page reads in grey print.
+"""
+from __future__ import annotations
+
+import re
+from html import escape
+from typing import Callable
+
+from ..results import CAUTION
+from . import (BREAK_COLUMNS, break_row, break_status, count_met, finding_text, model_passes,
+               model_status, requirement_place, tally)
+
+__all__ = ["render_html", "figure_count", "CSS"]
+
+VIEWS = ("nyquist", "bode", "sensitivity")
+_CAPTIONS = {
+    "nyquist": "Nyquist curve of L along the whole contour (far stretches on the shaded ring)",
+    "bode": "Bode view of L with gain and phase margins",
+    "sensitivity": "|S| and |T| with Ms, Mt and the disk-margin frequency",
+}
+
+CSS = """
+:root { --ink: #1d2733; --muted: #5b6570; --line: #c9ced4; --band: #f3f5f7;
+  --good: #1f6b3a; --bad: #a3271d; --warn: #7a5200; }
+* { box-sizing: border-box; }
+body { font: 15px/1.45 "DejaVu Sans", "Segoe UI", Helvetica, Arial, sans-serif;
+  color: var(--ink); margin: 0 auto; max-width: 1240px; padding: 1.2rem 1.6rem 3rem; }
+h1 { font-size: 1.6rem; margin: 0 0 .3rem; letter-spacing: .01em; }
+h2 { font-size: 1.25rem; margin: 2.2rem 0 .4rem; padding-top: .6rem;
+  border-top: 3px double var(--line); }
+h3 { font-size: 1.05rem; margin: 1.4rem 0 .4rem; }
+.lede { color: var(--muted); margin: 0 0 1rem; }
+.caution { border-left: 5px solid var(--warn); background: #fbf6ea; padding: .6rem .9rem;
+  margin: 1rem 0; }
+.summary { display: flex; flex-wrap: wrap; gap: .6rem 1.6rem; margin: .8rem 0; padding: .7rem .9rem;
+  background: var(--band); border: 1px solid var(--line); }
+.summary div b { display: block; font-size: 1.3rem; }
+table { border-collapse: collapse; margin: .5rem 0 1rem; font-size: .86rem; }
+caption { text-align: left; color: var(--muted); padding-bottom: .2rem; }
+th, td { border: 1px solid var(--line); padding: .25rem .5rem; vertical-align: top; }
+th { background: var(--band); text-align: left; font-weight: 600; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; }
+.wrap { overflow-x: auto; }
+.word { font-weight: 700; letter-spacing: .04em; padding: 0 .3rem; border: 1px solid currentColor;
+  border-radius: 3px; white-space: nowrap; }
+.ok { color: var(--good); } .bad { color: var(--bad); } .warn { color: var(--warn); }
+ul.plain { padding-left: 1.2rem; margin: .3rem 0; }
+pre { background: var(--band); border: 1px solid var(--line); padding: .6rem .8rem;
+  overflow-x: auto; font-size: .85rem; }
+.plots { display: grid; grid-template-columns: repeat(auto-fit, minmax(480px, 1fr)); gap: 1rem; }
+figure { margin: 0; border: 1px solid var(--line); padding: .4rem; background: #fff; }
+figure.wide { grid-column: 1 / -1; max-width: 900px; }
+figure svg { display: block; width: 100%; height: auto; }
+figcaption { color: var(--muted); font-size: .82rem; padding: .3rem .2rem 0; }
+footer { margin-top: 2.5rem; color: var(--muted); font-size: .85rem; border-top: 1px solid var(--line); }
+@media print {
+  body { max-width: none; padding: 0; font-size: 10.5pt; }
+  h2 { break-before: page; }
+  figure, table, .caution { break-inside: avoid; }
+  .plots { display: block; }
+  figure { margin: 0 0 .6rem; max-width: 100%; }
+  .word { border-width: 1.5px; }
+  a { color: inherit; text-decoration: none; }
+}
+"""
+
+_WORD_CLASS = {"STABLE": "ok", "PASS": "ok", "MET": "ok", "UNSTABLE": "bad", "FAIL": "bad",
+               "NOT MET": "bad", "ERROR": "bad", "MARGINAL": "warn", "WARNING": "warn"}
+
+
+def _word(word: str) -> str:
+    return f'<span class="word {_WORD_CLASS.get(word, "")}">{escape(word)}</span>'
+
+
+def _e(text) -> str:
+    return escape(str(text), quote=True)
+
+
+def figure_count(run) -> int:
+    return sum(len(VIEWS) for m in run.models for b in m.breaks if b.response is not None)
+
+
+def _unique_ids(svg: str, prefix: str) -> str:
+    """Prefix every id and its references, so many figures can share one page."""
+    ids = set(re.findall(r'\sid="([^"]+)"', svg))
+    if not ids:
+        return svg
+
+    def swap(match):
+        name = match.group(2)
+        return f"{match.group(1)}{prefix}{name}" if name in ids else match.group(0)
+
+    svg = re.sub(r'(\sid=")([^"]+)', swap, svg)
+    svg = re.sub(r'(href="#)([^"]+)', swap, svg)
+    return re.sub(r'(url\(#)([^)]+)', swap, svg)
+
+
+def _inline_svg(fig, prefix: str) -> str:
+    from .plots import svg_text
+
+    svg = svg_text(fig, salt=prefix)
+    svg = re.sub(r"<metadata>.*?</metadata>\s*", "", svg, flags=re.S)  # no URLs, no dates
+    return _unique_ids(svg, prefix)
+
+
+def _break_figures(m, b, index: str, hz: bool, tick: Callable[[], None]) -> list[str]:
+    from .plots import make_figure
+
+    if b.response is None:
+        return [f"<p>No frequency response was recorded for break {_e(b.name)}.</p>"]
+    out = ['<div class="plots">']
+    for kind in VIEWS:
+        fig = make_figure(b, kind, model=m.model, hz=hz)
+        cls = ' class="wide"' if kind == "nyquist" else ""
+        out.append(f'<figure{cls} id="{index}-{kind}">{_inline_svg(fig, f"{index}{kind[0]}-")}'
+                   f"<figcaption>{_e(_CAPTIONS[kind])}; break {_e(b.name)}.</figcaption></figure>")
+        tick()
+    out.append("</div>")
+    return out
+
+
+def _table(m) -> list[str]:
+    head = "".join(f'<th scope="col">{_e(h)}</th>' for h, _, _ in BREAK_COLUMNS)
+    rows = []
+    for b in m.breaks:
+        cells = []
+        for (header, _, right), cell in zip(BREAK_COLUMNS, break_row(b)):
+            body = _word(cell) if header == "verdict" else _e(cell)
+            cells.append(f'<td class="num">{body}</td>' if right else f"<td>{body}</td>")
+        rows.append("<tr>" + "".join(cells) + "</tr>")
+    return ['<div class="wrap"><table>',
+            f"<caption>Breaks of model {_e(m.model)} ('-': margins not claimed for an "
+            "unstable closed loop; inf: unbounded)</caption>",
+            f"<thead><tr>{head}</tr></thead><tbody>", *rows, "</tbody></table></div>"]
+
+
+def _requirements(m) -> list[str]:
+    items = []
+    for b in m.breaks:
+        for r in b.requirements:
+            word = "MET" if r.met else "NOT MET"
+            note = f" ({_e(r.note)})" if r.note else ""
+            items.append(f"<li>{_word(word)} break {_e(b.name)}: {_e(r.describe())}{note} "
+                         f"<small>{_e(requirement_place(m, r))}</small></li>")
+    if not items:
+        return ["<p>No requirements apply to this model.</p>"]
+    met = sum(count_met(b)[0] for b in m.breaks)
+    total = sum(count_met(b)[1] for b in m.breaks)
+    return [f"<p>Requirements: {met} of {total} met.</p>", '<ul class="plain">', *items, "</ul>"]
+
+
+def _warnings(m) -> list[str]:
+    items = [f"<li>{_word('WARNING')} break {_e(b.name)}: {_e(w)}</li>"
+             for b in m.breaks for w in b.warnings]
+    for b in m.breaks:
+        if not b.stable and b.stabilising_gains:
+            ranges = ", ".join(f"[{lo:.3g}, {hi:.3g}]" for lo, hi in b.stabilising_gains)
+            items.append(f"<li>break {_e(b.name)}: the closed loop would be stable with L scaled "
+                         f"by a factor in {_e(ranges)}</li>")
+    out = ['<ul class="plain">', *items, "</ul>"] if items else []
+    for f in m.findings:
+        out.append(f"<pre>{_e(finding_text(f))}</pre>")
+    return out
+
+
+def _model_section(m, n: int, hz: bool, fail: bool, tick) -> list[str]:
+    status = model_status(m)
+    verdict = "PASS" if model_passes(m, fail) else "FAIL"
+    out = [f'<section id="model-{n}">',
+           f"<h2>{_word(verdict)} model {_e(m.model)} {_word(status)}</h2>",
+           f'<p class="lede">{_e(m.file)}: {m.closed_loop_rhp_poles} closed-loop pole(s) in '
+           "the right half plane</p>"]
+    if not m.breaks:
+        out.append("<p>No breaks: add <code>break &lt;name&gt; at &lt;signal&gt;</code> to see "
+                   "margins.</p>")
+    else:
+        out += _table(m)
+    out += _requirements(m) + _warnings(m)
+    for k, b in enumerate(m.breaks):
+        out.append(f'<h3 id="model-{n}-break-{k}">break {_e(b.name)} at {_e(b.at)} '
+                   f"{_word(break_status(b))}</h3>")
+        out += _break_figures(m, b, f"m{n}b{k}", hz, tick)
+    out.append("</section>")
+    return out
+
+
+def _errors(run) -> list[str]:
+    if not run.errors:
+        return []
+    out = ['<section id="unreadable">', f"<h2>{_word('ERROR')} models that could not be read</h2>"]
+    out += [f"<pre>{_e(finding_text(e))}</pre>" for e in run.errors]
+    return out + ["</section>"]
+
+
+def _summary(run, fail: bool) -> list[str]:
+    t = tally(run, fail)
+    overall = "PASS" if t.failed == 0 and not t.unreadable else "FAIL"
+    breaks = sum(len(m.breaks) for m in run.models)
+    cells = [("result", _word(overall)), ("models", t.models), ("passed", t.passed),
+             ("failed", t.failed), ("could not be read", t.unreadable), ("breaks", breaks)]
+    body = "".join(f"<div>{_e(k)}<b>{v if k == 'result' else _e(v)}</b></div>" for k, v in cells)
+    return [f'<div class="summary">{body}</div>', f"<p>{_e(t.sentence())}.</p>"]
+
+
+def render_html(run, *, hz: bool = False, fail_on_warnings: bool = False,
+                tick: Callable[[], None] = lambda: None) -> str:
+    """The whole report as one string; `tick` is called once per figure drawn."""
+    version = f" {run.version}" if run.version else ""
+    out = ['<!DOCTYPE html>', '<html lang="en">', "<head>",
+           '<meta charset="utf-8" />',
+           '<meta name="viewport" content="width=device-width, initial-scale=1" />',
+           f"<title>loopwise report</title>", f"<style>{CSS}</style>", "</head>", "<body>",
+           "<header><h1>loopwise report</h1>",
+           f'<p class="lede">Stability and margins at every loop break; loopwise{_e(version)}. '
+           "Frequencies in " + ("Hz" if hz else "rad/s") + " in the plots, rad/s in the tables.</p>",
+           f'<p class="caution"><strong>Caution.</strong> {_e(CAUTION)}</p>', "</header>", "<main>"]
+    out += _summary(run, fail_on_warnings)
+    if run.models:
+        out.append('<nav><ul class="plain">' + "".join(
+            f'<li><a href="#model-{n}">{_e(m.model)}</a> ({_e(m.file)}) {_word(model_status(m))}</li>'
+            for n, m in enumerate(run.models)) + "</ul></nav>")
+    for n, m in enumerate(run.models):
+        out += _model_section(m, n, hz, fail_on_warnings, tick)
+    out += _errors(run)
+    out += ["</main>", f"<footer><p>{_e(CAUTION)}</p></footer>", "</body>", "</html>"]
+    return "\n".join(out) + "\n"
