@@ -1,0 +1,267 @@
+"""`loopwise check` end to end: the real command in a subprocess, on small models
+written into tmp_path and on the demo models, for every format and exit code."""
+from __future__ import annotations
+
+import json
+import os
+import re
+import xml.etree.ElementTree as ET
+from pathlib import Path
+
+import jsonschema
+import pytest
+
+from loopwise.results import CAUTION
+from loopwise.run import discover, matches_glob
+from loopwise.settings import Settings
+
+from .conftest import BROKEN, GOOD, GOOD_PM_DEG, GOOD_WC, UNMET, UNSTABLE, loopwise, write
+
+ROOT = Path(__file__).parents[2]
+SCHEMA = json.loads((ROOT / "docs" / "results.schema.json").read_text())
+
+
+def one_line_error(proc) -> str:
+    """Usage mistakes: exit 2, nothing on stdout, one line on stderr."""
+    assert proc.returncode == 2, (proc.stdout, proc.stderr)
+    lines = proc.stderr.strip().splitlines()
+    assert len(lines) == 1, proc.stderr
+    return lines[0]
+
+
+# --- exit codes and the text report --------------------------------------------------------
+
+def test_stable_model_passes_with_its_margins(tmp_path):
+    write(tmp_path, "m.loop", GOOD)
+    proc = loopwise("check", "m.loop", cwd=tmp_path)
+    assert proc.returncode == 0, proc.stdout + proc.stderr
+    out = proc.stdout
+    assert "PASS  m.loop  model m: STABLE" in out
+    row = next(l for l in out.splitlines() if l.lstrip().startswith("b "))
+    cells = row.split()
+    assert cells[:6] == ["b", "y", "STABLE", "0", "0", "0"]
+    assert float(cells[6]) == pytest.approx(GOOD_PM_DEG, abs=0.1)   # PM, derived in conftest
+    assert float(cells[-2]) == pytest.approx(GOOD_WC, rel=1e-3)     # crossover rad/s
+    assert cells[-1] == "1/1"
+    assert CAUTION in out
+    assert "\x1b[" not in out   # not a terminal: no colour
+
+
+def test_unmet_requirement_exits_1_and_names_its_line(tmp_path):
+    write(tmp_path, "m.loop", UNMET)
+    proc = loopwise("check", "m.loop", cwd=tmp_path)
+    assert proc.returncode == 1
+    assert "FAIL  m.loop" in proc.stdout
+    assert re.search(r"m\.loop:7: break b: phase_margin >= 70 \(value 55\.\d\)", proc.stdout)
+
+
+def test_instability_exits_1(tmp_path):
+    write(tmp_path, "tip.loop", UNSTABLE)
+    proc = loopwise("check", "tip.loop", cwd=tmp_path)
+    assert proc.returncode == 1
+    assert "model tip: UNSTABLE" in proc.stdout
+    row = next(l for l in proc.stdout.splitlines() if l.lstrip().startswith("b "))
+    assert row.split()[2:6] == ["UNSTABLE", "0", "1", "1"]   # P = 0, N = 1, Z = 1
+
+
+def test_broken_model_among_good_ones_exits_2_and_the_others_are_checked(tmp_path):
+    write(tmp_path, "models/a_good.loop", GOOD)
+    write(tmp_path, "models/b_broken.loop", BROKEN)
+    write(tmp_path, "models/c_tip.loop", UNSTABLE)
+    proc = loopwise("check", "models", cwd=tmp_path)
+    assert proc.returncode == 2
+    out = proc.stdout
+    assert out.index("a_good.loop") < out.index("c_tip.loop") < out.index("b_broken.loop:3:")
+    assert "model tip: UNSTABLE" in out and "model m: STABLE" in out
+    lines = out.splitlines()
+    i = next(i for i, l in enumerate(lines) if "b_broken.loop:3:" in l and "error" in l)
+    assert lines[i + 1].strip() == "block G = 10/((s+1)*(s+2)))"
+    assert lines[i + 2].strip() == "^"
+    col = int(re.search(r"b_broken\.loop:3:(\d+):", lines[i]).group(1))
+    assert lines[i + 2].index("^") - lines[i + 1].index("block") == col - 1
+    assert "3 models checked" not in out and "2 models checked, 1 passed, 1 failed, 1 could not be read" in out
+
+
+def test_a_file_that_is_not_text_is_reported_and_others_still_checked(tmp_path):
+    write(tmp_path, "d/good.loop", GOOD)
+    (tmp_path / "d" / "junk.loop").write_bytes(b"model junk\n\xff\xfe\x00\x01\n")
+    os.symlink(tmp_path / "nowhere.loop", tmp_path / "d" / "dangling.loop")
+    proc = loopwise("check", "d", "--format", "json", cwd=tmp_path)
+    assert proc.returncode == 2
+    doc = json.loads(proc.stdout)
+    jsonschema.Draft202012Validator(SCHEMA).validate(doc)
+    assert [m["model"] for m in doc["models"]] == ["m"]
+    errors = {Path(e["file"]).name: e for e in doc["errors"]}
+    assert set(errors) == {"junk.loop", "dangling.loop"}
+    assert errors["junk.loop"]["line"] == 2
+    assert "cannot read" in errors["dangling.loop"]["message"]
+
+
+@pytest.mark.parametrize("args, expect", [
+    (["check", "missing.loop"], "missing.loop: no such file or folder"),
+    (["check", "empty"], "empty: no *.loop models in this folder"),
+    (["check", "m.loop", "--bogus"], "unrecognized arguments: --bogus"),
+    (["check", "m.loop", "--format", "yaml"], "invalid choice: 'yaml'"),
+    (["check", "m.loop", "--jobs", "-1"], "must be 0 (one per CPU) or more"),
+    (["check", "m.loop", "--config", "nope.toml"], "settings file nope.toml does not exist"),
+    (["check", "m.loop", "--output", "no/such/dir/r.xml", "--format", "junit"], "cannot write"),
+])
+def test_usage_mistakes_get_one_line_and_exit_2(tmp_path, args, expect):
+    write(tmp_path, "m.loop", GOOD)
+    (tmp_path / "empty").mkdir()
+    line = one_line_error(loopwise(*args, cwd=tmp_path))
+    assert line.startswith("loopwise: ") and expect in line, line
+
+
+# --- formats through the command --------------------------------------------------------
+
+def test_json_output_validates_and_carries_the_figures(tmp_path):
+    write(tmp_path, "m.loop", GOOD)
+    write(tmp_path, "tip.loop", UNSTABLE)
+    proc = loopwise("check", "m.loop", "tip.loop", "--format", "json", cwd=tmp_path)
+    assert proc.returncode == 1
+    doc = json.loads(proc.stdout)
+    jsonschema.Draft202012Validator(SCHEMA).validate(doc)
+    assert doc["caution"] == CAUTION and doc["schema"] == 1
+    good, tip = doc["models"]
+    b = good["breaks"][0]
+    assert (b["stable"], b["open_loop_rhp_poles"], b["encirclements"]) == (True, 0, 0)
+    assert b["phase_margin_deg"] == pytest.approx(GOOD_PM_DEG, abs=0.05)
+    assert b["requirements"] == [{"metric": "phase_margin", "op": ">=", "limit": 30.0,
+                                  "value": pytest.approx(GOOD_PM_DEG, abs=0.05), "met": True,
+                                  "line": 7}]
+    assert tip["stable"] is False and tip["closed_loop_rhp_poles"] == 1
+
+
+def test_junit_to_a_file_with_the_text_summary_on_stdout(tmp_path):
+    write(tmp_path, "m.loop", GOOD)
+    write(tmp_path, "u.loop", UNMET)
+    write(tmp_path, "x.loop", BROKEN)
+    proc = loopwise("check", ".", "--format", "junit", "--output", "report.xml", cwd=tmp_path)
+    assert proc.returncode == 2
+    assert "junit report written to report.xml" in proc.stdout and "PASS  m.loop" in proc.stdout
+    root = ET.parse(tmp_path / "report.xml").getroot()
+    assert root.tag == "testsuites"
+    assert (root.get("tests"), root.get("failures"), root.get("errors")) == ("5", "1", "1")
+    failure = root.find(".//testcase/failure")
+    assert failure.get("type") == "requirement" and "u.loop:7" in failure.text
+    assert root.find(".//testcase/error").get("type").startswith("E")
+    quiet = loopwise("check", "m.loop", "-f", "junit", "-o", "r2.xml", "-q", cwd=tmp_path)
+    assert quiet.returncode == 0 and quiet.stdout == ""
+    assert ET.parse(tmp_path / "r2.xml").getroot().get("failures") == "0"
+
+
+def test_markdown_through_the_installed_script(tmp_path):
+    write(tmp_path, "m.loop", GOOD)
+    write(tmp_path, "tip.loop", UNSTABLE)
+    proc = loopwise("check", "m.loop", "tip.loop", "--format", "markdown", cwd=tmp_path,
+                    script=True)
+    assert proc.returncode == 1
+    assert proc.stdout.startswith("### loopwise check: 1 of 2 models need attention")
+    assert "| **FAIL** | `tip.loop` | tip | **UNSTABLE** | 1 | - |" in proc.stdout
+    assert f"> **Caution:** {CAUTION}" in proc.stdout
+
+
+def test_colour_only_when_asked_or_on_a_terminal(tmp_path):
+    write(tmp_path, "m.loop", GOOD)
+    forced = loopwise("check", "m.loop", "--color", "always", cwd=tmp_path)
+    assert "\x1b[32mPASS\x1b[0m" in forced.stdout
+    assert "STABLE" in re.sub(r"\x1b\[[0-9;]*m", "", forced.stdout)
+
+
+# --- parallel jobs ---------------------------------------------------------------------------
+
+def test_jobs_give_the_same_report_in_the_same_order(tmp_path):
+    for i in range(5):
+        write(tmp_path, f"d/{i}_good.loop", GOOD.replace("model m", f"model m{i}"))
+    write(tmp_path, "d/9_tip.loop", UNSTABLE)
+    serial = loopwise("check", "d", "--format", "json", "--jobs", "1", cwd=tmp_path)
+    parallel = loopwise("check", "d", "--format", "json", "--jobs", "2", cwd=tmp_path)
+    assert serial.returncode == parallel.returncode == 1
+    assert json.loads(serial.stdout) == json.loads(parallel.stdout)
+    assert [m["model"] for m in json.loads(serial.stdout)["models"]] == \
+        ["m0", "m1", "m2", "m3", "m4", "tip"]
+    assert parallel.stderr == ""   # CI=1 and not a terminal: no progress bar
+
+
+# --- settings ---------------------------------------------------------------------------
+
+def test_settings_requirements_apply_to_every_model(tmp_path):
+    write(tmp_path, "m.loop", GOOD)
+    write(tmp_path, "loopwise.toml", 'requirements = ["* phase_margin >= 70deg"]\n')
+    proc = loopwise("check", "m.loop", "--format", "json", cwd=tmp_path)
+    assert proc.returncode == 1, proc.stdout + proc.stderr
+    reqs = json.loads(proc.stdout)["models"][0]["breaks"][0]["requirements"]
+    assert sorted((r["limit"], r["met"]) for r in reqs) == [(30.0, True), (70.0, False)]
+    # the same file named with --config from elsewhere
+    other = tmp_path / "elsewhere"
+    other.mkdir()
+    proc = loopwise("check", str(tmp_path / "m.loop"), "--config",
+                    str(tmp_path / "loopwise.toml"), cwd=other)
+    assert proc.returncode == 1
+
+
+def test_include_and_exclude_filter_folders(tmp_path):
+    write(tmp_path, "models/a.loop", GOOD)
+    write(tmp_path, "models/scratch/tip.loop", UNSTABLE)
+    write(tmp_path, "pyproject.toml",
+          '[tool.loopwise]\ninclude = ["models/**/*.loop"]\nexclude = ["models/scratch/**"]\n')
+    proc = loopwise("check", "models", cwd=tmp_path)
+    assert proc.returncode == 0, proc.stdout
+    assert "tip" not in proc.stdout
+    named = loopwise("check", "models/scratch/tip.loop", cwd=tmp_path)
+    assert named.returncode == 1   # a file named on the command line is always checked
+
+
+def test_fail_on_warnings_from_file_and_flag(tmp_path):
+    write(tmp_path, "w.loop", GOOD.replace("break b at y", "block Unused = 1/(s+3)\nbreak b at y"))
+    base = loopwise("check", "w.loop", "--format", "json", cwd=tmp_path)
+    doc = json.loads(base.stdout)
+    warned = any(f["severity"] == "warning" for m in doc["models"] for f in m["findings"]) or \
+        any(b["warnings"] for m in doc["models"] for b in m["breaks"])
+    assert warned, "an unused block should be a warning"
+    assert base.returncode == 0
+    assert loopwise("check", "w.loop", "--fail-on-warnings", cwd=tmp_path).returncode == 1
+    write(tmp_path, "loopwise.toml", "fail_on_warnings = true\n")
+    assert loopwise("check", "w.loop", cwd=tmp_path).returncode == 1
+    assert loopwise("check", "w.loop", "--no-fail-on-warnings", cwd=tmp_path).returncode == 0
+
+
+# --- discovery (in process: no engine involved) ----------------------------------------------
+
+def test_discovery_is_sorted_recursive_and_skips_hidden_folders(tmp_path):
+    for name in ["b/z.loop", "b/a.loop", "a.loop", ".git/x.loop", "notes.txt", "c/d/e.loop"]:
+        write(tmp_path, name, "")
+    found = [p.relative_to(tmp_path).as_posix() for p in discover([tmp_path], Settings())]
+    assert found == ["a.loop", "b/a.loop", "b/z.loop", "c/d/e.loop"]
+    again = discover([tmp_path / "b" / "z.loop", tmp_path], Settings())
+    assert [p.name for p in again][:2] == ["z.loop", "a.loop"] and len(again) == 4
+
+
+@pytest.mark.parametrize("path, pattern, hit", [
+    ("models/a.loop", "models/**/*.loop", True),
+    ("models/x/y/a.loop", "models/**/*.loop", True),
+    ("other/a.loop", "models/**/*.loop", False),
+    ("models/scratch/a.loop", "models/scratch/**", True),
+    ("models/a.loop", "*.loop", False),
+    ("a.loop", "?.loop", True),
+    ("models/b.loop", "models/[ab].loop", True),
+    ("models/c.loop", "models/[!ab].loop", True),
+])
+def test_glob_matching(path, pattern, hit):
+    assert matches_glob(path, (pattern,)) is hit
+
+
+# --- the demo models --------------------------------------------------------------------------
+
+def test_demo_models_pass_as_their_headers_say():
+    models = ROOT / "models"
+    if not any(models.glob("*.loop")):
+        pytest.fail("the demo models are missing from models/")
+    proc = loopwise("check", "models", "--format", "json", cwd=ROOT)
+    doc = json.loads(proc.stdout)
+    jsonschema.Draft202012Validator(SCHEMA).validate(doc)
+    unstable = [m["file"] for m in doc["models"] if not m["stable"]]
+    assert proc.returncode == 0, (unstable, doc["errors"])
+    text = loopwise("check", "models", cwd=ROOT)
+    assert text.returncode == 0 and "FAIL" not in text.stdout
