@@ -92,6 +92,9 @@ def run(args) -> int:
     from ..run import check_paths, exit_status, wants_progress
 
     settings = _settings(args)
+    if args.output and not Path(args.output).resolve().parent.is_dir():
+        # fail before a long run rather than after it
+        raise UsageError(f"cannot write {args.output}: its folder does not exist")
     progress = not args.no_progress and wants_progress(sys.stderr)
     result = check_paths(args.paths, settings, jobs=args.jobs, progress=progress)
     fail = settings.fail_on_warnings
