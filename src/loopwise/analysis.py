@@ -1,0 +1,172 @@
+"""The whole check of one model: parse -> graph -> reduce -> wind -> margins -> judge.
+
+`check_text` / `check_file` return a frozen ModelResult or raise ModelErrors
+(every error located). `prepare_text` stops before the verdict (for tests and
+tools that want the loop transfers themselves). `analyse_loop` checks unity
+negative feedback around one loop transfer (used by the reference tests).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from .diagram import Diagram, build_diagram
+from .errors import Finding, ModelError, ModelErrors, Span
+from .language.resolve import Model, resolve_file, resolve_text
+from .reduce import Reduction, reduce_diagram
+from .results import BreakResult, Margins, ModelResult
+from .stability import NeutralLoop, count_break, count_model, prepare_contour
+from .judge import SEPARATION_WARNING, judge
+
+__all__ = ["Prepared", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop"]
+
+
+@dataclass(frozen=True, eq=False)
+class Prepared:
+    model: Model
+    diagram: Diagram
+    reduction: Reduction
+
+    @property
+    def break_names(self) -> tuple[str, ...]:
+        return tuple(b.stmt.name for b in self.diagram.breaks)
+
+    def loop_transfer(self, name: str, s) -> np.ndarray:
+        return self.reduction.loop_transfer(name, np.atleast_1d(np.asarray(s, complex)))
+
+    def closed_loop_poles(self) -> np.ndarray:
+        from .statespace import closed_loop_poles
+        return closed_loop_poles(self.reduction)
+
+    def loop_state_space(self, name: str):
+        from .statespace import loop_state_space
+        ss = loop_state_space(self.reduction, name)
+        return ss.A, ss.B, ss.C, ss.D
+
+
+def _settings_requirements(settings) -> tuple[str, ...]:
+    return tuple(getattr(settings, "requirements", ()) or ()) if settings is not None else ()
+
+
+def _prepare(model: Model) -> Prepared:
+    diagram = build_diagram(model)
+    return Prepared(model, diagram, reduce_diagram(diagram))
+
+
+def prepare_text(text: str, file: str = "<text>", settings=None) -> Prepared:
+    return _prepare(resolve_text(text, file, _settings_requirements(settings),
+                                 getattr(settings, "source", None) or "<settings>"))
+
+
+def prepare_file(path, settings=None) -> Prepared:
+    return _prepare(resolve_file(path, _settings_requirements(settings)))
+
+
+def check_text(text: str, file: str = "<text>", settings=None, indent: str = "right") -> ModelResult:
+    """Check one model given as text; raises ModelErrors when it cannot be read."""
+    return check_prepared(prepare_text(text, file, settings), indent)
+
+
+def check_file(path, settings=None, indent: str = "right") -> ModelResult:
+    """Check one model file; raises ModelError(s) when it cannot be read."""
+    return check_prepared(prepare_file(path, settings), indent)
+
+
+def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
+    model, red = prep.model, prep.reduction
+    findings = list(prep.diagram.findings)
+    try:
+        setup = prepare_contour(red, indent)
+    except NeutralLoop as exc:
+        raise ModelError(
+            "E401", f"the model is of neutral type: its high-frequency loop gain through delays is "
+            f"{exc.rho:.3g} (>= 1), so no finite frequency range certifies its stability", Span(model.file, 1, 1),
+            "a loop with direct feedthrough and a delay must have a high-frequency gain below 1; "
+            "add a filter pole") from None
+    Z, model_warnings = count_model(red, setup)
+    for w in model_warnings:
+        findings.append(Finding("warning", "W402", w, Span(model.file, 1, 1)))
+    counts = {b.stmt.name: count_break(red, b.stmt.name, setup) for b in prep.diagram.breaks}
+    from .margins import loop_margins, stabilising_gains
+
+    margins: dict[str, Margins | None] = {}
+    for cut in prep.diagram.breaks:
+        name = cut.stmt.name
+        c = counts[name]
+        stable = c.Z == 0 and not c.marginal
+        margins[name] = (loop_margins(lambda s, n=name: red.loop_transfer(n, s), c.response, c.P)
+                         if stable else None)
+    results = []
+    for cut in prep.diagram.breaks:
+        name = cut.stmt.name
+        c = counts[name]
+        warnings = list(c.warnings)
+        if c.Z != Z:
+            warnings.append(f"numerical: this break counts Z = {c.Z} closed-loop RHP poles but the whole "
+                            f"model counts {Z}; the verdict is not trustworthy")
+        if not red.has_delay:
+            warnings.extend(_hidden(red, name))
+        stable = c.Z == 0 and not c.marginal
+        m = margins[name]
+        separation = None
+        if cut.enclosed_by and m is not None and margins.get(cut.enclosed_by) is not None:
+            outer = margins[cut.enclosed_by].crossover_freq
+            if m.crossover_freq is not None and outer:
+                separation = m.crossover_freq / outer
+                if separation < SEPARATION_WARNING:
+                    warnings.append(f"separation: crossover only {separation:.2g} times that of the enclosing "
+                                    f"break `{cut.enclosed_by}` (common practice: 3 to 5 times or more)")
+        verdict = "marginal" if c.marginal else ("stable" if stable else "unstable")
+        reqs = tuple(r for r in model.requirements if r.target in (name, "*"))
+        gains = () if stable else stabilising_gains(c.response, c.P)
+        results.append(BreakResult(
+            name=name, at=cut.stmt.at, line=cut.stmt.span.line, stable=stable, open_loop_rhp_poles=c.P,
+            encirclements=c.N, closed_loop_rhp_poles=c.Z, marginal=c.marginal, marginal_freq=c.marginal_freq,
+            margins=m, requirements=judge(reqs, m, separation, verdict), warnings=tuple(warnings),
+            stabilising_gains=gains, enclosed_by=cut.enclosed_by, separation=separation, response=c.response,
+        ))
+    names = {b.stmt.name for b in prep.diagram.breaks}
+    errors = [ModelError("E307", f"requirement on unknown break `{r.target}`", r.target_span,
+                         _did_you_mean(r.target, names)) for r in model.requirements
+              if r.target != "*" and r.target not in names]
+    if errors:
+        raise ModelErrors(errors)
+    marginal = any(r.marginal for r in results)
+    return ModelResult(model.file, model.name, Z == 0 and not marginal, Z, tuple(results), tuple(findings))
+
+
+def _did_you_mean(name: str, options) -> str:
+    import difflib
+    m = difflib.get_close_matches(name, list(options), n=1, cutoff=0.5)
+    return f"did you mean `{m[0]}`?" if m else "breaks: " + ", ".join(sorted(options))
+
+
+def _hidden(red: Reduction, name: str) -> list[str]:
+    from .statespace import hidden_modes
+    try:
+        modes = hidden_modes(red, name)
+    except (np.linalg.LinAlgError, ValueError):
+        return []
+    return [f"hidden unstable mode at s = {l.real:.4g}{l.imag:+.4g}j inside the loop (cancelled, "
+            f"invisible in L): blocks {', '.join(names)}" for l, names in modes]
+
+
+def analyse_loop(L, name: str = "loop", indent: str = "right") -> BreakResult:
+    """Unity negative feedback around the loop transfer L (a Transfer)."""
+    from .diagram import build_diagram as _bd
+    from .language import ast
+    from .language.resolve import Application, Block, Term
+
+    span = Span("<loop>", 1, 1)
+    app = Application("L", L, span)
+    model = Model(
+        name=name, file="<loop>", params={}, blocks={"L": Block("L", L, span)}, inputs={"r": span},
+        signals={"e": span, "y": span}, hidden=frozenset(),
+        equations={"e": (Term("r", 1.0, None, span), Term("y", -1.0, None, span)), "y": (Term("e", 1.0, app, span),)},
+        breaks=(ast.BreakStmt(span, name, "y", span),), requirements=(), findings=(),
+    )
+    prep = _prepare(model)
+    return check_prepared(prep, indent).breaks[0]

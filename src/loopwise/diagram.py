@@ -1,0 +1,229 @@
+"""Resolved model -> the loop graph (networkx) and its structural checks.
+
+Signals are nodes; each wiring term is an edge from its source signal into the
+signal whose equation uses it, carrying the term (a gain, or one block
+application). Checks: unused inputs, algebraic loops (ill-posed or merely
+present), loops that no break opens, breaks that open nothing or name a wire
+that does not exist, and the cascade nesting of the breaks.
+
+Nesting rule: a break *opens* the simple cycles that contain one of its cut
+edges; its loop is the set of signals on those cycles. Break B is enclosed by
+break A when B's loop is a strict subset of A's loop; B's enclosing break is
+the smallest such A. Loops that only partly overlap are not nested.
+"""
+from __future__ import annotations
+
+import difflib
+import itertools
+from dataclasses import dataclass
+
+import networkx as nx
+import numpy as np
+
+from .errors import Finding, ModelError, ModelErrors, Span
+from .language.ast import BreakStmt
+from .language.resolve import Model, Term
+
+__all__ = ["Diagram", "BreakCut", "build_diagram", "MAX_CYCLES"]
+
+#: cycle enumeration stops here; larger models get their loop checks on what was found
+MAX_CYCLES = 20000
+
+
+@dataclass(frozen=True, eq=False)
+class BreakCut:
+    """The wires one break cuts: (source signal, equation signal) pairs."""
+
+    stmt: BreakStmt
+    signal: str
+    edges: tuple[tuple[str, str], ...]
+    loop: frozenset[str]
+    enclosed_by: str | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class Diagram:
+    model: Model
+    graph: nx.MultiDiGraph
+    signals: tuple[str, ...]  # the state of the wiring, in a fixed order (inputs excluded)
+    cycles: tuple[tuple[str, ...], ...]
+    breaks: tuple[BreakCut, ...]
+    findings: tuple[Finding, ...]
+    cycles_complete: bool = True
+
+    def index(self) -> dict[str, int]:
+        return {n: i for i, n in enumerate(self.signals)}
+
+
+def _hint(name: str, options) -> str | None:
+    m = difflib.get_close_matches(name, list(options), n=1, cutoff=0.6)
+    return f"did you mean `{m[0]}`?" if m else None
+
+
+def _feeds(term: Term) -> bool:
+    """Whether the term passes its input through at infinite frequency without delay."""
+    if term.app is None:
+        return term.gain != 0.0
+    tf = term.app.transfer
+    return tf.delay == 0.0 and tf.feedthrough != 0.0
+
+
+def build_diagram(model: Model) -> Diagram:
+    g = nx.MultiDiGraph()
+    for name in model.inputs:
+        g.add_node(name, kind="input")
+    for name in model.signals:
+        g.add_node(name, kind="hidden" if name in model.hidden else "signal")
+    for target, terms in model.equations.items():
+        for term in terms:
+            g.add_edge(term.source, target, term=term)
+    errors: list[ModelError] = []
+    findings: list[Finding] = list(model.findings)
+    used = {u for u, _ in g.edges()}
+    for name, span in model.inputs.items():
+        if name not in used:
+            findings.append(Finding("warning", "W301", f"input `{name}` is never used", span,
+                                    "use it in a signal equation or remove it"))
+    signals = tuple(n for n in model.signals)  # defined order: equations, then hidden ones
+    findings.extend(_algebraic_loops(model, g, signals, errors))
+    cycles, complete = _cycles(g, model)
+    cuts = _breaks(model, g, errors)
+    if errors:
+        raise ModelErrors(errors)
+    cuts = _loops_and_nesting(cuts, cycles)
+    findings.extend(_unbroken(cycles, cuts, model))
+    for cut in cuts:
+        if not cut.loop:
+            errors.append(ModelError("E302", f"break `{cut.stmt.name}` at `{cut.stmt.at}` opens no loop",
+                                     cut.stmt.signal_span, "the cut wire lies on no feedback loop; "
+                                     "break a signal that the loop feeds back"))
+    if errors:
+        raise ModelErrors(errors)
+    if not complete:
+        findings.append(Finding("note", "N302", f"more than {MAX_CYCLES} loops: structural loop checks "
+                                "covered the first ones only", Span(model.file, 1, 1), None))
+    return Diagram(model, g, signals, tuple(cycles), tuple(cuts), tuple(findings), complete)
+
+
+def _display(name: str, model: Model) -> str:
+    return model.hidden_owner.get(name, name) if name in model.hidden else name
+
+
+def _algebraic_loops(model: Model, g, signals, errors) -> list[Finding]:
+    direct = nx.DiGraph()
+    direct.add_nodes_from(signals)
+    for u, v, data in g.edges(data=True):
+        if u in model.signals and _feeds(data["term"]):
+            direct.add_edge(u, v)
+    out = []
+    for comp in nx.strongly_connected_components(direct):
+        if len(comp) == 1:
+            (n,) = comp
+            if not direct.has_edge(n, n):
+                continue
+        names = sorted({_display(n, model) for n in comp})
+        # well-posedness: I - A(inf) restricted to the loop must be invertible
+        idx = {n: i for i, n in enumerate(sorted(comp))}
+        m = np.eye(len(idx))
+        for u, v, data in g.edges(data=True):
+            if u in idx and v in idx and _feeds(data["term"]):
+                t = data["term"]
+                m[idx[v], idx[u]] -= t.gain * (1.0 if t.app is None else t.app.transfer.feedthrough)
+        span = model.signals[sorted(comp)[0]]
+        if abs(np.linalg.det(m)) < 1e-12 * max(1.0, np.abs(m).max()) ** len(idx):
+            errors.append(ModelError("E301", "ill-posed algebraic loop through " + ", ".join(f"`{n}`" for n in names),
+                                     span, "the loop has no dynamics and its direct gain is exactly 1: "
+                                     "the signals are not determined; add dynamics or change a gain"))
+        else:
+            out.append(Finding("note", "N301", "algebraic loop (no dynamics) through "
+                               + ", ".join(f"`{n}`" for n in names) + "; it is well-posed", span, None))
+    return out
+
+
+def _cycles(g, model: Model):
+    sub = g.subgraph(model.signals)
+    simple = nx.DiGraph(sub)
+    cycles = []
+    for cyc in nx.simple_cycles(simple):
+        cycles.append(tuple(cyc))
+        if len(cycles) >= MAX_CYCLES:
+            return cycles, False
+    return cycles, True
+
+
+def _breaks(model: Model, g, errors) -> list[BreakCut]:
+    cuts = []
+    seen: dict[str, Span] = {}
+    for stmt in model.breaks:
+        if stmt.name in seen:
+            errors.append(ModelError("E304", f"break `{stmt.name}` is defined twice (first at {seen[stmt.name]})",
+                                     stmt.span, "give each break its own name"))
+            continue
+        seen[stmt.name] = stmt.span
+        if stmt.signal in model.inputs:
+            errors.append(ModelError("E305", f"`{stmt.signal}` is an input: no loop returns to it",
+                                     stmt.signal_span, "break a signal inside the loop"))
+            continue
+        if stmt.signal not in model.signals or stmt.signal in model.hidden:
+            errors.append(ModelError("E306", f"break at unknown signal `{stmt.signal}`", stmt.signal_span,
+                                     _hint(stmt.signal, [s for s in model.signals if s not in model.hidden])))
+            continue
+        out_edges = [(u, v) for u, v in g.out_edges(stmt.signal)]
+        if stmt.target is None:
+            edges = out_edges
+        else:
+            if stmt.target not in model.signals or stmt.target in model.hidden:
+                errors.append(ModelError("E306", f"unknown target signal `{stmt.target}`", stmt.target_span,
+                                         _hint(stmt.target, [s for s in model.signals if s not in model.hidden])))
+                continue
+            edges = [(u, v) for u, v in out_edges
+                     if v == stmt.target or model.hidden_owner.get(v) == stmt.target]
+            if not edges:
+                users = sorted({_display(v, model) for _, v in out_edges})
+                errors.append(ModelError(
+                    "E303", f"`{stmt.target}` does not use `{stmt.signal}`", stmt.target_span,
+                    ("`" + stmt.signal + "` feeds " + ", ".join(f"`{u}`" for u in users)) if users
+                    else f"`{stmt.signal}` is not used by any equation"))
+                continue
+        cuts.append(BreakCut(stmt, stmt.signal, tuple(dict.fromkeys(edges)), frozenset()))
+    return cuts
+
+
+def _loops_and_nesting(cuts: list[BreakCut], cycles) -> list[BreakCut]:
+    loops = []
+    for cut in cuts:
+        edges = set(cut.edges)
+        nodes: set[str] = set()
+        for cyc in cycles:
+            pairs = zip(cyc, (*cyc[1:], cyc[0]))
+            if any(p in edges for p in pairs):
+                nodes.update(cyc)
+        loops.append(frozenset(nodes))
+    out = []
+    for cut, loop in zip(cuts, loops):
+        parents = [(len(other), c.stmt.name) for c, other in zip(cuts, loops)
+                   if c is not cut and loop and loop < other]
+        enclosed_by = min(parents)[1] if parents else None
+        out.append(BreakCut(cut.stmt, cut.signal, cut.edges, loop, enclosed_by))
+    return out
+
+
+def _unbroken(cycles, cuts: list[BreakCut], model: Model) -> list[Finding]:
+    cut_edges = {e for c in cuts for e in c.edges}
+    out = []
+    reported: set[frozenset] = set()
+    for cyc in cycles:
+        pairs = list(zip(cyc, (*cyc[1:], cyc[0])))
+        if any(p in cut_edges for p in pairs):
+            continue
+        key = frozenset(cyc)
+        if key in reported:
+            continue
+        reported.add(key)
+        names = [_display(n, model) for n in cyc]
+        names = [n for n, _ in itertools.groupby(names)]
+        first = next((n for n in cyc if n not in model.hidden), cyc[0])
+        out.append(Finding("warning", "W302", "loop " + " -> ".join(names + [names[0]])
+                           + " is not opened by any break", model.signals[first],
+                           f"add e.g. `break <name> at {first}` to check its stability margins"))
+    return out

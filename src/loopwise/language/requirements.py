@@ -1,0 +1,87 @@
+"""Requirement metrics: their units, the unit kinds a limit may be written in,
+and the conversion of a limit to the metric's own unit.
+
+A limit written without a unit is in the metric's own unit (degrees for phase,
+dB for gain margins, seconds for delay, rad/s for frequency, a plain ratio for
+the peaks, the disk margin alpha and the separation).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from ..errors import ModelError, Span
+from . import ast
+
+__all__ = ["Metric", "METRICS", "Requirement", "make_requirement"]
+
+
+@dataclass(frozen=True)
+class Metric:
+    name: str
+    unit: str  # the metric's own unit, for display
+    kinds: tuple[str, ...]  # unit kinds a limit may carry besides none
+    description: str
+
+
+METRICS: dict[str, Metric] = {m.name: m for m in [
+    Metric("phase_margin", "deg", ("angle",), "smallest phase margin over the gain crossovers"),
+    Metric("gain_margin", "dB", ("gain",), "the smaller of the up and down gain margins"),
+    Metric("gain_margin_up", "dB", ("gain",), "gain increase that destabilises"),
+    Metric("gain_margin_down", "dB", ("gain",), "gain decrease that destabilises (as a positive dB figure)"),
+    Metric("delay_margin", "s", ("time",), "smallest extra delay that destabilises"),
+    Metric("disk_margin", "", ("ratio",), "balanced disk margin alpha"),
+    Metric("disk_gain", "dB", ("gain",), "upper end of the disk-margin gain interval"),
+    Metric("disk_phase", "deg", ("angle",), "disk-margin phase margin"),
+    Metric("sensitivity_peak", "", ("gain",), "Ms, the peak of |1/(1+L)|"),
+    Metric("complementary_peak", "", ("gain",), "Mt, the peak of |L/(1+L)|"),
+    Metric("crossover", "rad/s", ("frequency",), "the highest gain crossover frequency"),
+    Metric("separation", "", ("ratio",), "this break's crossover over the enclosing break's crossover"),
+]}
+
+
+@dataclass(frozen=True)
+class Requirement:
+    target: str  # a break name or "*"
+    metric: str
+    op: str
+    limit: float  # in the metric's own unit
+    span: Span
+    target_span: Span
+    text: str
+
+    def holds(self, value: float | None) -> bool:
+        """Whether a value meets the limit; None means unbounded (inf) or absent."""
+        if value is None:
+            return False
+        return {">=": value >= self.limit, "<=": value <= self.limit,
+                ">": value > self.limit, "<": value < self.limit}[self.op]
+
+
+def _to_metric_unit(metric: Metric, value: float, kind: str | None, span: Span) -> float:
+    if kind is None:
+        return value
+    if kind not in metric.kinds:
+        unit = metric.unit or "a plain ratio"
+        raise ModelError("E241", f"a {kind} unit does not fit `{metric.name}` (its unit is {unit})", span,
+                         f"write the limit in {unit}" + (", or without a unit" if metric.unit else ""))
+    if kind == "angle":
+        return math.degrees(value)
+    if kind == "gain":
+        if value <= 0:
+            raise ModelError("E242", "a dB limit must come from a positive ratio", span, None)
+        return 20.0 * math.log10(value) if metric.unit == "dB" else value
+    return value  # time in s, frequency in rad/s, ratio as is
+
+
+def make_requirement(stmt: ast.RequireStmt, const) -> Requirement:
+    metric = METRICS.get(stmt.metric)
+    if metric is None:
+        import difflib
+        match = difflib.get_close_matches(stmt.metric, list(METRICS), n=1, cutoff=0.5)
+        hint = f"did you mean `{match[0]}`?" if match else "metrics: " + ", ".join(METRICS)
+        raise ModelError("E243", f"unknown metric `{stmt.metric}`", stmt.metric_span, hint)
+    q = const(stmt.value, f"the limit of `{stmt.metric}`")
+    limit = _to_metric_unit(metric, q.value, q.kind, stmt.value.span)
+    return Requirement(stmt.target, stmt.metric, stmt.op, limit, stmt.span, stmt.target_span,
+                       f"{stmt.target} {stmt.metric} {stmt.op} {limit:g}{metric.unit}")

@@ -1,0 +1,126 @@
+"""Rational state-space forms of delay-free models (part of the reduce stage).
+
+Each block application is realised on its own (a cascade of first- and
+second-order sections, which keeps high-order blocks well conditioned), and
+the wiring closes them up. Used to find unstable modes that a cancellation
+hides inside a loop, and by the reference tests.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .reduce import Reduction
+
+__all__ = ["StateSpace", "loop_state_space", "closed_loop_poles", "hidden_modes"]
+
+
+@dataclass(frozen=True, eq=False)
+class StateSpace:
+    A: np.ndarray
+    B: np.ndarray
+    C: np.ndarray
+    D: np.ndarray
+    owners: tuple[str, ...]  # the application label each state belongs to
+
+
+def _realise(tf) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
+    """A minimal SISO realisation of gain * prod(s - z) / prod(s - p)."""
+    from scipy import signal
+
+    n = tf.poles.size
+    if n == 0:
+        return np.zeros((0, 0)), np.zeros((0, 1)), np.zeros((1, 0)), float(tf.gain)
+    sos = signal.zpk2sos(tf.zeros, tf.poles, tf.gain, analog=True)
+    A = np.zeros((0, 0))
+    B = np.zeros((0, 1))
+    C = np.zeros((1, 0))
+    D = 1.0
+    for sec in sos:
+        b, a = np.trim_zeros(sec[:3], "f"), np.trim_zeros(sec[3:], "f")
+        if a.size == 1:  # a pure gain section
+            D *= b[0] / a[0] if b.size else 0.0
+            C = C * (b[0] / a[0] if b.size else 0.0)
+            continue
+        Ai, Bi, Ci, Di = signal.tf2ss(b, a)
+        # series: new input -> this section after the previous ones
+        A = np.block([[A, np.zeros((A.shape[0], Ai.shape[0]))], [Bi @ C, Ai]])
+        B = np.vstack([B, Bi * D])
+        C = np.hstack([Di.item() * C, Ci])
+        D = Di.item() * D
+    return A, B, C, float(D)
+
+
+def loop_state_space(red: Reduction, name: str | None = None) -> StateSpace:
+    """(A, B, C, D) of L_k = -y/v at break `name`; with name None, the whole closed loop (B, C empty)."""
+    if red.has_delay:
+        raise ValueError("a state-space form exists only for delay-free models")
+    n = red.n
+    cut = red.cut_sets[name] if name is not None else frozenset()
+    blocks = []
+    for k, inst in enumerate(red.instances):
+        if inst.transfer is not None:
+            blocks.append((k, inst, *_realise(inst.transfer)))
+    ns = sum(b[2].shape[0] for b in blocks)
+    Ablk = np.zeros((ns, ns))
+    Bx = np.zeros((ns, n))  # state input from signals
+    Bv = np.zeros((ns, 1))  # state input from the injected test signal
+    Cx = np.zeros((n, ns))
+    M = np.eye(n)
+    bv = np.zeros((n, 1))
+    owners: list[str] = []
+    off = 0
+    for k, inst, A, B, C, D in blocks:
+        m = A.shape[0]
+        g = inst.term.gain
+        Ablk[off:off + m, off:off + m] = A
+        Cx[inst.row, off:off + m] += g * C[0]
+        if k in cut:
+            Bv[off:off + m, 0] += B[:, 0]
+            bv[inst.row, 0] += g * D
+        else:
+            Bx[off:off + m, inst.col] += B[:, 0]
+            M[inst.row, inst.col] -= g * D
+        owners.extend([inst.term.app.label] * m)
+        off += m
+    for k, inst in enumerate(red.instances):
+        if inst.transfer is None:
+            if k in cut:
+                bv[inst.row, 0] += inst.term.gain
+            else:
+                M[inst.row, inst.col] -= inst.term.gain
+    Minv = np.linalg.inv(M)
+    Acl = Ablk + Bx @ Minv @ Cx
+    if name is None:
+        return StateSpace(Acl, np.zeros((ns, 0)), np.zeros((0, ns)), np.zeros((0, 0)), tuple(owners))
+    sig = red.signals.index(red._cut_signal(name))
+    Bcl = Bx @ Minv @ bv + Bv
+    Ccl = -(Minv @ Cx)[sig:sig + 1, :]
+    Dcl = -(Minv @ bv)[sig:sig + 1, :]
+    return StateSpace(Acl, Bcl, Ccl, Dcl, tuple(owners))
+
+
+def closed_loop_poles(red: Reduction) -> np.ndarray:
+    return np.linalg.eigvals(loop_state_space(red, None).A)
+
+
+def hidden_modes(red: Reduction, name: str) -> list[tuple[complex, tuple[str, ...]]]:
+    """Open-loop RHP modes at break `name` that L_k cannot see (uncontrollable or unobservable)."""
+    ss = loop_state_space(red, name)
+    if ss.A.size == 0:
+        return []
+    lam, vecs = np.linalg.eig(ss.A)
+    out = []
+    scale = max(1.0, np.abs(ss.A).max())
+    for i, l in enumerate(lam):
+        if l.real <= 1e-9 * max(1.0, abs(l)):
+            continue
+        n = ss.A.shape[0]
+        ctrl = np.linalg.svd(np.hstack([l * np.eye(n) - ss.A, ss.B]), compute_uv=False)[-1]
+        obs = np.linalg.svd(np.vstack([l * np.eye(n) - ss.A, ss.C]), compute_uv=False)[-1]
+        if min(ctrl, obs) < 1e-8 * scale:
+            v = np.abs(vecs[:, i])
+            names = tuple(dict.fromkeys(ss.owners[j] for j in np.argsort(v)[::-1][:3] if v[j] > 0.1 * v.max()))
+            out.append((complex(l), names))
+    return out

@@ -1,0 +1,257 @@
+"""A block's transfer function: a rational part (gain, zeros, poles) times exp(-T s).
+
+Roots are kept in factored form through products and powers, so a block built
+from factors of order up to 20 keeps its roots exactly; only sums expand into
+polynomials (over a common denominator made from the poles, which stay
+factored). Evaluation on arrays of complex s pairs each zero with a pole, which
+keeps intermediate values near 1 and avoids overflow at high order. Delays are
+exact: ``exp(-T s)``, never a Padé approximation.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["Transfer", "TransferError", "AXIS_TOL"]
+
+#: a root whose real part is below this fraction of its size lies on the imaginary axis
+AXIS_TOL = 1e-11
+_MATCH_TOL = 1e-9
+
+
+class TransferError(ValueError):
+    """An operation that has no rational-times-delay result (the caller adds the location)."""
+
+
+def _clean_roots(roots) -> np.ndarray:
+    """Tidy roots of a real polynomial: exact conjugate pairs, exact axis and real roots."""
+    r = np.asarray(roots, dtype=complex).ravel()
+    if r.size == 0:
+        return r
+    scale = np.maximum(np.abs(r), 1e-300)
+    re = np.where(np.abs(r.real) <= AXIS_TOL * scale, 0.0, r.real)
+    im = np.where(np.abs(r.imag) <= AXIS_TOL * scale, 0.0, r.imag)
+    r = re + 1j * im
+    # pair up conjugates so that the polynomial stays real
+    real = r[r.imag == 0]
+    upper = r[r.imag > 0]
+    lower = r[r.imag < 0]
+    if upper.size == lower.size:
+        upper = np.sort_complex(upper)
+        lower_sorted = np.sort_complex(np.conj(lower))
+        avg = 0.5 * (upper + lower_sorted)
+        pairs = np.concatenate([avg, np.conj(avg)])
+    else:  # not a real polynomial's roots (should not happen): keep as they are
+        pairs = np.concatenate([upper, lower])
+    return np.concatenate([np.sort(real.real).astype(complex), pairs])
+
+
+def _poly(roots: np.ndarray) -> np.ndarray:
+    """Monic polynomial (descending powers) with these roots, real when possible."""
+    p = np.poly(roots) if roots.size else np.array([1.0])
+    p = np.atleast_1d(p)
+    if np.iscomplexobj(p) and np.allclose(p.imag, 0.0, atol=1e-12 * max(1.0, np.abs(p).max())):
+        p = p.real
+    return p
+
+
+def _remove_matches(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Split multisets: (a minus common, b minus common, common)."""
+    a = list(a)
+    rest_b = []
+    common = []
+    for x in b:
+        best = None
+        for i, y in enumerate(a):
+            if abs(x - y) <= _MATCH_TOL * max(1.0, abs(x), abs(y)):
+                best = i
+                break
+        if best is None:
+            rest_b.append(x)
+        else:
+            common.append(a.pop(best))
+    return np.array(a, dtype=complex), np.array(rest_b, dtype=complex), np.array(common, dtype=complex)
+
+
+@dataclass(frozen=True, eq=False)
+class Transfer:
+    """gain * prod(s - zeros) / prod(s - poles) * exp(-delay * s)."""
+
+    gain: float
+    zeros: np.ndarray
+    poles: np.ndarray
+    delay: float = 0.0
+
+    # --- construction ---------------------------------------------------------
+    @staticmethod
+    def constant(value: float) -> "Transfer":
+        return Transfer(float(value), np.zeros(0, complex), np.zeros(0, complex), 0.0)
+
+    @staticmethod
+    def laplace() -> "Transfer":
+        return Transfer(1.0, np.zeros(1, complex), np.zeros(0, complex), 0.0)
+
+    @staticmethod
+    def pure_delay(T: float) -> "Transfer":
+        return Transfer(1.0, np.zeros(0, complex), np.zeros(0, complex), float(T))
+
+    @staticmethod
+    def from_zpk(zeros, poles, gain, delay: float = 0.0) -> "Transfer":
+        return Transfer(float(gain), _clean_roots(zeros), _clean_roots(poles), float(delay))
+
+    @staticmethod
+    def from_coeffs(num, den, delay: float = 0.0) -> "Transfer":
+        num = np.trim_zeros(np.atleast_1d(np.asarray(num, dtype=float)), "f")
+        den = np.trim_zeros(np.atleast_1d(np.asarray(den, dtype=float)), "f")
+        if den.size == 0:
+            raise TransferError("the denominator is zero")
+        if num.size == 0:
+            return Transfer.constant(0.0)
+        return Transfer(num[0] / den[0], _clean_roots(np.roots(num)), _clean_roots(np.roots(den)), float(delay))
+
+    # --- properties -----------------------------------------------------------
+    @property
+    def is_zero(self) -> bool:
+        return self.gain == 0.0
+
+    @property
+    def relative_degree(self) -> int:
+        """Poles minus zeros: >= 0 proper, >= 1 strictly proper."""
+        return int(self.poles.size - self.zeros.size)
+
+    @property
+    def is_proper(self) -> bool:
+        return self.is_zero or self.relative_degree >= 0
+
+    @property
+    def is_constant(self) -> bool:
+        return self.zeros.size == 0 and self.poles.size == 0 and self.delay == 0.0
+
+    @property
+    def feedthrough(self) -> float:
+        """|G(s)| limit as |s| -> inf without the delay factor (0 if strictly proper)."""
+        if self.is_zero or self.relative_degree > 0:
+            return 0.0
+        if self.relative_degree < 0:
+            return float("inf")
+        return self.gain
+
+    @property
+    def rhp_poles(self) -> int:
+        return int(np.sum(self.poles.real > 0))
+
+    @property
+    def axis_poles(self) -> np.ndarray:
+        return self.poles[self.poles.real == 0]
+
+    def num_den(self) -> tuple[np.ndarray, np.ndarray]:
+        """Coefficient form (descending powers); for display and reference tests only."""
+        return self.gain * _poly(self.zeros), _poly(self.poles)
+
+    # --- evaluation -----------------------------------------------------------
+    def evaluate(self, s) -> np.ndarray:
+        s = np.asarray(s, dtype=complex)
+        out = np.full(s.shape, self.gain, dtype=complex)
+        if self.is_zero:
+            return out
+        nz, npl = self.zeros.size, self.poles.size
+        common = min(nz, npl)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            for z, p in zip(self.zeros[:common], self.poles[:common]):
+                out *= (s - z) / (s - p)
+            for z in self.zeros[common:]:
+                out *= s - z
+            for p in self.poles[common:]:
+                out /= s - p
+        if self.delay:
+            out *= np.exp(-self.delay * s)
+        return out
+
+    __call__ = evaluate
+
+    # --- arithmetic -----------------------------------------------------------
+    def __mul__(self, other: "Transfer | float") -> "Transfer":
+        other = _as_transfer(other)
+        if self.is_zero or other.is_zero:
+            return Transfer.constant(0.0)
+        return Transfer(self.gain * other.gain, np.concatenate([self.zeros, other.zeros]),
+                        np.concatenate([self.poles, other.poles]), self.delay + other.delay)
+
+    __rmul__ = __mul__
+
+    def reciprocal(self) -> "Transfer":
+        if self.is_zero:
+            raise TransferError("division by zero")
+        return Transfer(1.0 / self.gain, self.poles, self.zeros, -self.delay)
+
+    def __truediv__(self, other: "Transfer | float") -> "Transfer":
+        return self * _as_transfer(other).reciprocal()
+
+    def __rtruediv__(self, other: float) -> "Transfer":
+        return _as_transfer(other) * self.reciprocal()
+
+    def __neg__(self) -> "Transfer":
+        return Transfer(-self.gain, self.zeros, self.poles, self.delay)
+
+    def __pow__(self, n: int) -> "Transfer":
+        if n < 0:
+            return self.reciprocal() ** (-n)
+        if n == 0:
+            return Transfer.constant(1.0)
+        if self.is_zero:
+            return Transfer.constant(0.0)
+        return Transfer(self.gain ** n, np.tile(self.zeros, n), np.tile(self.poles, n), self.delay * n)
+
+    def __add__(self, other: "Transfer | float") -> "Transfer":
+        other = _as_transfer(other)
+        if other.is_zero:
+            return self
+        if self.is_zero:
+            return other
+        if abs(self.delay - other.delay) > 1e-15 * max(self.delay, other.delay, 1.0):
+            raise TransferError("a sum of terms with different delays is not a rational "
+                                "transfer function times one delay")
+        # common denominator: keep shared poles once (they stay factored)
+        only_a, only_b, shared = _remove_matches(self.poles, other.poles)
+        den = np.concatenate([shared, only_a, only_b])
+        num_a = self.gain * np.polymul(_poly(self.zeros), _poly(only_b))
+        num_b = other.gain * np.polymul(_poly(other.zeros), _poly(only_a))
+        num = np.polyadd(num_a, num_b)
+        num = np.real_if_close(num, tol=1e6)
+        scale = np.abs(num).max() if num.size else 0.0
+        if scale == 0.0:
+            return Transfer.constant(0.0)
+        # leading terms that cancel exactly leave rounding noise: drop it
+        lead = 0
+        while lead < num.size - 1 and abs(num[lead]) <= 1e-13 * scale:
+            lead += 1
+        num = num[lead:]
+        zeros = _clean_roots(np.roots(num)) if num.size > 1 else np.zeros(0, complex)
+        return Transfer(float(np.real(num[0])), zeros, _clean_roots(den), self.delay)
+
+    __radd__ = __add__
+
+    def __sub__(self, other: "Transfer | float") -> "Transfer":
+        return self + (-_as_transfer(other))
+
+    def __rsub__(self, other: float) -> "Transfer":
+        return _as_transfer(other) + (-self)
+
+    # --- simplification -------------------------------------------------------
+    def minimal(self) -> tuple["Transfer", np.ndarray]:
+        """Cancel coinciding zero/pole pairs; returns the result and the cancelled poles."""
+        zeros, poles, common = _remove_matches(self.zeros, self.poles)
+        if common.size == 0:
+            return self, common
+        return Transfer(self.gain, _clean_roots(zeros), _clean_roots(poles), self.delay), common
+
+    def __repr__(self) -> str:
+        return (f"Transfer(gain={self.gain:.6g}, zeros={np.round(self.zeros, 6).tolist()}, "
+                f"poles={np.round(self.poles, 6).tolist()}, delay={self.delay:.6g})")
+
+
+def _as_transfer(x) -> Transfer:
+    if isinstance(x, Transfer):
+        return x
+    return Transfer.constant(float(x))
