@@ -1,0 +1,296 @@
+"""`loopwise diff` end to end: a real git repository built in the test, files and folders.
+
+The loop under test (an invented example) is L = K / (s (s+1) (s+5)), unity
+negative feedback. Independent values:
+- gain margin, analytic: the phase crossover is where the lags of the two poles
+  add to 90 deg, w^2 = 1*5, and there |L| = K / (w sqrt(w^2+1) sqrt(w^2+25))
+  = K / 30, so GM = 30/K (K 10 -> 20: 20log10(3) -> 20log10(1.5) dB). With the
+  pole at 10 instead of 5 the same derivation gives GM = 1*10*(1+10)/K = 110/K.
+- phase margin and crossover: python-control `stability_margins` on the same
+  delay-free loop; delay margin = phase margin [rad] / crossover (rule 11).
+"""
+from __future__ import annotations
+
+import json
+import math
+import re
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import control
+import jsonschema
+import pytest
+
+from loopwise.cli import main
+from loopwise.results import CAUTION
+
+SCHEMA = json.loads((Path(__file__).resolve().parents[2] / "docs" / "diff.schema.json").read_text())
+
+PYPROJECT = '[tool.loopwise]\nexclude = ["**/common/**"]\n'
+PLANT_LIB = "# invented test plant\nblock P = 1/(s*(s+1)*(s+{b}))\n"
+PLANT = """\
+# invented test loop
+model plant
+use "common/plant.loop"
+param K = {K}
+input r
+e = r - y
+u = K*e
+y = P(u)
+break {name} at y
+require {name} gain_margin >= 6dB
+"""
+STEADY = """\
+# invented test loop with no phase crossover
+model {model}
+input r
+e = r - y
+y = [4/((s+1)*(s+2))](e)
+break {name} at y
+"""
+
+
+def reference(K: float, b: float = 5.0) -> dict:
+    """python-control `stability_margins` on L = K/(s(s+1)(s+b)), delay-free."""
+    L = control.tf([K], [1.0, 1.0 + b, b, 0.0])
+    gm, pm, _sm, _wpc, wgc, _wms = control.stability_margins(L)
+    return {"gain_margin_up_db": 20 * math.log10(gm), "phase_margin_deg": pm,
+            "crossover_freq": wgc, "delay_margin_s": math.radians(pm) / wgc}
+
+
+def gm_analytic(K: float, b: float = 5.0) -> float:
+    """Gain margin of K/(s(s+1)(s+b)) in dB: 20 log10(b (1+b) / K) (derived in the docstring)."""
+    return 20 * math.log10(b * (1 + b) / K)
+
+
+def write(root: Path, files: dict[str, str]) -> None:
+    for rel, text in files.items():
+        path = root / rel
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_text(text)
+
+
+def model_set(K=10, b=5, plant_break="loop", steady_break="loop") -> dict[str, str]:
+    return {"pyproject.toml": PYPROJECT,
+            "models/common/plant.loop": PLANT_LIB.format(b=b),
+            "models/plant.loop": PLANT.format(K=K, name=plant_break),
+            "models/steady.loop": STEADY.format(model="steady", name=steady_break)}
+
+
+@pytest.fixture
+def repo(tmp_path, monkeypatch):
+    """An empty git repository as the working folder; commits work on a clean machine."""
+    for key, value in {"GIT_AUTHOR_NAME": "Test", "GIT_AUTHOR_EMAIL": "test@example.invalid",
+                       "GIT_COMMITTER_NAME": "Test", "GIT_COMMITTER_EMAIL": "test@example.invalid",
+                       "GIT_CONFIG_NOSYSTEM": "1", "GIT_CONFIG_GLOBAL": os.devnull}.items():
+        monkeypatch.setenv(key, value)
+    root = tmp_path / "repo"
+    root.mkdir()
+    monkeypatch.chdir(root)
+    subprocess.run(["git", "init", "-q"], cwd=root, check=True)
+    return root
+
+
+def commit(root: Path, files: dict[str, str], message: str, remove=()) -> None:
+    write(root, files)
+    for rel in remove:
+        (root / rel).unlink()
+    subprocess.run(["git", "add", "-A", "."], cwd=root, check=True)
+    subprocess.run(["git", "commit", "-q", "-m", message], cwd=root, check=True)
+
+
+def run_json(capsys, *argv) -> tuple[int, dict, str]:
+    code = main(["diff", *argv, "--format", "json"])
+    out, err = capsys.readouterr()
+    data = json.loads(out)
+    jsonschema.validate(data, SCHEMA)
+    return code, data, err
+
+
+def by_metric(model: dict, break_name: str) -> dict:
+    (brk,) = [b for b in model["breaks"] if b["name"] == break_name]
+    return {m["metric"]: m for m in brk["margins"]}
+
+
+def models(data: dict) -> dict:
+    return {m["file"]: m for m in data["models"]}
+
+
+def test_gain_doubled_between_revisions(repo, capsys):
+    commit(repo, model_set(K=10), "K = 10")
+    commit(repo, model_set(K=20), "K = 20")
+    code, data, err = run_json(capsys, "--rev", "HEAD~1", "--rev", "HEAD")
+    assert code == 1 and "Traceback" not in err
+    plant = models(data)["models/plant.loop"]
+    assert plant["status"] == "changed"
+    m = by_metric(plant, "loop")
+    before, after = reference(10), reference(20)
+    # analytic gain margin 30/K (module docstring)
+    assert m["gain_margin_up_db"]["before"] == pytest.approx(gm_analytic(10), abs=1e-3)
+    assert m["gain_margin_up_db"]["after"] == pytest.approx(gm_analytic(20), abs=1e-3)
+    assert m["gain_margin_up_db"]["delta"] == pytest.approx(-20 * math.log10(2), abs=1e-3)
+    assert m["gain_margin_up_db"]["direction"] == "worse" and m["gain_margin_up_db"]["regression"]
+    # python-control stability_margins: phase margin, crossover, delay margin
+    for key in ("phase_margin_deg", "crossover_freq", "delay_margin_s"):
+        assert m[key]["before"] == pytest.approx(before[key], rel=1e-3), key
+        assert m[key]["after"] == pytest.approx(after[key], rel=1e-3), key
+        assert m[key]["delta"] == pytest.approx(after[key] - before[key], rel=1e-3, abs=1e-6), key
+    assert m["phase_margin_deg"]["regression"] and m["delay_margin_s"]["regression"]
+    (req,) = plant["breaks"][0]["requirements"]
+    assert (req["met_before"], req["met_after"], req["status"]) == (True, False, "stopped being met")
+    assert models(data)["models/steady.loop"]["status"] == "unchanged"
+    assert data["summary"]["exit_code"] == 1 and data["old"] == "HEAD~1" and data["new"] == "HEAD"
+
+
+def test_working_tree_against_revision_in_text(repo, capsys):
+    commit(repo, model_set(K=10), "K = 10")
+    write(repo, model_set(K=20))  # not committed: the working tree is the new side
+    code = main(["diff", "--rev", "HEAD"])
+    out, err = capsys.readouterr()
+    assert code == 1 and err == ""
+    gm10, gm20 = gm_analytic(10), gm_analytic(20)  # analytic, see the module docstring
+    line = rf"\n +gain margin up +{gm10:.2f} dB -> +{gm20:.2f} dB  \({gm20 - gm10:+.2f}, worse\)  REGRESSION"
+    assert re.search(line, out), out
+    assert "requirement gain_margin >= 6.00 dB: met -> NOT MET" in out
+    assert "1 model unchanged" in out and "HEAD -> working tree" in out
+    assert CAUTION in out
+
+
+def test_unchanged_models_are_checked_once(repo, capsys, monkeypatch):
+    from loopwise import analysis
+    calls = []
+    real = analysis.check_file
+
+    def counting(path, settings=None):
+        calls.append(Path(path).name)
+        return real(path, settings=settings)
+    monkeypatch.setattr(analysis, "check_file", counting)
+    commit(repo, model_set(K=10), "K = 10")
+    commit(repo, model_set(K=20), "K = 20")
+    assert main(["diff", "--rev", "HEAD~1", "--rev", "HEAD"]) == 1
+    # steady.loop (same text, same includes) once; plant.loop on both sides
+    assert sorted(calls) == ["plant.loop", "plant.loop", "steady.loop"]
+
+
+def test_changed_include_is_rechecked_from_its_revision(repo, capsys):
+    commit(repo, model_set(K=10, b=5), "plant pole at 5")
+    commit(repo, model_set(K=10, b=10), "plant pole at 10")  # only the included file changes
+    code, data, _ = run_json(capsys, "--rev", "HEAD~1", "--rev", "HEAD")
+    m = by_metric(models(data)["models/plant.loop"], "loop")
+    # analytic: GM = b (1 + b) / K, 30/10 -> 110/10
+    assert m["gain_margin_up_db"]["before"] == pytest.approx(gm_analytic(10, 5), abs=1e-3)
+    assert m["gain_margin_up_db"]["after"] == pytest.approx(gm_analytic(10, 10), abs=1e-3)
+    assert m["gain_margin_up_db"]["direction"] == "better"
+    assert m["phase_margin_deg"]["after"] == pytest.approx(reference(10, 10)["phase_margin_deg"], rel=1e-3)
+    assert code == 0
+
+
+def test_paths_limit_the_revision_diff(repo, capsys):
+    commit(repo, model_set(K=10), "K = 10")
+    commit(repo, model_set(K=20, steady_break="renamed"), "K = 20, steady break renamed")
+    code, data, _ = run_json(capsys, "--rev", "HEAD~1", "--rev", "HEAD", "models/steady.loop")
+    assert [m["file"] for m in data["models"]] == ["models/steady.loop"]
+    assert code == 0  # a renamed stable break is no regression
+
+
+def test_folders_renamed_break_removed_and_added_models(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    write(tmp_path / "old", {**model_set(K=10), "models/gone.loop": STEADY.format(model="gone", name="g")})
+    write(tmp_path / "new", {**model_set(K=10, steady_break="speed_loop"),
+                             "models/added.loop": STEADY.format(model="added", name="a")})
+    (tmp_path / "pyproject.toml").write_text(PYPROJECT)
+    code, data, _ = run_json(capsys, "old", "new")
+    status = {f: m["status"] for f, m in models(data).items()}
+    assert status == {"models/added.loop": "added", "models/gone.loop": "removed",
+                      "models/plant.loop": "unchanged", "models/steady.loop": "changed"}
+    steady = models(data)["models/steady.loop"]
+    assert {(b["name"], b["status"]) for b in steady["breaks"]} == {("loop", "removed"),
+                                                                     ("speed_loop", "added")}
+    assert code == 0
+    assert main(["diff", "old", "new"]) == 0
+    out = capsys.readouterr().out
+    assert "- break loop (at y): removed" in out and "+ break speed_loop (at y): added, stable" in out
+    assert "models/gone.loop: removed" in out and "1 model unchanged" in out
+
+
+def test_two_files_and_markdown_to_a_file(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    write(tmp_path, {"a/common/plant.loop": PLANT_LIB.format(b=5), "a/plant.loop": PLANT.format(K=10, name="loop"),
+                     "b/common/plant.loop": PLANT_LIB.format(b=5), "b/plant.loop": PLANT.format(K=20, name="loop")})
+    assert main(["diff", "a/plant.loop", "b/plant.loop", "--format", "markdown", "-o", "out.md"]) == 1
+    text = (tmp_path / "out.md").read_text()
+    gm10, gm20 = gm_analytic(10), gm_analytic(20)
+    assert f"| `loop` | gain margin up | {gm10:.2f} dB | {gm20:.2f} dB | {gm20 - gm10:+.2f}, worse |" in text
+    assert CAUTION in text and "regression" in text
+
+
+def test_policy_from_settings_and_options_that_win(repo, capsys):
+    # K 10 -> 12 (python-control stability_margins): PM 25.4 -> 20.9 deg, GM 9.54 -> 7.96 dB,
+    # delay margin 0.361 -> 0.267 s (-26 %): only the delay margin passes a default threshold
+    ref10, ref12 = reference(10), reference(12)
+    assert 0.2 < 1 - ref12["delay_margin_s"] / ref10["delay_margin_s"] < 0.5
+    assert 4 < ref10["phase_margin_deg"] - ref12["phase_margin_deg"] < 5
+    commit(repo, model_set(K=10), "K = 10")
+    write(repo, model_set(K=12))
+    assert main(["diff", "--rev", "HEAD"]) == 1
+    (repo / "pyproject.toml").write_text(PYPROJECT + "[tool.loopwise.regression]\n"
+                                                    "delay_margin_loss_fraction = 0.5\n")
+    assert main(["diff", "--rev", "HEAD"]) == 0
+    assert main(["diff", "--rev", "HEAD", "--max-delay-loss", "20%"]) == 1
+    assert main(["diff", "--rev", "HEAD", "--max-phase-loss", "4"]) == 1
+    capsys.readouterr()
+
+
+def test_model_that_stops_parsing_is_unreadable_input(repo, capsys):
+    commit(repo, model_set(K=10), "K = 10")
+    write(repo, {"models/plant.loop": PLANT.format(K=10, name="loop").replace("y = P(u)", "y = P(u")})
+    code = main(["diff", "--rev", "HEAD"])
+    out, err = capsys.readouterr()
+    assert code == 2
+    assert "models/plant.loop: errors appeared" in out
+    assert "models/plant.loop:8:" in out  # located at the broken line
+    assert err.strip() == "loopwise: cannot read on the new side: models/plant.loop"
+    assert "Traceback" not in out + err
+
+
+def test_errors_that_disappear(repo, capsys):
+    broken = model_set(K=10)
+    broken["models/plant.loop"] = broken["models/plant.loop"].replace("y = P(u)", "y = P(u")
+    commit(repo, broken, "broken")
+    commit(repo, model_set(K=10), "fixed")
+    code, data, err = run_json(capsys, "--rev", "HEAD~1", "--rev", "HEAD")
+    plant = models(data)["models/plant.loop"]
+    assert plant["status"] == "errors disappeared" and plant["errors_before"]
+    assert plant["errors_before"][0]["file"] == "models/plant.loop"  # relative to the repository
+    assert code == 0 and err == ""
+
+
+def test_revision_that_does_not_exist(repo, capsys):
+    commit(repo, model_set(K=10), "K = 10")
+    code = main(["diff", "--rev", "no-such-branch"])
+    out, err = capsys.readouterr()
+    assert code == 2 and out == ""
+    assert err == f"loopwise: revision 'no-such-branch' does not exist in {repo.resolve()}\n"
+
+
+def test_usage_mistakes_are_one_line(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "a.loop").write_text(STEADY.format(model="a", name="x"))
+    for argv in (["diff", "a.loop"], ["diff", "a.loop", "missing.loop"], ["diff", "a.loop", "."],
+                 ["diff", "--max-gain-loss", "-1", "a.loop", "a.loop"], ["diff", "--rev", "HEAD"]):
+        assert main(argv) == 2, argv
+        out, err = capsys.readouterr()
+        assert out == "" and err.count("\n") == 1 and err.startswith("loopwise: "), (argv, err)
+
+
+def test_installed_command_in_a_subprocess(repo):
+    commit(repo, model_set(K=10), "K = 10")
+    commit(repo, model_set(K=20), "K = 20")
+    done = subprocess.run([sys.executable, "-m", "loopwise", "diff", "--rev", "HEAD~1", "--format", "markdown"],
+                          cwd=repo, capture_output=True, text=True, timeout=120)
+    assert done.returncode == 1, done.stderr
+    assert "### loopwise diff: `HEAD~1` -> `working tree`" in done.stdout
+    assert "requirement" in done.stdout and CAUTION in done.stdout
+    assert done.stderr == ""
