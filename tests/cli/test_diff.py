@@ -21,6 +21,7 @@ from pathlib import Path
 
 import control
 import jsonschema
+import numpy as np
 import pytest
 
 from loopwise.cli import main
@@ -224,6 +225,51 @@ def test_two_files_and_markdown_to_a_file(tmp_path, monkeypatch, capsys):
     gm10, gm20 = gm_analytic(10), gm_analytic(20)
     assert f"| `loop` | gain margin up | {gm10:.2f} dB | {gm20:.2f} dB | {gm20 - gm10:+.2f}, worse |" in text
     assert CAUTION in text and "regression" in text
+
+
+INLINE = """\
+# invented test loop
+model {model}
+input r
+e = r - y
+y = [{transfer}](e)
+break loop at y
+"""
+
+
+def test_loop_that_becomes_unstable(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    write(tmp_path, {"a/m.loop": INLINE.format(model="m", transfer="10/(s*(s+1)*(s+5))"),
+                     "b/m.loop": INLINE.format(model="m", transfer="40/(s*(s+1)*(s+5))")})
+    code, data, _ = run_json(capsys, "a/m.loop", "b/m.loop")
+    (brk,) = data["models"][0]["breaks"]
+    # closed-loop poles: roots of s^3 + 6 s^2 + 5 s + K (numpy.roots), K = 40 > 30 is unstable
+    z_after = int(sum(r.real > 0 for r in np.roots([1.0, 6.0, 5.0, 40.0])))
+    assert z_after == 2
+    assert brk["verdict"]["stable_before"] and not brk["verdict"]["stable_after"]
+    assert (brk["verdict"]["closed_loop_rhp_poles_before"],
+            brk["verdict"]["closed_loop_rhp_poles_after"]) == (0, z_after)
+    assert brk["margins"] == [] and code == 1
+    assert main(["diff", "a/m.loop", "b/m.loop"]) == 1
+    assert "verdict stable -> UNSTABLE (Z 0 -> 2, worse)" in capsys.readouterr().out
+
+
+def test_gain_margin_down_moving_towards_0_db(tmp_path, monkeypatch, capsys):
+    # L = K/(s-1): the closed-loop pole is at 1 - K, stable for K > 1, so the gain may fall by
+    # the factor 1/K: down margin -20 log10(K) dB (python-control stability_margins agrees: gm = 1/K)
+    monkeypatch.chdir(tmp_path)
+    write(tmp_path, {"a/m.loop": INLINE.format(model="m", transfer="4/(s-1)"),
+                     "b/m.loop": INLINE.format(model="m", transfer="2/(s-1)")})
+    code, data, _ = run_json(capsys, "a/m.loop", "b/m.loop")
+    m = by_metric(data["models"][0], "loop")
+    gm4 = control.stability_margins(control.tf([4.0], [1.0, -1.0]))[0]
+    assert 20 * math.log10(gm4) == pytest.approx(-20 * math.log10(4))
+    down = m["gain_margin_down_db"]
+    assert down["before"] == pytest.approx(-20 * math.log10(4), abs=1e-3)
+    assert down["after"] == pytest.approx(-20 * math.log10(2), abs=1e-3)
+    assert down["direction"] == "worse" and down["regression"] and code == 1
+    assert main(["diff", "b/m.loop", "a/m.loop", "--max-delay-loss", "50%"]) == 0  # down margin better
+    capsys.readouterr()
 
 
 def test_policy_from_settings_and_options_that_win(repo, capsys):
