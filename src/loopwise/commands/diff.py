@@ -21,7 +21,7 @@ import tempfile
 from pathlib import Path
 
 from ..diff import DiffResult, Side, Unreadable, compare
-from ..errors import Finding, ModelError, ModelErrors, Span, UsageError, render
+from ..errors import Finding, Span, UsageError, render
 from ..settings import Settings, load_settings
 
 __all__ = ["add_parser", "run", "ModelChecker", "content_key"]
@@ -131,18 +131,12 @@ class ModelChecker:
         return self.cache[key]
 
     def _check(self, path: Path, label: str, root: Path) -> Side:
-        from .. import analysis  # numpy and the engine load only when a model is checked
+        # the same failure handling as `loopwise check`: located errors, never a traceback
+        from ..run import check_one
         self.checked += 1
-        try:
-            result = analysis.check_file(path, settings=self.settings)
-        except ModelErrors as exc:
-            return self._unreadable(label, [e.as_finding() for e in exc.errors], root)
-        except ModelError as exc:
-            return self._unreadable(label, [exc.as_finding()], root)
-        except (OSError, UnicodeDecodeError) as exc:
-            reason = getattr(exc, "strerror", None) or str(exc)
-            return self._unreadable(label, [Finding("error", "E001", f"cannot read: {reason}",
-                                                    Span(str(path), 0, 0))], root)
+        result, errors = check_one(str(path), settings=self.settings)
+        if result is None:
+            return self._unreadable(label, list(errors), root)
         findings = tuple(dataclasses.replace(f, span=_relabel(f.span, root)) for f in result.findings)
         return dataclasses.replace(result, file=label, findings=findings)
 
@@ -229,7 +223,8 @@ def _commit(root: Path, rev: str) -> str:
     done = subprocess.run(["git", "rev-parse", "--verify", "--quiet", f"{rev}^{{commit}}"],
                           cwd=root, capture_output=True, check=False)
     if done.returncode != 0:
-        raise UsageError(f"revision {rev!r} does not exist in {root}")
+        raise UsageError(f"revision {rev!r} does not exist in {root} "
+                         "(in a shallow CI clone, fetch it first)")
     return done.stdout.decode().strip()
 
 
