@@ -299,6 +299,10 @@ def test_model_that_stops_parsing_is_unreadable_input(repo, capsys):
     assert "models/plant.loop:8:" in out  # located at the broken line
     assert err.strip() == "loopwise: cannot read on the new side: models/plant.loop"
     assert "Traceback" not in out + err
+    code, data, _ = run_json(capsys, "--rev", "HEAD")
+    (error,) = models(data)["models/plant.loop"]["errors_after"]
+    assert code == 2 and (error["file"], error["line"]) == ("models/plant.loop", 8)
+    assert data["summary"]["errors_appeared"] == 1 and data["summary"]["exit_code"] == 2
 
 
 def test_errors_that_disappear(repo, capsys):
@@ -324,6 +328,7 @@ def test_revision_that_does_not_exist(repo, capsys):
 
 def test_usage_mistakes_are_one_line(tmp_path, monkeypatch, capsys):
     monkeypatch.chdir(tmp_path)
+    monkeypatch.setenv("GIT_CEILING_DIRECTORIES", str(tmp_path.parent))  # surely not in a repository
     (tmp_path / "a.loop").write_text(STEADY.format(model="a", name="x"))
     for argv in (["diff", "a.loop"], ["diff", "a.loop", "missing.loop"], ["diff", "a.loop", "."],
                  ["diff", "--max-gain-loss", "-1", "a.loop", "a.loop"], ["diff", "--rev", "HEAD"]):
