@@ -72,7 +72,7 @@ MARGINS: tuple[MarginSpec, ...] = (
     MarginSpec("disk_margin_alpha", "disk margin alpha", "", True, "not available"),
     MarginSpec("sensitivity_peak_db", "sensitivity peak Ms", "dB", False, "not available"),
     MarginSpec("complementary_peak_db", "complementary peak Mt", "dB", False, "not available"),
-    MarginSpec("crossover_freq", "crossover", "rad/s", None, "no gain crossover"),
+    MarginSpec("crossover_freq", "crossover", "rad/s", None, "none (no gain crossover)"),
 )
 
 
@@ -102,7 +102,9 @@ class VerdictChange:
     def direction(self) -> str:
         if self.stable_before != self.stable_after:
             return "better" if self.stable_after else "worse"
-        return "better" if self.z_after < self.z_before else "worse"
+        if self.z_before != self.z_after:
+            return "better" if self.z_after < self.z_before else "worse"
+        return "better" if self.marginal_before and not self.marginal_after else "worse"
 
 
 @dataclass(frozen=True)

@@ -196,3 +196,34 @@ def test_results_are_frozen():
     result, _ = one(brk(), brk(m=margins(pm=10.0)))
     with pytest.raises(dataclasses.FrozenInstanceError):
         result.models[0].breaks[0].margins[0].delta = 0.0
+
+
+def test_marginal_only_change_is_worse():
+    before = brk(stable=False, z=0)
+    after = dataclasses.replace(brk(stable=False, z=0), marginal=True, marginal_freq=2.0)
+    result, m = one(before, after)
+    assert m.breaks[0].verdict.direction == "worse"
+
+
+def test_json_of_unbounded_changes_follows_the_schema():
+    import json
+    from pathlib import Path
+
+    import jsonschema
+
+    from loopwise.report import diff_json, diff_markdown
+    schema = json.loads((Path(__file__).resolve().parents[2] / "docs" / "diff.schema.json").read_text())
+    err = Finding("error", "E100", "unexpected token", Span("x.loop", 4, 7))
+    result = compare(
+        {"m.loop": model(brk(m=margins(up=None, wc=2.0), reqs=[req(True)])), "x.loop": model(brk())},
+        {"m.loop": model(brk(m=margins(up=20.0, wc=None), reqs=[req(True), req(False, metric="phase_margin")])),
+         "x.loop": Unreadable("x.loop", (err,))})
+    data = json.loads(diff_json.render(result))
+    jsonschema.validate(data, schema)
+    changes = {c["metric"]: c for c in data["models"][0]["breaks"][0]["margins"]}
+    assert changes["gain_margin_up_db"]["before"] is None and changes["gain_margin_up_db"]["delta"] is None
+    assert "unbounded" in changes["gain_margin_up_db"]["words"]
+    assert changes["crossover_freq"]["words"] == "now none (no gain crossover)"
+    assert data["summary"]["exit_code"] == 2 and data["caution"] == CAUTION
+    md = diff_markdown.render(result)
+    assert CAUTION in md and "x.loop:4:7" in md
