@@ -78,6 +78,11 @@ def check_file(path, settings=None, indent: str = "right") -> ModelResult:
 def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
     model, red = prep.model, prep.reduction
     findings = list(prep.diagram.findings)
+    if not model.equations:
+        # a library of params and blocks, meant for `use`: nothing to check on its own
+        findings.append(Finding("note", "N401", "no signal equations: a library of params and blocks "
+                                "(for `use`), nothing to check on its own", Span(model.file, 1, 1)))
+        return ModelResult(model.file, model.name, True, 0, (), tuple(findings))
     try:
         setup = prepare_contour(red, indent)
     except NeutralLoop as exc:
@@ -90,6 +95,9 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
     for w in model_warnings:
         findings.append(Finding("warning", "W402", w, Span(model.file, 1, 1)))
     counts = {b.stmt.name: count_break(red, b.stmt.name, setup) for b in prep.diagram.breaks}
+    touching = tuple(sorted({c.marginal_freq for c in counts.values() if c.marginal}))
+    if touching:
+        Z, _ = count_model(red, setup.touching(touching))
     from .margins import loop_margins, stabilising_gains
 
     margins: dict[str, Margins | None] = {}

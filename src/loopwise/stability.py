@@ -31,6 +31,14 @@ class Setup:
     features: np.ndarray
     axis_poles: tuple[float, ...]
     indent: str
+    roots: np.ndarray = None
+    poles_on_axis: np.ndarray = None
+
+    def touching(self, freqs: tuple[float, ...]) -> "Setup":
+        """The same contour with extra indentations around closed-loop poles on the axis."""
+        pieces = build_contour(self.poles_on_axis, self.roots, self.R, self.indent, freqs)
+        return Setup(tuple(pieces), self.R, self.P0, self.features, self.axis_poles, self.indent,
+                     self.roots, self.poles_on_axis)
 
 
 @dataclass(frozen=True, eq=False)
@@ -78,8 +86,30 @@ def prepare_contour(red: Reduction, indent: str = "right") -> Setup:
         R = max(R, r)
     axis = poles[poles.real == 0]
     P0 = int(np.sum(poles.real > 0)) + (axis.size if indent == "left" else 0)
+    R = max(R, _margin_reach(red, R))
     pieces = build_contour(axis, roots, R, indent)
-    return Setup(tuple(pieces), R, P0, _features(roots), tuple(sorted({abs(p.imag) for p in axis})), indent)
+    return Setup(tuple(pieces), R, P0, _features(roots), tuple(sorted({abs(p.imag) for p in axis})), indent,
+                 roots, axis)
+
+
+def _margin_reach(red: Reduction, R: float) -> float:
+    """How far up the axis the margins need samples: until every |L_k| stays below 1e-2.
+
+    The count is certified from R on, but crossovers of a delayed loop can lie
+    beyond R; the contour simply runs further up the axis (the closing phase is
+    valid from any radius above R).
+    """
+    if not red.cut_sets:
+        return R
+    w = R * np.logspace(0.0, 6.0, 601)
+    last = R
+    for name in red.cut_sets:
+        with np.errstate(all="ignore"):
+            mag = np.abs(red.loop_transfer(name, 1j * w))
+        big = np.nonzero(~(mag < 1e-2))[0]
+        if big.size:
+            last = max(last, float(w[min(big[-1] + 1, w.size - 1)]))
+    return min(2.0 * last, 1e6 * R)
 
 
 def count_model(red: Reduction, setup: Setup) -> tuple[int, tuple[str, ...]]:
@@ -99,6 +129,16 @@ def count_model(red: Reduction, setup: Setup) -> tuple[int, tuple[str, ...]]:
 
 
 def count_break(red: Reduction, name: str, setup: Setup) -> NyquistCount:
+    count = _count_break(red, name, setup)
+    if count.marginal:
+        # count again around the axis pole so that Z counts strictly unstable poles only
+        again = _count_break(red, name, setup.touching((count.marginal_freq,)))
+        return NyquistCount(again.P, again.N, again.Z, True, count.marginal_freq,
+                            again.warnings, count.response)
+    return count
+
+
+def _count_break(red: Reduction, name: str, setup: Setup) -> NyquistCount:
     cut = red.cut_sets[name]
 
     def evaluate(s):

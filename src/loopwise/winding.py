@@ -66,17 +66,30 @@ def _indent_radius(w0: float, roots: np.ndarray) -> float:
     return 1e-6 * min(d, max(1.0, w0))
 
 
-def build_contour(axis_poles: np.ndarray, roots: np.ndarray, R: float, indent: str = "right") -> list[Piece]:
-    """Pieces of the upper half contour from the real axis near 0 up to jR."""
-    freqs = sorted({float(abs(p.imag)) for p in axis_poles})
+def build_contour(axis_poles: np.ndarray, roots: np.ndarray, R: float, indent: str = "right",
+                  touching: tuple[float, ...] = ()) -> list[Piece]:
+    """Pieces of the upper half contour from the real axis near 0 up to jR.
+
+    `touching` are frequencies where a closed-loop pole sits on the axis (a
+    marginal case): they get an indentation to the right too, so that the count
+    is of poles strictly in the right half plane.
+    """
+    marks: dict[float, tuple[float, bool]] = {}
+    for p in axis_poles:
+        w0 = float(abs(p.imag))
+        marks[w0] = (_indent_radius(w0, roots), indent == "right")
+    for w0 in touching:
+        w0 = float(abs(w0))
+        if any(abs(w0 - m) <= 1e-6 * max(1.0, m) for m in marks):
+            continue
+        marks[w0] = (1e-5 * max(w0, 1e-3), True)
     feature = np.abs(roots[np.abs(roots) > 0]) if roots.size else np.zeros(0)
     low = 1e-4 * float(np.min(feature)) if feature.size else 1e-4
-    low = min(low, 1e-4 * freqs[1] if len(freqs) > 1 and freqs[0] == 0 else low)
+    freqs = sorted(marks)
     pieces: list[Piece] = []
     w = 0.0
-    right = indent == "right"
     for w0 in freqs:
-        eps = _indent_radius(w0, roots)
+        eps, right = marks[w0]
         if w0 == 0.0:
             # start on the real axis at +eps (right) or -eps (left), go to j*eps
             pieces.append(Piece("indent", 0.0, eps, 0.0 if right else math.pi, math.pi / 2))
@@ -126,7 +139,7 @@ def _seed(piece: Piece, features: np.ndarray) -> np.ndarray:
 
 def _accept(la, lb, lm, floors) -> np.ndarray:
     """Whether each interval (rows) is resolved for every function (columns)."""
-    with np.errstate(over="ignore", invalid="ignore"):
+    with np.errstate(all="ignore"):
         rb = np.exp(lb - la)
         rm = np.exp(lm - la)
         ok = (np.abs(rb - 1.0) <= CHORD) & (np.abs(1.0 / rb - 1.0) <= CHORD)

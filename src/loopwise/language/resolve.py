@@ -255,11 +255,14 @@ class _Resolver:
             except ModelError as exc:
                 self.errors.append(exc)
         for name in self.block_stmts:
-            if name in self.blocks and self.block_uses.get(name, 0) == 0:
+            if self.eq_stmts and name in self.blocks and self.block_uses.get(name, 0) == 0:
                 self.findings.append(Finding("warning", "W202", f"block `{name}` is never used",
                                              self.block_stmts[name].span, "apply it in a signal equation or remove it"))
-        if not self.eq_stmts and not self.errors:
+        if not self.eq_stmts and not self.errors and not (self.block_stmts or self.param_spans):
             self.errors.append(ModelError("E230", "the model has no signal equations",
+                                          Span(self.file, 1, 1), "wire blocks with lines like `y = G(e)`"))
+        if not self.eq_stmts and (self.block_stmts or self.param_spans) and (self.breaks or self.requires):
+            self.errors.append(ModelError("E230", "the model has breaks or requirements but no signal equations",
                                           Span(self.file, 1, 1), "wire blocks with lines like `y = G(e)`"))
         requirements = []
         for stmt in (*self.requires, *extra_requirements):
@@ -408,21 +411,24 @@ class _Evaluator:
     def ev_Power(self, e: ast.Power):
         base = self.ev(e.base)
         exp_value = self.ev(e.exponent)
-        if not isinstance(exp_value, Quantity) or exp_value.value != round(exp_value.value) \
-                or abs(exp_value.value) > 64:
-            raise ModelError("E223", "powers must be whole numbers (at most 64)", e.exponent.span,
-                             "write s^2, (s+1)^3 or wn^-1")
-        n = int(exp_value.value)
+        if not isinstance(exp_value, Quantity):
+            raise ModelError("E223", "an exponent must be a constant", e.exponent.span, "write s^2 or wn^2")
         if isinstance(base, list):
             raise ModelError("E222", "a power of a signal is not linear", e.span, None)
         if isinstance(base, Quantity):
+            # constants may take any real power (sqrt as ^0.5); transfers only whole ones
+            if base.value < 0 and exp_value.value != round(exp_value.value):
+                raise ModelError("E223", "a negative number to a fractional power is not real", e.span, None)
             try:
-                v = base.value ** n
-            except ZeroDivisionError:
-                raise ModelError("E219", "division by zero", e.span, None) from None
-            return Quantity(float(v), base.kind if n == 1 else None)
+                v = float(base.value) ** float(exp_value.value)
+            except (ZeroDivisionError, OverflowError):
+                raise ModelError("E219", "the power has no finite value", e.span, None) from None
+            return Quantity(v, base.kind if exp_value.value == 1 else None)
+        if exp_value.value != round(exp_value.value) or abs(exp_value.value) > 64:
+            raise ModelError("E223", "powers of a transfer must be whole numbers (at most 64)",
+                             e.exponent.span, "write s^2, (s+1)^3 or (T*s+1)^-1")
         try:
-            return base ** n
+            return base ** int(exp_value.value)
         except TransferError as exc:
             raise ModelError("E221", str(exc), e.span, None) from None
 
