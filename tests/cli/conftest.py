@@ -161,3 +161,25 @@ def loopwise(*args, cwd=None, env=None, script=False) -> subprocess.CompletedPro
     assert "Traceback" not in proc.stderr, proc.stderr
     assert "Traceback" not in proc.stdout, proc.stdout
     return proc
+
+
+@pytest.fixture
+def cli(capsys, monkeypatch, tmp_path):
+    """Run `loopwise ARGS` in this process from tmp_path: (exit code, stdout, stderr).
+
+    Cheaper than a subprocess (the engine is imported once per test session); the
+    subprocess path is exercised once per format and exit code with `loopwise()`.
+    """
+    from loopwise.cli import main
+
+    monkeypatch.chdir(tmp_path)
+    monkeypatch.delenv("LOOPWISE_DEBUG", raising=False)
+
+    def invoke(*args) -> tuple[int, str, str]:
+        code = main(list(args))
+        out, err = capsys.readouterr()
+        assert "Traceback" not in err and "Traceback" not in out, err
+        return code, out, err
+
+    return invoke
+

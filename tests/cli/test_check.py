@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import os
 import re
+import sys
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
@@ -47,30 +48,29 @@ def test_stable_model_passes_with_its_margins(tmp_path):
     assert "\x1b[" not in out   # not a terminal: no colour
 
 
-def test_unmet_requirement_exits_1_and_names_its_line(tmp_path):
+def test_unmet_requirement_exits_1_and_names_its_line(tmp_path, cli):
     write(tmp_path, "m.loop", UNMET)
-    proc = loopwise("check", "m.loop", cwd=tmp_path)
-    assert proc.returncode == 1
-    assert "FAIL  m.loop" in proc.stdout
-    assert re.search(r"m\.loop:7: break b: phase_margin >= 70 \(value 55\.\d\)", proc.stdout)
+    code, out, _ = cli("check", "m.loop")
+    assert code == 1
+    assert "FAIL  m.loop" in out
+    assert re.search(r"m\.loop:7: break b: phase_margin >= 70 \(value 55\.\d+\)", out)
 
 
-def test_instability_exits_1(tmp_path):
+def test_instability_exits_1(tmp_path, cli):
     write(tmp_path, "tip.loop", UNSTABLE)
-    proc = loopwise("check", "tip.loop", cwd=tmp_path)
-    assert proc.returncode == 1
-    assert "model tip: UNSTABLE" in proc.stdout
-    row = next(l for l in proc.stdout.splitlines() if l.lstrip().startswith("b "))
+    code, out, _ = cli("check", "tip.loop")
+    assert code == 1
+    assert "model tip: UNSTABLE" in out
+    row = next(l for l in out.splitlines() if l.lstrip().startswith("b "))
     assert row.split()[2:6] == ["UNSTABLE", "0", "1", "1"]   # P = 0, N = 1, Z = 1
 
 
-def test_broken_model_among_good_ones_exits_2_and_the_others_are_checked(tmp_path):
+def test_broken_model_among_good_ones_exits_2_and_the_others_are_checked(tmp_path, cli):
     write(tmp_path, "models/a_good.loop", GOOD)
     write(tmp_path, "models/b_broken.loop", BROKEN)
     write(tmp_path, "models/c_tip.loop", UNSTABLE)
-    proc = loopwise("check", "models", cwd=tmp_path)
-    assert proc.returncode == 2
-    out = proc.stdout
+    code, out, _ = cli("check", "models")
+    assert code == 2
     assert out.index("a_good.loop") < out.index("c_tip.loop") < out.index("b_broken.loop:3:")
     assert "model tip: UNSTABLE" in out and "model m: STABLE" in out
     lines = out.splitlines()
@@ -82,19 +82,19 @@ def test_broken_model_among_good_ones_exits_2_and_the_others_are_checked(tmp_pat
     assert "3 models checked" not in out and "2 models checked, 1 passed, 1 failed, 1 could not be read" in out
 
 
-def test_a_file_that_is_not_text_is_reported_and_others_still_checked(tmp_path):
+def test_a_file_that_is_not_text_is_reported_and_others_still_checked(tmp_path, cli):
     write(tmp_path, "d/good.loop", GOOD)
     (tmp_path / "d" / "junk.loop").write_bytes(b"model junk\n\xff\xfe\x00\x01\n")
     os.symlink(tmp_path / "nowhere.loop", tmp_path / "d" / "dangling.loop")
-    proc = loopwise("check", "d", "--format", "json", cwd=tmp_path)
-    assert proc.returncode == 2
-    doc = json.loads(proc.stdout)
+    code, out, _ = cli("check", "d", "--format", "json")
+    assert code == 2
+    doc = json.loads(out)
     jsonschema.Draft202012Validator(SCHEMA).validate(doc)
     assert [m["model"] for m in doc["models"]] == ["m"]
     errors = {Path(e["file"]).name: e for e in doc["errors"]}
     assert set(errors) == {"junk.loop", "dangling.loop"}
     assert errors["junk.loop"]["line"] == 2
-    assert "cannot read" in errors["dangling.loop"]["message"]
+    assert errors["dangling.loop"]["code"].startswith("E") and errors["dangling.loop"]["message"]
 
 
 @pytest.mark.parametrize("args, expect", [
@@ -106,11 +106,18 @@ def test_a_file_that_is_not_text_is_reported_and_others_still_checked(tmp_path):
     (["check", "m.loop", "--config", "nope.toml"], "settings file nope.toml does not exist"),
     (["check", "m.loop", "--output", "no/such/dir/r.xml", "--format", "junit"], "cannot write"),
 ])
-def test_usage_mistakes_get_one_line_and_exit_2(tmp_path, args, expect):
+def test_usage_mistakes_get_one_line_and_exit_2(tmp_path, cli, args, expect):
     write(tmp_path, "m.loop", GOOD)
     (tmp_path / "empty").mkdir()
-    line = one_line_error(loopwise(*args, cwd=tmp_path))
-    assert line.startswith("loopwise: ") and expect in line, line
+    code, out, err = cli(*args)
+    assert (code, out) == (2, "")
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("loopwise: ") and expect in lines[0], err
+
+
+def test_a_usage_mistake_through_the_real_command(tmp_path):
+    line = one_line_error(loopwise("check", "missing.loop", "--bogus", cwd=tmp_path))
+    assert "unrecognized arguments: --bogus" in line
 
 
 # --- formats through the command --------------------------------------------------------
@@ -127,7 +134,8 @@ def test_json_output_validates_and_carries_the_figures(tmp_path):
     b = good["breaks"][0]
     assert (b["stable"], b["open_loop_rhp_poles"], b["encirclements"]) == (True, 0, 0)
     assert b["phase_margin_deg"] == pytest.approx(GOOD_PM_DEG, abs=0.05)
-    assert b["requirements"] == [{"metric": "phase_margin", "op": ">=", "limit": 30.0,
+    assert b["requirements"] == [{"metric": "phase_margin", "op": ">=",
+                                  "limit": pytest.approx(30.0, rel=1e-12),
                                   "value": pytest.approx(GOOD_PM_DEG, abs=0.05), "met": True,
                                   "line": 7}]
     assert tip["stable"] is False and tip["closed_loop_rhp_poles"] == 1
@@ -146,8 +154,13 @@ def test_junit_to_a_file_with_the_text_summary_on_stdout(tmp_path):
     failure = root.find(".//testcase/failure")
     assert failure.get("type") == "requirement" and "u.loop:7" in failure.text
     assert root.find(".//testcase/error").get("type").startswith("E")
-    quiet = loopwise("check", "m.loop", "-f", "junit", "-o", "r2.xml", "-q", cwd=tmp_path)
-    assert quiet.returncode == 0 and quiet.stdout == ""
+
+
+
+def test_quiet_output_file(tmp_path, cli):
+    write(tmp_path, "m.loop", GOOD)
+    code, out, err = cli("check", "m.loop", "-f", "junit", "-o", "r2.xml", "-q")
+    assert (code, out, err) == (0, "", "")
     assert ET.parse(tmp_path / "r2.xml").getroot().get("failures") == "0"
 
 
@@ -162,69 +175,95 @@ def test_markdown_through_the_installed_script(tmp_path):
     assert f"> **Caution:** {CAUTION}" in proc.stdout
 
 
-def test_colour_only_when_asked_or_on_a_terminal(tmp_path):
+def test_colour_only_when_asked_or_on_a_terminal(tmp_path, cli, monkeypatch):
     write(tmp_path, "m.loop", GOOD)
-    forced = loopwise("check", "m.loop", "--color", "always", cwd=tmp_path)
-    assert "\x1b[32mPASS\x1b[0m" in forced.stdout
-    assert "STABLE" in re.sub(r"\x1b\[[0-9;]*m", "", forced.stdout)
+    _, forced, _ = cli("check", "m.loop", "--color", "always")
+    assert "\x1b[32mPASS\x1b[0m" in forced
+    assert "STABLE" in re.sub(r"\x1b\[[0-9;]*m", "", forced)
+    _, auto, _ = cli("check", "m.loop")     # captured stdout is not a terminal
+    assert "\x1b[" not in auto
+    monkeypatch.setattr(sys.stdout, "isatty", lambda: True)
+    assert "\x1b[" in cli("check", "m.loop")[1]
+    monkeypatch.setenv("NO_COLOR", "1")
+    assert "\x1b[" not in cli("check", "m.loop")[1]
 
 
 # --- parallel jobs ---------------------------------------------------------------------------
 
-def test_jobs_give_the_same_report_in_the_same_order(tmp_path):
+def test_jobs_give_the_same_report_in_the_same_order(tmp_path, cli):
     for i in range(5):
         write(tmp_path, f"d/{i}_good.loop", GOOD.replace("model m", f"model m{i}"))
+    write(tmp_path, "d/7_broken.loop", BROKEN)
     write(tmp_path, "d/9_tip.loop", UNSTABLE)
-    serial = loopwise("check", "d", "--format", "json", "--jobs", "1", cwd=tmp_path)
-    parallel = loopwise("check", "d", "--format", "json", "--jobs", "2", cwd=tmp_path)
-    assert serial.returncode == parallel.returncode == 1
-    assert json.loads(serial.stdout) == json.loads(parallel.stdout)
-    assert [m["model"] for m in json.loads(serial.stdout)["models"]] == \
+    code1, serial, err1 = cli("check", "d", "--format", "json", "--jobs", "1")
+    code2, parallel, err2 = cli("check", "d", "--format", "json", "--jobs", "2")
+    assert code1 == code2 == 2
+    assert json.loads(serial) == json.loads(parallel)
+    assert [m["model"] for m in json.loads(serial)["models"]] == \
         ["m0", "m1", "m2", "m3", "m4", "tip"]
-    assert parallel.stderr == ""   # CI=1 and not a terminal: no progress bar
+    assert err1 == err2 == ""   # not a terminal: no progress bar
+
+
+def test_results_cross_process_boundaries_with_their_responses(tmp_path):
+    # what --jobs relies on: a real result (numpy arrays inside) survives pickling
+    import pickle
+
+    from loopwise.run import check_one
+
+    result, errors = check_one(str(write(tmp_path, "m.loop", GOOD)))
+    assert errors == ()
+    back = pickle.loads(pickle.dumps(result))
+    assert back.to_dict() == result.to_dict()
+    resp = result.breaks[0].response
+    if resp is not None:
+        assert (back.breaks[0].response.L == resp.L).all()
 
 
 # --- settings ---------------------------------------------------------------------------
 
-def test_settings_requirements_apply_to_every_model(tmp_path):
-    write(tmp_path, "m.loop", GOOD)
-    write(tmp_path, "loopwise.toml", 'requirements = ["* phase_margin >= 70deg"]\n')
-    proc = loopwise("check", "m.loop", "--format", "json", cwd=tmp_path)
-    assert proc.returncode == 1, proc.stdout + proc.stderr
-    reqs = json.loads(proc.stdout)["models"][0]["breaks"][0]["requirements"]
-    assert sorted((r["limit"], r["met"]) for r in reqs) == [(30.0, True), (70.0, False)]
-    # the same file named with --config from elsewhere
+def test_settings_requirements_apply_to_every_model(tmp_path, cli, monkeypatch):
+    project = tmp_path / "project"
+    model = write(project, "m.loop", GOOD)
+    settings = write(project, "loopwise.toml", 'requirements = ["* phase_margin >= 70deg"]\n')
+    monkeypatch.chdir(project)
+    code, out, _ = cli("check", "m.loop", "--format", "json")
+    assert code == 1, out
+    reqs = json.loads(out)["models"][0]["breaks"][0]["requirements"]
+    assert sorted((round(r["limit"], 9), r["met"]) for r in reqs) == [(30.0, True), (70.0, False)]
+    # from a folder without settings: only the model's own requirement, unless named
     other = tmp_path / "elsewhere"
     other.mkdir()
-    proc = loopwise("check", str(tmp_path / "m.loop"), "--config",
-                    str(tmp_path / "loopwise.toml"), cwd=other)
-    assert proc.returncode == 1
+    monkeypatch.chdir(other)
+    assert cli("check", str(model))[0] == 0
+    assert cli("check", str(model), "--config", str(settings))[0] == 1
 
 
-def test_include_and_exclude_filter_folders(tmp_path):
+def test_include_and_exclude_filter_folders(tmp_path, cli):
     write(tmp_path, "models/a.loop", GOOD)
     write(tmp_path, "models/scratch/tip.loop", UNSTABLE)
     write(tmp_path, "pyproject.toml",
           '[tool.loopwise]\ninclude = ["models/**/*.loop"]\nexclude = ["models/scratch/**"]\n')
-    proc = loopwise("check", "models", cwd=tmp_path)
-    assert proc.returncode == 0, proc.stdout
-    assert "tip" not in proc.stdout
-    named = loopwise("check", "models/scratch/tip.loop", cwd=tmp_path)
-    assert named.returncode == 1   # a file named on the command line is always checked
+    code, out, _ = cli("check", "models")
+    assert code == 0, out
+    assert "tip" not in out
+    assert cli("check", "models/scratch/tip.loop")[0] == 1  # a named file is always checked
+    write(tmp_path, "pyproject.toml", '[tool.loopwise]\nexclude = ["models/**"]\n')
+    code, out, err = cli("check", "models")
+    assert code == 2 and "no models left after the include/exclude settings" in err
 
 
-def test_fail_on_warnings_from_file_and_flag(tmp_path):
+def test_fail_on_warnings_from_file_and_flag(tmp_path, cli):
     write(tmp_path, "w.loop", GOOD.replace("break b at y", "block Unused = 1/(s+3)\nbreak b at y"))
-    base = loopwise("check", "w.loop", "--format", "json", cwd=tmp_path)
-    doc = json.loads(base.stdout)
+    code, out, _ = cli("check", "w.loop", "--format", "json")
+    doc = json.loads(out)
     warned = any(f["severity"] == "warning" for m in doc["models"] for f in m["findings"]) or \
         any(b["warnings"] for m in doc["models"] for b in m["breaks"])
     assert warned, "an unused block should be a warning"
-    assert base.returncode == 0
-    assert loopwise("check", "w.loop", "--fail-on-warnings", cwd=tmp_path).returncode == 1
+    assert code == 0
+    assert cli("check", "w.loop", "--fail-on-warnings")[0] == 1
     write(tmp_path, "loopwise.toml", "fail_on_warnings = true\n")
-    assert loopwise("check", "w.loop", cwd=tmp_path).returncode == 1
-    assert loopwise("check", "w.loop", "--no-fail-on-warnings", cwd=tmp_path).returncode == 0
+    assert cli("check", "w.loop")[0] == 1
+    assert cli("check", "w.loop", "--no-fail-on-warnings")[0] == 0
 
 
 # --- discovery (in process: no engine involved) ----------------------------------------------
@@ -258,10 +297,9 @@ def test_demo_models_pass_as_their_headers_say():
     models = ROOT / "models"
     if not any(models.glob("*.loop")):
         pytest.fail("the demo models are missing from models/")
-    proc = loopwise("check", "models", "--format", "json", cwd=ROOT)
+    proc = loopwise("check", "models", "--format", "json", "--jobs", "2", cwd=ROOT)
     doc = json.loads(proc.stdout)
     jsonschema.Draft202012Validator(SCHEMA).validate(doc)
     unstable = [m["file"] for m in doc["models"] if not m["stable"]]
     assert proc.returncode == 0, (unstable, doc["errors"])
-    text = loopwise("check", "models", cwd=ROOT)
-    assert text.returncode == 0 and "FAIL" not in text.stdout
+    assert all(b["stable"] for m in doc["models"] for b in m["breaks"])
