@@ -21,7 +21,7 @@ from .settings import Regression
 __all__ = [
     "Unreadable", "MarginSpec", "MARGINS", "MarginChange", "VerdictChange",
     "RequirementChange", "BreakDiff", "ModelDiff", "DiffResult", "compare",
-    "compare_models", "compare_breaks",
+    "compare_models", "compare_breaks", "compare_margins", "compare_requirements", "Side",
 ]
 
 #: relative tolerance below which two margin values count as equal
