@@ -90,7 +90,11 @@ class Finding:
 
 
 def source_line(span: Span, text: str | None = None) -> str | None:
-    """The source line a span points into, read from `text` or the file."""
+    """The source line a span points into, read from `text` or the file.
+
+    Lines are split on "\n" only, as the parser counts them (str.splitlines
+    would also split on form feeds and other separators).
+    """
     if span.line <= 0:
         return None
     if text is None:
@@ -98,10 +102,14 @@ def source_line(span: Span, text: str | None = None) -> str | None:
             text = Path(span.file).read_text(encoding="utf-8", errors="replace")
         except OSError:
             return None
-    lines = text.splitlines()
+    lines = text.split("\n")
     if span.line > len(lines):
         return None
-    return lines[span.line - 1]
+    return lines[span.line - 1].rstrip("\r")
+
+
+#: long lines are shown as a window around the column
+_WINDOW = 120
 
 
 def render(finding: Finding, text: str | None = None) -> str:
@@ -109,13 +117,22 @@ def render(finding: Finding, text: str | None = None) -> str:
     head = f"{finding.span}: {finding.severity} {finding.code} {finding.message}"
     out = [head]
     line = source_line(finding.span, text)
-    if line is not None and len(line) <= 400:
-        out.append("    " + line)
+    if line is not None:
+        col = max(finding.span.col, 1)
         width = 1
         if finding.span.end_col and finding.span.end_col > finding.span.col:
             width = finding.span.end_col - finding.span.col
-        # keep the source's own whitespace before the caret so tabs line up
-        lead = "".join(c if c == "\t" else " " for c in line[: max(finding.span.col - 1, 0)])
+        start = 0
+        shown = line
+        if len(line) > _WINDOW:
+            start = max(0, col - 1 - _WINDOW // 2)
+            shown = ("..." if start else "") + line[start:start + _WINDOW] + \
+                ("..." if start + _WINDOW < len(line) else "")
+        lead_src = line[start:col - 1]
+        # keep the source's own tabs before the caret so that it lines up
+        lead = ("   " if start else "") + "".join(c if c == "\t" else " " for c in lead_src)
+        width = min(width, max(1, _WINDOW - (col - 1 - start)))
+        out.append("    " + shown)
         out.append("    " + lead + "^" * width)
     if finding.hint:
         out.append(f"    hint: {finding.hint}")

@@ -18,10 +18,20 @@ from ..errors import ModelError, Span
 from . import ast
 from .units import to_si
 
-__all__ = ["parse_text", "grammar_text", "MAX_MODEL_BYTES"]
+__all__ = ["parse_text", "grammar_text", "MAX_MODEL_BYTES", "MAX_NESTING", "RESERVED"]
 
 #: a model larger than this is refused before parsing (a clear refusal, never a hang)
 MAX_MODEL_BYTES = 4 * 1024 * 1024
+
+#: deeper expressions are refused: the tree walks below recurse once per level
+MAX_NESTING = 200
+
+#: words the grammar never accepts as a name (keep in step with NAME in the grammar)
+RESERVED = frozenset({"model", "use", "param", "input", "block", "break", "require", "at", "in"})
+
+_UNITS = ("ns", "us", "ms", "min", "h", "Hz", "kHz", "deg", "rad", "dB")
+_GENERIC_HINT = ("one statement per line: model, use, param, input, block, break, require "
+                 "or `signal = ...`; see docs/language.md")
 
 _NUMBER = re.compile(
     r"(?P<num>(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?)(?P<unit>kHz|Hz|min|ms|us|ns|h|deg|rad|dB|%)?$"
@@ -67,7 +77,11 @@ class _ToAst(Transformer):
         m = _NUMBER.match(str(tok))
         raw = float(m.group("num"))
         unit = m.group("unit")
-        return ast.Number(self._span(tok), to_si(raw, unit), unit, str(tok))
+        try:
+            value = to_si(raw, unit)
+        except OverflowError:  # e.g. 1e300dB: reported as out of range below
+            value = math.inf
+        return ast.Number(self._span(tok), value, unit, str(tok))
 
     def name(self, children):
         tok = children[0]
@@ -156,7 +170,9 @@ _TOKEN_WORDS = {
     "RPAR": "`)`", "LSQB": "`[`", "RSQB": "`]`", "EQUAL": "`=`", "PLUS": "`+`",
     "MINUS": "`-`", "TIMES": "`*`", "DIVIDE": "`/`", "CARET": "`^`", "COMMA": "`,`",
     "STRING": "a quoted path", "COMPARE": "a comparison (>= <= > <)", "ARROW": "`->`",
-    "STAR": "`*`", "_IN": "`in`", "$END": "end of file",
+    "STAR": "`*`", "_IN": "`in`", "$END": "end of file", "AT": "`at`", "MODEL": "`model`",
+    "USE": "`use`", "PARAM": "`param`", "INPUT": "`input`", "BLOCK": "`block`", "BREAK": "`break`",
+    "REQUIRE": "`require`",
 }
 
 
@@ -165,6 +181,47 @@ def _expected(names) -> str:
     if len(words) > 6:
         return ""
     return "expected " + ", ".join(words)
+
+
+def _unexpected_token(tok: Token, prev: str, exc, span: Span) -> ModelError:
+    word = str(tok)
+    if word in RESERVED:
+        return ModelError("E101", f"`{word}` is a reserved word", span,
+                          f"`{word}` cannot name a param, block, signal or break; choose another name")
+    if tok.type == "NAME" and word in _UNITS and re.search(r"\d$", prev):
+        number = prev.split()[-1]
+        return ModelError("E102", f"a space between `{number}` and its unit `{word}`", span,
+                          f"write the unit right after the number: `{number}{word}`")
+    operand_done = bool({"TIMES", "DIVIDE", "PLUS", "MINUS", "CARET"} & set(exc.expected))
+    if operand_done and tok.type in ("NAME", "NUMBER", "LPAR", "LSQB") and re.search(r"[\w.)\]]$", prev):
+        m = re.search(r"([\w.]+|\))$", prev)
+        left = m.group(1) if m else ""
+        right = {"(": "(...)", "[": "[...]"}.get(word, word)
+        return ModelError("E102", f"missing operator before `{word}`", span,
+                          f"multiplication is always written with `*`: `{left}*{right}`")
+    what = {"NAME": "name ", "NUMBER": "number "}.get(tok.type, "")
+    return ModelError("E101", f"unexpected {what}`{word}`", span,
+                      _expected(exc.expected) or _GENERIC_HINT)
+
+
+def _unexpected_character(src: str, ch: str, line: int, col: int, file: str) -> ModelError:
+    span = Span(file, line, col, col + 1)
+    if ch == '"':
+        return ModelError("E101", "a quoted path is not closed", Span(file, line, col, len(src) + 1),
+                          'write the path in double quotes on one line: use "common/drive.loop"')
+    if ch == "\r":
+        return ModelError("E104", "a carriage return without a line feed", span,
+                          "save the file with LF or CRLF line ends")
+    if ch == "\ufffd" or (ch and not ch.isprintable()):
+        return ModelError("E104", "the file is not readable text here", span, "a model is plain UTF-8 text")
+    if ch.isalpha():
+        return ModelError("E101", f"unexpected character `{ch}`", span,
+                          "names use the ASCII letters A-Z a-z, digits and `_`")
+    if ch == "%":
+        return ModelError("E102", "a space before `%`", span,
+                          "write the unit right after the number: `5%`")
+    return ModelError("E101", f"unexpected character `{ch}`", span,
+                      "operators are + - * / ^, comparisons >= <= > <, comments start with #")
 
 
 def _syntax_error(exc: UnexpectedInput, text: str, file: str) -> ModelError:
@@ -178,17 +235,11 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str) -> ModelError:
         prev = src[: col - 1].rstrip()
         end = col + len(str(tok)) if tok.type != "$END" else None
         span = Span(file, line, col, end)
-        if tok.type == "NAME" and re.search(r"[\d.)\]]$", prev):
-            msg = f"missing `*` before `{tok}`"
-            hint = f"multiplication is always written with `*`: `{prev.split()[-1] if prev.split() else ''}*{tok}`"
-            return ModelError("E102", msg, span, hint)
         if tok.type in ("_NL", "$END"):
             msg = "the statement ends too early"
             exp = _expected(exc.expected)
-            return ModelError("E101", msg, Span(file, line, max(col, 1)), exp or None)
-        msg = f"unexpected {_TOKEN_WORDS.get(tok.type, repr(str(tok)))} `{tok}`" if tok.type in ("NAME", "NUMBER") else f"unexpected `{tok}`"
-        exp = _expected(exc.expected)
-        return ModelError("E101", msg, span, exp or None)
+            return ModelError("E101", msg, Span(file, line, max(col, 1)), exp or _GENERIC_HINT)
+        return _unexpected_token(tok, prev, exc, span)
     if isinstance(exc, UnexpectedCharacters):
         span = Span(file, line, col, col + 1)
         rest = src[col - 1:]
@@ -196,19 +247,22 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str) -> ModelError:
         if m:
             suffix = m.group(4)
             number = rest[: m.start(4)]
+            if suffix[0] in "_eE" or (number == "0" and suffix[0] in "xXbBoO"):
+                return ModelError("E103", f"malformed number `{m.group(0)}`",
+                                  Span(file, line, col, col + len(m.group(0))),
+                                  "numbers look like 12, 0.5, 1e-3 or 150us (no `_` separators, no hex)")
             if suffix == "s" or suffix.startswith("s"):
                 hint = f"write `{number}*{suffix}`: `s` is the Laplace variable, not a unit (plain numbers are seconds)"
                 return ModelError("E102", f"missing `*` between `{number}` and `{suffix}`", Span(file, line, col, col + len(m.group(0))), hint)
             hint = ("units are ns us ms min h Hz kHz deg rad dB %, written right after the number; "
                     f"for a product write `{number}*{suffix}`")
             return ModelError("E103", f"unknown unit or missing `*` in `{m.group(0)}`", Span(file, line, col, col + len(m.group(0))), hint)
-        ch = rest[:1]
-        if ch == "\ufffd" or (ch and not ch.isprintable()):
-            return ModelError("E104", "the file is not readable text here", span, "a model is plain UTF-8 text")
-        if re.match(r"\d", ch):
+        if re.match(r"\d", rest[:1]):
             return ModelError("E103", "malformed number", span, "numbers look like 12, 0.5, 1e-3 or 150us")
-        return ModelError("E101", f"unexpected character `{ch}`", span, None)
-    return ModelError("E101", "syntax error", Span(file, line, col), None)
+        pos = getattr(exc, "pos_in_stream", None)
+        ch = text[pos] if pos is not None and pos < len(text) else rest[:1]
+        return _unexpected_character(src, ch, line, col, file)
+    return ModelError("E101", "syntax error", Span(file, line, col), _GENERIC_HINT)
 
 
 def parse_text(text: str, file: str = "<text>") -> ast.ModelFile:
@@ -222,16 +276,33 @@ def parse_text(text: str, file: str = "<text>") -> ast.ModelFile:
         line = text.count("\n", 0, text.index("\x00")) + 1
         raise ModelError("E104", "the file holds binary data, not model text", Span(file, line, 1),
                          "a model is plain UTF-8 text")
+    text = text.removeprefix("\ufeff")  # a byte-order mark some editors write
     try:
         tree = _parser().parse(text + "\n")
     except UnexpectedInput as exc:
         raise _syntax_error(exc, text, file) from None
+    deep = _too_deep(tree)
+    if deep is not None:
+        raise ModelError("E107", f"the expression is nested more than {MAX_NESTING} levels deep",
+                         Span(file, deep.meta.line, deep.meta.column),
+                         "split it with params, blocks or intermediate signals")
     statements = _ToAst(file).transform(tree)
     for stmt in _numbers(statements):
-        if not math.isfinite(stmt.value):
+        if not math.isfinite(stmt.value) or (stmt.value == 0.0 and re.match(r"[0.]*[1-9]", stmt.text)):
             raise ModelError("E106", f"the number `{stmt.text}` is out of range", stmt.span,
-                             "numbers must be finite and within about 1e300")
+                             "numbers must be finite and within about 1e-300 to 1e300")
     return ast.ModelFile(file, statements)
+
+
+def _too_deep(tree: Tree) -> Tree | None:
+    """The first subtree deeper than MAX_NESTING (iterative, so it cannot overflow)."""
+    stack = [(tree, 0)]
+    while stack:
+        node, depth = stack.pop()
+        if depth > MAX_NESTING:
+            return node
+        stack.extend((c, depth + 1) for c in node.children if isinstance(c, Tree))
+    return None
 
 
 def _numbers(node):
