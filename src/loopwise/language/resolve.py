@@ -345,7 +345,10 @@ class _Evaluator:
                              "params may only use params defined above them")
         known = list(r.params) + (list(r.eq_stmts) + list(r.inputs) if self.mode == "wiring" else [])
         what = "signal or param" if self.mode == "wiring" else "param"
-        raise ModelError("E218", f"unknown {what} `{e.name}`", e.span, _close(e.name, known + ["s"]))
+        fallback = (f"define it: `{e.name} = ...` for a signal, `input {e.name}` for an input, "
+                    f"or `param {e.name} = ...`") if self.mode == "wiring" else \
+            f"define it above with `param {e.name} = ...`"
+        raise ModelError("E218", f"unknown {what} `{e.name}`", e.span, _close(e.name, known + ["s"]) or fallback)
 
     def binary(self, op: str, a, b, span: Span):
         if isinstance(a, Quantity) and isinstance(b, Quantity):
