@@ -318,33 +318,21 @@ class Cascade:
         lines += [f"break {self.brk(k)} at y{k} -> e{k}" for k in range(1, self.n + 1)]
         return "\n".join(lines) + "\n"
 
-    def _systems(self, cut: int | None):
-        """python-control blocks and junctions; with cut = k, e_k takes -v instead of -y_k."""
+    def equations(self) -> dict:
+        """The wiring as `Wiring` equations (python-control transfer functions)."""
         import control as ct
-        systems = []
+        eqs: dict[str, list] = {}
         for k, st in enumerate(self.stages, 1):
-            out = "u" if k == 1 else f"ref{k - 1}"
-            systems.append(ct.tf(list(st.c_num), list(st.c_den), inputs=f"e{k}", outputs=out,
-                                 name=f"C{k}"))
-            src = "u" if k == 1 else f"y{k - 1}"
-            systems.append(ct.tf(list(st.p_num), list(st.p_den), inputs=src, outputs=f"y{k}",
-                                 name=f"P{k}"))
             ref = "r" if k == self.n else f"ref{k}"
-            fb = "v" if cut == k else f"y{k}"
-            systems.append(ct.summing_junction(inputs=[ref, "-" + fb], output=f"e{k}",
-                                               name=f"sum{k}"))
-        return systems
+            out = "u" if k == 1 else f"ref{k - 1}"
+            eqs[f"e{k}"] = [(1.0, ref), (-1.0, f"y{k}")]
+            eqs[out] = [(ct.tf(list(st.c_num), list(st.c_den)), f"e{k}")]
+            eqs[f"y{k}"] = [(ct.tf(list(st.p_num), list(st.p_den)), "u" if k == 1 else f"y{k - 1}")]
+        return eqs
 
-    def control_closed_loop(self):
-        """The whole closed loop as one state-space system (input r, output y_n)."""
-        import control as ct
-        return ct.interconnect(self._systems(None), inplist=["r"], outlist=[f"y{self.n}"])
-
-    def control_loop(self, k: int):
-        """G from the injection v at break k to y_k (all other loops closed); L_k = -G."""
-        import control as ct
-        return ct.interconnect(self._systems(k), inplist=["v"], outlist=[f"y{k}"],
-                               check_unused=False)
+    def wiring(self) -> "Wiring":
+        cuts = {self.brk(k): (f"y{k}", f"e{k}") for k in range(1, self.n + 1)}
+        return Wiring(self.equations(), ("r",), cuts)
 
 
 def nested_cascade(n: int, seed: int = 7, separation: float = 3.0, name: str | None = None) -> Cascade:
@@ -371,3 +359,92 @@ def nested_cascade(n: int, seed: int = 7, separation: float = 3.0, name: str | N
         else:
             stages.append(Stage((kp,), (1.0,), (a,), (1.0, 0.0)))
     return Cascade(tuple(stages), name or f"cascade_{n}")
+
+
+# ----------------------------------------------------------------------------- python-control wiring
+
+@dataclass(frozen=True)
+class Wiring:
+    """A model's signal equations rebuilt by hand for python-control (the reference).
+
+    equations: signal -> [(term, source signal)], term a python-control transfer
+    function or a constant; every block application is its own subsystem, so the
+    interconnection has the same modes as the model's minimal block realisations.
+    cuts: break name -> (signal, target equation or None for every use).
+    """
+
+    equations: dict
+    inputs: tuple[str, ...]
+    cuts: dict
+
+    def _systems(self, cut: tuple[str, str | None] | None, input_filters: bool = True):
+        import control as ct
+        systems = []
+        for out, terms in self.equations.items():
+            names = []
+            for i, (term, src) in enumerate(terms):
+                if not input_filters and src in self.inputs and not isinstance(term, (int, float)):
+                    continue
+                if cut is not None and src == cut[0] and cut[1] in (None, out):
+                    src = "_v"
+                sys_ = term if isinstance(term, ct.TransferFunction) else ct.tf([float(term)], [1.0])
+                name = f"{out}__t{i}"
+                systems.append(ct.tf(sys_.num[0][0], sys_.den[0][0], inputs=src, outputs=name,
+                                     name=name))
+                names.append(name)
+            systems.append(ct.summing_junction(inputs=names, output=out, name=f"{out}__sum"))
+        return systems
+
+    def closed_loop(self, input_filters: bool = True):
+        """The whole closed loop as one state-space system (all block states kept).
+
+        input_filters=False leaves out the terms driven by exogenous inputs (e.g. a
+        disturbance filter): their poles belong to the input, not to any loop.
+        """
+        import control as ct
+        out = next(iter(self.equations))
+        used = [u for u in self.inputs
+                if any(src == u and (input_filters or isinstance(term, (int, float)))
+                       for terms in self.equations.values() for term, src in terms)]
+        return ct.interconnect(self._systems(None, input_filters), inplist=used, outlist=[out],
+                               check_unused=False)
+
+    def loop(self, name: str):
+        """State-space G from the injection at break `name` to the cut signal; L = -G."""
+        import control as ct
+        signal, target = self.cuts[name]
+        return ct.interconnect(self._systems((signal, target)), inplist=["_v"], outlist=[signal],
+                               check_unused=False)
+
+    def loop_response(self, name: str, s: np.ndarray) -> np.ndarray:
+        """L_k(s) = -G(s) from python-control's interconnected state-space matrices.
+
+        A plain float solve of (sI - A) x = B, then C x, loses digits by cancellation
+        where L is many decades below its peak (absolute error some 40 eps times the
+        peak; measured on a 6-loop cascade: 2e-5 relative at |L| = 1.5e-9). So the
+        solution is refined twice with residuals and C x formed in 30-digit arithmetic
+        (mpmath) at the points below 1e-3 of the peak; on that cascade the result
+        matched a full 50-digit solve to 1e-15.
+        """
+        import mpmath
+        g = self.loop(name)
+        A, B, C, D = (np.asarray(m, float) for m in (g.A, g.B, g.C, g.D))
+        n = A.shape[0]
+        if not n:
+            return -np.full(len(s), D[0, 0], complex)
+        eye = np.eye(n)
+        out = np.array([(C @ np.linalg.solve(si * eye - A, B))[0, 0] for si in s]) + D[0, 0]
+        # float is good to ~1e-11 relative above 1e-3 of the peak: refine only below
+        redo = np.nonzero(np.abs(out) < 1e-3 * np.max(np.abs(out)))[0]
+        with mpmath.workdps(30):
+            Am, Bm, Cm = (mpmath.matrix(m.tolist()) for m in (A, B, C))
+            for i in redo:
+                si = s[i]
+                M = si * eye - A
+                Mm = mpmath.eye(n) * mpmath.mpc(complex(si)) - Am
+                x = mpmath.matrix(np.linalg.solve(M, B)[:, 0].tolist())
+                for _ in range(2):
+                    r = np.array((Bm - Mm * x).tolist(), complex)
+                    x += mpmath.matrix(np.linalg.solve(M, r)[:, 0].tolist())
+                out[i] = complex((Cm * x)[0, 0]) + D[0, 0]
+        return -out
