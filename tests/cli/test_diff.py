@@ -216,6 +216,16 @@ def test_folders_renamed_break_removed_and_added_models(tmp_path, monkeypatch, c
     assert "models/gone.loop: removed" in out and "1 model unchanged" in out
 
 
+def test_parallel_checking_gives_the_same_report(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    write(tmp_path / "old", model_set(K=10))
+    write(tmp_path / "new", model_set(K=20, steady_break="renamed"))
+    (tmp_path / "pyproject.toml").write_text(PYPROJECT)
+    serial = run_json(capsys, "old", "new")
+    parallel = run_json(capsys, "old", "new", "--jobs", "2")
+    assert serial == parallel and serial[0] == 1
+
+
 def test_two_files_and_markdown_to_a_file(tmp_path, monkeypatch, capsys):
     monkeypatch.chdir(tmp_path)
     write(tmp_path, {"a/common/plant.loop": PLANT_LIB.format(b=5), "a/plant.loop": PLANT.format(K=10, name="loop"),
@@ -331,7 +341,8 @@ def test_usage_mistakes_are_one_line(tmp_path, monkeypatch, capsys):
     monkeypatch.setenv("GIT_CEILING_DIRECTORIES", str(tmp_path.parent))  # surely not in a repository
     (tmp_path / "a.loop").write_text(STEADY.format(model="a", name="x"))
     for argv in (["diff", "a.loop"], ["diff", "a.loop", "missing.loop"], ["diff", "a.loop", "."],
-                 ["diff", "--max-gain-loss", "-1", "a.loop", "a.loop"], ["diff", "--rev", "HEAD"]):
+                 ["diff", "--max-gain-loss", "-1", "a.loop", "a.loop"], ["diff", "--rev", "HEAD"],
+                 ["diff", "--jobs", "x", "a.loop", "a.loop"]):
         assert main(argv) == 2, argv
         out, err = capsys.readouterr()
         assert out == "" and err.count("\n") == 1 and err.startswith("loopwise: "), (argv, err)

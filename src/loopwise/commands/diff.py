@@ -45,6 +45,16 @@ def _non_negative(unit: str):
     return convert
 
 
+def _jobs(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        value = -1
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"expected a whole number >= 0, got {text!r}")
+    return value
+
+
 def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
     p = subparsers.add_parser(
         "diff", help=help_text, description=help_text + " OLD and NEW are two model files or two "
@@ -59,6 +69,8 @@ def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
     p.add_argument("--format", choices=("text", "markdown", "json"), default="text",
                    help="output format (default: text)")
     p.add_argument("--output", "-o", metavar="FILE", help="write the report to FILE instead of stdout")
+    p.add_argument("--jobs", "-j", type=_jobs, default=1, metavar="N",
+                   help="check models in N processes (0: one per CPU; default 1)")
     p.add_argument("--max-phase-loss", type=_non_negative("deg"), metavar="DEG",
                    help="phase margin loss that counts as a regression (default 5, common practice)")
     p.add_argument("--max-gain-loss", type=_non_negative("dB"), metavar="DB",
@@ -119,22 +131,49 @@ def _read_text(file: str) -> str | None:
 class ModelChecker:
     """Checks model files, reusing the result when the same texts were checked before."""
 
-    def __init__(self, settings: Settings | None):
+    def __init__(self, settings: Settings | None, jobs: int = 1):
         self.settings = settings
+        self.jobs = jobs
         self.cache: dict[tuple[str, str], Side] = {}
         self.checked = 0  # how many times the analysis actually ran
 
     def check(self, path: Path, label: str, root: Path) -> Side:
-        key = (label, content_key(path))
-        if key not in self.cache:
-            self.cache[key] = self._check(path, label, root.resolve())
-        return self.cache[key]
+        return self.check_many([(path, label, root)])[0]
 
-    def _check(self, path: Path, label: str, root: Path) -> Side:
+    def check_many(self, items: list[tuple[Path, str, Path]]) -> list[Side]:
+        """(file, label, root) -> results in the same order; each distinct text checked once."""
+        keys = [(label, content_key(path)) for path, label, _ in items]
+        todo: dict[tuple[str, str], tuple[Path, str, Path]] = {}
+        for key, item in zip(keys, items):
+            if key not in self.cache:
+                todo.setdefault(key, item)
+        outcomes = self._outcomes([str(path) for path, _, _ in todo.values()])
+        for key, (_, label, root), outcome in zip(todo, todo.values(), outcomes):
+            self.cache[key] = self._side(outcome, label, root.resolve())
+        self.checked += len(todo)
+        return [self.cache[k] for k in keys]
+
+    def _outcomes(self, files: list[str]) -> list[tuple]:
         # the same failure handling as `loopwise check`: located errors, never a traceback
         from ..run import check_one
-        self.checked += 1
-        result, errors = check_one(str(path), settings=self.settings)
+        jobs = (os.cpu_count() or 1) if self.jobs == 0 else self.jobs
+        if jobs <= 1 or len(files) <= 1:
+            return [check_one(f, settings=self.settings) for f in files]
+        from concurrent.futures import ProcessPoolExecutor
+        from concurrent.futures.process import BrokenProcessPool
+        with ProcessPoolExecutor(max_workers=min(jobs, len(files))) as pool:
+            futures = [pool.submit(check_one, f, self.settings) for f in files]
+            out = []
+            for f, fut in zip(files, futures):
+                try:
+                    out.append(fut.result())
+                except BrokenProcessPool:
+                    out.append((None, (Finding("error", "E999", "the worker process checking this "
+                                               "model stopped", Span(f, 0, 0), "try --jobs 1"),)))
+            return out
+
+    def _side(self, outcome: tuple, label: str, root: Path) -> Side:
+        result, errors = outcome
         if result is None:
             return self._unreadable(label, list(errors), root)
         findings = tuple(dataclasses.replace(f, span=_relabel(f.span, root)) for f in result.findings)
@@ -168,8 +207,11 @@ def _selected(rel: str, settings: Settings) -> bool:
     return not (settings.exclude and matches_glob(rel, settings.exclude))
 
 
-def _check_all(checker: ModelChecker, root: Path, rels: list[str]) -> dict[str, Side]:
-    return {rel: checker.check(root / rel, rel, root) for rel in rels}
+def _check_sides(checker: ModelChecker, sides: list[tuple[Path, list[str]]]) -> list[dict[str, Side]]:
+    """Both sides' models (root, relative paths) checked in one batch (parallel with --jobs)."""
+    items = [(root / rel, rel, root) for root, rels in sides for rel in rels]
+    results = iter(checker.check_many(items))
+    return [{rel: next(results) for rel in rels} for _, rels in sides]
 
 
 # --------------------------------------------------------------------------- sides from disk
@@ -185,12 +227,11 @@ def _diff_paths(args, settings: Settings, checker: ModelChecker) -> DiffResult:
     policy = _policy(args, settings)
     if old.is_file() and new.is_file():
         label = new.name if old.name == new.name else new.as_posix()
-        return compare({label: checker.check(old, label, old.parent)},
-                       {label: checker.check(new, label, new.parent)},
-                       policy, old.as_posix(), new.as_posix())
+        before, after = checker.check_many([(old, label, old.parent), (new, label, new.parent)])
+        return compare({label: before}, {label: after}, policy, old.as_posix(), new.as_posix())
     if old.is_dir() and new.is_dir():
-        sides = [_check_all(checker, root, [r for r in _walk(root) if _selected(r, settings)])
-                 for root in (old, new)]
+        sides = _check_sides(checker, [(root, [r for r in _walk(root) if _selected(r, settings)])
+                                       for root in (old, new)])
         return compare(sides[0], sides[1], policy, old.as_posix(), new.as_posix())
     raise UsageError(f"OLD and NEW must both be files or both be folders: {old}, {new}")
 
@@ -290,7 +331,7 @@ def _diff_revisions(args, settings: Settings, checker: ModelChecker) -> DiffResu
     commits = [_commit(root, rev) for rev in args.rev]
     keep = _path_filter(root, args.paths)
     labels = list(args.rev) + ([WORKING_TREE] if len(args.rev) == 1 else [])
-    sides = []
+    listed = []
     with tempfile.TemporaryDirectory(prefix="loopwise-diff-") as tmp:
         for i, label in enumerate(labels):
             if label == WORKING_TREE and i == 1:
@@ -299,7 +340,8 @@ def _diff_revisions(args, settings: Settings, checker: ModelChecker) -> DiffResu
                 base = Path(tmp) / f"side{i}"
                 base.mkdir()
                 rels = _materialise(root, commits[i], base)
-            sides.append(_check_all(checker, base, [r for r in rels if keep(r, settings)]))
+            listed.append((base, [r for r in rels if keep(r, settings)]))
+        sides = _check_sides(checker, listed)
     return compare(sides[0], sides[1], _policy(args, settings), labels[0], labels[1])
 
 
@@ -327,7 +369,7 @@ def _write(text: str, output: str | None) -> None:
 
 def run(args) -> int:
     settings = load_settings(Path.cwd())
-    checker = ModelChecker(settings)
+    checker = ModelChecker(settings, args.jobs)
     result = (_diff_revisions if args.rev else _diff_paths)(args, settings, checker)
     _write(_render(result, args.format), args.output)
     if result.unreadable:
