@@ -18,11 +18,12 @@ __all__ = [
     "crossings", "unwrapped_phase_deg", "verdict_word", "bode_range",
 ]
 
-#: the inner disk is never smaller than this: -1 and the unit circle always sit
-#: inside the uncompressed part, so the compression cannot change a winding about -1
-MIN_INNER = 1.6
-#: the inner disk is never larger than this: beyond it a curve is compressed
+#: radius of the true-scale disk when a ring is drawn: -1 and the unit circle
+#: (every gain crossover) sit inside the uncompressed part, so the compression
+#: cannot change a winding about -1
 MAX_INNER = 3.0
+#: a curve that stays within this radius is drawn true to scale, without a ring
+TRUE_SCALE_UP_TO = 6.0
 
 
 @dataclass(frozen=True)
@@ -77,7 +78,7 @@ class Ring:
 def choose_ring(response: LoopResponse) -> Ring | None:
     """The ring for a curve, or None when the whole curve fits the inner view.
 
-    A curve that stays within MAX_INNER is drawn true to scale; otherwise the
+    A curve that stays within TRUE_SCALE_UP_TO is drawn true to scale; otherwise the
     disk of radius MAX_INNER (which holds -1, the unit circle and so every gain
     crossover) stays true to scale and only the far stretches (around axis
     poles, or a large gain) go on the ring.
@@ -85,7 +86,7 @@ def choose_ring(response: LoopResponse) -> Ring | None:
     r = np.abs(response.L)
     finite = r[np.isfinite(r)]
     peak = float(finite.max()) if finite.size else math.inf
-    if peak <= MAX_INNER and finite.size == r.size:
+    if peak <= TRUE_SCALE_UP_TO and finite.size == r.size:
         return None
     inner = MAX_INNER
     return Ring(inner=inner, width=0.75 * inner)

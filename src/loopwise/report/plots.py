@@ -127,10 +127,20 @@ def _arrows(ax, z: np.ndarray, color: str, fractions) -> None:
                                     shrinkA=0, shrinkB=0), zorder=4)
 
 
+def _tagged(result: BreakResult):
+    """(tag, crossover) in frequency order: c1, c2 ... gain, p1, p2 ... phase crossovers."""
+    count = {"gain": 0, "phase": 0}
+    out = []
+    for c in crossings(result):
+        count[c.kind] += 1
+        out.append((f"{'c' if c.kind == 'gain' else 'p'}{count[c.kind]}", c))
+    return out
+
+
 def _mark_crossings(ax, result: BreakResult, ring: Ring | None, hz: bool) -> list[str]:
     """Markers with short tags (c1, p1, ...) on the curve; returns the key lines."""
-    lines, seen, count = [], set(), {"gain": 0, "phase": 0}
-    for c in crossings(result):
+    lines, seen = [], set()
+    for tag, c in _tagged(result):
         z = complex(ring.compress(np.array([c.point]))[0]) if ring else c.point
         gain = c.kind == "gain"
         marker, color = ("o", INK["gain"]) if gain else ("D", INK["phase"])
@@ -139,8 +149,6 @@ def _mark_crossings(ax, result: BreakResult, ring: Ring | None, hz: bool) -> lis
                 mec=color, zorder=6, label=None if label in seen else label,
                 gid=f"{c.kind}-crossover")
         seen.add(label)
-        count[c.kind] += 1
-        tag = f"{'c' if gain else 'p'}{count[c.kind]}"
         a = math.atan2(z.imag, z.real) if z != 0 else math.pi / 2
         ax.annotate(tag, xy=(z.real, z.imag), xytext=(9 * math.cos(a) + (0 if gain else 4),
                     9 * math.sin(a) + (5 if gain else -7)), textcoords="offset points",
@@ -258,6 +266,28 @@ def _axis_data(result: BreakResult, hz: bool):
     return w[keep], w[keep] * scale, L[keep], phase[keep], scale
 
 
+_SUPERSCRIPT = str.maketrans("-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079")
+
+
+def _decade_label(x: float, _pos=None) -> str:
+    """10\u207b\u00b3 style labels in plain Unicode: mathtext parsing costs a second a figure."""
+    if x <= 0:
+        return ""
+    k = math.log10(x)
+    if abs(k - round(k)) > 1e-9:
+        return ""
+    k = int(round(k))
+    return {0: "1", 1: "10"}.get(k, "10" + str(k).translate(_SUPERSCRIPT))
+
+
+def _log_frequency_axis(ax) -> None:
+    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+
+    ax.xaxis.set_major_locator(LogLocator(base=10, numticks=12))
+    ax.xaxis.set_major_formatter(FuncFormatter(_decade_label))
+    ax.xaxis.set_minor_formatter(NullFormatter())
+
+
 def _phase_locator(span: float):
     from matplotlib.ticker import MultipleLocator
 
@@ -271,80 +301,115 @@ def bode_figure(result: BreakResult, *, model: str | None = None, hz: bool = Fal
     """Magnitude (dB) and continuous phase (deg) of L on the axis, margins annotated."""
     w, x, L, phase, scale = _axis_data(result, hz)
     with _style(f"{model}-{result.name}-bode"):
-        fig = _new_figure((7.0, 6.0))
-        mag_ax, ph_ax = fig.subplots(2, 1, sharex=True)
-        mag = 20 * np.log10(np.abs(L))
-        mag_ax.semilogx(x, mag, color=INK["curve"], lw=1.8, gid="bode-magnitude")
+        fig = _new_figure((8.6, 6.0))
+        axes = fig.subplot_mosaic([["mag", "key"], ["phase", "key"]],
+                                  width_ratios=[3.0, 1.15], sharex=False)
+        mag_ax, ph_ax, key = axes["mag"], axes["phase"], axes["key"]
+        ph_ax.sharex(mag_ax)
+        mag_ax.tick_params(labelbottom=False)
+        mag_ax.semilogx(x, 20 * np.log10(np.abs(L)), color=INK["curve"], lw=1.8,
+                        gid="bode-magnitude")
         ph_ax.semilogx(x, phase, color=INK["curve"], lw=1.8, gid="bode-phase")
         mag_ax.axhline(0, color=INK["guide"], lw=0.9, ls=(0, (4, 2)))
         for wp in _need_response(result).axis_poles:
             if wp > 0:
                 for a in (mag_ax, ph_ax):
                     a.axvline(wp * scale, color="#999999", lw=0.7, ls=(0, (1, 1)))
-        critical = set()
-        for c in crossings(result):
+        levels, lines, focus = set(), [], []
+        for tag, c in _tagged(result):
             xc = c.freq * scale
             if not (x.size and x[0] <= xc <= x[-1]):
                 continue
             pc = float(np.interp(math.log(c.freq), np.log(w), phase))
             if c.kind == "gain":
-                _bode_gain_mark(mag_ax, ph_ax, c, xc, pc, critical)
+                level = _bode_gain_mark(mag_ax, ph_ax, c, tag, xc, pc)
+                levels.add(round(level / 180.0) * 180.0)
             else:
-                _bode_phase_mark(mag_ax, ph_ax, c, xc, pc)
-        for level in critical:
+                _bode_phase_mark(mag_ax, ph_ax, c, tag, xc, pc)
+            focus.append(c.freq)
+            lines.append(_key_line(tag, c, hz))
+        for level in levels:
             ph_ax.axhline(level, color=INK["guide"], lw=0.9, ls=(0, (4, 2)), zorder=1)
-        span = max(float(phase.max() - phase.min()) if phase.size else 90.0, 90.0)
-        ph_ax.yaxis.set_major_locator(_phase_locator(span))
+        _phase_view(ph_ax, w, phase, focus, levels)
+        _log_frequency_axis(ph_ax)
+        _log_frequency_axis(mag_ax)
         mag_ax.set_ylabel("|L| [dB]")
         ph_ax.set_ylabel("phase of L [deg], unwrapped")
         ph_ax.set_xlabel("frequency [Hz]" if hz else "frequency [rad/s]")
         mag_ax.set_title(_title(result, "Bode view of L", model), loc="left")
-        if result.margins is None:
-            mag_ax.text(0.99, 0.97, "closed loop not stable: margins not claimed,\n"
-                        "crossovers (\u2248) read off the samples", transform=mag_ax.transAxes,
-                        ha="right", va="top", fontsize=7.5, color=INK["text"])
+        _bode_key(key, result, lines)
     return fig
 
 
-def _bode_gain_mark(mag_ax, ph_ax, c, xc, pc, critical) -> None:
+def _phase_view(ph_ax, w, phase, focus, levels) -> None:
+    """Phase limits that keep the crossovers readable: a delay's lag beyond a
+    decade above the last crossover runs off the bottom (its roll-off shows as the dive)."""
+    if phase.size == 0:
+        return
+    near = phase[w <= 10 * max(focus)] if focus else phase
+    near = near if near.size else phase
+    lo = min(float(near.min()), *levels) if levels else float(near.min())
+    hi = max(float(near.max()), *levels) if levels else float(near.max())
+    pad = max(0.08 * (hi - lo), 20.0)
+    ph_ax.set_ylim(lo - pad, hi + pad)
+    ph_ax.yaxis.set_major_locator(_phase_locator(hi - lo + 2 * pad))
+
+
+def _key_line(tag: str, c, hz: bool) -> str:
+    approx = "" if c.exact else "\u2248"
+    eq = "\u2248" if approx else "="
+    if c.kind == "gain":
+        return f"{tag}  \u03c9c {eq} {_freq_label(c.freq, hz)}\n     phase margin {approx}{c.margin:.1f}\u00b0"
+    return f"{tag}  \u03c9p {eq} {_freq_label(c.freq, hz)}\n     gain margin {approx}{c.margin:+.1f} dB"
+
+
+def _bode_key(key, result: BreakResult, lines: list[str]) -> None:
+    key.set_axis_off()
+    body = ["crossovers:", *(lines or ["none"]), ""]
+    body += ["c: gain crossover (|L| = 1)", "p: phase crossover (L < 0 real)",
+             "arrows: the margin at each", "dashed: 0 dB, and the phase", "that puts L on \u22121"]
+    if result.margins is None:
+        body += ["", "closed loop not stable:", "margins not claimed;", "\u2248 read off the samples"]
+    key.text(0.02, 0.98, "\n".join(body), transform=key.transAxes, va="top", ha="left",
+             fontsize=7.5, color="#333333", linespacing=1.35, gid="bode-key")
+
+
+def _bode_gain_mark(mag_ax, ph_ax, c, tag, xc, pc) -> float:
     lag = c.lag_deg if c.lag_deg is not None else 180.0
     # the -1 line of this branch: rotate the phase down by lag, or up by 360 - lag
     level = pc - lag if lag <= 180 else pc + (360 - lag)
-    critical.add(round(level / 180.0) * 180.0)
-    approx = "" if c.exact else "\u2248"
-    mag_ax.plot([xc], [0], ls="none", marker="o", ms=6, mfc="white", mew=1.5, mec=INK["gain"],
+    color = INK["gain"]
+    mag_ax.plot([xc], [0], ls="none", marker="o", ms=6, mfc="white", mew=1.5, mec=color,
                 zorder=5, gid="gain-crossover")
-    mag_ax.annotate(f"\u03c9c {approx}{xc:.3g}", (xc, 0), xytext=(5, 6), textcoords="offset points",
-                    fontsize=7.5, color=INK["gain"])
     for a in (mag_ax, ph_ax):
-        a.axvline(xc, color=INK["gain"], lw=0.6, ls=(0, (2, 2)), alpha=0.8)
+        a.axvline(xc, color=color, lw=0.6, ls=(0, (2, 2)), alpha=0.8)
+    _tag(mag_ax, tag, xc, 0, color, (0, 9))
     ph_ax.annotate("", xy=(xc, level), xytext=(xc, pc),
-                   arrowprops=dict(arrowstyle="<|-|>", color=INK["gain"], lw=1.1,
-                                   mutation_scale=9, shrinkA=0, shrinkB=0))
-    ph_ax.plot([xc], [pc], ls="none", marker="o", ms=5, mfc="white", mew=1.4, mec=INK["gain"],
-               zorder=5)
-    ph_ax.annotate(f"PM {approx}{c.margin:.1f}\u00b0", (xc, (pc + level) / 2), xytext=(5, 0),
-                   textcoords="offset points", fontsize=8, color=INK["gain"], va="center",
-                   fontweight="bold", gid="phase-margin-label")
+                   arrowprops=dict(arrowstyle="<|-|>", color=color, lw=1.2, mutation_scale=9,
+                                   shrinkA=0, shrinkB=0), gid="phase-margin-arrow")
+    ph_ax.plot([xc], [pc], ls="none", marker="o", ms=5, mfc="white", mew=1.4, mec=color, zorder=5)
+    _tag(ph_ax, tag, xc, (pc + level) / 2, color, (10, 0))
+    return level
 
 
-def _bode_phase_mark(mag_ax, ph_ax, c, xc, pc) -> None:
-    approx = "" if c.exact else "\u2248"
+def _bode_phase_mark(mag_ax, ph_ax, c, tag, xc, pc) -> None:
     level = -c.margin  # |L| there in dB
+    color = INK["phase"]
     mag_ax.annotate("", xy=(xc, 0), xytext=(xc, level),
-                    arrowprops=dict(arrowstyle="<|-|>", color=INK["phase"], lw=1.1,
-                                    mutation_scale=9, shrinkA=0, shrinkB=0))
-    mag_ax.plot([xc], [level], ls="none", marker="D", ms=5, mfc="white", mew=1.4,
-                mec=INK["phase"], zorder=5, gid="phase-crossover")
-    mag_ax.annotate(f"GM {approx}{c.margin:+.1f} dB", (xc, level / 2), xytext=(5, 0),
-                    textcoords="offset points", fontsize=8, color=INK["phase"], va="center",
-                    fontweight="bold", gid="gain-margin-label")
-    ph_ax.plot([xc], [pc], ls="none", marker="D", ms=5, mfc="white", mew=1.4, mec=INK["phase"],
-               zorder=5)
-    ph_ax.annotate(f"\u03c9p {approx}{xc:.3g}", (xc, pc), xytext=(5, -10),
-                   textcoords="offset points", fontsize=7.5, color=INK["phase"])
+                    arrowprops=dict(arrowstyle="<|-|>", color=color, lw=1.2, mutation_scale=9,
+                                    shrinkA=0, shrinkB=0), gid="gain-margin-arrow")
+    mag_ax.plot([xc], [level], ls="none", marker="D", ms=5, mfc="white", mew=1.4, mec=color,
+                zorder=5, gid="phase-crossover")
+    _tag(mag_ax, tag, xc, level / 2, color, (10, 0))
+    ph_ax.plot([xc], [pc], ls="none", marker="D", ms=5, mfc="white", mew=1.4, mec=color, zorder=5)
     for a in (mag_ax, ph_ax):
-        a.axvline(xc, color=INK["phase"], lw=0.6, ls=(0, (1, 2)), alpha=0.8)
+        a.axvline(xc, color=color, lw=0.6, ls=(0, (1, 2)), alpha=0.8)
+
+
+def _tag(ax, tag, x, y, color, offset) -> None:
+    ax.annotate(tag, (x, y), xytext=offset, textcoords="offset points", fontsize=7.5,
+                color=color, fontweight="bold", ha="center", va="center", zorder=7,
+                bbox=dict(fc="white", ec="none", alpha=0.8, pad=0.5))
 
 
 # ------------------------------------------------------------- sensitivity
@@ -353,8 +418,8 @@ def sensitivity_figure(result: BreakResult, *, model: str | None = None, hz: boo
     """|S| = |1/(1+L)| and |T| = |L/(1+L)| in dB, with Ms, Mt and the disk-margin frequency."""
     w, x, L, _, scale = _axis_data(result, hz)
     with _style(f"{model}-{result.name}-sensitivity"):
-        fig = _new_figure((7.0, 4.2))
-        ax = fig.add_subplot()
+        fig = _new_figure((8.6, 4.4))
+        ax, key = fig.subplots(1, 2, gridspec_kw={"width_ratios": [3.0, 1.15]})
         with np.errstate(divide="ignore"):
             s_db = -20 * np.log10(np.abs(1 + L))
             t_db = 20 * np.log10(np.abs(L)) + s_db
@@ -362,31 +427,48 @@ def sensitivity_figure(result: BreakResult, *, model: str | None = None, hz: boo
         ax.semilogx(x, t_db, color=INK["t"], lw=1.6, ls=(0, (6, 2)),
                     label="|T| = |L/(1+L)|", gid="sens-T")
         ax.axhline(0, color=INK["guide"], lw=0.9, ls=(0, (4, 2)))
-        m = result.margins
-        if m is not None:
-            for peak, name, color, marker in ((m.sensitivity_peak, "Ms", INK["curve"], "v"),
-                                              (m.complementary_peak, "Mt", INK["t"], "^")):
-                if peak is None:
-                    continue
-                xp = peak.freq * scale
-                ax.plot([xp], [peak.db], ls="none", marker=marker, ms=7, color=color, zorder=5,
-                        gid=f"peak-{name}")
-                ax.annotate(f"{name} = {peak.value:.3g} ({peak.db:.1f} dB)\nat {_freq_label(peak.freq, hz)}",
-                            (xp, peak.db), xytext=(8, 8 if name == "Ms" else -22),
-                            textcoords="offset points", fontsize=7.5, color=color)
-            dm = m.disk_margin
-            if dm is not None and dm.freq is not None and math.isfinite(dm.freq) and dm.freq > 0:
-                ax.axvline(dm.freq * scale, color=INK["phase"], lw=1.0, ls=(0, (3, 1, 1, 1)),
-                           label=f"disk margin \u03b1 = {dm.alpha:.3g} at {_freq_label(dm.freq, hz)}",
-                           gid="disk-margin")
-        else:
-            ax.text(0.01, 0.03, "closed loop not stable: Ms, Mt and disk margin not claimed",
-                    transform=ax.transAxes, fontsize=7.5, color=INK["text"])
+        lines = _sensitivity_marks(ax, result, x, scale, hz)
+        finite = np.concatenate([s_db, t_db])
+        finite = finite[np.isfinite(finite)]
+        if finite.size:
+            top = max(float(finite.max()), 0.0)
+            ax.set_ylim(max(float(finite.min()), top - 80.0) - 3.0, top + 6.0)
+        _log_frequency_axis(ax)
         ax.set_ylabel("magnitude [dB]")
         ax.set_xlabel("frequency [Hz]" if hz else "frequency [rad/s]")
         ax.set_title(_title(result, "sensitivity |S| and complementary |T|", model), loc="left")
-        ax.legend(loc="lower right")
+        handles, labels = ax.get_legend_handles_labels()
+        key.set_axis_off()
+        key.legend(handles, labels, loc="lower left", fontsize=7.5, borderaxespad=0,
+                   handlelength=2.6)
+        key.text(0.02, 0.98, "\n".join(lines), transform=key.transAxes, va="top", ha="left",
+                 fontsize=7.5, color="#333333", linespacing=1.35, gid="sens-key")
     return fig
+
+
+def _sensitivity_marks(ax, result: BreakResult, x, scale: float, hz: bool) -> list[str]:
+    m = result.margins
+    if m is None:
+        return ["closed loop not stable:", "Ms, Mt and disk margin", "not claimed"]
+    lines = []
+    for peak, name, color, marker in ((m.sensitivity_peak, "Ms", INK["curve"], "v"),
+                                      (m.complementary_peak, "Mt", INK["t"], "^")):
+        if peak is None:
+            continue
+        xp = peak.freq * scale
+        # a peak at zero frequency (or beyond the view) is marked at the edge of the view
+        xp_drawn = min(max(xp, x[0]), x[-1]) if x.size else xp
+        ax.plot([xp_drawn], [peak.db], ls="none", marker=marker, ms=7, color=color, zorder=5,
+                label=f"{name} (peak)", gid=f"peak-{name}")
+        lines += [f"{name} = {peak.value:.3g} ({peak.db:.1f} dB)", f"     at {_freq_label(peak.freq, hz)}"]
+    dm = m.disk_margin
+    if dm is not None and dm.freq is not None and math.isfinite(dm.freq) and dm.freq > 0:
+        ax.axvline(dm.freq * scale, color=INK["phase"], lw=1.0, ls=(0, (3, 1, 1, 1)),
+                   label="disk-margin frequency", gid="disk-margin")
+        lo, hi = dm.gain_db
+        lines += ["", f"disk margin \u03b1 = {dm.alpha:.3g}", f"     at {_freq_label(dm.freq, hz)}",
+                  f"     gain {lo:+.1f} / {hi:+.1f} dB", f"     phase \u00b1{dm.phase_deg:.1f}\u00b0"]
+    return lines
 
 
 # ------------------------------------------------------------------ output

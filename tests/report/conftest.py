@@ -1,0 +1,72 @@
+"""Shared loops for the report tests.
+
+Each loop is a small model in the .loop language, checked by the real pipeline
+(`loopwise.analysis.check_text`); beside it the same loop as zeros, poles, gain
+and delay, for tests that compare the drawing with a formula.
+"""
+from __future__ import annotations
+
+import pytest
+
+from loopwise.analysis import check_text
+from loopwise.results import BreakResult
+
+#: name -> (model text, (zeros, poles, gain, delay), has axis poles)
+LOOPS = {
+    # invented: an integrating plant behind a delay, P control; stable (K = 3 < 6 without delay)
+    "integrator_delay": ("""model integrator_delay
+input r
+block C = 3
+e = r - y
+y = [exp(-50ms*s)/(s*(s+1)*(s+2))](C(e))
+break loop at y
+""", ([], [0, -1, -2], 3.0, 0.05), True),
+    # invented: open-loop unstable first-order plant; P = 1, N = -1, Z = 0
+    "unstable_plant": ("""model unstable_plant
+input r
+e = r - y
+y = [2/(s-1)](e)
+break loop at y
+""", ([], [1], 2.0, 0.0), False),
+    # invented: three lags, modest gain: the whole curve stays near the unit circle
+    "three_lags": ("""model three_lags
+input r
+e = r - y
+y = [2/(s+1)^3](e)
+break loop at y
+""", ([], [-1, -1, -1], 2.0, 0.0), False),
+    # invented: three lags with too much gain: N = 2, Z = 2
+    "three_lags_high": ("""model three_lags_high
+input r
+e = r - y
+y = [10/(s+1)^3](e)
+break loop at y
+""", ([], [-1, -1, -1], 10.0, 0.0), False),
+    # invented: double integrator with a lead: axis poles, stable
+    "double_integrator": ("""model double_integrator
+input r
+e = r - y
+y = [2*(s+0.5)/(s^2*(0.05*s+1))](e)
+break loop at y
+""", ([-0.5], [0, 0, -20], 40.0, 0.0), True),
+}
+
+
+def loop_result(name: str) -> BreakResult:
+    text, _, _ = LOOPS[name]
+    return check_text(text, file=f"{name}.loop").breaks[0]
+
+
+@pytest.fixture(scope="session")
+def loops() -> dict[str, BreakResult]:
+    return {name: loop_result(name) for name in LOOPS}
+
+
+@pytest.fixture
+def model_files(tmp_path):
+    """The loops written as model files in a temporary folder."""
+    folder = tmp_path / "models"
+    folder.mkdir()
+    for name, (text, _, _) in LOOPS.items():
+        (folder / f"{name}.loop").write_text(text, encoding="utf-8")
+    return folder

@@ -1,0 +1,210 @@
+"""The figures: drawn from the engine's samples, and what they show is what the engine found.
+
+The Nyquist count is re-read from the drawn line data by a method independent
+of the engine and of `geometry.winding_number`: signed crossings of the ray
+from -1 towards -infinity (a closed curve winds around a point as often as it
+crosses any ray from it, counted with sign).
+"""
+from __future__ import annotations
+
+import math
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from loopwise.cli import main
+from loopwise.report import plots
+from loopwise.report.geometry import Ring, choose_ring, crossings
+
+from .conftest import LOOPS
+
+
+def _line(fig, gid):
+    found = [l for ax in fig.axes for l in ax.get_lines() if l.get_gid() == gid]
+    assert len(found) == 1, gid
+    x, y = found[0].get_data()
+    return np.asarray(x, float) + 1j * np.asarray(y, float)
+
+
+def _ray_crossings(z: np.ndarray, about: float = -1.0) -> int:
+    """Clockwise turns of the closed polyline z around `about`, from crossings of
+    the ray (-inf, about) on the real axis: going up across it is clockwise."""
+    z = np.append(z, z[0]) - about
+    a, b = z[:-1], z[1:]
+    turns = 0
+    for p, q in zip(a, b):
+        if (p.imag < 0) != (q.imag < 0):  # the segment crosses the real axis
+            t = p.imag / (p.imag - q.imag)
+            if p.real + t * (q.real - p.real) < 0:
+                turns += 1 if q.imag >= 0 else -1
+    return turns
+
+
+@pytest.mark.parametrize("name", sorted(LOOPS))
+def test_drawn_nyquist_curve_winds_as_often_as_the_engine_counts(loops, name):
+    result = loops[name]
+    fig = plots.nyquist_figure(result, model=name)
+    drawn = np.concatenate([_line(fig, "nyquist-positive"), _line(fig, "nyquist-negative")])
+    assert _ray_crossings(drawn) == result.encirclements
+    # the drawn curve is the engine's own, compressed: expanding it gives L back
+    ring = choose_ring(result.response)
+    upper = _line(fig, "nyquist-positive")
+    if ring is not None:
+        upper = ring.expand(upper)
+    L = result.response.L
+    finite = np.abs(L) < 1e6
+    np.testing.assert_allclose(upper[finite], L[finite], rtol=1e-6, atol=1e-9)
+
+
+@pytest.mark.parametrize("name", sorted(LOOPS))
+def test_the_mirror_half_is_the_conjugate_in_reverse(loops, name):
+    fig = plots.nyquist_figure(loops[name], model=name)
+    upper, mirror = _line(fig, "nyquist-positive"), _line(fig, "nyquist-negative")
+    np.testing.assert_allclose(mirror, np.conj(upper[::-1]))
+
+
+@pytest.mark.parametrize("name", sorted(n for n in LOOPS if n != "three_lags_high"))
+def test_ring_stretches_exactly_where_the_loop_has_axis_poles(loops, name):
+    result = loops[name]
+    has_axis_poles = LOOPS[name][2]
+    assert bool(result.response.axis_poles) == has_axis_poles
+    fig = plots.nyquist_figure(result, model=name)
+    ring_patches = [p for p in fig.axes[0].patches if p.get_gid() == "ring"]
+    upper = _line(fig, "nyquist-positive")
+    if has_axis_poles:
+        ring = choose_ring(result.response)
+        assert ring is not None and len(ring_patches) == 1
+        on_ring = np.abs(upper) > ring.inner
+        assert on_ring.any() and np.all(np.abs(upper) <= ring.outer + 1e-9)
+        # the stretches on the ring include the indentation around the axis pole
+        assert on_ring[~result.response.on_axis].any()
+        assert any("log10" in t.get_text() for ax in fig.axes for t in ax.texts)
+    else:
+        assert choose_ring(result.response) is None and not ring_patches
+
+
+def test_a_large_gain_alone_also_goes_on_the_ring(loops):
+    result = loops["three_lags_high"]
+    ring = choose_ring(result.response)
+    assert ring is not None
+    assert np.abs(result.response.L).max() > ring.inner
+
+
+@settings(max_examples=200, deadline=None)
+@given(r=st.floats(1e-6, 1e12), angle=st.floats(-math.pi, math.pi),
+       inner=st.floats(1.6, 4.0), width=st.floats(0.5, 5.0))
+def test_ring_map_keeps_angle_fixes_the_inner_disk_and_inverts(r, angle, inner, width):
+    ring = Ring(inner, width)
+    z = np.array([r * np.exp(1j * angle)])
+    w = ring.compress(z)
+    assert abs(w[0]) <= ring.outer + 1e-12
+    if r <= inner:
+        np.testing.assert_allclose(w, z)
+    else:
+        assert abs(np.angle(w[0] / z[0])) < 1e-9
+        np.testing.assert_allclose(ring.expand(w), z, rtol=1e-6)
+    # strictly increasing in radius: the map cannot fold the curve over itself
+    assert abs(ring.compress(z * 1.5)[0]) > abs(w[0]) or abs(w[0]) > ring.outer - 1e-9
+
+
+def test_crossovers_are_marked_where_the_engine_found_them(loops):
+    result = loops["integrator_delay"]
+    fig = plots.nyquist_figure(result, model="m")
+    marks = crossings(result)
+    gains = [c for c in marks if c.kind == "gain"]
+    phases = [c for c in marks if c.kind == "phase"]
+    assert gains and phases
+    ax = fig.axes[0]
+    drawn_gain = [l for l in ax.get_lines() if l.get_gid() == "gain-crossover"]
+    drawn_phase = [l for l in ax.get_lines() if l.get_gid() == "phase-crossover"]
+    assert len(drawn_gain) == len(gains) and len(drawn_phase) == len(phases)
+    for line in drawn_gain:  # |L| = 1 at a gain crossover
+        x, y = line.get_data()
+        assert math.hypot(x[0], y[0]) == pytest.approx(1.0, abs=1e-6)
+    for line in drawn_phase:  # L real and negative at a phase crossover
+        x, y = line.get_data()
+        assert y[0] == pytest.approx(0.0, abs=1e-9) and x[0] < 0
+    notes = "\n".join(t.get_text() for a in fig.axes for t in a.texts)
+    for c in marks:
+        assert f"{c.freq:.3g} rad/s" in notes
+    assert f"N = {result.encirclements}" in notes and f"P = {result.open_loop_rhp_poles}" in notes
+    assert "STABLE" in notes
+
+
+def test_bode_phase_is_continuous_and_shows_the_delay(loops):
+    result = loops["integrator_delay"]
+    fig = plots.bode_figure(result, model="m")
+    phase = _line(fig, "bode-phase")
+    w, deg = phase.real, phase.imag
+    assert np.all(np.abs(np.diff(deg)) < 90)
+    # phase of 3 exp(-0.05 s)/(s (s+1)(s+2)) at s = jw, re-derived:
+    # -90 - atan(w) - atan(w/2) (the rational part) - w*0.05 rad (the delay)
+    rational = -90 - np.degrees(np.arctan(w) + np.arctan(w / 2))
+    delay = np.degrees(w * 0.05)
+    np.testing.assert_allclose(deg, rational - delay, atol=1e-6)
+    assert delay[-1] > 5  # the delay's extra lag shows at the top of the drawn range
+
+
+def test_bode_in_hz_divides_the_frequency_axis(loops):
+    result = loops["three_lags"]
+    rad = _line(plots.bode_figure(result), "bode-magnitude")
+    hz = _line(plots.bode_figure(result, hz=True), "bode-magnitude")
+    np.testing.assert_allclose(hz.real, rad.real / (2 * math.pi))
+    np.testing.assert_allclose(hz.imag, rad.imag)
+
+
+def test_sensitivity_curves_are_S_and_T_of_the_samples(loops):
+    result = loops["three_lags"]
+    fig = plots.sensitivity_figure(result)
+    s_line, t_line = _line(fig, "sens-S"), _line(fig, "sens-T")
+    w = s_line.real
+    L = result.response.axis_L[np.isin(result.response.freq, w)]
+    np.testing.assert_allclose(s_line.imag, 20 * np.log10(np.abs(1 / (1 + L))), atol=1e-9)
+    np.testing.assert_allclose(t_line.imag, 20 * np.log10(np.abs(L / (1 + L))), atol=1e-9)
+    m = result.margins
+    if m is not None:
+        ms = [l for l in fig.axes[0].get_lines() if l.get_gid() == "peak-Ms"]
+        assert len(ms) == 1 and ms[0].get_data()[1][0] == pytest.approx(m.sensitivity_peak.db)
+        assert s_line.imag.max() <= m.sensitivity_peak.db + 0.05
+
+
+@pytest.mark.parametrize("suffix", [".svg", ".png", ".pdf"])
+def test_plot_command_writes_every_kind_in_every_format(model_files, tmp_path, suffix):
+    out = tmp_path / f"fig{suffix}"
+    code = main(["plot", str(model_files / "integrator_delay.loop"), "--kind", "all",
+                 "--output", str(out)])
+    assert code == 0
+    magic = {".svg": b"<?xml", ".png": b"\x89PNG", ".pdf": b"%PDF"}[suffix]
+    for kind in ("nyquist", "bode", "sensitivity"):
+        data = (tmp_path / f"fig-{kind}{suffix}").read_bytes()
+        assert data.startswith(magic) and len(data) > 2000
+
+
+def test_plot_command_default_names_in_the_working_folder(model_files, tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    assert main(["plot", str(model_files / "three_lags.loop"), "--kind", "bode", "--hz"]) == 0
+    assert (tmp_path / "three_lags-loop-bode.svg").read_text().count("<svg") == 1
+
+
+@pytest.mark.parametrize("extra, message", [
+    (["--break", "nosuch"], "the breaks are: loop"),
+    (["--output", "fig.jpg"], "unknown suffix .jpg"),
+    (["--output", "/nonexistent/folder/fig.svg"], "cannot write"),
+    (["--kind", "polar"], "invalid choice"),
+])
+def test_plot_command_bad_input_is_one_line_and_exit_2(model_files, capsys, extra, message):
+    code = main(["plot", str(model_files / "three_lags.loop"), *extra])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert message in err and len(err.strip().splitlines()) == 1 and "Traceback" not in err
+
+
+def test_only_plots_imports_matplotlib():
+    code = ("import sys, loopwise.cli, loopwise.commands.plot, loopwise.commands.report, "
+            "loopwise.report.html, loopwise.report.geometry; "
+            "assert 'matplotlib' not in sys.modules, 'matplotlib imported too early'")
+    subprocess.run([sys.executable, "-c", code], check=True)
