@@ -340,6 +340,8 @@ def test_two_statements_on_one_line_are_refused():
 
 
 # --- reserved words ------------------------------------------------------------------
+# The grammar never takes a statement word or `at`/`in` for a name; `s` and `exp` are
+# refused as declared names by the resolver (E201, tests in test_errors.py).
 
 STATEMENT_WORDS = ["model", "use", "param", "input", "block", "break", "require"]
 
@@ -361,7 +363,6 @@ def test_statement_word_cannot_start_an_equation(word):
     "require use phase_margin >= 45deg",
 ])
 def test_reserved_word_is_never_a_name(text):
-    # Fails today: parse-fixes.md item 2 (keywords are reserved only at a line's start)
     err, out = parse_error(text)
     assert "reserved" in err.message, out
     assert err.hint
