@@ -16,6 +16,7 @@ import jsonschema
 import numpy as np
 import pytest
 
+from loopwise.errors import Finding, Span
 from loopwise.report import render
 from loopwise.results import CAUTION
 from loopwise.run import exit_status
@@ -232,3 +233,27 @@ def test_exit_policy(models, errors, fail_on_warnings, code):
 def test_margins_helper_is_consistent():
     # guards the fixtures themselves: the smaller of the up/down margins
     assert margins(gm_up=14.0, gm_down=-7.5).gain_margin_db == 7.5
+
+
+# --- a library file (params and blocks only, for `use`) ----------------------------------
+
+def library_run():
+    note = Finding("note", "N401", "no signal equations: a library of params and blocks",
+                   Span("common/drive.loop", 1, 1))
+    return run_of(model("common/drive.loop", "drive", [], findings=[note]),
+                  model(breaks=[stable_break()]))
+
+
+def test_a_library_file_is_neither_a_pass_nor_a_verdict():
+    run = library_run()
+    text = render(run, "text")
+    assert "PASS  common/drive.loop  library of params and blocks for `use`" in text
+    assert "N401" not in text and "STABLE (" not in text.split("\n")[0]
+    root = ET.fromstring(render(run, "junit"))
+    suite = root.find("testsuite")
+    assert suite.find("testcase/skipped") is not None and suite.get("skipped") == "1"
+    assert root.get("skipped") == "1" and root.get("failures") == "0"
+    md = render(run, "markdown")
+    assert "| PASS | `common/drive.loop` | drive | LIBRARY | 0 | - |" in md
+    assert "#### drive" not in md
+    assert exit_status(run) == 0

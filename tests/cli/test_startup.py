@@ -56,3 +56,16 @@ def test_probe_sees_the_engine_when_a_check_runs(tmp_path):
     result, _ = probe(["check", str(model), "--format", "json"])
     assert result["code"] == 0
     assert "loopwise.analysis" in result["loaded"]
+
+
+def test_library_api_is_lazy_and_works():
+    code = (
+        "import sys, loopwise\n"
+        "assert 'loopwise.analysis' not in sys.modules\n"
+        f"r = loopwise.check_text({GOOD!r}, file='m.loop')\n"
+        "b = r.breaks[0]\n"
+        "print(r.stable, b.name, round(b.margins.phase_margin_deg, 1))\n"
+    )
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.split() == ["True", "b", "55.9"]

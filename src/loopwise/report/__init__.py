@@ -13,7 +13,7 @@ from dataclasses import dataclass
 from typing import Callable
 
 __all__ = [
-    "FORMATS", "render", "break_status", "model_status", "model_passes", "Tally", "tally",
+    "FORMATS", "render", "is_library", "LIBRARY_NOTE", "break_status", "model_status", "model_passes", "Tally", "tally",
     "BREAK_COLUMNS", "break_row", "unmet_requirements", "requirement_place", "finding_text",
     "fmt_time", "count_met",
 ]
@@ -34,6 +34,14 @@ def render(run, fmt: str, *, colour: bool = False, fail_on_warnings: bool = Fals
 
 # --- verdicts -----------------------------------------------------------------------
 
+#: the analysis's note for a file of params and blocks only (brought in with `use`)
+LIBRARY_NOTE = "N401"
+
+
+def is_library(m) -> bool:
+    return not m.breaks and any(f.code == LIBRARY_NOTE for f in m.findings)
+
+
 def break_status(b) -> str:
     """STABLE, UNSTABLE or MARGINAL (a closed-loop pole on the imaginary axis)."""
     if b.marginal:
@@ -42,6 +50,8 @@ def break_status(b) -> str:
 
 
 def model_status(m) -> str:
+    if is_library(m):
+        return "LIBRARY"
     if m.stable:
         return "STABLE"
     return "MARGINAL" if any(b.marginal for b in m.breaks) else "UNSTABLE"

@@ -5,7 +5,7 @@ from __future__ import annotations
 import re
 
 from ..results import CAUTION
-from . import (BREAK_COLUMNS, break_row, count_met, finding_text, model_passes, model_status,
+from . import (BREAK_COLUMNS, is_library, break_row, count_met, finding_text, model_passes, model_status,
                requirement_place, tally, unmet_requirements)
 
 __all__ = ["render"]
@@ -44,7 +44,7 @@ def _summary(run, fail_on_warnings: bool) -> list[str]:
         verdict = "PASS" if model_passes(m, fail_on_warnings) else "**FAIL**"
         status = model_status(m)
         rows.append([verdict, _code(m.file), m.model,
-                     status if status == "STABLE" else f"**{status}**",
+                     status if status in ("STABLE", "LIBRARY") else f"**{status}**",
                      str(m.closed_loop_rhp_poles), f"{met}/{total}" if total else "-"])
     for file in dict.fromkeys(e.span.file for e in run.errors):
         rows.append(["**ERROR**", _code(file), "-", "not read", "-", "-"])
@@ -83,7 +83,8 @@ def render(run, fail_on_warnings: bool = False) -> str:
     out += _summary(run, fail_on_warnings)
     out.append("")
     for m in run.models:
-        out += _details(m, fail_on_warnings)
+        if not is_library(m):
+            out += _details(m, fail_on_warnings)
     if run.errors:
         out += ["#### Models that could not be read", ""]
         out += _fenced([line for e in run.errors for line in finding_text(e).splitlines()])

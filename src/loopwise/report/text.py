@@ -7,7 +7,7 @@ signal. Columns are padded on the plain text, so colour codes never shift them.
 from __future__ import annotations
 
 from ..results import CAUTION
-from . import (BREAK_COLUMNS, break_row, count_met, finding_text, model_passes, model_status,
+from . import (BREAK_COLUMNS, LIBRARY_NOTE, is_library, break_row, count_met, finding_text, model_passes, model_status,
                requirement_place, tally, unmet_requirements)
 
 __all__ = ["render"]
@@ -41,6 +41,9 @@ def _table(breaks, colour: bool, indent: str = "  ") -> list[str]:
 
 def _verdict_line(m, colour: bool, fail_on_warnings: bool) -> str:
     status = model_status(m)
+    if status == "LIBRARY":
+        return (f"{_paint('PASS', 'PASS', colour)}  {m.file}  library of params and blocks "
+                "for `use`: nothing to check on its own")
     if status == "STABLE":
         detail = "no closed-loop poles in the right half plane"
     elif status == "MARGINAL":
@@ -61,8 +64,8 @@ def _model_block(m, colour: bool, fail_on_warnings: bool) -> list[str]:
     out = [_verdict_line(m, colour, fail_on_warnings)]
     if m.breaks:
         out += _table(m.breaks, colour)
-    else:
-        out.append("  (no breaks: add `break <name> at <signal>` to see margins)")
+    elif not is_library(m):
+        out.append("  (no breaks: margins are measured at `break <name> at <signal>` lines)")
     unmet = unmet_requirements(m)
     if unmet:
         out.append("  unmet requirements:")
@@ -78,7 +81,8 @@ def _model_block(m, colour: bool, fail_on_warnings: bool) -> list[str]:
     for b in m.breaks:
         out += [f"  {warn}: break {b.name}: {w}" for w in b.warnings]
     for f in m.findings:
-        out += ["  " + line for line in finding_text(f).splitlines()]
+        if f.code != LIBRARY_NOTE:   # already said on the verdict line
+            out += ["  " + line for line in finding_text(f).splitlines()]
     return out
 
 
