@@ -257,3 +257,4 @@ def test_a_library_file_is_neither_a_pass_nor_a_verdict():
     assert "| PASS | `common/drive.loop` | drive | LIBRARY | 0 | - |" in md
     assert "#### drive" not in md
     assert exit_status(run) == 0
+    assert "1 model checked, 1 passed, 0 failed, 1 library for `use` not checked on its own." in text

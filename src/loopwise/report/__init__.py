@@ -68,23 +68,29 @@ def model_passes(m, fail_on_warnings: bool = False) -> bool:
 
 @dataclass(frozen=True)
 class Tally:
-    models: int
+    models: int      # models checked (library files not counted)
     passed: int
     failed: int
     unreadable: int
+    libraries: int = 0
 
     def sentence(self) -> str:
         parts = [f"{self.models} model{'s' if self.models != 1 else ''} checked",
                  f"{self.passed} passed", f"{self.failed} failed"]
         if self.unreadable:
             parts.append(f"{self.unreadable} could not be read")
+        if self.libraries:
+            parts.append(f"{self.libraries} librar{'ies' if self.libraries != 1 else 'y'} "
+                         f"for `use` not checked on {'their' if self.libraries != 1 else 'its'} own")
         return ", ".join(parts)
 
 
 def tally(run, fail_on_warnings: bool = False) -> Tally:
-    passed = sum(model_passes(m, fail_on_warnings) for m in run.models)
+    models = [m for m in run.models if not is_library(m)]
+    passed = sum(model_passes(m, fail_on_warnings) for m in models)
     unreadable = len({e.span.file for e in run.errors})
-    return Tally(len(run.models), passed, len(run.models) - passed, unreadable)
+    return Tally(len(models), passed, len(models) - passed, unreadable,
+                 len(run.models) - len(models))
 
 
 def count_met(b) -> tuple[int, int]:
