@@ -185,24 +185,40 @@ def _run_serial(files, settings, tick):
     return out
 
 
+def _worker_start() -> None:
+    # Ctrl-C is the parent's to handle: workers that also caught it would each
+    # print a traceback while the parent shuts the pool down
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
 def _run_parallel(files, settings, jobs, tick):
     from concurrent.futures import ProcessPoolExecutor, as_completed
-    from concurrent.futures.process import BrokenProcessPool
 
     out: list = [None] * len(files)
-    with ProcessPoolExecutor(max_workers=jobs) as pool:
+    with ProcessPoolExecutor(max_workers=jobs, initializer=_worker_start) as pool:
         futures = {pool.submit(check_one, str(f), settings): i for i, f in enumerate(files)}
-        for fut in as_completed(futures):
-            i = futures[fut]
-            try:
-                out[i] = fut.result()
-            except BrokenProcessPool:
-                out[i] = (None, (Finding("error", E_INTERNAL,
-                                         "the worker process checking this model stopped",
-                                         Span(str(files[i]), 0, 0),
-                                         "try --jobs 1; the model may need more memory"),))
-            tick()
+        try:
+            for fut in as_completed(futures):
+                i = futures[fut]
+                out[i] = _outcome(fut, files[i])
+                tick()
+        except KeyboardInterrupt:
+            pool.shutdown(wait=True, cancel_futures=True)  # only models in flight finish
+            raise
     return out
+
+
+def _outcome(fut, path):
+    from concurrent.futures.process import BrokenProcessPool
+
+    try:
+        return fut.result()
+    except BrokenProcessPool:
+        return (None, (Finding("error", E_INTERNAL, "the worker process checking this model stopped",
+                               Span(str(path), 0, 0),
+                               "try --jobs 1; the model may need more memory"),))
 
 
 def check_paths(paths, settings=None, jobs: int = 1, progress: bool = False):

@@ -303,3 +303,40 @@ def test_demo_models_pass_as_their_headers_say():
     unstable = [m["file"] for m in doc["models"] if not m["stable"]]
     assert proc.returncode == 0, (unstable, doc["errors"])
     assert all(b["stable"] for m in doc["models"] for b in m["breaks"])
+
+
+# --- the progress bar ---------------------------------------------------------------------
+
+class _Stream:
+    def __init__(self, tty: bool):
+        self.tty = tty
+
+    def isatty(self) -> bool:
+        return self.tty
+
+
+@pytest.mark.parametrize("tty, env, wanted", [
+    (True, {}, True),
+    (False, {}, False),
+    (True, {"CI": "true"}, False),
+    (True, {"TERM": "dumb"}, False),
+])
+def test_progress_only_on_an_interactive_terminal(monkeypatch, tty, env, wanted):
+    from loopwise.run import wants_progress
+
+    monkeypatch.delenv("CI", raising=False)
+    monkeypatch.setenv("TERM", "xterm")
+    for key, value in env.items():
+        monkeypatch.setenv(key, value)
+    assert wants_progress(_Stream(tty)) is wanted
+
+
+def test_a_run_with_the_progress_bar_gives_the_same_result(tmp_path):
+    from loopwise.run import PROGRESS_MIN_MODELS, check_paths
+
+    for i in range(PROGRESS_MIN_MODELS):
+        write(tmp_path, f"d/m{i}.loop", GOOD)
+    with_bar = check_paths([tmp_path / "d"], Settings(), jobs=1, progress=True)
+    without = check_paths([tmp_path / "d"], Settings(), jobs=1, progress=False)
+    assert with_bar.to_dict() == without.to_dict()
+    assert len(with_bar.models) == PROGRESS_MIN_MODELS
