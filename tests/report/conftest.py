@@ -62,11 +62,14 @@ def loops() -> dict[str, BreakResult]:
     return {name: loop_result(name) for name in LOOPS}
 
 
-@pytest.fixture
-def model_files(tmp_path):
-    """The loops written as model files in a temporary folder."""
-    folder = tmp_path / "models"
+def write_models(folder):
     folder.mkdir()
     for name, (text, _, _) in LOOPS.items():
         (folder / f"{name}.loop").write_text(text, encoding="utf-8")
     return folder
+
+
+@pytest.fixture
+def model_files(tmp_path):
+    """The loops written as model files in a temporary folder."""
+    return write_models(tmp_path / "models")

@@ -53,9 +53,9 @@ td.num { text-align: right; font-variant-numeric: tabular-nums; }
 ul.plain { padding-left: 1.2rem; margin: .3rem 0; }
 pre { background: var(--band); border: 1px solid var(--line); padding: .6rem .8rem;
   overflow-x: auto; font-size: .85rem; }
-.plots { display: grid; grid-template-columns: repeat(auto-fit, minmax(480px, 1fr)); gap: 1rem; }
-figure { margin: 0; border: 1px solid var(--line); padding: .4rem; background: #fff; }
-figure.wide { grid-column: 1 / -1; max-width: 900px; }
+.plots { display: flex; flex-direction: column; gap: 1rem; }
+figure { margin: 0; border: 1px solid var(--line); padding: .4rem; background: #fff;
+  max-width: 940px; }
 figure svg { display: block; width: 100%; height: auto; }
 figcaption { color: var(--muted); font-size: .82rem; padding: .3rem .2rem 0; }
 footer { margin-top: 2.5rem; color: var(--muted); font-size: .85rem; border-top: 1px solid var(--line); }
@@ -63,7 +63,6 @@ footer { margin-top: 2.5rem; color: var(--muted); font-size: .85rem; border-top:
   body { max-width: none; padding: 0; font-size: 10.5pt; }
   h2 { break-before: page; }
   figure, table, .caution { break-inside: avoid; }
-  .plots { display: block; }
   figure { margin: 0 0 .6rem; max-width: 100%; }
   .word { border-width: 1.5px; }
   a { color: inherit; text-decoration: none; }
@@ -117,8 +116,7 @@ def _break_figures(m, b, index: str, hz: bool, tick: Callable[[], None]) -> list
     out = ['<div class="plots">']
     for kind in VIEWS:
         fig = make_figure(b, kind, model=m.model, hz=hz)
-        cls = ' class="wide"' if kind == "nyquist" else ""
-        out.append(f'<figure{cls} id="{index}-{kind}">{_inline_svg(fig, f"{index}{kind[0]}-")}'
+        out.append(f'<figure id="{index}-{kind}">{_inline_svg(fig, f"{index}{kind[0]}-")}'
                    f"<figcaption>{_e(_CAPTIONS[kind])}; break {_e(b.name)}.</figcaption></figure>")
         tick()
     out.append("</div>")
