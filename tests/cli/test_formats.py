@@ -258,3 +258,12 @@ def test_a_library_file_is_neither_a_pass_nor_a_verdict():
     assert "#### drive" not in md
     assert exit_status(run) == 0
     assert "1 model checked, 1 passed, 0 failed, 1 library for `use` not checked on its own." in text
+
+
+def test_control_characters_from_a_model_never_reach_the_terminal(tmp_path):
+    bad = tmp_path / "esc.loop"
+    bad.write_text("model x\nblock G = \x1b]0;pwned\x07 1/s\n")
+    err = Finding("error", "E101", "unexpected character", Span(str(bad), 2, 11, 12))
+    out = render(run_of(errors=[err]), "text")
+    assert "\x1b" not in out and "\x07" not in out
+    assert "\ufffd]0;pwned\ufffd 1/s" in out

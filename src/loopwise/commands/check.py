@@ -91,6 +91,10 @@ def run(args) -> int:
     from ..report import render
     from ..run import check_paths, exit_status, wants_progress
 
+    # a model's own text (names, an echoed source line) may hold characters the
+    # console's encoding lacks: replace them rather than fail after the whole run
+    if hasattr(sys.stdout, "reconfigure"):
+        sys.stdout.reconfigure(errors="replace")
     settings = _settings(args)
     if args.output and not Path(args.output).resolve().parent.is_dir():
         # fail before a long run rather than after it

@@ -9,13 +9,14 @@ from __future__ import annotations
 
 import importlib
 import math
+import re
 from dataclasses import dataclass
 from typing import Callable
 
 __all__ = [
     "FORMATS", "render", "is_library", "LIBRARY_NOTE", "break_status", "model_status", "model_passes", "Tally", "tally",
     "BREAK_COLUMNS", "break_row", "unmet_requirements", "requirement_place", "finding_text",
-    "fmt_time", "count_met",
+    "fmt_time", "count_met", "printable",
 ]
 
 #: --format name -> module under loopwise.report
@@ -107,14 +108,23 @@ def requirement_place(m, r) -> str:
     return f"{r.file or m.file}:{r.line}"
 
 
+#: control characters (other than tab and newline) that a model file may hold: a
+#: source line echoed under an error must not drive the terminal it is printed on
+_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f]")
+
+
+def printable(text: str) -> str:
+    return _CONTROL.sub("\ufffd", text)
+
+
 def finding_text(f) -> str:
     """A finding with its line and caret, or a single line when it has no location."""
     from ..errors import render as render_finding
 
     if f.span.line > 0:
-        return render_finding(f)
+        return printable(render_finding(f))
     text = f"{f.span.file}: {f.severity} {f.code} {f.message}"
-    return text + (f"\n    hint: {f.hint}" if f.hint else "")
+    return printable(text + (f"\n    hint: {f.hint}" if f.hint else ""))
 
 
 # --- the per-break table ---------------------------------------------------------------
