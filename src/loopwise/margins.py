@@ -94,6 +94,9 @@ def _upper_curve(response: LoopResponse, evaluate: Evaluate | None) -> _Curve:
             s, L = np.concatenate([s, s_t]), np.concatenate([L, L_t])
             axis = np.concatenate([axis, np.ones(ws.size, dtype=bool)])
             engine = np.concatenate([engine, np.zeros(ws.size, dtype=bool)])
+    # L of a real-rational loop with real delays is real on the real axis (s = 0, the start
+    # of an indentation at the origin): drop the rounding there so the curve closes exactly
+    L = np.where(s.imag == 0, L.real + 0j, L)
     return _Curve(s, L, axis, engine)
 
 
@@ -159,13 +162,22 @@ def _negative_axis_crossings(curve: _Curve) -> list[_Crossing]:
             out.append(twin)
         else:
             out.append(_Crossing(_limit(curve, k, x), up, None))
-    # closing chord at the top: L(inf) on the arc at infinity
+    # closing chord at the top: the arc at infinity maps to L(inf), which is the
+    # origin when |L| still rolls off at the last samples (strictly proper L)
     for _, x, up, _ in _segment_crossings(L[-1:], np.conj(L[-1:])):
-        out.append(_Crossing(0.0 if abs(x) < _HORIZON else x, up, None))
+        out.append(_Crossing(0.0 if abs(x) < _HORIZON or _rolls_off(curve) else x, up, None))
     # closing chord at the bottom: the real axis at s = 0 (or the start of an indentation)
     for _, x, up, _ in _segment_crossings(np.conj(L[:1]), L[:1]):
         out.append(_Crossing(x if axis[0] else -math.inf, up, None))
     return out
+
+
+def _rolls_off(curve: _Curve) -> bool:
+    """|L| falls at least as fast as w^-1/2 over the last two axis samples."""
+    (w0, w1), (l0, l1) = curve.s[-2:].imag, np.abs(curve.L[-2:])
+    if not (curve.axis[-2] and w1 > w0 > 0 and l0 > 0 and l1 > 0):
+        return False
+    return math.log(l1 / l0) / math.log(w1 / w0) < -0.5
 
 
 def _limit(curve: _Curve, k: int, x: float) -> float:
@@ -314,6 +326,8 @@ def _phase_crossovers(crossings: list[_Crossing], curve: _Curve,
     for c in crossings:
         if c.seg is None or id(c) in seen or not curve.engine[c.seg + 1]:
             continue
+        if curve.s[c.seg].imag == 0 and curve.L[c.seg].imag == 0:
+            continue  # the curve passes through L(0) on the axis: w = 0, not a crossover
         seen.add(id(c))
         _refine(c, curve, evaluate)
         if c.freq > 0 and c.x < 0:

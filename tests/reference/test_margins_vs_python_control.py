@@ -1,0 +1,206 @@
+"""Our margins vs python-control 0.10.2 `control.stability_margins(sys, returnall=True)`.
+
+Reference and rules:
+* Crossovers: python-control finds gain crossovers (|L| = 1) and phase
+  crossovers (L real and negative) as roots of polynomials in w. Every one of
+  them (w > 0; phase crossovers up to the top of our axis samples) must match
+  one of ours to relative 1e-6, and every one of ours must match one of theirs,
+  with the same phase margin (theirs is `mod(arg L, 360) - 180` = our lag
+  shifted into [-180, 180); our phase margin = its absolute value) and the same
+  gain margin in dB. Where the two lists differ, the point in question is
+  evaluated directly (numpy.polyval of the loop's coefficients): if it is not
+  a crossover, the side that reported it is wrong. python-control's mistakes go
+  to the findings printed at the end; ours fail the test.
+* Gain margins: python-control's single answer (`returnall=False`) is the phase
+  crossover nearest to 0 dB either way, whether or not it bounds the range of
+  stable gains. It is "consistent with the Nyquist count" when the closed loop
+  (numpy.roots of den + k num) is stable for every factor between 1 and it and
+  unstable just beyond; then our gain margin (the smaller of up and -down) must
+  equal it to relative 1e-6. Otherwise it is a finding. Our own up/down margins
+  are always checked against numpy.roots in the same way.
+* The set: tests/reference/loopsets.py `delay_free_loops()` (fixed seed), orders
+  1-8, every fourth case (all families: RHP poles, integrators, light damping,
+  RHP zeros, near cancellations, biproper, gain sweeps), plus named textbook
+  loops (sources in tests/reference/test_margins_textbook.py).
+"""
+from __future__ import annotations
+
+import functools
+import math
+import warnings
+
+import control
+import numpy as np
+import pytest
+
+from loopwise.analysis import analyse_loop
+from loopwise.margins import loop_margins
+from loopwise.transfer import Transfer
+
+from .loopsets import LoopCase, closed_loop_rhp, delay_free_loops, near_axis
+
+REL = 1e-6
+
+_NAMED = [
+    # textbook-K/(s(s+1)(s+5)), K = 10: phase crossover sqrt(5), GM 30/K (from memory, re-derived
+    # in test_margins_textbook.py)
+    LoopCase("textbook/type1-three-poles", "textbook", (), (0j, -1 + 0j, -5 + 0j), 10.0),
+    # Astrom & Murray, Feedback Systems: 3/(s+1)^3
+    LoopCase("textbook/three-lags", "textbook", (), (-1 + 0j,) * 3, 3.0),
+    # Seiler, Packard & Gahinet 2020: 25/(s^3+10s^2+10s+10)
+    LoopCase("textbook/seiler-2020", "textbook", (), tuple(complex(r) for r in np.roots([1, 10, 10, 10])),
+             25.0),
+    # open-loop unstable 2(s+1)/(s(s-1)): stable for factors above 1/2 only
+    LoopCase("textbook/unstable-integrator", "textbook", (-1 + 0j,), (0j, 1 + 0j), 2.0),
+]
+CASES = [c for c in delay_free_loops() if len(c.poles) <= 8][::4] + _NAMED
+_BY_NAME = {c.name: c for c in CASES}
+FINDINGS: list[str] = []
+CHECKED: list[str] = []  # stable loops whose gain margin was compared
+
+
+def _loop(case: LoopCase) -> Transfer:
+    return Transfer.from_zpk(list(case.zeros), list(case.poles), case.gain)
+
+
+@functools.lru_cache(maxsize=None)
+def _ours(name: str):
+    case = _BY_NAME[name]
+    L = _loop(case)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = analyse_loop(L, name=name)
+    return res, loop_margins(L.evaluate, res.response, res.open_loop_rhp_poles)
+
+
+@functools.lru_cache(maxsize=None)
+def _theirs(name: str):
+    sys = _BY_NAME[name].to_control()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        all_ = control.stability_margins(sys, returnall=True)
+        one = control.stability_margins(sys)
+    return all_, one
+
+
+def _L(case: LoopCase, w: float) -> complex:
+    num, den = case.num_den()
+    with np.errstate(all="ignore"):
+        return complex(np.polyval(num, 1j * w) / np.polyval(den, 1j * w))
+
+
+def _stable_at(case: LoopCase, k: float) -> bool:
+    """numpy.roots of the closed-loop characteristic polynomial den + k num."""
+    num, den = case.num_den()
+    char = np.polyadd(den, k * num)
+    return bool(np.all(np.roots(char).real < 0))
+
+
+def _match(ours: list[float], theirs: list[float]) -> tuple[list, list, list]:
+    """Pairs within REL, and what is left on either side."""
+    left, pairs = list(theirs), []
+    missing = []
+    for w in ours:
+        j = next((j for j, v in enumerate(left) if math.isclose(v, w, rel_tol=REL)), None)
+        if j is None:
+            missing.append(w)
+        else:
+            pairs.append((w, left.pop(j)))
+    return pairs, missing, left
+
+
+def _finding(name: str, text: str) -> None:
+    FINDINGS.append(f"{name}: {text}")
+
+
+@pytest.mark.parametrize("name", [c.name for c in CASES], ids=[f"pc-{c.name}" for c in CASES])
+def test_gain_crossovers_match_python_control(name):
+    case = _BY_NAME[name]
+    _, m = _ours(name)
+    (gm, pm, _, w180, wc, _), _ = _theirs(name)
+    theirs = {float(w): float(p) for w, p in zip(wc, pm) if w > 0 and math.isfinite(p)}
+    ours = {g.freq: g for g in m.gain_crossovers}
+    pairs, only_ours, only_theirs = _match(list(ours), list(theirs))
+    for w_ours, w_theirs in pairs:
+        g, p = ours[w_ours], theirs[w_theirs]
+        assert g.lag_deg == pytest.approx(p % 360.0, rel=REL, abs=1e-7), (name, w_ours)
+        assert g.phase_margin_deg == pytest.approx(abs(p), rel=REL, abs=1e-7), (name, w_ours)
+    for w in only_ours:
+        assert abs(abs(_L(case, w)) - 1) < 1e-8, (name, "our gain crossover is not one", w)
+        _finding(name, f"python-control misses the gain crossover at {w:.9g} rad/s")
+    for w in only_theirs:
+        assert abs(abs(_L(case, w)) - 1) > 1e-6, (name, "we miss a gain crossover", w)
+        _finding(name, f"python-control reports a gain crossover at {w:.9g} rad/s where "
+                       f"|L| = {abs(_L(case, w)):.6g}")
+
+
+@pytest.mark.parametrize("name", [c.name for c in CASES], ids=[f"pc-{c.name}" for c in CASES])
+def test_phase_crossovers_match_python_control(name):
+    case = _BY_NAME[name]
+    res, m = _ours(name)
+    (gm, _, _, w180, _, _), _ = _theirs(name)
+    top = float(res.response.freq.max())
+    theirs = {float(w): float(g) for w, g in zip(w180, gm)
+              if 0 < w <= top and math.isfinite(g) and g > 0}
+    ours = {p.freq: p for p in m.phase_crossovers}
+    pairs, only_ours, only_theirs = _match(list(ours), list(theirs))
+    for w_ours, w_theirs in pairs:
+        assert ours[w_ours].gain_margin_db == pytest.approx(20 * math.log10(theirs[w_theirs]),
+                                                            rel=REL, abs=1e-7), (name, w_ours)
+    for w in only_ours:
+        L = _L(case, w)
+        assert L.real < 0 and abs(L.imag) < 1e-8 * abs(L), (name, "our phase crossover is not one", w)
+        _finding(name, f"python-control misses the phase crossover at {w:.9g} rad/s (L = {L.real:.6g})")
+    for w in only_theirs:
+        L = _L(case, w)
+        assert not (L.real < 0 and abs(L.imag) < 1e-6 * abs(L)), (name, "we miss a phase crossover", w)
+        why = " (an undamped pole pair: L is unbounded there, the contour goes round it)" \
+            if abs(L) > 1e8 else ""
+        _finding(name, f"python-control reports a phase crossover at {w:.9g} rad/s where "
+                       f"L = {L:.6g}{why}")
+
+
+def _boundary(case: LoopCase, k: float) -> bool:
+    """k bounds the stable range next to 1: stable on the way there, unstable just beyond."""
+    path = np.geomspace(1.0, k, 25)[1:-1]
+    beyond = k * (1.001 if k > 1 else 1 / 1.001)
+    inside = k * (1 / 1.001 if k > 1 else 1.001)
+    return all(_stable_at(case, x) for x in path) and _stable_at(case, inside) \
+        and not _stable_at(case, beyond)
+
+
+@pytest.mark.parametrize("name", [c.name for c in CASES], ids=[f"pc-{c.name}" for c in CASES])
+def test_gain_margins_vs_closed_loop_roots_and_python_control(name):
+    case = _BY_NAME[name]
+    res, m = _ours(name)
+    z_ref, poles = closed_loop_rhp(case)
+    if near_axis(poles, 1e-6) or z_ref != 0 or case.axis_poles - sum(1 for p in case.poles if p == 0):
+        return  # margins are claimed for clearly stable loops only (and axis pairs: a pole at a crossing)
+    assert res.stable and res.margins is not None, name
+    for db, side in ((m.gain_margin_up_db, "up"), (m.gain_margin_down_db, "down")):
+        if db is None:
+            far = 1e6 if side == "up" else 1e-6
+            assert all(_stable_at(case, k) for k in np.geomspace(1.0, far, 13)), (name, side, "unbounded")
+        else:
+            assert _boundary(case, 10 ** (db / 20)), (name, side, db)
+    (_, _, _, _, _, _), (gm, pm, _, wpc, wgc, _) = _theirs(name)
+    if m.phase_margin_deg is not None and math.isfinite(pm):
+        assert m.phase_margin_deg == pytest.approx(abs(pm), rel=REL, abs=1e-7), name
+    if not (math.isfinite(gm) and gm > 0):
+        return
+    CHECKED.append(name)
+    if _boundary(case, gm):
+        assert m.gain_margin_db == pytest.approx(abs(20 * math.log10(gm)), rel=REL, abs=1e-7), name
+    else:
+        _finding(name, f"python-control's gain margin {20 * math.log10(gm):+.4g} dB at {wpc:.6g} rad/s "
+                       "is a phase crossover, not a bound of the stable gains (numpy.roots of "
+                       f"den + k num); ours: up {m.gain_margin_up_db}, down {m.gain_margin_down_db}")
+
+
+def test_findings_report(capsys):
+    """Print python-control's disagreements (collected above; never asserted away)."""
+    with capsys.disabled():
+        print(f"\n[margins vs python-control] {len(CASES)} loops, gain margins compared on "
+              f"{len(set(CHECKED))} stable ones; {len(set(FINDINGS))} findings:")
+        for line in sorted(set(FINDINGS)):
+            print("  ", line)
