@@ -118,6 +118,22 @@ class Reduction:
     def _cut_signal(self, name: str) -> str:
         return next(b.signal for b in self.diagram.breaks if b.stmt.name == name)
 
+    def delay_step_ok(self, sa: np.ndarray, sb: np.ndarray, cut: frozenset[int] = frozenset()) -> np.ndarray:
+        """Whether each interval [sa, sb] is short enough for the delays that matter there.
+
+        Sum of the delays of the instances that are not negligible at either end
+        (|term| > 1e-6) times the interval's length must stay below pi/4.
+        """
+        rate = np.zeros(sa.shape)
+        for k, inst in enumerate(self.instances):
+            tf = inst.transfer
+            if tf is None or tf.delay == 0.0:
+                continue
+            with np.errstate(all="ignore"):
+                big = np.maximum(np.abs(self._term_values(inst, sa)), np.abs(self._term_values(inst, sb)))
+            rate += np.where(~(big < 1e-6), tf.delay, 0.0)
+        return np.abs(sb - sa) * rate <= np.pi / 4
+
     # --- high-frequency certificate ----------------------------------------------------------
     def feedthrough_split(self, cut: frozenset[int] = frozenset()):
         """A0 (delay-free feedthrough), |delayed feedthrough|, and per-instance remainders."""

@@ -3,22 +3,30 @@
 P_k = P0 + wind(det(I - A_k)): open-loop RHP poles seen at break k with the
 other loops closed. N_k = wind(1 + L_k): clockwise encirclements of -1 by L_k.
 Z = P_k + N_k: closed-loop RHP poles, the same from every break.
+
+The count uses the contour up to the certificate radius R. The margins also
+need L_k further up the axis (a delayed loop can cross -180 deg beyond R), so
+each break's response continues with an extension traced for L_k alone.
 """
 from __future__ import annotations
 
-import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
+from .errors import ModelError, Span
 from .reduce import Reduction, certificate_radius, closing_phase
 from .results import LoopResponse
 from .winding import Piece, build_contour, encirclements, phase_change, trace
 
-__all__ = ["Setup", "NyquistCount", "prepare_contour", "count_model", "count_break"]
+__all__ = ["Setup", "NyquistCount", "NeutralLoop", "prepare_contour", "count_model", "count_break"]
 
 #: a closed-loop pole this close to the axis (|1 + L| relative to 1 + |L|) is called marginal
 MARGINAL = 1e-8
+#: the margins' extension of the axis runs until every |L_k| stays below this
+REACH_LEVEL = 0.05
+#: sample budget of the margins' extension (the count itself has the engine's own budget)
+EXTENSION_SAMPLES = 60_000
 
 
 @dataclass(frozen=True, eq=False)
@@ -27,18 +35,18 @@ class Setup:
 
     pieces: tuple[Piece, ...]
     R: float
+    reach: float
     P0: int
     features: np.ndarray
     axis_poles: tuple[float, ...]
     indent: str
-    roots: np.ndarray = None
-    poles_on_axis: np.ndarray = None
+    roots: np.ndarray
+    poles_on_axis: np.ndarray
 
     def touching(self, freqs: tuple[float, ...]) -> "Setup":
         """The same contour with extra indentations around closed-loop poles on the axis."""
         pieces = build_contour(self.poles_on_axis, self.roots, self.R, self.indent, freqs)
-        return Setup(tuple(pieces), self.R, self.P0, self.features, self.axis_poles, self.indent,
-                     self.roots, self.poles_on_axis)
+        return replace(self, pieces=tuple(pieces))
 
 
 @dataclass(frozen=True, eq=False)
@@ -77,39 +85,32 @@ def _features(roots: np.ndarray) -> np.ndarray:
 def prepare_contour(red: Reduction, indent: str = "right") -> Setup:
     poles = red.block_poles()
     roots = np.concatenate([poles, red.block_zeros()])
-    cuts = [frozenset(), *red.cut_sets.values()]
     R = 0.0
-    for cut in cuts:
+    for cut in [frozenset(), *red.cut_sets.values()]:
         r, rho = certificate_radius(red, cut)
         if r is None:
             raise NeutralLoop(rho)
         R = max(R, r)
     axis = poles[poles.real == 0]
     P0 = int(np.sum(poles.real > 0)) + (axis.size if indent == "left" else 0)
-    R = max(R, _margin_reach(red, R))
     pieces = build_contour(axis, roots, R, indent)
-    return Setup(tuple(pieces), R, P0, _features(roots), tuple(sorted({abs(p.imag) for p in axis})), indent,
-                 roots, axis)
+    return Setup(tuple(pieces), R, _margin_reach(red, R), P0, _features(roots),
+                 tuple(sorted({abs(p.imag) for p in axis})), indent, roots, axis)
 
 
 def _margin_reach(red: Reduction, R: float) -> float:
-    """How far up the axis the margins need samples: until every |L_k| stays below 1e-2.
-
-    The count is certified from R on, but crossovers of a delayed loop can lie
-    beyond R; the contour simply runs further up the axis (the closing phase is
-    valid from any radius above R).
-    """
+    """How far up the axis the margins need samples: until every |L_k| stays below REACH_LEVEL."""
     if not red.cut_sets:
         return R
-    w = R * np.logspace(0.0, 6.0, 601)
+    w = R * np.logspace(0.0, 4.0, 401)
     last = R
     for name in red.cut_sets:
         with np.errstate(all="ignore"):
             mag = np.abs(red.loop_transfer(name, 1j * w))
-        big = np.nonzero(~(mag < 1e-2))[0]
+        big = np.nonzero(~(mag < REACH_LEVEL))[0]
         if big.size:
             last = max(last, float(w[min(big[-1] + 1, w.size - 1)]))
-    return min(2.0 * last, 1e6 * R)
+    return min(1.5 * last, 1e4 * R)
 
 
 def count_model(red: Reduction, setup: Setup) -> tuple[int, tuple[str, ...]]:
@@ -118,14 +119,26 @@ def count_model(red: Reduction, setup: Setup) -> tuple[int, tuple[str, ...]]:
         phase, logabs = red.characteristic(s)
         return (logabs + 1j * phase)[:, None]
 
-    tr = trace(list(setup.pieces), evaluate, setup.features, (None,))
+    tr = trace(list(setup.pieces), evaluate, setup.features, (None,), step_ok=_step_rule(red))
     total = phase_change(tr.values)[0] + closing_phase(red, frozenset(), setup.R)
     w, err = encirclements(total)
     warnings = []
-    if err > 1e-3 or not tr.complete:
+    if not tr.complete:
+        raise _uncertified(red, "the whole model", tr.s.size)
+    if err > 1e-3:
         warnings.append("numerical: the whole-model count did not settle cleanly "
                         f"(residual {err:.2g}); treat the verdict with care")
     return setup.P0 + w, tuple(warnings)
+
+
+def _step_rule(red: Reduction):
+    return red.delay_step_ok if red.has_delay else None
+
+
+def _uncertified(red: Reduction, what: str, n: int) -> ModelError:
+    return ModelError("E402", f"the Nyquist count of {what} could not be certified within {n} samples",
+                      Span(red.diagram.model.file, 1, 1),
+                      "the loop is extremely wide-band or lightly damped; check the model's numbers")
 
 
 def count_break(red: Reduction, name: str, setup: Setup) -> NyquistCount:
@@ -147,23 +160,44 @@ def _count_break(red: Reduction, name: str, setup: Setup) -> NyquistCount:
             return np.stack([ev.det_k_log + 1j * ev.det_k_phase, np.log(1.0 + ev.L + 0j),
                              np.log(ev.L + 0j)], axis=1)
 
-    tr = trace(list(setup.pieces), evaluate, setup.features, (None, None, 1e-3))
+    tr = trace(list(setup.pieces), evaluate, setup.features, (None, None, 1e-2), step_ok=_step_rule(red))
+    if not tr.complete:
+        raise _uncertified(red, f"break `{name}`", tr.s.size)
     steps = phase_change(tr.values)
     close_k = closing_phase(red, cut, setup.R)
     close_full = closing_phase(red, frozenset(), setup.R)
     wk, err_k = encirclements(steps[0] + close_k)
     N, err_n = encirclements(steps[1] + close_full - close_k)
-    L = np.exp(tr.values[:, 2])
-    response = LoopResponse(tr.s, L, tr.on_axis, setup.axis_poles)
     warnings = []
-    if max(err_k, err_n) > 1e-3 or not tr.complete:
+    if max(err_k, err_n) > 1e-3:
         warnings.append("numerical: the count did not settle cleanly "
                         f"(residual {max(err_k, err_n):.2g}); treat the verdict with care")
     for w in tr.unresolved:
         warnings.append(f"numerical: sampling could not resolve the curve near {w:.6g} rad/s")
+    s, L, on_axis = tr.s, np.exp(tr.values[:, 2]), tr.on_axis
+    if setup.reach > setup.R * (1 + 1e-12):
+        ext, complete = _extension(red, name, setup)
+        s = np.concatenate([s, ext.s[1:]])
+        L = np.concatenate([L, np.exp(ext.values[1:, 0])])
+        on_axis = np.concatenate([on_axis, ext.on_axis[1:]])
+        if not complete:
+            warnings.append(f"margins: the loop transfer beyond {setup.R:.4g} rad/s winds too often to "
+                            "sample fully; crossings there may be missing")
+    response = LoopResponse(s, L, on_axis, setup.axis_poles)
     marginal_freq = _marginal(red, name, response)
     P = setup.P0 + wk
     return NyquistCount(P, N, P + N, marginal_freq is not None, marginal_freq, tuple(warnings), response)
+
+
+def _extension(red: Reduction, name: str, setup: Setup):
+    """L_k on the axis from R to the margins' reach (no count depends on it)."""
+    def evaluate(s):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.log(red.loop_transfer(name, s) + 0j)[:, None]
+
+    tr = trace([Piece("axis", setup.R, setup.reach, log=True)], evaluate, np.zeros(0),
+               (REACH_LEVEL / 5,), EXTENSION_SAMPLES, _step_rule(red))
+    return tr, tr.complete
 
 
 def _marginal(red: Reduction, name: str, resp: LoopResponse) -> float | None:
@@ -180,7 +214,7 @@ def _marginal(red: Reduction, name: str, resp: LoopResponse) -> float | None:
         return None
     from scipy.optimize import minimize_scalar
 
-    for i in cand:
+    for i in cand[:20]:
         def f(x):
             Lx = red.loop_transfer(name, np.array([1j * x]))[0]
             return abs(1.0 + Lx) / (1.0 + abs(Lx))

@@ -157,8 +157,14 @@ def _accept(la, lb, lm, floors) -> np.ndarray:
 
 
 def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], features: np.ndarray,
-          floors: tuple[float | None, ...]) -> Trace:
-    """Adaptive sampling of `evaluate` (s -> (M, K) complex logs) along the pieces."""
+          floors: tuple[float | None, ...], max_samples: int = MAX_SAMPLES,
+          step_ok: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None) -> Trace:
+    """Adaptive sampling of `evaluate` (s -> (M, K) complex logs) along the pieces.
+
+    `step_ok(s_a, s_b)` may refuse intervals that are too long whatever the
+    samples say: a delay turns the curve by T*dw between two samples, and
+    three samples cannot tell a whole number of turns from none.
+    """
     all_u, all_piece = [], []
     for i, p in enumerate(pieces):
         u = _seed(p, features)
@@ -194,11 +200,19 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
         out_pid.append(pa)
         out_u.append(um)
         ok = _accept(la, lb, lm, floors)
+        if step_ok is not None:
+            sa = np.empty(um.size, complex)
+            sb = np.empty(um.size, complex)
+            for i in np.unique(pa):
+                sel = pa == i
+                sa[sel] = pieces[i].points(ua[sel])
+                sb[sel] = pieces[i].points(ub[sel])
+            ok &= step_ok(sa, sb)
         tiny = (ub - ua) < 1e-13
         if np.any(tiny & ~ok):
             unresolved.extend(float(x) for x in sm[tiny & ~ok].imag)
         redo = ~ok & ~tiny
-        if total > MAX_SAMPLES:
+        if total > max_samples:
             complete = not np.any(redo)
             break
         ua = np.concatenate([ua[redo], um[redo]])
