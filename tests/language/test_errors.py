@@ -295,7 +295,7 @@ break b at y
 
 def _model_error(text: str, *, line: int, file: str = "m.loop") -> ModelError:
     with pytest.raises((ModelError, ModelErrors)) as info:
-        _prepare_text(text, file)
+        _check_text(text, file)  # the errors come before the engine runs
     errors = _errors(info)
     hit = [e for e in errors if e.span.line == line]
     assert hit, [str(e) for e in errors]
@@ -417,12 +417,17 @@ def _prepare_file(path):
     return prepare_file(path)
 
 
+def _check_file(path):
+    from loopwise.analysis import check_file
+    return check_file(path)
+
+
 def test_missing_include(tmp_path):
     main = tmp_path / "main.loop"
     text = BASE.replace("model m\n", 'model m\nuse "common/nowhere.loop"\n')
     main.write_text(text)
     with pytest.raises((ModelError, ModelErrors)) as info:
-        _prepare_file(main)
+        _check_file(main)
     err = _errors(info)[0]
     assert err.span.line == 2 and "nowhere.loop" in err.message and err.hint
     assert_rendered(err, text, file=err.span.file)
@@ -434,11 +439,29 @@ def test_include_cycle(tmp_path):
     main = tmp_path / "main.loop"
     main.write_text(BASE.replace("model m\n", 'model m\nuse "a.loop"\n'))
     with pytest.raises((ModelError, ModelErrors)) as info:
-        _prepare_file(main)
+        _check_file(main)
     err = _errors(info)[0]
     assert "a.loop" in str(err.span.file) or "b.loop" in str(err.span.file)
     assert err.span.line == 1 and err.hint
     assert "cycle" in err.message or "circular" in err.message or "includes itself" in err.message
+
+
+def test_error_inside_an_include_points_into_that_file(tmp_path):
+    (tmp_path / "common").mkdir()
+    lib = tmp_path / "common" / "ctl.loop"
+    lib_text = "param k = 2\nblock C = k*(1 + 1/(0.5 s))\n"
+    lib.write_text(lib_text)
+    main = tmp_path / "main.loop"
+    main.write_text(BASE.replace("model m\n", 'model m\nuse "common/ctl.loop"\n')
+                    .replace("block C = 2*(1 + 1/(0.5*s))\n", ""))
+    with pytest.raises((ModelError, ModelErrors)) as info:
+        _check_file(main)
+    errors = _errors(info)
+    inside = [e for e in errors if e.span.file.endswith("ctl.loop")]
+    assert inside, [str(e) for e in errors]
+    err = inside[0]
+    assert err.code == "E102" and err.span.line == 2
+    assert_rendered(err, lib_text, file=err.span.file)
 
 
 def test_include_brings_params_and_blocks(tmp_path):
