@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 
 from . import __version__
@@ -30,7 +31,7 @@ class _Parser(argparse.ArgumentParser):
     """argparse that raises instead of printing a usage block and exiting."""
 
     def error(self, message: str):  # noqa: D401
-        raise UsageError(f"{self.prog}: {message} (see `{self.prog} --help`)")
+        raise UsageError(f"{message} (see `{self.prog} --help`)")
 
 
 def _build_parser(command: str | None) -> argparse.ArgumentParser:
@@ -79,6 +80,12 @@ def main(argv: list[str] | None = None) -> int:
         return 130
     except BrokenPipeError:
         return 1
+    except Exception as exc:  # noqa: BLE001 - a bug must not reach the user as a traceback
+        if os.environ.get("LOOPWISE_DEBUG"):
+            raise
+        print(f"loopwise: internal error ({type(exc).__name__}: {exc}); no verdict was given. "
+              "Set LOOPWISE_DEBUG=1 to see the traceback, and please report it.", file=sys.stderr)
+        return 2
 
 
 def entry() -> None:

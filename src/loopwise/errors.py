@@ -117,6 +117,8 @@ def render(finding: Finding, text: str | None = None) -> str:
     head = f"{finding.span}: {finding.severity} {finding.code} {finding.message}"
     out = [head]
     line = source_line(finding.span, text)
+    if finding.code == "E104":
+        line = None  # not text: echoing it would only print garbage
     if line is not None:
         col = max(finding.span.col, 1)
         width = 1
