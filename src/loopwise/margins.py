@@ -339,42 +339,44 @@ def _phase_crossovers(crossings: list[_Crossing], curve: _Curve,
 
 def _peak(curve: _Curve, evaluate: Evaluate, fn: Callable[[np.ndarray], np.ndarray],
           low_limit: float | None) -> Peak:
-    """max over the axis of fn(L(jw)), refined with a bounded scalar search.
+    """sup over the axis of fn(L(jw)): the best sample refined by a bounded scalar search,
+    unless a limit is as large (then the frequency is 0.0 or inf).
 
-    `low_limit` is the value as w -> 0 when an integrator sits at s = 0 (the
-    axis starts on an indentation); the far end of the tail stands for w -> inf.
+    `low_limit` is the value as w -> 0 when an integrator sits at s = 0; the far
+    end of the curve stands for w -> inf (L there is L(inf), or as good as).
     """
-    from scipy.optimize import minimize_scalar
-
     best = Peak(-math.inf, math.nan)
-    runs = _axis_runs(curve)
-    for run in runs:
+    for run in _axis_runs(curve):
         w = curve.s[run].imag
         with np.errstate(all="ignore"):
             v = np.nan_to_num(fn(curve.L[run]), nan=-math.inf)
         i = int(np.argmax(v))
-        if v[i] <= best.value:
-            continue
-        best = Peak(float(v[i]), float(w[i]))
-        if 0 < i < w.size - 1:
-            lo, hi = w[i - 1], w[i + 1]
-            if lo > 0:
-                obj = lambda u: -float(fn(evaluate(np.array([1j * math.exp(u)])))[0])  # noqa: E731
-                r = minimize_scalar(obj, bounds=(math.log(lo), math.log(hi)), method="bounded",
-                                    options={"xatol": 1e-12})
-                wr = math.exp(r.x)
-            else:
-                obj = lambda x: -float(fn(evaluate(np.array([1j * x])))[0])  # noqa: E731
-                r = minimize_scalar(obj, bounds=(lo, hi), method="bounded",
-                                    options={"xatol": 1e-12 * hi})
-                wr = r.x
-            if -r.fun > best.value:
-                best = Peak(float(-r.fun), float(wr))
-    if best.freq == curve.s[runs[-1][-1]].imag and not curve.engine[-1]:
-        best = Peak(best.value, math.inf)  # still rising at the far end: the limit w -> inf
-    if low_limit is not None and low_limit >= best.value:
-        best = Peak(low_limit, 0.0)
-    return best
+        if v[i] > best.value:
+            best = _refine_peak(evaluate, fn, w, i, Peak(float(v[i]), float(w[i])))
+    with np.errstate(all="ignore"):
+        high = float(fn(curve.L[-1:])[0])
+    limits = [Peak(high, math.inf)] + ([Peak(low_limit, 0.0)] if low_limit is not None else [])
+    top = max(limits, key=lambda p: p.value)
+    return best if best.value > top.value * (1 + 1e-9) else top
+
+
+def _refine_peak(evaluate: Evaluate, fn, w: np.ndarray, i: int, sample: Peak) -> Peak:
+    """Bounded scalar search between the neighbours of the best sample (in log w)."""
+    if not 0 < i < w.size - 1:
+        return sample
+    from scipy.optimize import minimize_scalar
+
+    lo, hi = w[i - 1], w[i + 1]
+    if lo > 0:
+        obj = lambda u: -float(fn(evaluate(np.array([1j * math.exp(u)])))[0])  # noqa: E731
+        r = minimize_scalar(obj, bounds=(math.log(lo), math.log(hi)), method="bounded",
+                            options={"xatol": 1e-12})
+        wr = math.exp(r.x)
+    else:
+        obj = lambda x: -float(fn(evaluate(np.array([1j * x])))[0])  # noqa: E731
+        r = minimize_scalar(obj, bounds=(lo, hi), method="bounded", options={"xatol": 1e-12 * hi})
+        wr = r.x
+    return Peak(float(-r.fun), float(wr)) if -r.fun > sample.value else sample
 
 
 def _sensitivity(L: np.ndarray) -> np.ndarray:
