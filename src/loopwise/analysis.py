@@ -91,6 +91,13 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
             f"{exc.rho:.3g} (>= 1), so no finite frequency range certifies its stability", Span(model.file, 1, 1),
             "a loop with direct feedthrough and a delay must have a high-frequency gain below 1; "
             "add a filter pole") from None
+    roots = np.abs(setup.roots[setup.roots != 0])
+    if roots.size and roots.max() / roots.min() > 1e10:
+        findings.append(Finding(
+            "warning", "W403", f"poles and zeros span {np.log10(roots.max() / roots.min()):.0f} decades "
+            f"({roots.min():.3g} to {roots.max():.3g} rad/s): double precision may not resolve such a model; "
+            "treat its margins with care", Span(model.file, 1, 1),
+            "rescale time (e.g. work in ms) or drop modes far outside the loop's bandwidth"))
     Z, model_warnings = count_model(red, setup)
     for w in model_warnings:
         findings.append(Finding("warning", "W402", w, Span(model.file, 1, 1)))

@@ -121,6 +121,9 @@ def hidden_modes(red: Reduction, name: str) -> list[tuple[complex, tuple[str, ..
         obs = np.linalg.svd(np.vstack([l * np.eye(n) - ss.A, ss.C]), compute_uv=False)[-1]
         if min(ctrl, obs) < 1e-8 * scale:
             v = np.abs(vecs[:, i])
-            names = tuple(dict.fromkeys(ss.owners[j] for j in np.argsort(v)[::-1][:3] if v[j] > 0.1 * v.max()))
-            out.append((complex(l), names))
+            owners = [ss.owners[j] for j in np.argsort(v)[::-1][:3] if v[j] > 0.1 * v.max()]
+            # and the blocks whose zeros cancel it
+            owners += [inst.term.app.label for inst in red.instances if inst.transfer is not None
+                       and np.any(np.abs(inst.transfer.zeros - l) <= 1e-6 * max(1.0, abs(l)))]
+            out.append((complex(l), tuple(dict.fromkeys(owners))))
     return out
