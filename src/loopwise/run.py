@@ -196,9 +196,14 @@ def _worker_start() -> None:
 def _run_parallel(files, settings, jobs, tick):
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
+    from . import analysis  # noqa: F401  (loaded once here, forked workers inherit it)
+
     out: list = [None] * len(files)
     with ProcessPoolExecutor(max_workers=jobs, initializer=_worker_start) as pool:
-        futures = {pool.submit(check_one, str(f), settings): i for i, f in enumerate(files)}
+        # larger files first (a rough proxy for cost) so a big model does not start
+        # last and leave the other workers idle; results keep discovery order
+        order = sorted(range(len(files)), key=lambda i: -_size(files[i]))
+        futures = {pool.submit(check_one, str(files[i]), settings): i for i in order}
         try:
             for fut in as_completed(futures):
                 i = futures[fut]
@@ -208,6 +213,13 @@ def _run_parallel(files, settings, jobs, tick):
             pool.shutdown(wait=True, cancel_futures=True)  # only models in flight finish
             raise
     return out
+
+
+def _size(path: Path) -> int:
+    try:
+        return path.stat().st_size
+    except OSError:
+        return 0
 
 
 def _outcome(fut, path):
