@@ -263,7 +263,9 @@ def check_paths(paths, settings=None, jobs: int = 1, progress: bool = False):
         if bar is not None:
             bar.stop()
     models = tuple(m for m, _ in outcomes if m is not None)
-    errors = tuple(e for _, errs in outcomes for e in errs)
+    # an error outside the model itself (a shared `use` file, a settings requirement)
+    # comes back from every model that meets it: report it once
+    errors = tuple(dict.fromkeys(e for _, errs in outcomes for e in errs))
     return RunResult(models=models, errors=errors, version=__version__)
 
 

@@ -94,7 +94,7 @@ def render(run, colour: bool = False, fail_on_warnings: bool = False) -> str:
     if run.errors:
         files = sorted({e.span.file for e in run.errors}, key=[e.span.file for e in run.errors].index)
         for name in files:
-            out.append(f"{_paint('ERROR', 'ERROR', colour)}  {name}: the model could not be read")
+            out.append(f"{_paint('ERROR', 'ERROR', colour)}  {name}: errors stop the check")
             for e in run.errors:
                 if e.span.file == name:
                     out += ["  " + line for line in finding_text(e).splitlines()]
