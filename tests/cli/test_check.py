@@ -343,3 +343,13 @@ def test_a_run_with_the_progress_bar_gives_the_same_result(tmp_path):
     without = check_paths([tmp_path / "d"], Settings(), jobs=1, progress=False)
     assert with_bar.to_dict() == without.to_dict()
     assert len(with_bar.models) == PROGRESS_MIN_MODELS
+
+
+def test_an_error_in_a_shared_file_is_reported_once(tmp_path, cli):
+    write(tmp_path, "lib/shared.loop", "param k = 2*\n")
+    for name in ("a", "b"):
+        write(tmp_path, f"{name}.loop", f'model {name}\nuse "lib/shared.loop"\n' + GOOD.split("\n", 1)[1])
+    code, out, _ = cli("check", "a.loop", "b.loop", "--format", "json")
+    assert code == 2
+    errors = json.loads(out)["errors"]
+    assert len(errors) == 1 and errors[0]["file"].endswith("shared.loop"), errors
