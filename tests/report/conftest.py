@@ -49,6 +49,14 @@ e = r - y
 y = [2*(s+0.5)/(s^2*(0.05*s+1))](e)
 break loop at y
 """, ([-0.5], [0, 0, -20], 40.0, 0.0), True),
+    # invented: a lightly supported mass on a spring with no damping: an undamped
+    # pole pair on the axis at 2 rad/s, indented; stable with two gain crossovers
+    "undamped_pair": ("""model undamped_pair
+input r
+e = r - y
+y = [0.5*(s+1)/((s^2+4)*(s+2))](e)
+break loop at y
+""", ([-1], [2j, -2j, -2], 0.5, 0.0), True),
 }
 
 

@@ -24,10 +24,12 @@ from .conftest import LOOPS
 
 
 def _line(fig, gid):
+    """The drawn points of one line; NaN gaps (lines broken at axis poles) dropped."""
     found = [l for ax in fig.axes for l in ax.get_lines() if l.get_gid() == gid]
     assert len(found) == 1, gid
     x, y = found[0].get_data()
-    return np.asarray(x, float) + 1j * np.asarray(y, float)
+    z = np.asarray(x, float) + 1j * np.asarray(y, float)
+    return z[np.isfinite(z)]
 
 
 def _ray_crossings(z: np.ndarray, about: float = -1.0) -> int:
@@ -208,3 +210,34 @@ def test_only_plots_imports_matplotlib():
             "loopwise.report.html, loopwise.report.geometry; "
             "assert 'matplotlib' not in sys.modules, 'matplotlib imported too early'")
     subprocess.run([sys.executable, "-c", code], check=True)
+
+
+def test_unstable_loop_crossovers_are_read_off_the_samples(loops):
+    """10/(s+1)^3 (re-derived): phase crossover where 3 atan(w) = 180 deg, w = sqrt(3),
+    |L| = 10/8 there (gain margin -20 log10(1.25) = -1.94 dB); gain crossover where
+    (1 + w^2)^(3/2) = 10, w = sqrt(10^(2/3) - 1) = 1.908."""
+    result = loops["three_lags_high"]
+    assert result.margins is None and not result.stable
+    marks = {c.kind: c for c in crossings(result)}
+    assert not marks["gain"].exact and not marks["phase"].exact
+    assert marks["phase"].freq == pytest.approx(math.sqrt(3), rel=5e-3)
+    assert marks["phase"].margin == pytest.approx(-20 * math.log10(1.25), abs=0.05)
+    assert marks["gain"].freq == pytest.approx(math.sqrt(10 ** (2 / 3) - 1), rel=5e-3)
+    notes = "\n".join(t.get_text() for a in plots.nyquist_figure(result).axes for t in a.texts)
+    assert "\u2248" in notes and "UNSTABLE" in notes
+
+
+def test_undamped_pair_lines_break_at_the_pole(loops):
+    result = loops["undamped_pair"]
+    fig = plots.bode_figure(result)
+    line = next(l for l in fig.axes[0].get_lines() if l.get_gid() == "bode-magnitude")
+    x = np.asarray(line.get_xdata(), float)
+    gap = np.flatnonzero(np.isnan(x))
+    assert len(gap) == 1 and x[gap[0] - 1] < 2.0 < x[gap[0] + 1]
+
+
+def test_no_progress_bar_without_a_terminal(model_files, tmp_path, capsys):
+    assert main(["plot", str(model_files / "three_lags.loop"), "--kind", "all",
+                 "--output", str(tmp_path / "f.svg")]) == 0
+    captured = capsys.readouterr()
+    assert captured.err == "" and captured.out.count("wrote ") == 3

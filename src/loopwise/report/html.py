@@ -86,18 +86,28 @@ def figure_count(run) -> int:
 
 
 def _unique_ids(svg: str, prefix: str) -> str:
-    """Prefix every id and its references, so many figures can share one page."""
+    """Prefix every id and its references, so many figures can share one page.
+
+    A name given to several artists (e.g. every gain-crossover marker) is
+    numbered after its first use; such names are never referenced."""
     ids = set(re.findall(r'\sid="([^"]+)"', svg))
     if not ids:
         return svg
+    seen: dict[str, int] = {}
 
-    def swap(match):
+    def define(match):
+        name = match.group(2)
+        seen[name] = seen.get(name, 0) + 1
+        extra = f"-{seen[name]}" if seen[name] > 1 else ""
+        return f"{match.group(1)}{prefix}{name}{extra}"
+
+    def refer(match):
         name = match.group(2)
         return f"{match.group(1)}{prefix}{name}" if name in ids else match.group(0)
 
-    svg = re.sub(r'(\sid=")([^"]+)', swap, svg)
-    svg = re.sub(r'(href="#)([^"]+)', swap, svg)
-    return re.sub(r'(url\(#)([^)]+)', swap, svg)
+    svg = re.sub(r'(\sid=")([^"]+)', define, svg)
+    svg = re.sub(r'(href="#)([^"]+)', refer, svg)
+    return re.sub(r'(url\(#)([^)]+)', refer, svg)
 
 
 def _inline_svg(fig, prefix: str) -> str:

@@ -290,6 +290,16 @@ def _log_frequency_axis(ax) -> None:
     ax.xaxis.set_minor_formatter(NullFormatter())
 
 
+def _gapped(result: BreakResult, x: np.ndarray, scale: float, *ys: np.ndarray):
+    """The arrays with a NaN between the two samples either side of each axis
+    pole, so a line does not jump straight across a pole that is not on the axis."""
+    poles = sorted(p * scale for p in result.response.axis_poles if p > 0)
+    cuts = [int(i) for i in np.searchsorted(x, poles) if 0 < i < x.size]
+    if not cuts:
+        return (x, *ys)
+    return tuple(np.insert(np.asarray(a, float), cuts, np.nan) for a in (x, *ys))
+
+
 def _phase_locator(span: float):
     from matplotlib.ticker import MultipleLocator
 
@@ -309,22 +319,22 @@ def bode_figure(result: BreakResult, *, model: str | None = None, hz: bool = Fal
         mag_ax, ph_ax, key = axes["mag"], axes["phase"], axes["key"]
         ph_ax.sharex(mag_ax)
         mag_ax.tick_params(labelbottom=False)
-        mag_ax.semilogx(x, 20 * np.log10(np.abs(L)), color=INK["curve"], lw=1.8,
-                        gid="bode-magnitude")
-        ph_ax.semilogx(x, phase, color=INK["curve"], lw=1.8, gid="bode-phase")
+        gx, g_mag, g_phase = _gapped(result, x, scale, 20 * np.log10(np.abs(L)), phase)
+        mag_ax.semilogx(gx, g_mag, color=INK["curve"], lw=1.8, gid="bode-magnitude")
+        ph_ax.semilogx(gx, g_phase, color=INK["curve"], lw=1.8, gid="bode-phase")
         mag_ax.axhline(0, color=INK["guide"], lw=0.9, ls=(0, (4, 2)))
         for wp in _need_response(result).axis_poles:
             if wp > 0:
                 for a in (mag_ax, ph_ax):
                     a.axvline(wp * scale, color="#999999", lw=0.7, ls=(0, (1, 1)))
         levels, lines, focus = set(), [], []
-        for tag, c in _tagged(result):
+        for n, (tag, c) in enumerate(_tagged(result)):
             xc = c.freq * scale
             if not (x.size and x[0] <= xc <= x[-1]):
                 continue
             pc = float(np.interp(math.log(c.freq), np.log(w), phase))
             if c.kind == "gain":
-                level = _bode_gain_mark(mag_ax, ph_ax, c, tag, xc, pc)
+                level = _bode_gain_mark(mag_ax, ph_ax, c, tag, xc, pc, up=n % 2 == 0)
                 levels.add(round(level / 180.0) * 180.0)
             else:
                 _bode_phase_mark(mag_ax, ph_ax, c, tag, xc, pc)
@@ -376,7 +386,7 @@ def _bode_key(key, result: BreakResult, lines: list[str]) -> None:
              fontsize=7.5, color="#333333", linespacing=1.35, gid="bode-key")
 
 
-def _bode_gain_mark(mag_ax, ph_ax, c, tag, xc, pc) -> float:
+def _bode_gain_mark(mag_ax, ph_ax, c, tag, xc, pc, up: bool = True) -> float:
     lag = c.lag_deg if c.lag_deg is not None else 180.0
     # the -1 line of this branch: rotate the phase down by lag, or up by 360 - lag
     level = pc - lag if lag <= 180 else pc + (360 - lag)
@@ -385,7 +395,7 @@ def _bode_gain_mark(mag_ax, ph_ax, c, tag, xc, pc) -> float:
                 zorder=5, gid="gain-crossover")
     for a in (mag_ax, ph_ax):
         a.axvline(xc, color=color, lw=0.6, ls=(0, (2, 2)), alpha=0.8)
-    _tag(mag_ax, tag, xc, 0, color, (0, 9))
+    _tag(mag_ax, tag, xc, 0, color, (0, 9) if up else (0, -10))  # neighbours alternate
     ph_ax.annotate("", xy=(xc, level), xytext=(xc, pc),
                    arrowprops=dict(arrowstyle="<|-|>", color=color, lw=1.2, mutation_scale=9,
                                    shrinkA=0, shrinkB=0), gid="phase-margin-arrow")
@@ -425,8 +435,9 @@ def sensitivity_figure(result: BreakResult, *, model: str | None = None, hz: boo
         with np.errstate(divide="ignore"):
             s_db = -20 * np.log10(np.abs(1 + L))
             t_db = 20 * np.log10(np.abs(L)) + s_db
-        ax.semilogx(x, s_db, color=INK["curve"], lw=1.8, label="|S| = |1/(1+L)|", gid="sens-S")
-        ax.semilogx(x, t_db, color=INK["t"], lw=1.6, ls=(0, (6, 2)),
+        gx, g_s, g_t = _gapped(result, x, scale, s_db, t_db)
+        ax.semilogx(gx, g_s, color=INK["curve"], lw=1.8, label="|S| = |1/(1+L)|", gid="sens-S")
+        ax.semilogx(gx, g_t, color=INK["t"], lw=1.6, ls=(0, (6, 2)),
                     label="|T| = |L/(1+L)|", gid="sens-T")
         ax.axhline(0, color=INK["guide"], lw=0.9, ls=(0, (4, 2)))
         lines = _sensitivity_marks(ax, result, x, scale, hz)
