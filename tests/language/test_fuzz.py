@@ -127,3 +127,50 @@ def test_mutations_change_the_text():
     text = TEXTS["servo_axis.loop"]
     for kind in CHAR_KINDS + TOKEN_KINDS + LINE_KINDS:
         assert _mutate(text, kind, 0.37, "@@") != text, kind
+
+
+# --- layout never changes meaning ------------------------------------------------
+
+def _shape(node):
+    """A node as nested tuples without its positions (what the model means)."""
+    import dataclasses
+    from loopwise.errors import Span
+    if isinstance(node, tuple):
+        return tuple(_shape(n) for n in node if not isinstance(n, Span))
+    if dataclasses.is_dataclass(node) and not isinstance(node, Span):
+        return (type(node).__name__,) + tuple(
+            _shape(getattr(node, f.name)) for f in dataclasses.fields(node)
+            if not isinstance(getattr(node, f.name), Span) and f.name != "path")
+    return node
+
+
+def _relayout(text: str, kind: str, where: float) -> str:
+    end = "\r\n" if "\r\n" in text else "\n"
+    lines = [line.rstrip("\r") for line in text.split("\n")]
+    i = min(int(where * len(lines)), len(lines) - 1)
+    if kind == "blank_line":
+        lines.insert(i, "   ")
+    elif kind == "comment_line":
+        lines.insert(i, "# an added comment: ( [ = * -> 3 ms")
+    elif kind == "trailing_comment":
+        if lines[i].strip() and not lines[i].rstrip().endswith("\\"):
+            lines[i] += "   # added"
+    elif kind == "indent":
+        lines[i] = "\t  " + lines[i]
+    elif kind == "crlf":
+        end = "\r\n"
+    return end.join(lines)
+
+
+@settings(max_examples=100, deadline=None)
+@given(st.sampled_from(sorted(TEXTS)),
+       st.lists(st.tuples(st.sampled_from(["blank_line", "comment_line", "trailing_comment",
+                                           "indent", "crlf"]),
+                          st.floats(min_value=0.0, max_value=1.0, exclude_max=True)),
+                min_size=1, max_size=5))
+def test_layout_changes_do_not_change_the_model(name, edits):
+    text = TEXTS[name]
+    changed = text
+    for kind, where in edits:
+        changed = _relayout(changed, kind, where)
+    assert _shape(parse_text(changed, name).statements) == _shape(parse_text(text, name).statements)
