@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import textwrap
 
 import pytest
 
@@ -10,7 +11,7 @@ from loopwise.errors import ModelError, Span
 from loopwise.language import ast
 from loopwise.language.parse import parse_text
 
-from .conftest import ALL_LOOP_FILES, one, parse, parse_error, rhs
+from .conftest import ALL_LOOP_FILES, MODELS, ROOT, one, parse, parse_error, rhs
 
 
 # --- statement forms -----------------------------------------------------------
@@ -408,3 +409,28 @@ def test_syntax_tree_is_immutable():
     stmt = one("param a = 1")
     with pytest.raises(dataclasses.FrozenInstanceError):
         stmt.name = "b"  # type: ignore[misc]
+
+
+# --- the reference's examples --------------------------------------------------------
+
+DOCS = ROOT / "docs" / "language.md"
+
+
+def _doc_examples() -> list[str]:
+    import re
+    return [textwrap.dedent(m.group(1)) for m in
+            re.finditer(r"```loop\n(.*?)```", DOCS.read_text("utf-8"), flags=re.S)]
+
+
+def test_every_example_in_the_language_reference_parses():
+    examples = _doc_examples()
+    assert len(examples) >= 10
+    for example in examples:
+        parse_text(example, "docs/language.md")
+
+
+def test_the_reference_shows_the_servo_demo_as_it_is():
+    example = _doc_examples()[-1]
+    demo = (MODELS / "servo_axis.loop").read_text("utf-8")
+    body = [line for line in demo.split("\n") if line and not line.startswith("#")]
+    assert [line for line in example.split("\n") if line] == body
