@@ -98,6 +98,7 @@ def test_a_file_that_is_not_text_is_reported_and_others_still_checked(tmp_path, 
 
 
 @pytest.mark.parametrize("args, expect", [
+    (["check"], "the following arguments are required: PATH"),
     (["check", "missing.loop"], "missing.loop: no such file or folder"),
     (["check", "empty"], "empty: no *.loop models in this folder"),
     (["check", "m.loop", "--bogus"], "unrecognized arguments: --bogus"),
