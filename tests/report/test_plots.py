@@ -241,3 +241,12 @@ def test_no_progress_bar_without_a_terminal(model_files, tmp_path, capsys):
                  "--output", str(tmp_path / "f.svg")]) == 0
     captured = capsys.readouterr()
     assert captured.err == "" and captured.out.count("wrote ") == 3
+
+
+def test_plot_of_an_unreadable_model_prints_the_located_error_and_exits_2(tmp_path, capsys):
+    bad = tmp_path / "bad.loop"
+    bad.write_text("model bad\ninput r\ne = r - y\ny = [2/(s+1)](e_typo)\nbreak loop at y\n")
+    assert main(["plot", str(bad), "--output", str(tmp_path / "f.svg")]) == 2
+    err = capsys.readouterr().err
+    assert f"{bad}:4:15:" in err and "^" in err and "Traceback" not in err
+    assert not (tmp_path / "f.svg").exists()
