@@ -15,7 +15,8 @@ from ..results import BreakResult, LoopResponse
 
 __all__ = [
     "Ring", "choose_ring", "closed_curve", "winding_number", "Crossing",
-    "crossings", "unwrapped_phase_deg", "verdict_word", "bode_range",
+    "crossings", "unwrapped_phase_deg", "verdict_word", "bode_range", "decade_label",
+    "gap_at_axis_poles",
 ]
 
 #: radius of the true-scale disk when a ring is drawn: -1 and the unit circle
@@ -218,3 +219,29 @@ def bode_range(response: LoopResponse, marks: tuple[Crossing, ...]) -> np.ndarra
         return np.ones(w.size, bool)
     lo, hi = min(keys) / 1e3, max(keys) * 1e2
     return (w >= lo) & (w <= hi)
+
+
+def gap_at_axis_poles(response: LoopResponse, x: np.ndarray, scale: float, *ys: np.ndarray):
+    """The arrays with a NaN between the two samples either side of each axis
+    pole (x ascending, in units of `scale` rad/s), so a drawn line does not jump
+    straight across a pole that is not on the axis."""
+    poles = sorted(p * scale for p in response.axis_poles if p > 0)
+    cuts = [int(i) for i in np.searchsorted(x, poles) if 0 < i < x.size]
+    if not cuts:
+        return (x, *ys)
+    return tuple(np.insert(np.asarray(a, float), cuts, np.nan) for a in (x, *ys))
+
+
+_SUPERSCRIPT = str.maketrans("-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079")
+
+
+def decade_label(x: float, _pos=None) -> str:
+    """1, 10, 10\u00b2, 10\u207b\u00b9 in plain Unicode for log axes (math-text typesetting
+    costs about a second a figure); empty between decades."""
+    if x <= 0:
+        return ""
+    k = math.log10(x)
+    if abs(k - round(k)) > 1e-9:
+        return ""
+    k = int(round(k))
+    return {0: "1", 1: "10"}.get(k, "10" + str(k).translate(_SUPERSCRIPT))

@@ -23,8 +23,8 @@ from pathlib import Path
 import numpy as np
 
 from ..results import BreakResult
-from .geometry import (Ring, bode_range, choose_ring, closed_curve, crossings,
-                       unwrapped_phase_deg, verdict_word)
+from .geometry import (Ring, bode_range, choose_ring, closed_curve, crossings, decade_label,
+                       gap_at_axis_poles, unwrapped_phase_deg, verdict_word)
 
 __all__ = ["KINDS", "SUFFIXES", "INK", "nyquist_figure", "bode_figure", "sensitivity_figure",
            "make_figure", "save_figure", "svg_text"]
@@ -109,7 +109,7 @@ def _arrows(ax, z: np.ndarray, color: str, fractions) -> None:
     """Arrow heads at fractions of the drawn length, pointing along traversal."""
     if z.size < 3:
         return
-    step = np.abs(np.diff(z))
+    step = np.nan_to_num(np.abs(np.diff(z)), nan=0.0, posinf=0.0)
     length = np.concatenate([[0.0], np.cumsum(step)])
     total = length[-1]
     if total <= 0:
@@ -266,38 +266,14 @@ def _axis_data(result: BreakResult, hz: bool):
     return w[keep], w[keep] * scale, L[keep], phase[keep], scale
 
 
-_SUPERSCRIPT = str.maketrans("-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079")
-
-
-def _decade_label(x: float, _pos=None) -> str:
-    """10\u207b\u00b3 style labels in plain Unicode: mathtext parsing costs a second a figure."""
-    if x <= 0:
-        return ""
-    k = math.log10(x)
-    if abs(k - round(k)) > 1e-9:
-        return ""
-    k = int(round(k))
-    return {0: "1", 1: "10"}.get(k, "10" + str(k).translate(_SUPERSCRIPT))
-
-
 def _log_frequency_axis(ax) -> None:
     from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
     ax.xaxis.set_major_locator(LogLocator(base=10, numticks=12))
     # two minor ticks a decade read as well as eight and cost a quarter of the drawing
     ax.xaxis.set_minor_locator(LogLocator(base=10, subs=(2.0, 5.0), numticks=12))
-    ax.xaxis.set_major_formatter(FuncFormatter(_decade_label))
+    ax.xaxis.set_major_formatter(FuncFormatter(decade_label))
     ax.xaxis.set_minor_formatter(NullFormatter())
-
-
-def _gapped(result: BreakResult, x: np.ndarray, scale: float, *ys: np.ndarray):
-    """The arrays with a NaN between the two samples either side of each axis
-    pole, so a line does not jump straight across a pole that is not on the axis."""
-    poles = sorted(p * scale for p in result.response.axis_poles if p > 0)
-    cuts = [int(i) for i in np.searchsorted(x, poles) if 0 < i < x.size]
-    if not cuts:
-        return (x, *ys)
-    return tuple(np.insert(np.asarray(a, float), cuts, np.nan) for a in (x, *ys))
 
 
 def _phase_locator(span: float):
@@ -319,7 +295,7 @@ def bode_figure(result: BreakResult, *, model: str | None = None, hz: bool = Fal
         mag_ax, ph_ax, key = axes["mag"], axes["phase"], axes["key"]
         ph_ax.sharex(mag_ax)
         mag_ax.tick_params(labelbottom=False)
-        gx, g_mag, g_phase = _gapped(result, x, scale, 20 * np.log10(np.abs(L)), phase)
+        gx, g_mag, g_phase = gap_at_axis_poles(result.response, x, scale, 20 * np.log10(np.abs(L)), phase)
         mag_ax.semilogx(gx, g_mag, color=INK["curve"], lw=1.8, gid="bode-magnitude")
         ph_ax.semilogx(gx, g_phase, color=INK["curve"], lw=1.8, gid="bode-phase")
         mag_ax.axhline(0, color=INK["guide"], lw=0.9, ls=(0, (4, 2)))
@@ -435,7 +411,7 @@ def sensitivity_figure(result: BreakResult, *, model: str | None = None, hz: boo
         with np.errstate(divide="ignore"):
             s_db = -20 * np.log10(np.abs(1 + L))
             t_db = 20 * np.log10(np.abs(L)) + s_db
-        gx, g_s, g_t = _gapped(result, x, scale, s_db, t_db)
+        gx, g_s, g_t = gap_at_axis_poles(result.response, x, scale, s_db, t_db)
         ax.semilogx(gx, g_s, color=INK["curve"], lw=1.8, label="|S| = |1/(1+L)|", gid="sens-S")
         ax.semilogx(gx, g_t, color=INK["t"], lw=1.6, ls=(0, (6, 2)),
                     label="|T| = |L/(1+L)|", gid="sens-T")
