@@ -143,20 +143,8 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
             margins=m, requirements=judge(reqs, m, separation, verdict), warnings=tuple(warnings),
             stabilising_gains=gains, enclosed_by=cut.enclosed_by, separation=separation, response=c.response,
         ))
-    names = {b.stmt.name for b in prep.diagram.breaks}
-    errors = [ModelError("E307", f"requirement on unknown break `{r.target}`", r.target_span,
-                         _did_you_mean(r.target, names)) for r in model.requirements
-              if r.target != "*" and r.target not in names]
-    if errors:
-        raise ModelErrors(errors)
     marginal = any(r.marginal for r in results)
     return ModelResult(model.file, model.name, Z == 0 and not marginal, Z, tuple(results), tuple(findings))
-
-
-def _did_you_mean(name: str, options) -> str:
-    import difflib
-    m = difflib.get_close_matches(name, list(options), n=1, cutoff=0.5)
-    return f"did you mean `{m[0]}`?" if m else "breaks: " + ", ".join(sorted(options))
 
 
 def _hidden(red: Reduction, name: str) -> list[str]:

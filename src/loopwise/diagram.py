@@ -88,6 +88,12 @@ def build_diagram(model: Model) -> Diagram:
     findings.extend(_algebraic_loops(model, g, signals, errors))
     cycles, complete = _cycles(g, model)
     cuts = _breaks(model, g, errors)
+    names = {c.stmt.name for c in cuts} | {b.name for b in model.breaks}
+    for req in model.requirements:
+        if req.target != "*" and req.target not in names:
+            errors.append(ModelError("E307", f"requirement on unknown break `{req.target}`", req.target_span,
+                                     _hint(req.target, names) or
+                                     ("breaks: " + ", ".join(sorted(names)) if names else "the model has no breaks")))
     if errors:
         raise ModelErrors(errors)
     cuts = _loops_and_nesting(cuts, cycles)

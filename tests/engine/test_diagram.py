@@ -95,3 +95,10 @@ def test_algebraic_loop_well_posed_is_a_note_and_ill_posed_an_error():
     assert any(f.code == "N301" for f in d.findings)
     bad = "input r\nblock G = 1/(s+1)\ne = r + u - y\nu = e\ny = G(u)\nbreak b at y\n"
     assert codes(bad) == ["E301"]
+
+
+def test_requirement_on_an_unknown_break_is_found_before_any_computation():
+    with pytest.raises(ModelErrors) as info:
+        diagram(CASCADE + "require iner phase_margin >= 45deg\n")
+    err = info.value.errors[0]
+    assert err.code == "E307" and "inner" in err.hint and err.span.line == 13

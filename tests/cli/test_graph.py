@@ -1,0 +1,65 @@
+"""`loopwise graph`: the model's structure as text and as Graphviz DOT."""
+from __future__ import annotations
+
+import re
+import subprocess
+import sys
+from pathlib import Path
+
+import networkx as nx
+
+from loopwise.cli import main
+
+MODELS = Path(__file__).resolve().parents[2] / "models"
+
+
+def test_structure_of_the_servo_demo(capsys):
+    assert main(["graph", str(MODELS / "servo_axis.loop")]) == 0
+    out = capsys.readouterr().out
+    assert "signals (8): pos_err, spd_ref, spd_err, cur_ref, cur_err, cur, spd, pos" in out
+    assert "loops (3):" in out and "cur -> cur_err -> cur" in out
+    assert re.search(r"current\s+at cur -> cur_err\s+line \d+\s+inside speed", out)
+    assert re.search(r"position\s+at pos\s+line \d+\s+outermost", out)
+    nesting = out.split("nesting (outer to inner):")[1].splitlines()
+    assert [l.rstrip() for l in nesting[1:4]] == ["  position", "    speed", "      current"]
+
+
+def _parse_dot(text: str) -> nx.DiGraph:
+    """A minimal reader for the DOT subset we write (nodes and edges with attributes)."""
+    g = nx.DiGraph()
+    assert text.startswith("digraph ") and text.rstrip().endswith("}")
+    for line in text.splitlines()[1:-1]:
+        m = re.match(r'\s*"((?:[^"\\]|\\.)*)" -> "((?:[^"\\]|\\.)*)"(?: \[(.*)\])?;$', line)
+        if m:
+            g.add_edge(m.group(1), m.group(2), attrs=m.group(3) or "")
+            continue
+        m = re.match(r'\s*"((?:[^"\\]|\\.)*)" \[(.*)\];$', line)
+        if m:
+            g.add_node(m.group(1), attrs=m.group(2))
+            continue
+        assert re.match(r"\s*(rankdir|node)\b", line), line
+    return g
+
+
+def test_dot_output_is_a_well_formed_graph_with_the_breaks_dashed(tmp_path):
+    out = tmp_path / "servo.dot"
+    assert main(["graph", str(MODELS / "servo_axis.loop"), "--dot", "--output", str(out)]) == 0
+    g = _parse_dot(out.read_text())
+    assert "pos_ref" in g and "cur" in g
+    dashed = {(u, v) for u, v, a in g.edges(data="attrs") if "dashed" in a}
+    assert dashed == {("cur", "cur_err"), ("spd", "spd_err"), ("pos", "pos_err")}
+    assert len(list(nx.simple_cycles(g))) == 3
+
+
+def test_graph_of_a_broken_model_exits_2_with_a_located_error(tmp_path, capsys):
+    bad = tmp_path / "bad.loop"
+    bad.write_text("input r\nblock G = 1/(s+1)\ne = r - y\ny = G(ee)\nbreak b at y\n")
+    assert main(["graph", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert f"{bad}:4:7: error E218" in err and "did you mean `e`" in err and "^" in err
+
+
+def test_graph_through_a_subprocess_has_no_traceback(tmp_path):
+    proc = subprocess.run([sys.executable, "-m", "loopwise", "graph", str(tmp_path / "none.loop")],
+                          capture_output=True, text=True)
+    assert proc.returncode == 2 and "Traceback" not in proc.stderr and "no such file" in proc.stderr
