@@ -2,8 +2,9 @@
 
 Each case renders the error with `loopwise.errors.render` and checks the text:
 `file:line:col: error CODE message`, the source line, a caret under the spot,
-and a `hint:` line. Cases that fail today are marked with the item of
-/work/notes/parse-fixes.md that fixes them.
+and a `hint:` line (E104, binary input, is not echoed: location and hint only).
+Errors found after parsing go through `loopwise.analysis.check_text`/`check_file`.
+Comments marked "regression" name the fault a case once exposed.
 """
 from __future__ import annotations
 
@@ -62,8 +63,7 @@ def test_syntax_error_is_located_with_a_hint(text, line, col, hint):
     ("x = (s + 1)(s + 2)", 1, 12),
 ])
 def test_every_syntax_error_has_a_hint(text, line, col):
-    # Fails today: parse-fixes.md item 3 (no hint when lark expects many tokens,
-    # or for an unexpected character)
+    # regression: these had no hint (lark expected many tokens; unexpected characters)
     err, out = parse_error(text)
     assert (err.span.line, err.span.col) == (line, col), out
     assert_rendered(err, text)
@@ -71,7 +71,7 @@ def test_every_syntax_error_has_a_hint(text, line, col):
 
 def test_keyword_in_the_expected_list_is_quoted():
     err, out = parse_error("break a x")
-    assert "`at`" in err.hint, out  # Fails today: parse-fixes.md item 3 ("expected at")
+    assert "`at`" in err.hint, out  # regression: was "expected at"
 
 
 def test_error_on_a_later_line_of_a_file_shows_that_line():
@@ -116,13 +116,12 @@ def test_missing_multiplication(text, col, width, hint):
     ("x = 2 3", "`2*3`"),
 ])
 def test_missing_multiplication_before_a_bracket_or_number(text, hint):
-    # Fails today: parse-fixes.md item 3
     err, out = parse_error(text)
     assert err.code == "E102" and err.hint and hint in err.hint, out
 
 
 def test_space_before_unit_suggests_writing_it_attached():
-    # Fails today: parse-fixes.md item 3 (suggests `45*deg`)
+    # regression: suggested `45*deg`
     err, out = parse_error("require a phase_margin >= 45 deg")
     assert err.code == "E102" and "`45deg`" in err.hint, out
 
@@ -149,7 +148,7 @@ def test_malformed_number(text):
 
 @pytest.mark.parametrize("text", ["x = 1e", "x = 1e+", "x = 1_000", "x = 0x10", "x = 2E-"])
 def test_malformed_number_is_not_taken_for_a_unit(text):
-    # Fails today: parse-fixes.md item 3 (E103 "unknown unit", hint `1*e`, `1*_000`, `0*x10`)
+    # regression: was "unknown unit" with hints `1*e`, `1*_000`, `0*x10`
     err, out = parse_error(text)
     assert err.code == "E103" and "malformed number" in err.message, out
     assert "*" not in err.hint, out
@@ -167,14 +166,13 @@ def test_non_finite_number(text, col, width):
 
 
 def test_decibels_beyond_the_float_range():
-    # Fails today: OverflowError from units.to_si escapes wrapped in lark's VisitError
-    # (parse-fixes.md item 6)
+    # regression: OverflowError from units.to_si escaped wrapped in lark's VisitError
     err, out = parse_error("require a gain_margin >= 7000dB")
     assert err.code == "E106", out
 
 
 def test_number_that_underflows_to_zero():
-    # Fails today: `1e-400` silently becomes 0.0 (parse-fixes.md item 4)
+    # regression: `1e-400` silently became 0.0
     err, out = parse_error("param a = 1e-400")
     assert err.code == "E106", out
 
@@ -223,14 +221,14 @@ def test_random_bytes_give_only_model_errors():
 
 
 def test_lone_carriage_return_is_named():
-    # Fails today: "unexpected character ``" with no hint (parse-fixes.md item 3)
+    # regression: was "unexpected character ``" (invisible) with no hint
     text = "param a = 1\rparam b = 2\n"
     err, out = parse_error(text)
     assert err.code == "E104" and err.hint and "line end" in err.hint, out
 
 
 def test_byte_order_mark_is_accepted():
-    # Fails today: refused as E104 at 1:1 (parse-fixes.md item 5)
+    # regression: was refused as E104 at 1:1
     assert len(parse_text("\ufeffmodel m\nparam a = 1\n").statements) == 2
 
 
@@ -238,7 +236,7 @@ def test_huge_file_is_refused_before_parsing():
     line = "param a = 1   # padding padding padding padding padding padding\n"
     text = line * (10 * 1024 * 1024 // len(line) + 1)
     assert len(text) > MAX_MODEL_BYTES
-    err = check(text[: 2 * len(line)] and text, "E105", 1, 1, hint="use")
+    err = check(text, "E105", 1, 1, hint="use")
     assert "too large" in err.message
 
 
@@ -255,8 +253,7 @@ NESTED = {
 
 @pytest.mark.parametrize("text", NESTED.values(), ids=NESTED.keys())
 def test_deep_nesting_never_escapes(text):
-    # Fails today except for parentheses: RecursionError or lark's VisitError escapes
-    # (parse-fixes.md item 1)
+    # regression: RecursionError or lark's VisitError escaped (all but parentheses)
     try:
         parse_text(text, "deep.loop")
     except ModelError as err:
@@ -266,8 +263,7 @@ def test_deep_nesting_never_escapes(text):
 
 
 def test_error_on_a_long_line_still_has_a_caret():
-    # Fails today: errors.render leaves out lines longer than 400 characters
-    # (parse-fixes.md, "not in the diff")
+    # regression: errors.render left out lines longer than 400 characters
     text = "x = " + " + ".join(f"y{i}" for i in range(150)) + " )"
     err, out = parse_error(text)
     assert "^" in out, out

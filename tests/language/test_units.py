@@ -81,7 +81,7 @@ def test_minutes_are_not_milli_or_inches():
 def test_a_space_before_the_unit_is_an_error(text):
     err, out = parse_error(text)
     assert err.code == "E102"
-    # Fails today: parse-fixes.md item 3 (the hint suggests `3*ms` instead of `3ms`)
+    # regression: the hint suggested `3*ms` instead of `3ms`
     assert "`3" + text.split()[-1] + "`" in err.hint, out
 
 
