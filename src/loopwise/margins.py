@@ -56,6 +56,7 @@ class _Curve:
     L: np.ndarray
     axis: np.ndarray   # point lies on the imaginary axis
     engine: np.ndarray  # point comes from the engine's samples (not the tail)
+    at_pole: np.ndarray  # point lies on an indentation round a pole of L itself
 
 
 @dataclass
@@ -64,8 +65,9 @@ class _Crossing:
 
     x: float          # position; -inf: an indentation (limit k -> 0); 0.0: limit k -> inf
     up: int           # +1: the curve goes from Im <= 0 to Im > 0 here, else -1
-    seg: int | None   # upper-half axis segment index (for refining), else None
-    freq: float = math.nan  # frequency of an axis crossing (upper half)
+    bracket: tuple[float, float] | None  # axis frequencies to refine it between, if any
+    listed: bool = False    # a phase crossover (upper half, engine samples, w > 0)
+    freq: float = math.nan  # its frequency (upper half)
     refined: bool = False
 
 
@@ -97,7 +99,31 @@ def _upper_curve(response: LoopResponse, evaluate: Evaluate | None) -> _Curve:
     # L of a real-rational loop with real delays is real on the real axis (s = 0, the start
     # of an indentation at the origin): drop the rounding there so the curve closes exactly
     L = np.where(s.imag == 0, L.real + 0j, L)
-    return _Curve(s, L, axis, engine)
+    return _Curve(s, L, axis, engine, _at_pole(s, axis, evaluate))
+
+
+def _at_pole(s: np.ndarray, axis: np.ndarray, evaluate: Evaluate | None) -> np.ndarray:
+    """Mask of indentation points whose centre is a pole of L.
+
+    The engine indents round the axis poles of every block of the model, but a
+    break's L (other loops closed) need not keep them. Probed to the right of
+    the centre at a tenth and a ten-thousandth of the indentation radius: a
+    pole makes |L| grow with the approach, anything else leaves it flat.
+    Without `evaluate`, every indentation is taken to surround a pole.
+    """
+    mask = ~axis
+    if evaluate is None:
+        return mask
+    idx = np.flatnonzero(mask)
+    for group in np.split(idx, np.flatnonzero(np.diff(idx) != 1) + 1) if idx.size else []:
+        before = s[group[0] - 1].imag if group[0] > 0 else 0.0
+        after = s[group[-1] + 1].imag
+        centre = 1j * (0.0 if group[0] == 0 else 0.5 * (before + after))
+        radius = float(np.max(np.abs(s[group] - centre)))
+        with np.errstate(all="ignore"):
+            near, nearer = np.abs(evaluate(centre + radius * np.array([1e-1, 1e-4])))
+        mask[group] = not (np.isfinite(near) and np.isfinite(nearer) and nearer < 100 * near)
+    return mask
 
 
 def _tail(evaluate: Evaluate, w_end: float, L_end: complex) -> np.ndarray:
@@ -150,8 +176,10 @@ def _negative_axis_crossings(curve: _Curve) -> list[_Crossing]:
     for k, x, up, t in _segment_crossings(L[:-1], L[1:]):
         seg_axis = bool(axis[k] and axis[k + 1])
         x = _limit(curve, k, x)
-        c = _Crossing(x, up, k if seg_axis and math.isfinite(x) and x != 0.0 else None,
+        c = _Crossing(x, up, _bracket(curve, k) if math.isfinite(x) and x != 0.0 else None,
                       freq=float(w[k] + t * (w[k + 1] - w[k])) if seg_axis else math.nan)
+        # the curve passing through a real L(0) is the w = 0 junction, not a crossover
+        c.listed = seg_axis and bool(curve.engine[k + 1]) and not (w[k] == 0 and L[k].imag == 0)
         upper[k] = c
         out.append(c)
     # the mirror half conj(L) reversed: segment k runs conj(L[k+1]) -> conj(L[k]) and
@@ -161,14 +189,15 @@ def _negative_axis_crossings(curve: _Curve) -> list[_Crossing]:
         if twin is not None and twin.up == up:
             out.append(twin)
         else:
-            out.append(_Crossing(_limit(curve, k, x), up, None))
+            x = _limit(curve, k, x)
+            out.append(_Crossing(x, up, _bracket(curve, k) if math.isfinite(x) and x != 0.0 else None))
     # closing chord at the top: the arc at infinity maps to L(inf), which is the
     # origin when |L| still rolls off at the last samples (strictly proper L)
     for _, x, up, _ in _segment_crossings(L[-1:], np.conj(L[-1:])):
         out.append(_Crossing(0.0 if abs(x) < _HORIZON or _rolls_off(curve) else x, up, None))
     # closing chord at the bottom: the real axis at s = 0 (or the start of an indentation)
     for _, x, up, _ in _segment_crossings(np.conj(L[:1]), L[:1]):
-        out.append(_Crossing(x if axis[0] else -math.inf, up, None))
+        out.append(_Crossing(-math.inf if curve.at_pole[0] else x, up, None))
     return out
 
 
@@ -180,10 +209,22 @@ def _rolls_off(curve: _Curve) -> bool:
     return math.log(l1 / l0) / math.log(w1 / w0) < -0.5
 
 
+def _bracket(curve: _Curve, k: int) -> tuple[float, float]:
+    """Axis frequencies around upper segment k: its ends, or the axis samples either side
+    of the indentation it lies on (an indentation round a point where L is finite)."""
+    w, axis = curve.s.imag, curve.axis
+    lo, hi = k, k + 1
+    while lo > 0 and not axis[lo]:
+        lo -= 1
+    while hi < axis.size - 1 and not axis[hi]:
+        hi += 1
+    return (float(w[lo]) if axis[lo] else 0.0, float(w[hi]))
+
+
 def _limit(curve: _Curve, k: int, x: float) -> float:
     """Position of a crossing on upper segment k, with the limits made explicit."""
-    if not (curve.axis[k] and curve.axis[k + 1]):
-        return -math.inf  # an indentation: |L| grows without bound as its radius shrinks
+    if curve.at_pole[k] or curve.at_pole[k + 1]:
+        return -math.inf  # round a pole: |L| grows without bound as the radius shrinks
     if not (curve.engine[k] and curve.engine[k + 1]) and abs(x) < _HORIZON:
         return 0.0  # far out in the tail: the limit at the origin
     return x
@@ -209,14 +250,14 @@ def _segment_crossings(a: np.ndarray, b: np.ndarray) -> list[tuple[int, float, i
             for k, xk, y1, f in zip(hit[keep], x[keep], yb[keep], frac[keep])]
 
 
-def _refine(c: _Crossing, curve: _Curve, evaluate: Evaluate | None) -> None:
-    """Solve arg(-L(jw)) = 0 on the crossing's axis segment to full precision."""
-    if c.refined or c.seg is None or evaluate is None:
+def _refine(c: _Crossing, evaluate: Evaluate | None) -> None:
+    """Solve arg(-L(jw)) = 0 on the crossing's axis bracket to full precision."""
+    if c.refined or c.bracket is None or evaluate is None:
         return
     from scipy.optimize import brentq
 
     c.refined = True
-    w0, w1 = curve.s[c.seg].imag, curve.s[c.seg + 1].imag
+    w0, w1 = c.bracket
     h = lambda w: float(np.angle(-evaluate(np.array([1j * w]))[0]))  # noqa: E731
     h0, h1 = h(w0), h(w1)
     if h0 == 0.0:
@@ -256,33 +297,37 @@ def _gain_factors(lo: float, hi: float) -> tuple[float, float]:
     return (0.0 if lo == -math.inf else -1.0 / lo, math.inf if hi == 0.0 else -1.0 / hi)
 
 
+def _settled(crossings: list[_Crossing], evaluate: Evaluate | None, P: int,
+             wanted: Callable[[float, float, bool], bool]) -> list[tuple[float, float, bool]]:
+    """Stretches, after refining the crossings that bound the wanted ones."""
+    ends = {x for lo, hi, ok in _stretches(crossings, P) if wanted(lo, hi, ok) for x in (lo, hi)}
+    for c in crossings:
+        if c.x in ends:
+            _refine(c, evaluate)
+    return _stretches(crossings, P)
+
+
 def stabilising_gains(response: LoopResponse, open_loop_rhp_poles: int,
                       evaluate: Evaluate | None = None) -> tuple[tuple[float, float], ...]:
     """The intervals (lo, hi) of factors k > 0 for which k L is closed-loop stable.
 
     ``hi`` may be ``math.inf`` and ``lo`` may be 0.0. With `evaluate`, the
-    crossings are refined to full precision and the axis is followed past the
-    engine's last sample; without it, positions are interpolated between samples.
+    crossings are refined to full precision, the axis is followed past the
+    engine's last sample and indentations are checked for poles of L; without
+    it, positions are interpolated between samples and every indentation is
+    taken to surround a pole.
     """
     curve = _upper_curve(response, evaluate)
     crossings = _negative_axis_crossings(curve)
-    for c in crossings:
-        _refine(c, curve, evaluate)
-    return tuple(_gain_factors(lo, hi) for lo, hi, ok in _stretches(crossings, open_loop_rhp_poles)
-                 if ok)
+    stretches = _settled(crossings, evaluate, open_loop_rhp_poles, lambda lo, hi, ok: ok)
+    return tuple(_gain_factors(lo, hi) for lo, hi, ok in stretches if ok)
 
 
-def _gain_margins(crossings: list[_Crossing], curve: _Curve, evaluate: Evaluate,
+def _gain_margins(crossings: list[_Crossing], evaluate: Evaluate,
                   P: int) -> tuple[float | None, float | None]:
     """(up, down) in dB from the stretch that holds -1; None when unbounded or unstable."""
-    stretch = next(((lo, hi, ok) for lo, hi, ok in _stretches(crossings, P) if lo < -1.0 < hi), None)
-    if stretch is None or not stretch[2]:
-        return None, None
-    # refine the two crossings that bound the stretch, then read it again
-    for c in crossings:
-        if c.x in (stretch[0], stretch[1]):
-            _refine(c, curve, evaluate)
-    stretch = next(((lo, hi, ok) for lo, hi, ok in _stretches(crossings, P) if lo < -1.0 < hi), None)
+    holds = lambda lo, hi, ok: lo < -1.0 < hi  # noqa: E731
+    stretch = next((s for s in _settled(crossings, evaluate, P, holds) if holds(*s)), None)
     if stretch is None or not stretch[2]:
         return None, None
     k_down, k_up = _gain_factors(stretch[0], stretch[1])
@@ -319,17 +364,14 @@ def _gain_crossovers(curve: _Curve, evaluate: Evaluate) -> list[GainCrossover]:
     return sorted(out, key=lambda c: c.freq)
 
 
-def _phase_crossovers(crossings: list[_Crossing], curve: _Curve,
-                      evaluate: Evaluate) -> list[PhaseCrossover]:
+def _phase_crossovers(crossings: list[_Crossing], evaluate: Evaluate) -> list[PhaseCrossover]:
     """Crossings on the engine's own axis samples (w > 0), refined."""
     seen, out = set(), []
     for c in crossings:
-        if c.seg is None or id(c) in seen or not curve.engine[c.seg + 1]:
+        if not c.listed or id(c) in seen:
             continue
-        if curve.s[c.seg].imag == 0 and curve.L[c.seg].imag == 0:
-            continue  # the curve passes through L(0) on the axis: w = 0, not a crossover
         seen.add(id(c))
-        _refine(c, curve, evaluate)
+        _refine(c, evaluate)
         if c.freq > 0 and c.x < 0:
             out.append(PhaseCrossover(float(c.freq), -20.0 * math.log10(-c.x)))
     return sorted(out, key=lambda p: p.freq)
@@ -416,9 +458,9 @@ def loop_margins(evaluate: Evaluate, response: LoopResponse, open_loop_rhp_poles
     curve = _upper_curve(response, evaluate)
     crossings = _negative_axis_crossings(curve)
     gains = _gain_crossovers(curve, evaluate)
-    phases = _phase_crossovers(crossings, curve, evaluate)
-    up, down = _gain_margins(crossings, curve, evaluate, open_loop_rhp_poles)
-    integrator = 0.0 in tuple(response.axis_poles) or not curve.axis[0]
+    phases = _phase_crossovers(crossings, evaluate)
+    up, down = _gain_margins(crossings, evaluate, open_loop_rhp_poles)
+    integrator = bool(curve.at_pole[0])
     balanced = _peak(curve, evaluate, _balanced, 1.0 if integrator else None)
     return Margins(
         gain_crossovers=tuple(gains),

@@ -179,3 +179,18 @@ def test_response_without_axis_samples_is_refused():
                         np.array([False, False]))
     with pytest.raises(ValueError, match="no samples on the imaginary axis"):
         loop_margins(rational([1], [1, 1]), resp, 0)
+
+
+def test_indentation_round_a_pole_that_l_does_not_have():
+    """The engine indents round the axis poles of every block of a model; a break's L need not
+    keep them. 4/((s - 1)(s + 3)) sampled with an indentation at s = 0: L(0) = -4/3 is a real
+    crossing, not a limit. Closed loop s^2 + 2 s + (4k - 3): stable iff k > 3/4 (Routh), so the
+    down margin is 20 log10(3/4) with or without the indentation; Mt is not the integrator's 1."""
+    ev = rational([4], [1, 2, -3])
+    plain = loop_margins(ev, contour_response(ev), 1)
+    indented = loop_margins(ev, contour_response(ev, (0.0,)), 1)
+    for m in (plain, indented):
+        assert m.gain_margin_down_db == pytest.approx(20 * math.log10(0.75), rel=1e-10)
+        assert m.gain_margin_up_db is None
+    assert indented.complementary_peak.value == pytest.approx(plain.complementary_peak.value, rel=1e-6)
+    assert indented.complementary_peak.value > 1.0  # |T(0)| = (4/3)/(1/3) = 4
