@@ -50,6 +50,11 @@ def generated_model(lines: int) -> str:
     return "\n".join(out) + "\n"
 
 
+def tokens(text: str) -> int:
+    """Tokens the parser sees (comments left out)."""
+    return sum(1 for m in TOKEN.finditer(text) if not m.group(0).startswith("#"))
+
+
 def best(fn, repeat: int) -> float:
     """Median of `repeat` timings of fn() (seconds)."""
     times = []
@@ -66,7 +71,7 @@ def measure(name: str, text: str, file: str, repeat: int, with_read: bool) -> No
     t_parse = best(lambda: parse_text(text, file), repeat)
     t_lark = best(lambda: _parser().parse(text + "\n"), repeat)
     t_lex = best(lambda: sum(1 for _ in TOKEN.finditer(text)), repeat)
-    print(f"{name}: {lines} lines, {len(text) / 1024:.1f} KiB")
+    print(f"{name}: {lines} lines, {tokens(text)} tokens, {len(text) / 1024:.1f} KiB")
     print(f"  parse_text   {t_parse * 1e3:8.2f} ms   {t_parse / lines * 1e6:7.1f} us/line")
     print(f"  lark only    {t_lark * 1e3:8.2f} ms   parse_text / lark = {t_parse / t_lark:5.2f}")
     print(f"  lex only     {t_lex * 1e3:8.2f} ms   parse_text / lex  = {t_parse / t_lex:5.1f}")
@@ -89,11 +94,11 @@ def main() -> None:
     text = generated_model(args.lines)
     assert text.count("\n") == args.lines
     measure(f"generated model", text, "generated.loop", max(3, args.repeat // 4), with_read=False)
-    per_line_demo = best(lambda: parse_text(largest.read_text("utf-8"), str(largest)), args.repeat) \
-        / largest.read_text("utf-8").count("\n")
-    per_line_gen = best(lambda: parse_text(text, "generated.loop"), 3) / args.lines
-    print(f"scaling: per-line cost of the {args.lines}-line model / the demo's = "
-          f"{per_line_gen / per_line_demo:4.2f} (1.0 is linear)")
+    demo_text = largest.read_text("utf-8")
+    per_token_demo = best(lambda: parse_text(demo_text, str(largest)), args.repeat) / tokens(demo_text)
+    per_token_gen = best(lambda: parse_text(text, "generated.loop"), 3) / tokens(text)
+    print(f"per token: demo {per_token_demo * 1e6:.1f} us, generated {per_token_gen * 1e6:.1f} us; "
+          f"ratio {per_token_gen / per_token_demo:4.2f} (1.0 is linear in the number of tokens)")
 
 
 if __name__ == "__main__":
