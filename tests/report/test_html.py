@@ -111,3 +111,13 @@ def test_report_bad_output_is_one_line_and_exit_2(model_files, capsys, output, m
     code = main(["report", str(model_files), "--output", output])
     err = capsys.readouterr().err
     assert code == 2 and message in err and len(err.strip().splitlines()) == 1
+
+
+def test_the_page_is_the_same_drawn_in_one_process_or_two(tmp_path):
+    model = write_models(tmp_path / "models") / "undamped_pair.loop"
+    pages = []
+    for jobs in ("1", "2"):
+        out = tmp_path / f"r{jobs}.html"
+        assert main(["report", str(model), "-o", str(out), "--jobs", jobs]) == 0
+        pages.append(out.read_bytes())
+    assert pages[0] == pages[1]

@@ -6,6 +6,7 @@ break and the caution. Heavy imports happen inside `run`.
 """
 from __future__ import annotations
 
+import os
 import sys
 from pathlib import Path
 
@@ -43,7 +44,8 @@ def add_parser(subparsers, help_text: str):
     p.add_argument("--hz", action="store_true", help="plot frequency axes in Hz instead of rad/s")
     p.add_argument("--config", metavar="FILE", help="settings file (default: the nearest one)")
     p.add_argument("-j", "--jobs", type=_jobs, default=1, metavar="N",
-                   help="check models in N processes (0: one per CPU; default 1)")
+                   help="check models and draw figures in N processes (0: one per CPU; "
+                        "default 1); the page is the same for any N")
     p.add_argument("--fail-on-warnings", action="store_true",
                    help="count a model with warnings as failed (also in the exit code)")
     p.add_argument("--no-progress", action="store_true", help="never draw a progress bar")
@@ -75,12 +77,13 @@ def run(args) -> int:
     fail = settings.fail_on_warnings or args.fail_on_warnings
     progress = not args.no_progress and wants_progress(sys.stderr)
     result = check_paths(args.paths, settings, jobs=args.jobs, progress=progress)
+    jobs = args.jobs or (os.cpu_count() or 1)
     bar, tick = None, (lambda: None)
     if progress and figure_count(result) >= PROGRESS_MIN_FIGURES:
         bar, tick = _progress(figure_count(result))
         bar.start()
     try:
-        page = render_html(result, hz=args.hz, fail_on_warnings=fail, tick=tick)
+        page = render_html(result, hz=args.hz, fail_on_warnings=fail, jobs=jobs, tick=tick)
     finally:
         if bar is not None:
             bar.stop()

@@ -16,7 +16,7 @@ from ..results import CAUTION
 from . import (BREAK_COLUMNS, break_row, break_status, count_met, finding_text, model_passes,
                model_status, requirement_place, tally)
 
-__all__ = ["render_html", "figure_count", "CSS"]
+__all__ = ["render_html", "figure_count", "draw_svg", "CSS"]
 
 VIEWS = ("nyquist", "bode", "sensitivity")
 _CAPTIONS = {
@@ -110,25 +110,51 @@ def _unique_ids(svg: str, prefix: str) -> str:
     return re.sub(r'(url\(#)([^)]+)', refer, svg)
 
 
-def _inline_svg(fig, prefix: str) -> str:
-    from .plots import svg_text
+def draw_svg(job) -> str:
+    """One figure as inline SVG: job = (BreakResult, kind, model name, hz, id prefix).
+    A top-level function so a process pool can run it."""
+    from .plots import make_figure, svg_text
 
-    svg = svg_text(fig, salt=prefix)
+    result, kind, model, hz, prefix = job
+    svg = svg_text(make_figure(result, kind, model=model, hz=hz), salt=prefix)
     svg = re.sub(r"<metadata>.*?</metadata>\s*", "", svg, flags=re.S)  # no URLs, no dates
     return _unique_ids(svg, prefix)
 
 
-def _break_figures(m, b, index: str, hz: bool, tick: Callable[[], None]) -> list[str]:
-    from .plots import make_figure
+def _draw_all(run, hz: bool, jobs: int, tick: Callable[[], None]) -> dict:
+    """Every figure of the run, keyed (model index, break index, kind); in `jobs`
+    processes when more than one. The pages are the same either way."""
+    keys, work = [], []
+    for n, m in enumerate(run.models):
+        for k, b in enumerate(m.breaks):
+            if b.response is not None:
+                for kind in VIEWS:
+                    keys.append((n, k, kind))
+                    work.append((b, kind, m.model, hz, f"m{n}b{k}{kind[0]}-"))
+    if jobs <= 1 or len(work) < 2:
+        out = {}
+        for key, job in zip(keys, work):
+            out[key] = draw_svg(job)
+            tick()
+        return out
+    from concurrent.futures import ProcessPoolExecutor, as_completed
 
+    with ProcessPoolExecutor(max_workers=min(jobs, len(work))) as pool:
+        futures = {pool.submit(draw_svg, job): key for key, job in zip(keys, work)}
+        out = {}
+        for future in as_completed(futures):
+            out[futures[future]] = future.result()
+            tick()
+    return out
+
+
+def _break_figures(b, index: str, svgs: dict, key) -> list[str]:
     if b.response is None:
         return [f"<p>No frequency response was recorded for break {_e(b.name)}.</p>"]
     out = ['<div class="plots">']
     for kind in VIEWS:
-        fig = make_figure(b, kind, model=m.model, hz=hz)
-        out.append(f'<figure id="{index}-{kind}">{_inline_svg(fig, f"{index}{kind[0]}-")}'
+        out.append(f'<figure id="{index}-{kind}">{svgs[(*key, kind)]}'
                    f"<figcaption>{_e(_CAPTIONS[kind])}; break {_e(b.name)}.</figcaption></figure>")
-        tick()
     out.append("</div>")
     return out
 
@@ -177,7 +203,7 @@ def _warnings(m) -> list[str]:
     return out
 
 
-def _model_section(m, n: int, hz: bool, fail: bool, tick) -> list[str]:
+def _model_section(m, n: int, fail: bool, svgs: dict) -> list[str]:
     status = model_status(m)
     verdict = "PASS" if model_passes(m, fail) else "FAIL"
     out = [f'<section id="model-{n}">',
@@ -193,7 +219,7 @@ def _model_section(m, n: int, hz: bool, fail: bool, tick) -> list[str]:
     for k, b in enumerate(m.breaks):
         out.append(f'<h3 id="model-{n}-break-{k}">break {_e(b.name)} at {_e(b.at)} '
                    f"{_word(break_status(b))}</h3>")
-        out += _break_figures(m, b, f"m{n}b{k}", hz, tick)
+        out += _break_figures(b, f"m{n}b{k}", svgs, (n, k))
     out.append("</section>")
     return out
 
@@ -216,9 +242,11 @@ def _summary(run, fail: bool) -> list[str]:
     return [f'<div class="summary">{body}</div>', f"<p>{_e(t.sentence())}.</p>"]
 
 
-def render_html(run, *, hz: bool = False, fail_on_warnings: bool = False,
+def render_html(run, *, hz: bool = False, fail_on_warnings: bool = False, jobs: int = 1,
                 tick: Callable[[], None] = lambda: None) -> str:
-    """The whole report as one string; `tick` is called once per figure drawn."""
+    """The whole report as one string; figures drawn in `jobs` processes, and
+    `tick` called once per figure drawn."""
+    svgs = _draw_all(run, hz, jobs, tick)
     version = f" {run.version}" if run.version else ""
     out = ['<!DOCTYPE html>', '<html lang="en">', "<head>",
            '<meta charset="utf-8" />',
@@ -234,7 +262,7 @@ def render_html(run, *, hz: bool = False, fail_on_warnings: bool = False,
             f'<li><a href="#model-{n}">{_e(m.model)}</a> ({_e(m.file)}) {_word(model_status(m))}</li>'
             for n, m in enumerate(run.models)) + "</ul></nav>")
     for n, m in enumerate(run.models):
-        out += _model_section(m, n, hz, fail_on_warnings, tick)
+        out += _model_section(m, n, fail_on_warnings, svgs)
     out += _errors(run)
     out += ["</main>", f"<footer><p>{_e(CAUTION)}</p></footer>", "</body>", "</html>"]
     return "\n".join(out) + "\n"
