@@ -106,3 +106,39 @@ def test_written_value_round_trips(value, unit):
     number = rhs(f"x = {text}")
     assert number.value == pytest.approx(to_si(value, unit), rel=1e-12)
     assert number.unit == unit
+
+
+# --- units on requirement limits: the reference's table against the checker ----------
+
+def _metric_table() -> dict[str, set[str]]:
+    """metric -> units allowed, read from the table in docs/language.md."""
+    import re
+    from .conftest import ROOT
+    table = {}
+    for line in (ROOT / "docs" / "language.md").read_text("utf-8").split("\n"):
+        cells = [c.strip() for c in line.replace("\\|", "/").strip().strip("|").split("|")]
+        if len(cells) == 4 and re.fullmatch(r"`[a-z_]+`", cells[0]):
+            units = set(" ".join(re.findall(r"`([^`]+)`", cells[3])).split())
+            table[cells[0].strip("`")] = units
+    return table
+
+
+def test_requirement_units_match_the_reference():
+    from loopwise.analysis import prepare_text
+    from loopwise.errors import ModelError, ModelErrors
+    from loopwise.language.requirements import METRICS
+
+    table = _metric_table()
+    assert set(table) == set(METRICS)
+    base = "input r\ne = r - y\ny = [2/(s*(s + 1))](e)\nbreak b at y\n"
+    for metric, allowed in table.items():
+        for unit in UNITS:
+            text = base + f"require b {metric} >= 2{unit}\n"
+            try:
+                prepare_text(text, "m.loop")
+                accepted = True
+            except (ModelError, ModelErrors) as exc:
+                errors = exc.errors if isinstance(exc, ModelErrors) else [exc]
+                assert [e.code for e in errors] == ["E241"], (metric, unit, [str(e) for e in errors])
+                accepted = False
+            assert accepted == (unit in allowed), (metric, unit)
