@@ -1,5 +1,7 @@
-"""`loopwise check` end to end: the real command in a subprocess, on small models
-written into tmp_path and on the demo models, for every format and exit code."""
+"""`loopwise check` end to end on the real pipeline, on small models written into
+tmp_path and on the demo models: every format and exit code once through a
+subprocess (`python -m loopwise`, and the `loopwise` script once), the other
+cases through `main()` in this process (the engine loads once per session)."""
 from __future__ import annotations
 
 import json
@@ -219,8 +221,9 @@ def test_results_cross_process_boundaries_with_their_responses(tmp_path):
     back = pickle.loads(pickle.dumps(result))
     assert back.to_dict() == result.to_dict()
     resp = result.breaks[0].response
-    if resp is not None:
-        assert (back.breaks[0].response.L == resp.L).all()
+    assert resp is not None and resp.L.size > 0
+    assert (back.breaks[0].response.L == resp.L).all()
+    assert (back.breaks[0].response.s == resp.s).all()
 
 
 # --- settings ---------------------------------------------------------------------------
