@@ -36,7 +36,7 @@ _TAIL_STEP = np.pi / 16
 # the limit at the origin (a gain increase beyond 160 dB counts as unbounded).
 _HORIZON = 1e-8
 _TAIL_DECADES = 6
-_TAIL_MAX_SAMPLES = 50_000
+_TAIL_MAX_SAMPLES = 10_000
 # brentq tolerances: relative 1e-14 in frequency.
 _RTOL = 4 * np.finfo(float).eps
 _XTOL_REL = 1e-14
