@@ -99,21 +99,21 @@ def _upper_curve(response: LoopResponse, evaluate: Evaluate | None) -> _Curve:
     # L of a real-rational loop with real delays is real on the real axis (s = 0, the start
     # of an indentation at the origin): drop the rounding there so the curve closes exactly
     L = np.where(s.imag == 0, L.real + 0j, L)
-    return _Curve(s, L, axis, engine, _at_pole(s, axis, evaluate))
+    return _Curve(s, L, axis, engine, _at_pole(s, L, axis, evaluate))
 
 
-def _at_pole(s: np.ndarray, axis: np.ndarray, evaluate: Evaluate | None) -> np.ndarray:
+def _at_pole(s: np.ndarray, L: np.ndarray, axis: np.ndarray,
+             evaluate: Evaluate | None) -> np.ndarray:
     """Mask of indentation points whose centre is a pole of L.
 
     The engine indents round the axis poles of every block of the model, but a
-    break's L (other loops closed) need not keep them. Probed to the right of
-    the centre at a tenth and a ten-thousandth of the indentation radius: a
-    pole makes |L| grow with the approach, anything else leaves it flat.
-    Without `evaluate`, every indentation is taken to surround a pole.
+    break's L (other loops closed) need not keep them. A pole makes |L| grow
+    as the centre comes closer, anything else leaves it flat: probed to the
+    right of the centre at a tenth and a ten-thousandth of the indentation
+    radius, or without `evaluate`, compared with the first axis sample at least
+    100 radii away.
     """
     mask = ~axis
-    if evaluate is None:
-        return mask
     idx = np.flatnonzero(mask)
     for group in np.split(idx, np.flatnonzero(np.diff(idx) != 1) + 1) if idx.size else []:
         before = s[group[0] - 1].imag if group[0] > 0 else 0.0
@@ -121,8 +121,15 @@ def _at_pole(s: np.ndarray, axis: np.ndarray, evaluate: Evaluate | None) -> np.n
         centre = 1j * (0.0 if group[0] == 0 else 0.5 * (before + after))
         radius = float(np.max(np.abs(s[group] - centre)))
         with np.errstate(all="ignore"):
-            near, nearer = np.abs(evaluate(centre + radius * np.array([1e-1, 1e-4])))
-        mask[group] = not (np.isfinite(near) and np.isfinite(nearer) and nearer < 100 * near)
+            if evaluate is not None:  # 1000 times closer: a simple pole grows |L| 1000-fold
+                far, near = np.abs(evaluate(centre + radius * np.array([1e-1, 1e-4])))
+                growth = near / far
+            else:  # at least 100 times closer
+                after = np.flatnonzero(axis[group[-1]:] & (np.abs(s[group[-1]:] - centre) >= 100 * radius))
+                if after.size == 0:
+                    continue
+                growth = 10.0 * abs(L[group[group.size // 2]]) / abs(L[group[-1] + after[0]])
+        mask[group] = not (np.isfinite(growth) and growth < 100.0)
     return mask
 
 

@@ -194,3 +194,14 @@ def test_indentation_round_a_pole_that_l_does_not_have():
         assert m.gain_margin_up_db is None
     assert indented.complementary_peak.value == pytest.approx(plain.complementary_peak.value, rel=1e-6)
     assert indented.complementary_peak.value > 1.0  # |T(0)| = (4/3)/(1/3) = 4
+
+
+def test_pole_free_indentation_without_the_evaluator():
+    """The same loop as above through stabilising_gains without `evaluate` (as for unstable
+    breaks): the indentation is recognised from the samples alone; factors k > 3/4."""
+    ev = rational([4], [1, 2, -3])
+    (lo, hi), = stabilising_gains(contour_response(ev, (0.0,)), 1)
+    assert lo == pytest.approx(0.75, rel=1e-6) and hi == math.inf
+    # and a real integrator still counts as one: 2(s + 1)/(s (s - 1)) is stable for k > 1/2
+    (lo, hi), = stabilising_gains(contour_response(rational([2, 2], [1, -1, 0]), (0.0,)), 1)
+    assert lo == pytest.approx(0.5, rel=1e-6) and hi == math.inf
