@@ -25,31 +25,48 @@ class StateSpace:
     owners: tuple[str, ...]  # the application label each state belongs to
 
 
+def _sections(zeros: np.ndarray, poles: np.ndarray) -> list[tuple[np.ndarray, np.ndarray]]:
+    """Split into proper first- and second-order sections (real coefficients).
+
+    Conjugate pole pairs give quadratic denominators, real poles linear ones
+    (merged pairwise when a complex zero pair needs a quadratic home); zeros are
+    placed so that no section has more zeros than poles.
+    """
+    pairs = [p for p in poles if p.imag > 0]
+    reals = sorted((p.real for p in poles if p.imag == 0), key=abs)
+    zpairs = [z for z in zeros if z.imag > 0]
+    zreals = [z.real for z in zeros if z.imag == 0]
+    dens: list[list[complex]] = [[p, np.conj(p)] for p in pairs]
+    while len(zpairs) > len(dens) and len(reals) >= 2:
+        dens.append([reals.pop(), reals.pop()])
+    dens += [[r] for r in reals]
+    nums: list[list[complex]] = [[] for _ in dens]
+    quad = [i for i, d in enumerate(dens) if len(d) == 2]
+    for i, z in zip(quad, zpairs):
+        nums[i] = [z, np.conj(z)]
+    for z in zreals:
+        i = next(i for i, d in enumerate(dens) if len(nums[i]) < len(d))
+        nums[i].append(z)
+    return [(np.real(np.poly(n)) if n else np.array([1.0]), np.real(np.poly(d))) for n, d in zip(nums, dens)]
+
+
 def _realise(tf) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
-    """A minimal SISO realisation of gain * prod(s - z) / prod(s - p)."""
+    """A minimal SISO realisation of gain * prod(s - z) / prod(s - p), section by section."""
     from scipy import signal
 
-    n = tf.poles.size
-    if n == 0:
-        return np.zeros((0, 0)), np.zeros((0, 1)), np.zeros((1, 0)), float(tf.gain)
-    sos = signal.zpk2sos(tf.zeros, tf.poles, tf.gain, analog=True)
     A = np.zeros((0, 0))
     B = np.zeros((0, 1))
     C = np.zeros((1, 0))
-    D = 1.0
-    for sec in sos:
-        b, a = np.trim_zeros(sec[:3], "f"), np.trim_zeros(sec[3:], "f")
-        if a.size == 1:  # a pure gain section
-            D *= b[0] / a[0] if b.size else 0.0
-            C = C * (b[0] / a[0] if b.size else 0.0)
-            continue
-        Ai, Bi, Ci, Di = signal.tf2ss(b, a)
-        # series: new input -> this section after the previous ones
+    D = float(tf.gain)
+    for num, den in _sections(tf.zeros, tf.poles):
+        Ai, Bi, Ci, Di = signal.tf2ss(num, den)
+        Di = float(np.atleast_1d(Di).ravel()[0]) if np.size(Di) else 0.0
+        # series: the previous sections' output drives this one
         A = np.block([[A, np.zeros((A.shape[0], Ai.shape[0]))], [Bi @ C, Ai]])
         B = np.vstack([B, Bi * D])
-        C = np.hstack([Di.item() * C, Ci])
-        D = Di.item() * D
-    return A, B, C, float(D)
+        C = np.hstack([Di * C, Ci])
+        D = Di * D
+    return A, B, C, D
 
 
 def loop_state_space(red: Reduction, name: str | None = None) -> StateSpace:

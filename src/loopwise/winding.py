@@ -33,18 +33,27 @@ TOUCH = 1e-10
 
 @dataclass(frozen=True)
 class Piece:
-    """One stretch of the contour: an axis segment or an indentation arc."""
+    """One stretch of the contour: an axis segment or an indentation arc.
+
+    Axis pieces are parametrised so that halving the parameter resolves what
+    matters: linearly near w = 0, in log w on open stretches, and in the log of
+    the distance to an indented pole next to one (``center``, ``sign``).
+    """
 
     kind: str  # "axis" | "indent"
-    a: float  # axis: frequency range [a, b]; indent: centre frequency a, radius b
+    a: float  # axis: range [a, b] (frequencies, or distances from `center`); indent: centre, radius
     b: float
     theta0: float = 0.0
     theta1: float = 0.0
     log: bool = False
+    center: float | None = None
+    sign: float = 1.0
 
     def points(self, u: np.ndarray) -> np.ndarray:
         if self.kind == "axis":
-            if self.log:
+            if self.center is not None:
+                w = self.center + self.sign * self.a * (self.b / self.a) ** u
+            elif self.log:
                 w = self.a * (self.b / self.a) ** u
             else:
                 w = self.a + (self.b - self.a) * u
@@ -52,18 +61,29 @@ class Piece:
         theta = self.theta0 + (self.theta1 - self.theta0) * u
         return 1j * self.a + self.b * np.exp(1j * theta)
 
+    @property
+    def w_range(self) -> tuple[float, float]:
+        if self.center is not None:
+            ends = (self.center + self.sign * self.a, self.center + self.sign * self.b)
+            return min(ends), max(ends)
+        return self.a, self.b
+
     def u_of(self, w: np.ndarray) -> np.ndarray:
         """Parameter of axis frequencies inside this piece (for seeding the grid)."""
         w = np.asarray(w, float)
+        if self.center is not None:
+            return np.log(self.sign * (w - self.center) / self.a) / np.log(self.b / self.a)
         if self.log:
             return np.log(w / self.a) / np.log(self.b / self.a)
         return (w - self.a) / (self.b - self.a)
 
 
 def _indent_radius(w0: float, roots: np.ndarray) -> float:
+    """Small enough that a closed-loop pole off the axis by more than 1e-9 of the
+    scale is never inside the indentation, large enough for double precision."""
     others = roots[np.abs(roots - 1j * w0) > 1e-12 * max(1.0, w0)]
     d = float(np.min(np.abs(others - 1j * w0))) if others.size else max(1.0, w0)
-    return 1e-6 * min(d, max(1.0, w0))
+    return 1e-9 * min(d, max(1.0, w0))
 
 
 def build_contour(axis_poles: np.ndarray, roots: np.ndarray, R: float, indent: str = "right",
@@ -85,31 +105,44 @@ def build_contour(axis_poles: np.ndarray, roots: np.ndarray, R: float, indent: s
         marks[w0] = (1e-5 * max(w0, 1e-3), True)
     feature = np.abs(roots[np.abs(roots) > 0]) if roots.size else np.zeros(0)
     low = 1e-4 * float(np.min(feature)) if feature.size else 1e-4
-    freqs = sorted(marks)
+    freqs = sorted(m for m in marks if m < R)
     pieces: list[Piece] = []
-    w = 0.0
+    prev: tuple[float, float] | None = None  # the last indented frequency and its radius
     for w0 in freqs:
         eps, right = marks[w0]
         if w0 == 0.0:
             # start on the real axis at +eps (right) or -eps (left), go to j*eps
             pieces.append(Piece("indent", 0.0, eps, 0.0 if right else math.pi, math.pi / 2))
-            w = eps
+            prev = (0.0, eps)
             continue
-        _axis(pieces, w, w0 - eps, low)
+        _axis(pieces, prev, (w0, eps), R, low)
         pieces.append(Piece("indent", w0, eps, -math.pi / 2, math.pi / 2 if right else -1.5 * math.pi))
-        w = w0 + eps
-    _axis(pieces, w, R, low)
+        prev = (w0, eps)
+    _axis(pieces, prev, None, R, low)
     return pieces
 
 
-def _axis(pieces: list[Piece], lo: float, hi: float, low: float) -> None:
+def _axis(pieces: list[Piece], below: tuple[float, float] | None, above: tuple[float, float] | None,
+          R: float, low: float) -> None:
+    """The axis between two indentations (or from 0, or up to R)."""
+    lo = 0.0 if below is None else below[0] + below[1]
+    hi = R if above is None else above[0] - above[1]
     if hi <= lo:
         return
-    if lo == 0.0:
-        split = min(low, hi / 10.0)
+    mid = hi if above is None else (lo + hi) / 2
+    if below is None:
+        split = min(low, mid / 10.0)
         pieces.append(Piece("axis", 0.0, split))
-        lo = split
-    pieces.append(Piece("axis", lo, hi, log=True))
+        if above is None:
+            pieces.append(Piece("axis", split, hi, log=True))
+            return
+        pieces.append(Piece("axis", split, mid, log=True))
+    else:
+        w0, eps = below
+        pieces.append(Piece("axis", eps, mid - w0, center=w0, sign=1.0))
+    if above is not None:
+        w1, eps = above
+        pieces.append(Piece("axis", w1 - mid, eps, center=w1, sign=-1.0))
 
 
 @dataclass(frozen=True, eq=False)
@@ -126,12 +159,13 @@ class Trace:
 def _seed(piece: Piece, features: np.ndarray) -> np.ndarray:
     if piece.kind == "indent":
         return np.linspace(0.0, 1.0, 9)
-    if piece.log:
-        decades = math.log10(piece.b / piece.a)
+    if piece.log or piece.center is not None:
+        decades = abs(math.log10(piece.b / piece.a))
         u = np.linspace(0.0, 1.0, max(9, int(decades * 30) + 1))
     else:
         u = np.linspace(0.0, 1.0, 9)
-    inside = features[(features > piece.a) & (features < piece.b)]
+    lo, hi = piece.w_range
+    inside = features[(features > lo) & (features < hi)]
     if inside.size:
         u = np.concatenate([u, piece.u_of(inside)])
     return np.unique(np.clip(u, 0.0, 1.0))
