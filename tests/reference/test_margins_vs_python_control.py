@@ -210,6 +210,74 @@ def test_gain_margins_vs_closed_loop_roots_and_python_control(name):
                        f"den + k num); ours: up {m.gain_margin_up_db}, down {m.gain_margin_down_db}")
 
 
+# ----------------------------------------------------------------- multi-loop models (cascades)
+# Breaks of nested cascades (tests/reference/loopsets.py `nested_cascade`, fixed seeds): each
+# break's L_k (other loops closed) is rebuilt independently in python-control (`Wiring.loop`,
+# L = -G) and its `stability_margins(returnall=True)` crossovers compared with ours; the gain
+# margins are checked on the whole closed loop (`control.interconnect` poles) with the cut
+# wire closed again with the factor: stable on the way, unstable just beyond. Inner breaks see
+# the outer integrators closed (P_k may be > 0) while the contour still indents round them.
+
+_CASCADES = [(2, 4.0), (3, 3.0), (4, 2.0), (5, 2.5)]
+
+
+def _stable_with_factor(g, k: float) -> bool:
+    """Close the cut wire again with a factor k: v = k y around python-control's state-space
+    G from the injection v to the cut signal y (all block states kept, other loops closed),
+    x' = (A + B k C / (1 - k D)) x; stable iff every eigenvalue is in the open left half plane."""
+    A, B, C, D = (np.asarray(m, float) for m in (g.A, g.B, g.C, g.D))
+    A_cl = A + (k / (1.0 - k * D[0, 0])) * (B @ C)
+    return bool(np.all(np.linalg.eigvals(A_cl).real < 0))
+
+
+@functools.lru_cache(maxsize=None)
+def _cascade(n: int, separation: float):
+    from loopwise.analysis import check_text
+    from .loopsets import nested_cascade
+    c = nested_cascade(n, seed=31, separation=separation)
+    return c, check_text(c.text(), file=f"<cascade {n}>")
+
+
+@pytest.mark.parametrize("n, separation", _CASCADES,
+                         ids=[f"pc-interconnect-cascade{n}-sep{s}" for n, s in _CASCADES])
+def test_cascade_break_margins_vs_python_control(n, separation):
+    cascade, res = _cascade(n, separation)
+    wiring = cascade.wiring()
+    assert res.stable
+    for b in res.breaks:
+        m = b.margins
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            Lk = -control.ss2tf(wiring.loop(b.name))
+            gm, pm, _, w180, wc, _ = control.stability_margins(Lk, returnall=True)
+        ours = [g.freq for g in m.gain_crossovers]
+        theirs = sorted(float(w) for w in wc if w > 0)
+        assert ours == pytest.approx(theirs, rel=1e-6), (b.name, ours, theirs)
+        assert [g.phase_margin_deg for g in m.gain_crossovers] == \
+            pytest.approx([abs(p) for _, p in sorted(zip(wc, pm)) if _ > 0], rel=1e-6), b.name
+        top = b.response.freq.max()
+        theirs = sorted(float(w) for w, g in zip(w180, gm) if 0 < w <= top and np.isfinite(g))
+        for w in theirs[:]:
+            L = complex(wiring.loop_response(b.name, np.array([1j * w]))[0])
+            if abs(L) < 1e-9:  # L has zeros at s = 0 (outer integrators closed): the origin
+                theirs.remove(w)
+                _finding(f"cascade{n}/{b.name}", f"python-control reports a phase crossover at "
+                         f"{w:.6g} rad/s where |L| = {abs(L):.2g} (the zeros of L at s = 0 come out "
+                         "of ss2tf as tiny complex pairs; the curve only passes the origin there)")
+        assert [p.freq for p in m.phase_crossovers] == pytest.approx(theirs, rel=1e-6), b.name
+        g = wiring.loop(b.name)
+        for db, side in ((m.gain_margin_up_db, "up"), (m.gain_margin_down_db, "down")):
+            if db is None:
+                far = 1e6 if side == "up" else 1e-6
+                assert all(_stable_with_factor(g, k) for k in np.geomspace(1, far, 25)), (b.name, side)
+                continue
+            k = 10 ** (db / 20)
+            path = np.geomspace(1.0, k, 25)[1:-1]
+            beyond, inside = (k * 1.001, k / 1.001) if k > 1 else (k / 1.001, k * 1.001)
+            assert all(_stable_with_factor(g, x) for x in [*path, inside]), (b.name, side, db)
+            assert not _stable_with_factor(g, beyond), (b.name, side, db)
+
+
 def test_findings_report(capsys):
     """Print python-control's disagreements (collected above; never asserted away)."""
     with capsys.disabled():
