@@ -205,3 +205,31 @@ def test_pole_free_indentation_without_the_evaluator():
     # and a real integrator still counts as one: 2(s + 1)/(s (s - 1)) is stable for k > 1/2
     (lo, hi), = stabilising_gains(contour_response(rational([2, 2], [1, -1, 0]), (0.0,)), 1)
     assert lo == pytest.approx(0.5, rel=1e-6) and hi == math.inf
+
+
+def _random_loop(seed: int):
+    """A delay-free loop from a fixed seed: 1-6 poles (some in the RHP, some integrators),
+    fewer zeros (some in the RHP), a gain of either sign's magnitude over four decades."""
+    rng = np.random.default_rng([20261201, seed])
+    n = int(rng.integers(1, 7))
+    q = int(rng.integers(0, 3)) if n > 1 else 0
+    poles = [0.0] * min(q, n - 1) + list(rng.uniform(-10, 3, n - min(q, n - 1)))
+    zeros = list(rng.uniform(-10, 3, int(rng.integers(0, n))))
+    gain = 10 ** rng.uniform(-1, 3)
+    return np.atleast_1d(gain * np.poly(zeros)), np.poly(poles), tuple(0.0 for p in poles if p == 0.0)
+
+
+@pytest.mark.parametrize("seed", range(24), ids=lambda s: f"numpy-roots-random-{s}")
+def test_stabilising_gains_agree_with_closed_loop_roots(seed):
+    """Every factor k on a grid over 1e-4..1e4 is inside a reported interval exactly when
+    numpy.roots puts every pole of den + k num in the open left half plane (factors within
+    0.1 % of an interval end are not judged: the roots are too close to the axis there)."""
+    num, den, axis = _random_loop(seed)
+    ev = rational(num, den)
+    P = int(np.sum(np.roots(den).real > 0))
+    gains = stabilising_gains(contour_response(ev, axis[:1]), P, ev)
+    ends = [x for lo_hi in gains for x in lo_hi if 0 < x < math.inf]
+    for k in np.geomspace(1e-4, 1e4, 81):
+        if any(abs(k / e - 1) < 1e-3 for e in ends):
+            continue
+        assert _stable(num, den, k) == any(lo < k < hi for lo, hi in gains), (seed, k, gains)
