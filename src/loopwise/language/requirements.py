@@ -69,7 +69,11 @@ def _to_metric_unit(metric: Metric, value: float, kind: str | None, span: Span) 
         return math.degrees(value)
     if kind == "gain":
         if value <= 0:
-            raise ModelError("E242", "a dB limit must come from a positive ratio", span, None)
+            hint = ("a down margin is judged as the size of the decrease, a positive dB figure: "
+                    "write e.g. `gain_margin_down >= 6dB`") if metric.name == "gain_margin_down" else \
+                "write the limit as a positive dB figure, e.g. `>= 6dB`"
+            raise ModelError("E242", "a dB limit must come from a positive ratio (`-6dB` is read as minus "
+                             "the ratio of 6 dB)", span, hint)
         return 20.0 * math.log10(value) if metric.unit == "dB" else value
     return value  # time in s, frequency in rad/s, ratio as is
 

@@ -108,7 +108,7 @@ class _Resolver:
     # --- collecting statements (includes first, in place) ----------------------
     def declare(self, name: str, what: str, span: Span) -> bool:
         if name in RESERVED:
-            self.errors.append(ModelError("E201", f"`{name}` is a reserved word and cannot name a {what}",
+            self.errors.append(ModelError("E201", f"`{name}` is a reserved word and cannot name {'an' if what[0] in 'aeiou' else 'a'} {what}",
                                           span, "choose another name"))
             return False
         if name in self.names:
@@ -271,8 +271,7 @@ class _Resolver:
             except ModelError as exc:
                 self.errors.append(exc)
         if self.errors:
-            raise ModelErrors(sorted(self.errors, key=lambda e: (e.span.file != self.file, e.span.file,
-                                                                 e.span.line, e.span.col)))
+            raise ModelErrors(list(self.errors))  # in the order found: causes before follow-ups
         signals = {n: s.span for n, s in self.eq_stmts.items()}
         signals.update(self.hidden)
         return Model(
@@ -339,7 +338,8 @@ class _Evaluator:
             raise ModelError("E216", f"block `{e.name}` is used as a value", e.span,
                              f"apply it to a signal: `{e.name}(x)`")
         if e.name in r.param_spans:  # declared, but its own definition failed
-            raise ModelError("E217", f"param `{e.name}` could not be evaluated (see its error)", e.span, None)
+            raise ModelError("E217", f"param `{e.name}` could not be evaluated (see its error)", e.span,
+                             "fix the error reported at its definition first")
         if e.name in r.all_params:
             raise ModelError("E217", f"param `{e.name}` is used before it is defined", e.span,
                              "params may only use params defined above them")
@@ -354,7 +354,7 @@ class _Evaluator:
         if isinstance(a, Quantity) and isinstance(b, Quantity):
             kind = a.kind if a.kind == b.kind or b.kind is None else (b.kind if a.kind is None else None)
             if op == "/" and b.value == 0:
-                raise ModelError("E219", "division by zero", span, None)
+                raise ModelError("E219", "division by zero", span, "check the params in the divisor")
             v = {"+": a.value + b.value, "-": a.value - b.value, "*": a.value * b.value,
                  "/": a.value / b.value if op == "/" else 0.0}[op]
             if op in "*/" and a.kind and b.kind:
@@ -397,7 +397,7 @@ class _Evaluator:
             raise ModelError("E222", "dividing by a signal is not linear", span,
                              "divide a signal by a constant, or apply a block")
         if b.value == 0:
-            raise ModelError("E219", "division by zero", span, None)
+            raise ModelError("E219", "division by zero", span, "check the params in the divisor")
         return [_scale(t, 1.0 / b.value) for t in a]
 
     def ev_BinOp(self, e: ast.BinOp):
@@ -417,15 +417,18 @@ class _Evaluator:
         if not isinstance(exp_value, Quantity):
             raise ModelError("E223", "an exponent must be a constant", e.exponent.span, "write s^2 or wn^2")
         if isinstance(base, list):
-            raise ModelError("E222", "a power of a signal is not linear", e.span, None)
+            raise ModelError("E222", "a power of a signal is not linear", e.span,
+                             "apply a block to the signal instead")
         if isinstance(base, Quantity):
             # constants may take any real power (sqrt as ^0.5); transfers only whole ones
             if base.value < 0 and exp_value.value != round(exp_value.value):
-                raise ModelError("E223", "a negative number to a fractional power is not real", e.span, None)
+                raise ModelError("E223", "a negative number to a fractional power is not real",
+                                 e.span, "use a positive base or a whole exponent")
             try:
                 v = float(base.value) ** float(exp_value.value)
             except (ZeroDivisionError, OverflowError):
-                raise ModelError("E219", "the power has no finite value", e.span, None) from None
+                raise ModelError("E219", "the power has no finite value", e.span,
+                                 "check the base and the exponent") from None
             return Quantity(v, base.kind if exp_value.value == 1 else None)
         if exp_value.value != round(exp_value.value) or abs(exp_value.value) > 64:
             raise ModelError("E223", "powers of a transfer must be whole numbers (at most 64)",
@@ -433,7 +436,7 @@ class _Evaluator:
         try:
             return base ** int(exp_value.value)
         except TransferError as exc:
-            raise ModelError("E221", str(exc), e.span, None) from None
+            raise ModelError("E221", str(exc), e.span, "simplify the transfer expression") from None
 
     def ev_Call(self, e: ast.Call):
         r = self.r
@@ -453,14 +456,16 @@ class _Evaluator:
             raise ModelError("E227", f"unknown block `{e.func}`", e.func_span,
                              _close(e.func, r.block_stmts) or "define it with `block Name = ...`")
         if e.func not in r.blocks:
-            raise ModelError("E228", f"block `{e.func}` could not be evaluated (see its error)", e.func_span, None)
+            raise ModelError("E228", f"block `{e.func}` could not be evaluated (see its error)",
+                             e.func_span, "fix the error reported at the block's definition first")
         r.block_uses[e.func] = r.block_uses.get(e.func, 0) + 1
         app = Application(e.func, r.blocks[e.func].transfer, e.span)
         return self.apply(app, self.ev(e.arg), e.arg.span)
 
     def ev_Inline(self, e: ast.Inline):
         if self.mode != "wiring":
-            raise ModelError("E229", "a bracketed transfer `[..](x)` belongs in a signal equation", e.span, None)
+            raise ModelError("E229", "a bracketed transfer `[..](x)` belongs in a signal equation",
+                             e.span, "in a block or param, write the transfer without brackets")
         value = _Evaluator(self.r, "transfer").ev(e.transfer)
         tf = value if isinstance(value, Transfer) else Transfer.constant(value.value)
         label = f"[..]@{e.span.line}:{e.span.col}"
