@@ -21,6 +21,7 @@ import functools
 import warnings
 
 import control
+import numpy as np
 import pytest
 
 from loopwise.analysis import analyse_loop
@@ -119,3 +120,32 @@ def test_findings_report(capsys):
             print("  ", line)
     # the skip rule must stay a rare exception, not a way round hard cases
     assert len(skipped) <= len(CASES) // 50
+
+
+@pytest.mark.parametrize("delta", [1e-4, 1e-6, 1e-8, -1e-4, -1e-6, -1e-8])
+def test_zero_next_to_an_axis_pole_never_gives_a_wrong_count(delta):
+    """L = 3 (s^2 + (1+delta)^2) / ((s^2 + 1)(s + 1)(s + 2)): a zero pair within delta of the
+    undamped pole pair leaves a closed-loop pair next to it. Re-derived: near s = j,
+    L = r/(s - j) + L_rest with r = 3*2 delta/(2j (1+j)(2+j)) = -delta (0.9 + 0.3j) and
+    L_rest(j) = 3/((1+j)(2+j)) = 0.3 - 0.9j, so 1 + L = 0 at
+    s - j = -r/(1 + L_rest(j)) = delta (0.36 + 0.48j): right of the axis for delta > 0.
+    The engine must either count it right (python-control `feedback(L, 1).poles()` as the
+    reference) or refuse with a located model error; a silent wrong Z is the one thing
+    not allowed (RULES 6)."""
+    from loopwise.errors import ModelError
+    zeros = [1j * (1 + delta), -1j * (1 + delta)]
+    poles = [1j, -1j, -1.0, -2.0]
+    num = 3.0 * np.real(np.poly(zeros))
+    den = np.real(np.poly(poles))
+    cl = control.feedback(control.tf(num, den), 1).poles()
+    assert not near_axis(cl)
+    z_ref = int(np.sum(cl.real > 0))
+    assert z_ref == (2 if delta > 0 else 0)
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            res = analyse_loop(Transfer.from_zpk(zeros, poles, 3.0), name="near_axis_cancel")
+    except ModelError as exc:  # an explicit refusal is acceptable
+        assert exc.span is not None and "certif" in exc.message
+        return
+    assert res.closed_loop_rhp_poles == z_ref
