@@ -99,18 +99,26 @@ def prepare_contour(red: Reduction, indent: str = "right") -> Setup:
 
 
 def _margin_reach(red: Reduction, R: float) -> float:
-    """How far up the axis the margins need samples: until every |L_k| stays below REACH_LEVEL."""
+    """How far up the axis the margins and pictures need samples.
+
+    Until every |L_k| stays below REACH_LEVEL, and at least 30 times the last
+    frequency where some |L_k| >= 1 (so that a delay's roll-off shows in a Bode
+    view); at most 1e4 R.
+    """
     if not red.cut_sets:
         return R
-    w = R * np.logspace(0.0, 4.0, 401)
-    last = R
+    w = R * np.logspace(-6.0, 4.0, 1001)
+    last_small, last_unit = R, 0.0
     for name in red.cut_sets:
         with np.errstate(all="ignore"):
             mag = np.abs(red.loop_transfer(name, 1j * w))
         big = np.nonzero(~(mag < REACH_LEVEL))[0]
         if big.size:
-            last = max(last, float(w[min(big[-1] + 1, w.size - 1)]))
-    return min(1.5 * last, 1e4 * R)
+            last_small = max(last_small, float(w[min(big[-1] + 1, w.size - 1)]))
+        unit = np.nonzero(~(mag < 1.0))[0]
+        if unit.size:
+            last_unit = max(last_unit, float(w[unit[-1]]))
+    return min(max(1.5 * last_small, 30.0 * last_unit, R), 1e4 * R)
 
 
 def count_model(red: Reduction, setup: Setup) -> tuple[int, tuple[str, ...]]:
