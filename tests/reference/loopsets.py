@@ -17,13 +17,13 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
 __all__ = [
     "LoopCase", "delay_free_loops", "closed_loop_rhp", "near_axis",
-    "Stage", "Cascade", "nested_cascade", "zpk_text", "strip_delays",
+    "Stage", "Cascade", "nested_cascade", "zpk_text", "strip_delays", "Wiring",
 ]
 
 
@@ -292,7 +292,6 @@ class Cascade:
 
     stages: tuple[Stage, ...]
     name: str = "cascade"
-    break_names: tuple[str, ...] = field(default=())
 
     @property
     def n(self) -> int:

@@ -155,7 +155,7 @@ def _delay_free_copy(name: str, tmp_path: Path) -> Path:
 GRID = 1j * np.logspace(-5, 6, 166)
 
 
-def _assert_same_response(ours, ref, label, floor=1e-20):
+def _assert_same_response(ours, ref, label, floor=1e-20, s=GRID):
     """Relative error below 1e-9 at every grid point down to 1e-20 of the peak (the reference
     is refined in 30 digits where L is tiny, see Wiring.loop_response; below 1e-20 of the
     peak - 1e-45 absolute on the 6-loop cascade's inner loop at 1e-5 rad/s - even that
@@ -165,7 +165,7 @@ def _assert_same_response(ours, ref, label, floor=1e-20):
     err = np.abs(ours - ref)
     tol = 1e-9 * np.abs(ref) + floor * np.max(np.abs(ref))
     bad = np.nonzero(err > tol)[0]
-    assert bad.size == 0, (f"{label}: L differs at w = {np.abs(GRID[bad[0]]):.4g} rad/s: "
+    assert bad.size == 0, (f"{label}: L differs at w = {np.abs(s[bad[0]]):.4g} rad/s: "
                            f"expected {ref[bad[0]]:.12g}, got {ours[bad[0]]:.12g} "
                            f"({bad.size} of {len(ref)} grid points)")
 
@@ -253,3 +253,19 @@ def test_generated_cascade_verdict_at_every_break(n, separation):
         p_ref = int(np.sum(np.linalg.eigvals(A_k).real > 0))
         assert b.open_loop_rhp_poles == p_ref, (b.name, p_ref, b.open_loop_rhp_poles)
     assert len(prep.break_names) == n
+
+
+def test_generated_loops_written_as_models_vs_python_control():
+    """Every 12th loop of the generated set written as a one-block model (factored text,
+    tests/reference/loopsets.zpk_text): the engine's L at the break vs python-control
+    `tf(num, den)` evaluated on the grid (orders up to 10)."""
+    from .loopsets import delay_free_loops, zpk_text
+    grid = 1j * np.logspace(-2, 3, 61)
+    for case in delay_free_loops()[::12]:
+        text = ("model generated\ninput r\ne = r - y\n"
+                f"y = [{zpk_text(case.zeros, case.poles, case.gain)}](e)\nbreak b at y\n")
+        prep = prepare_text(text, file=f"<{case.name}>")
+        num, den = case.num_den()
+        s = grid[np.min(np.abs(grid[:, None] - np.asarray(case.poles)[None, :]), axis=1) > 1e-3]
+        _assert_same_response(prep.loop_transfer("b", s), ct.tf(num, den)(s), case.name,
+                              floor=1e-13, s=s)
