@@ -63,7 +63,7 @@ class _Curve:
 class _Crossing:
     """One crossing of the closed curve with the negative real axis."""
 
-    x: float          # position; -inf: an indentation (limit k -> 0); 0.0: limit k -> inf
+    x: float          # position; -inf: round a pole of L (limit k -> 0); 0.0: limit k -> inf
     up: int           # +1: the curve goes from Im <= 0 to Im > 0 here, else -1
     bracket: tuple[float, float] | None  # axis frequencies to refine it between, if any
     listed: bool = False    # a phase crossover (upper half, engine samples, w > 0)
@@ -320,9 +320,9 @@ def stabilising_gains(response: LoopResponse, open_loop_rhp_poles: int,
 
     ``hi`` may be ``math.inf`` and ``lo`` may be 0.0. With `evaluate`, the
     crossings are refined to full precision, the axis is followed past the
-    engine's last sample and indentations are checked for poles of L; without
-    it, positions are interpolated between samples and every indentation is
-    taken to surround a pole.
+    engine's last sample and indentations are probed for poles of L; without
+    it, positions are interpolated between samples (log |L| and arg L) and
+    indentations are judged from the samples.
     """
     curve = _upper_curve(response, evaluate)
     crossings = _negative_axis_crossings(curve)
