@@ -268,4 +268,4 @@ def test_generated_loops_written_as_models_vs_python_control():
         num, den = case.num_den()
         s = grid[np.min(np.abs(grid[:, None] - np.asarray(case.poles)[None, :]), axis=1) > 1e-3]
         _assert_same_response(prep.loop_transfer("b", s), ct.tf(num, den)(s), case.name,
-                              floor=1e-13, s=s)
+                              floor=0.0, s=s)
