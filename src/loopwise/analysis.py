@@ -62,7 +62,8 @@ def prepare_text(text: str, file: str = "<text>", settings=None) -> Prepared:
 
 
 def prepare_file(path, settings=None) -> Prepared:
-    return _prepare(resolve_file(path, _settings_requirements(settings)))
+    return _prepare(resolve_file(path, _settings_requirements(settings),
+                                 getattr(settings, "source", None) or "<settings>"))
 
 
 def check_text(text: str, file: str = "<text>", settings=None, indent: str = "right") -> ModelResult:
@@ -136,12 +137,16 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
                                     f"break `{cut.enclosed_by}` (common practice: 3 to 5 times or more)")
         verdict = "marginal" if c.marginal else ("stable" if stable else "unstable")
         reqs = tuple(r for r in model.requirements if r.target in (name, "*"))
-        gains = () if stable else stabilising_gains(c.response, c.P)
+        evaluate = (lambda s, n=name: red.loop_transfer(n, s))
+        gains = stabilising_gains(c.response, c.P, evaluate)
+        if stable and not any(lo < 1.0 < hi for lo, hi in gains):
+            warnings.append("numerical: the gain-margin stretches do not place k = 1 in a stable range "
+                            "although the count is stable; treat the gain margins with care")
         results.append(BreakResult(
             name=name, at=cut.stmt.at, line=cut.stmt.span.line, stable=stable, open_loop_rhp_poles=c.P,
             encirclements=c.N, closed_loop_rhp_poles=c.Z, marginal=c.marginal, marginal_freq=c.marginal_freq,
             margins=m, requirements=judge(reqs, m, separation, verdict), warnings=tuple(warnings),
-            stabilising_gains=gains, enclosed_by=cut.enclosed_by, separation=separation, response=c.response,
+            stabilising_gains=() if stable else gains, enclosed_by=cut.enclosed_by, separation=separation, response=c.response,
         ))
     marginal = any(r.marginal for r in results)
     return ModelResult(model.file, model.name, Z == 0 and not marginal, Z, tuple(results), tuple(findings))

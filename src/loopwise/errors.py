@@ -120,6 +120,9 @@ def render(finding: Finding, text: str | None = None) -> str:
     if finding.code == "E104":
         line = None  # not text: echoing it would only print garbage
     if line is not None:
+        # a model's bytes must not drive the terminal: control characters become "?"
+        line = "".join(c if c == "\t" or (c.isprintable() and c != "\x7f") else "?" for c in line)
+    if line is not None:
         col = max(finding.span.col, 1)
         width = 1
         if finding.span.end_col and finding.span.end_col > finding.span.col:

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import math
 
-from .language.requirements import Requirement
+from .language.requirements import METRICS, Requirement
 from .results import Margins, RequirementResult
 
 __all__ = ["metric_value", "judge", "SEPARATION_WARNING"]
@@ -56,10 +56,11 @@ def judge(requirements: tuple[Requirement, ...], margins: Margins | None, separa
     for req in requirements:
         if margins is None:
             out.append(RequirementResult(req.metric, req.op, req.limit, None, False, req.span.line,
-                                         req.span.file, f"closed loop {verdict}: no margins"))
+                                         req.span.file, f"closed loop {verdict}: no margins",
+                                         METRICS[req.metric].unit))
             continue
         value, note = metric_value(req.metric, margins, separation)
         met = value is not None and req.holds(value)
         out.append(RequirementResult(req.metric, req.op, req.limit, value, met, req.span.line,
-                                     req.span.file, note))
+                                     req.span.file, note, METRICS[req.metric].unit))
     return tuple(out)

@@ -89,12 +89,14 @@ class Reduction:
         tf = inst.transfer
         if tf is None:
             return np.full(s.shape, inst.term.gain, dtype=complex)
-        return inst.term.gain * tf.evaluate(s)
+        with np.errstate(all="ignore"):
+            return inst.term.gain * tf.evaluate(s)
 
     def characteristic(self, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Phase and log|.| of det(I - A(s)) (the whole closed loop)."""
         M = np.eye(self.n)[None, :, :] - self.matrix(s)
-        sign, logabs = np.linalg.slogdet(M)
+        with np.errstate(all="ignore"):
+            sign, logabs = np.linalg.slogdet(M)
         return np.angle(sign), logabs
 
     def loop(self, name: str, s: np.ndarray) -> LoopEvaluation:
@@ -106,9 +108,9 @@ class Reduction:
         for k in cut:
             inst = self.instances[k]
             b[:, inst.row] += self._term_values(inst, s)
-        sign, logabs = np.linalg.slogdet(M)
         with np.errstate(all="ignore"):
-            x = np.linalg.solve(M, b[:, :, None])[:, :, 0]
+            sign, logabs = np.linalg.slogdet(M)
+            x = _solve(M, b)
         sig = self.signals.index(self._cut_signal(name))
         return LoopEvaluation(np.angle(sign), logabs, -x[:, sig])
 
@@ -155,6 +157,20 @@ class Reduction:
                 A0[inst.row, inst.col] += d
             rest.append((inst.row, inst.col, abs(g), tf))
         return A0, Dd, rest
+
+
+def _solve(M: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Batched solve; a point where I - A_k is singular (s on a pole) gives NaN, not an exception."""
+    try:
+        return np.linalg.solve(M, b[:, :, None])[:, :, 0]
+    except np.linalg.LinAlgError:
+        out = np.full(b.shape, np.nan + 0j)
+        for i in range(M.shape[0]):
+            try:
+                out[i] = np.linalg.solve(M[i], b[i])
+            except np.linalg.LinAlgError:
+                pass
+        return out
 
 
 def _remainder_bound(gain: float, tf, r: float) -> float:

@@ -119,14 +119,16 @@ class RequirementResult:
     line: int
     file: str = ""
     note: str | None = None
+    unit: str = ""  # the metric's own unit, for display ("deg", "dB", "s", "rad/s", "")
 
     def to_dict(self) -> dict:
         return {"metric": self.metric, "op": self.op, "limit": _num(self.limit),
                 "value": _num(self.value), "met": bool(self.met), "line": self.line}
 
     def describe(self) -> str:
-        v = "none" if self.value is None else f"{self.value:.4g}"
-        return f"{self.metric} {self.op} {self.limit:.4g} (value {v})"
+        u = f" {self.unit}" if self.unit else ""
+        v = "none" if self.value is None else f"{self.value:.4g}{u}"
+        return f"{self.metric} {self.op} {self.limit:.4g}{u} (value {v})"
 
 
 @dataclass(frozen=True, eq=False)

@@ -50,17 +50,31 @@ def _sections(zeros: np.ndarray, poles: np.ndarray) -> list[tuple[np.ndarray, np
     return [(np.real(np.poly(n)) if n else np.array([1.0]), np.real(np.poly(d))) for n, d in zip(nums, dens)]
 
 
+def _section_ss(num: np.ndarray, den: np.ndarray):
+    """Controllable canonical form of a proper section of order 1 or 2."""
+    den = np.asarray(den, float)
+    num = np.concatenate([np.zeros(den.size - np.size(num)), np.asarray(num, float)]) / den[0]
+    den = den / den[0]
+    n = den.size - 1
+    D = num[0]
+    c = num[1:] - D * den[1:]  # strictly proper remainder's numerator
+    A = np.zeros((n, n))
+    A[0, :] = -den[1:]
+    if n > 1:
+        A[1:, :-1] = np.eye(n - 1)
+    B = np.zeros((n, 1))
+    B[0, 0] = 1.0
+    return A, B, c.reshape(1, n), D
+
+
 def _realise(tf) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
     """A minimal SISO realisation of gain * prod(s - z) / prod(s - p), section by section."""
-    from scipy import signal
-
     A = np.zeros((0, 0))
     B = np.zeros((0, 1))
     C = np.zeros((1, 0))
     D = float(tf.gain)
     for num, den in _sections(tf.zeros, tf.poles):
-        Ai, Bi, Ci, Di = signal.tf2ss(num, den)
-        Di = float(np.atleast_1d(Di).ravel()[0]) if np.size(Di) else 0.0
+        Ai, Bi, Ci, Di = _section_ss(num, den)
         # series: the previous sections' output drives this one
         A = np.block([[A, np.zeros((A.shape[0], Ai.shape[0]))], [Bi @ C, Ai]])
         B = np.vstack([B, Bi * D])

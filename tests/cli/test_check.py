@@ -55,7 +55,7 @@ def test_unmet_requirement_exits_1_and_names_its_line(tmp_path, cli):
     code, out, _ = cli("check", "m.loop")
     assert code == 1
     assert "FAIL  m.loop" in out
-    assert re.search(r"m\.loop:7: break b: phase_margin >= 70 \(value 55\.\d+\)", out)
+    assert re.search(r"m\.loop:7: break b: phase_margin >= 70 deg \(value 55\.\d+ deg\)", out)
 
 
 def test_instability_exits_1(tmp_path, cli):

@@ -87,5 +87,7 @@ def make_requirement(stmt: ast.RequireStmt, const) -> Requirement:
         raise ModelError("E243", f"unknown metric `{stmt.metric}`", stmt.metric_span, hint)
     q = const(stmt.value, f"the limit of `{stmt.metric}`")
     limit = _to_metric_unit(metric, q.value, q.kind, stmt.value.span)
+    # 30deg -> rad -> deg must read 30, not 29.999999999999996
+    limit = float(f"{limit:.12g}")
     return Requirement(stmt.target, stmt.metric, stmt.op, limit, stmt.span, stmt.target_span,
                        f"{stmt.target} {stmt.metric} {stmt.op} {limit:g}{metric.unit}")

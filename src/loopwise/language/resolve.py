@@ -509,7 +509,8 @@ def resolve_text(text: str, file: str = "<text>", extra_requirements: tuple[str,
     path = Path(file).resolve() if not file.startswith("<") else None
     extra = []
     for i, line in enumerate(extra_requirements):
-        sub = parse_text("require " + line, extra_source)
+        # blank lines first, so that each default requirement reports its own entry number
+        sub = parse_text("\n" * i + "require " + line, extra_source)
         for stmt in sub.statements:
             if not isinstance(stmt, ast.RequireStmt):
                 raise ModelError("E240", f"a default requirement must look like `* metric >= value`: {line!r}",
@@ -518,7 +519,8 @@ def resolve_text(text: str, file: str = "<text>", extra_requirements: tuple[str,
     return _Resolver(file).resolve(mf, path, tuple(extra))
 
 
-def resolve_file(path: str | Path, extra_requirements: tuple[str, ...] = ()) -> Model:
+def resolve_file(path: str | Path, extra_requirements: tuple[str, ...] = (),
+                 extra_source: str = "<settings>") -> Model:
     p = Path(path)
     try:
         data = p.read_bytes()
@@ -529,4 +531,4 @@ def resolve_file(path: str | Path, extra_requirements: tuple[str, ...] = ()) -> 
     except OSError as exc:
         raise ModelError("E001", f"cannot read the file: {exc.strerror}", Span(str(path), 0, 0), None) from None
     text = data.decode("utf-8", errors="replace")
-    return resolve_text(text, str(path), extra_requirements)
+    return resolve_text(text, str(path), extra_requirements, extra_source)
