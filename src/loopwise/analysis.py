@@ -138,8 +138,11 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
         verdict = "marginal" if c.marginal else ("stable" if stable else "unstable")
         reqs = tuple(r for r in model.requirements if r.target in (name, "*"))
         evaluate = (lambda s, n=name: red.loop_transfer(n, s))
-        gains = stabilising_gains(c.response, c.P, evaluate)
-        if stable and not any(lo < 1.0 < hi for lo, hi in gains):
+        # for a stable break the margins already hold the stretch around k = 1; both margins
+        # unbounded is the one case worth checking against the count (it also means "no stretch")
+        ambiguous = stable and m is not None and m.gain_margin_up_db is None and m.gain_margin_down_db is None
+        gains = stabilising_gains(c.response, c.P, evaluate) if (ambiguous or not stable) else ()
+        if ambiguous and not any(lo < 1.0 < hi for lo, hi in gains):
             warnings.append("numerical: the gain-margin stretches do not place k = 1 in a stable range "
                             "although the count is stable; treat the gain margins with care")
         results.append(BreakResult(

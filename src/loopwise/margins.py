@@ -257,6 +257,52 @@ def _segment_crossings(a: np.ndarray, b: np.ndarray) -> list[tuple[int, float, i
             for k, xk, y1, f in zip(hit[keep], x[keep], yb[keep], frac[keep])]
 
 
+def _refine_all(crossings: list[_Crossing], evaluate: Evaluate | None) -> None:
+    """Refine many crossings at once: the Illinois variant of regula falsi on
+    arg(-L(jw)), vectorised, so that every iteration is one batched evaluation
+    (a delayed loop has hundreds of phase crossovers)."""
+    unique = list({id(c): c for c in crossings}.values())
+    todo = [c for c in unique if not c.refined and c.bracket is not None]
+    if not todo or evaluate is None:
+        return
+    h = lambda w: np.angle(-evaluate(1j * w))  # noqa: E731
+    a = np.array([c.bracket[0] for c in todo])
+    b = np.array([c.bracket[1] for c in todo])
+    with np.errstate(all="ignore"):
+        fa, fb = h(a), h(b)
+    ok = (fa * fb <= 0) & (np.abs(fa - fb) < np.pi) & np.isfinite(fa) & np.isfinite(fb)
+    tol = _XTOL_REL * np.maximum(np.abs(a), np.abs(b))
+    live = ok & (fa != 0) & (fb != 0)
+    x = np.where(fa == 0, a, b)
+    for _ in range(100):
+        if not live.any():
+            break
+        with np.errstate(all="ignore"):
+            xs = b - fb * (b - a) / (fb - fa)
+        bad = ~np.isfinite(xs) | (xs <= np.minimum(a, b)) | (xs >= np.maximum(a, b))
+        xs = np.where(bad, 0.5 * (a + b), xs)
+        fx = np.zeros_like(xs)
+        with np.errstate(all="ignore"):
+            fx[live] = h(xs[live])
+        flip = live & (fx * fb < 0)
+        keep = live & ~flip
+        a = np.where(flip, b, a)
+        fa = np.where(flip, fb, np.where(keep, fa / 2.0, fa))
+        b = np.where(live, xs, b)
+        fb = np.where(live, fx, fb)
+        x = np.where(live, xs, x)
+        live &= (fx != 0) & (np.abs(b - a) > tol)
+    for c, xi, good in zip(todo, x, ok):
+        c.refined = True
+        if good:
+            c.freq = float(xi)
+    good_idx = [i for i, g in enumerate(ok) if g]
+    if good_idx:
+        vals = evaluate(1j * x[good_idx])
+        for i, v in zip(good_idx, vals):
+            todo[i].x = float(v.real)
+
+
 def _refine(c: _Crossing, evaluate: Evaluate | None) -> None:
     """Solve arg(-L(jw)) = 0 on the crossing's axis bracket to full precision."""
     if c.refined or c.bracket is None or evaluate is None:
@@ -374,6 +420,7 @@ def _gain_crossovers(curve: _Curve, evaluate: Evaluate) -> list[GainCrossover]:
 def _phase_crossovers(crossings: list[_Crossing], evaluate: Evaluate) -> list[PhaseCrossover]:
     """Crossings on the engine's own axis samples (w > 0), refined."""
     seen, out = set(), []
+    _refine_all([c for c in crossings if c.listed], evaluate)
     for c in crossings:
         if not c.listed or id(c) in seen:
             continue

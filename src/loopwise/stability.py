@@ -24,7 +24,7 @@ __all__ = ["Setup", "NyquistCount", "NeutralLoop", "prepare_contour", "count_mod
 #: a closed-loop pole this close to the axis (|1 + L| relative to 1 + |L|) is called marginal
 MARGINAL = 1e-8
 #: the margins' extension of the axis runs until every |L_k| stays below this
-REACH_LEVEL = 0.05
+REACH_LEVEL = 1e-3
 #: sample budget of the margins' extension (the count itself has the engine's own budget)
 EXTENSION_SAMPLES = 60_000
 

@@ -53,7 +53,8 @@ def grammar_text() -> str:
 
 @functools.lru_cache(maxsize=1)
 def _parser() -> Lark:
-    return Lark(grammar_text(), parser="lalr", propagate_positions=True, maybe_placeholders=False)
+    # cache=True keeps the built LALR tables in the temp folder: later start-ups skip the build
+    return Lark(grammar_text(), parser="lalr", propagate_positions=True, maybe_placeholders=False, cache=True)
 
 
 class _ToAst(Transformer):
