@@ -45,14 +45,7 @@ def _non_negative(unit: str):
     return convert
 
 
-def _jobs(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        value = -1
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"expected a whole number >= 0, got {text!r}")
-    return value
+from .check import _jobs  # noqa: E402  one parser of --jobs for every command
 
 
 def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:

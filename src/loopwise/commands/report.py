@@ -12,22 +12,12 @@ from pathlib import Path
 
 from ..errors import UsageError
 
+from .check import _jobs  # one parser of --jobs for both commands
+
 __all__ = ["add_parser", "run"]
 
 #: below this many figures a progress bar is more flicker than help
 PROGRESS_MIN_FIGURES = 6
-
-
-def _jobs(text: str) -> int:
-    import argparse
-
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number of processes, got {text!r}")
-    if value < 0:
-        raise argparse.ArgumentTypeError("must be 0 (one per CPU) or more")
-    return value
 
 
 def add_parser(subparsers, help_text: str):
