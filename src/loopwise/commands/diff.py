@@ -23,6 +23,7 @@ from pathlib import Path
 from ..diff import DiffResult, Side, Unreadable, compare
 from ..errors import Finding, Span, UsageError, render
 from ..settings import Settings, load_settings
+from .check import _jobs  # one parser of --jobs for every command
 
 __all__ = ["add_parser", "run", "ModelChecker", "content_key"]
 
@@ -43,9 +44,6 @@ def _non_negative(unit: str):
             raise argparse.ArgumentTypeError(f"expected a finite number >= 0 ({unit}), got {text!r}")
         return value
     return convert
-
-
-from .check import _jobs  # noqa: E402  one parser of --jobs for every command
 
 
 def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
