@@ -128,12 +128,15 @@ def bench_cascades(sizes, separation: float) -> None:
         res, dt = _timed(check_text, cascade.text(), file=f"<cascade {n}>")
         ref_dt, z_ref = _cascade_reference(cascade)
         z = "error" if isinstance(res, Exception) else res.closed_loop_rhp_poles
-        growth = "" if prev is None else f"{math.log(dt / prev[1]) / math.log(n / prev[0]):.2f}"
+        failed = isinstance(res, Exception)
+        growth = ("" if prev is None or failed
+                  else f"{math.log(dt / prev[1]) / math.log(n / prev[0]):.2f}")
         print(f"  {n:5d} {dt:11.2f} {ref_dt:17.2f} {dt / ref_dt:6.2f} {f'{z}/{z_ref}':>10} {growth:>16}")
-        if isinstance(res, Exception):
-            print(f"        loopwise failed: {type(res).__name__}: {res}")
-        prev = (n, dt)
-    print("  growth exponent: d log(time) / d log(loops) between successive sizes")
+        if failed:
+            print(f"        loopwise failed after {dt:.1f} s: {type(res).__name__}: {res}")
+        else:
+            prev = (n, dt)
+    print("  growth exponent: d log(time) / d log(loops) from the previous size that succeeded")
 
 
 def main(argv=None) -> int:
