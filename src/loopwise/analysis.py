@@ -18,7 +18,7 @@ from .errors import Finding, ModelError, ModelErrors, Span
 from .language.resolve import Model, resolve_file, resolve_text
 from .reduce import Reduction, reduce_diagram
 from .results import BreakResult, Margins, ModelResult
-from .stability import NeutralLoop, count_break, count_model, prepare_contour
+from .stability import NeutralLoop, count_all, count_model, prepare_contour
 from .judge import SEPARATION_WARNING, judge
 
 __all__ = ["Prepared", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop"]
@@ -99,10 +99,20 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
             f"({roots.min():.3g} to {roots.max():.3g} rad/s): double precision may not resolve such a model; "
             "treat its margins with care", Span(model.file, 1, 1),
             "rescale time (e.g. work in ms) or drop modes far outside the loop's bandwidth"))
-    Z, model_warnings = count_model(red, setup)
+    for term in red.exogenous:
+        n_rhp = term.app.transfer.rhp_poles
+        if n_rhp:
+            findings.append(Finding(
+                "warning", "W404", f"`{term.app.label.split('@')[0]}` is driven by the input `{term.source}` only "
+                f"and has {n_rhp} pole(s) in the right half plane: its output grows whatever the loops do "
+                "(it counts in Z, the same at every break, though no loop transfer shows it)", term.app.span,
+                "an unstable filter on an input path cannot be stabilised by feedback; check the model"))
+    if prep.diagram.breaks:
+        Z, model_warnings, counts = count_all(red, setup)
+    else:
+        (Z, model_warnings), counts = count_model(red, setup), {}
     for w in model_warnings:
         findings.append(Finding("warning", "W402", w, Span(model.file, 1, 1)))
-    counts = {b.stmt.name: count_break(red, b.stmt.name, setup) for b in prep.diagram.breaks}
     touching = tuple(sorted({c.marginal_freq for c in counts.values() if c.marginal}))
     if touching:
         Z, _ = count_model(red, setup.touching(touching))
@@ -161,8 +171,18 @@ def _hidden(red: Reduction, name: str) -> list[str]:
         modes = hidden_modes(red, name)
     except (np.linalg.LinAlgError, ValueError):
         return []
-    return [f"hidden unstable mode at s = {l.real:.4g}{l.imag:+.4g}j inside the loop (cancelled, "
-            f"invisible in L): blocks {', '.join(names)}" for l, names in modes]
+    out = []
+    for l, names in modes:
+        # the rank test can misfire on badly scaled forms: a mode that L_k shows (|L| grows
+        # like 1/d^m next to it) is not hidden
+        d = 1e-3 * max(abs(l), 1e-12)
+        with np.errstate(all="ignore"):
+            near = np.abs(red.loop_transfer(name, np.array([l + d, l + d * 1e-2])))
+        if np.all(np.isfinite(near)) and near[1] > 10.0 * near[0]:
+            continue
+        out.append(f"hidden unstable mode at s = {l.real:.4g}{l.imag:+.4g}j inside the loop (cancelled, "
+                   f"invisible in L): blocks {', '.join(names)}")
+    return out
 
 
 def analyse_loop(L, name: str = "loop", indent: str = "right") -> BreakResult:

@@ -50,6 +50,9 @@ class Reduction:
     signals: tuple[str, ...]
     instances: tuple[Instance, ...]
     cut_sets: dict[str, frozenset[int]]  # break name -> indices of instances cut
+    #: applications driven by an input only: outside A, but their states are part of the
+    #: system, so their poles belong in prod(den_b) (and an unstable one in Z)
+    exogenous: tuple[Term, ...] = ()
 
     # --- structural facts ------------------------------------------------------------
     @property
@@ -59,6 +62,7 @@ class Reduction:
     def block_poles(self) -> np.ndarray:
         """All poles of all applications (each application is its own instance)."""
         poles = [i.transfer.poles for i in self.instances if i.transfer is not None]
+        poles += [t.app.transfer.poles for t in self.exogenous]
         return np.concatenate(poles) if poles else np.zeros(0, complex)
 
     def block_zeros(self) -> np.ndarray:
@@ -94,14 +98,27 @@ class Reduction:
 
     def characteristic(self, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Phase and log|.| of det(I - A(s)) (the whole closed loop)."""
+        s = np.asarray(s, dtype=complex).ravel()
+        step = _chunk(self.n)
+        if s.size > step:
+            parts = [self.characteristic(s[i:i + step]) for i in range(0, s.size, step)]
+            return np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts])
         M = np.eye(self.n)[None, :, :] - self.matrix(s)
         with np.errstate(all="ignore"):
             sign, logabs = np.linalg.slogdet(M)
         return np.angle(sign), logabs
 
     def loop(self, name: str, s: np.ndarray) -> LoopEvaluation:
-        """det(I - A_k) and L_k at every point of s, in one batched solve."""
+        """det(I - A_k) and L_k at every point of s, in batched solves of bounded memory."""
         s = np.asarray(s, dtype=complex).ravel()
+        step = _chunk(self.n)
+        if s.size > step:
+            parts = [self._loop(name, s[i:i + step]) for i in range(0, s.size, step)]
+            return LoopEvaluation(*(np.concatenate([getattr(p, f) for p in parts])
+                                    for f in ("det_k_phase", "det_k_log", "L")))
+        return self._loop(name, s)
+
+    def _loop(self, name: str, s: np.ndarray) -> LoopEvaluation:
         cut = self.cut_sets[name]
         M = np.eye(self.n)[None, :, :] - self.matrix(s, cut)
         b = np.zeros((s.size, self.n), dtype=complex)
@@ -113,6 +130,32 @@ class Reduction:
             x = _solve(M, b)
         sig = self.signals.index(self._cut_signal(name))
         return LoopEvaluation(np.angle(sign), logabs, -x[:, sig])
+
+    def all_loops(self, s: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """det(I - A) (phase, log|.|) and, for every break k, g_k = e_k^T (I - A)^-1 u_k.
+
+        Cutting break k is a rank-one change, A_k = A - u_k e_k^T, so one
+        factorisation of I - A per point serves every break (Sherman-Morrison):
+        det(I - A_k) = det(I - A) (1 + g_k) and L_k = -g_k / (1 + g_k).
+        """
+        s = np.asarray(s, dtype=complex).ravel()
+        names = list(self.cut_sets)
+        step = _chunk(self.n + len(names))
+        if s.size > step:
+            parts = [self.all_loops(s[i:i + step]) for i in range(0, s.size, step)]
+            return tuple(np.concatenate([p[j] for p in parts]) for j in range(3))
+        M = np.eye(self.n)[None, :, :] - self.matrix(s)
+        U = np.zeros((s.size, self.n, len(names)), dtype=complex)
+        for k, name in enumerate(names):
+            for i in self.cut_sets[name]:
+                inst = self.instances[i]
+                U[:, inst.row, k] += self._term_values(inst, s)
+        with np.errstate(all="ignore"):
+            sign, logabs = np.linalg.slogdet(M)
+            X = _solve_many(M, U)
+        rows = [self.signals.index(self._cut_signal(n)) for n in names]
+        g = X[:, rows, np.arange(len(names))]
+        return np.angle(sign), logabs, g
 
     def loop_transfer(self, name: str, s) -> np.ndarray:
         return self.loop(name, np.atleast_1d(s)).L
@@ -159,6 +202,11 @@ class Reduction:
         return A0, Dd, rest
 
 
+def _chunk(n: int) -> int:
+    """Points per batch so that a batch of n x n complex matrices stays near 64 MB."""
+    return max(256, int(64e6 / (16.0 * max(n, 1) ** 2)))
+
+
 def _solve(M: np.ndarray, b: np.ndarray) -> np.ndarray:
     """Batched solve; a point where I - A_k is singular (s on a pole) gives NaN, not an exception."""
     try:
@@ -168,6 +216,20 @@ def _solve(M: np.ndarray, b: np.ndarray) -> np.ndarray:
         for i in range(M.shape[0]):
             try:
                 out[i] = np.linalg.solve(M[i], b[i])
+            except np.linalg.LinAlgError:
+                pass
+        return out
+
+
+def _solve_many(M: np.ndarray, U: np.ndarray) -> np.ndarray:
+    """Batched solve with several right-hand sides; NaN where I - A is singular."""
+    try:
+        return np.linalg.solve(M, U)
+    except np.linalg.LinAlgError:
+        out = np.full(U.shape, np.nan + 0j)
+        for i in range(M.shape[0]):
+            try:
+                out[i] = np.linalg.solve(M[i], U[i])
             except np.linalg.LinAlgError:
                 pass
         return out
@@ -251,10 +313,14 @@ def reduce_diagram(diagram: Diagram) -> Reduction:
     signals = diagram.signals
     index = {n: i for i, n in enumerate(signals)}
     instances = []
+    exogenous = []
     for target, terms in model.equations.items():
         for term in terms:
             if term.source in model.inputs:
-                continue  # exogenous: B(s) u, no part in stability
+                # B(s) u: no part in any loop, but a block here still has states of its own
+                if term.app is not None:
+                    exogenous.append(term)
+                continue
             instances.append(Instance(index[target], index[term.source], term))
     cut_sets = {}
     for cut in diagram.breaks:
@@ -262,4 +328,4 @@ def reduce_diagram(diagram: Diagram) -> Reduction:
         cut_sets[cut.stmt.name] = frozenset(
             k for k, inst in enumerate(instances)
             if (signals[inst.col], signals[inst.row]) in edges)
-    return Reduction(diagram, signals, tuple(instances), cut_sets)
+    return Reduction(diagram, signals, tuple(instances), cut_sets, tuple(exogenous))

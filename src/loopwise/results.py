@@ -135,9 +135,12 @@ class RequirementResult:
 class LoopResponse:
     """The engine's own samples of L along the contour (the plots use these).
 
-    `s` are the contour points of the upper half (indentations and the closing
-    arc included) in traversal order; `L` the loop transfer there; `on_axis`
-    marks the points on the imaginary axis itself (used for Bode views).
+    `s` are the contour points of the upper half in traversal order: the
+    imaginary axis from 0 (or the indentation around s = 0) upwards, with the
+    indentations around axis poles; the closing arc is not sampled (its phase
+    change comes from the certificate, see docs/method.md), and beyond the last
+    point |L| stays small. `L` is the loop transfer there; `on_axis` marks the
+    points on the imaginary axis itself (used for Bode views).
     """
 
     s: np.ndarray

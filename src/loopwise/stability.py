@@ -19,7 +19,8 @@ from .reduce import Reduction, certificate_radius, closing_phase
 from .results import LoopResponse
 from .winding import Piece, build_contour, encirclements, phase_change, trace
 
-__all__ = ["Setup", "NyquistCount", "NeutralLoop", "prepare_contour", "count_model", "count_break"]
+__all__ = ["Setup", "NyquistCount", "NeutralLoop", "prepare_contour", "count_model", "count_break",
+           "count_all"]
 
 #: a closed-loop pole this close to the axis (|1 + L| relative to 1 + |L|) is called marginal
 MARGINAL = 1e-8
@@ -149,6 +150,91 @@ def _uncertified(red: Reduction, what: str, n: int) -> ModelError:
                       "the loop is extremely wide-band or lightly damped; check the model's numbers")
 
 
+def count_all(red: Reduction, setup: Setup) -> tuple[int, tuple[str, ...], dict[str, NyquistCount]]:
+    """The whole model's Z and every break's count from one trace of the contour.
+
+    Each point needs one factorisation of I - A for all breaks (reduce.all_loops):
+    traced together are log det(I - A), log(1 + g_k) and log L_k for every k, so
+    arg det(I - A_k) = arg det(I - A) + arg(1 + g_k) and arg(1 + L_k) = -arg(1 + g_k).
+    """
+    names = list(red.cut_sets)
+    K = len(names)
+
+    def evaluate(s):
+        phase, logabs, g = red.all_loops(s)
+        with np.errstate(all="ignore"):
+            one_g = 1.0 + g
+            L = -g / one_g
+            log_det = logabs + 1j * phase
+            log_one_g = np.log(one_g + 0j)
+            # where 1 + g cancels (|L_k| >> 1, e.g. next to a double integrator) solve that
+            # break directly: det(I - A_k) and L_k without the subtraction
+            bad = ~(np.abs(one_g) > 1e-7 * np.maximum(1.0, np.abs(g)))
+            for k in np.nonzero(bad.any(axis=0))[0]:
+                rows = np.nonzero(bad[:, k])[0]
+                ev = red.loop(names[k], s[rows])
+                log_one_g[rows, k] = (ev.det_k_log + 1j * ev.det_k_phase) - log_det[rows]
+                L[rows, k] = ev.L
+            return np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
+
+    floors = (None,) * (1 + K) + (1e-2,) * K
+    tr = trace(list(setup.pieces), evaluate, setup.features, floors, step_ok=_step_rule(red))
+    if not tr.complete:
+        raise _uncertified(red, "the model", tr.s.size)
+    steps = phase_change(tr.values)
+    close_full = closing_phase(red, frozenset(), setup.R)
+    wz, err_z = encirclements(steps[0] + close_full)
+    model_warnings = []
+    if err_z > 1e-3:
+        model_warnings.append("numerical: the whole-model count did not settle cleanly "
+                              f"(residual {err_z:.2g}); treat the verdict with care")
+    ext = _extension_all(red, setup) if K and setup.reach > setup.R * (1 + 1e-12) else None
+    counts = {}
+    for k, name in enumerate(names):
+        close_k = closing_phase(red, red.cut_sets[name], setup.R)
+        wk, err_k = encirclements(steps[0] + steps[1 + k] + close_k)
+        N, err_n = encirclements(-steps[1 + k] + close_full - close_k)
+        warnings = []
+        if max(err_k, err_n) > 1e-3:
+            warnings.append("numerical: the count did not settle cleanly "
+                            f"(residual {max(err_k, err_n):.2g}); treat the verdict with care")
+        for w in tr.unresolved:
+            warnings.append(f"numerical: sampling could not resolve the curve near {w:.6g} rad/s")
+        s_k, L_k, on_axis = tr.s, np.exp(tr.values[:, 1 + K + k]), tr.on_axis
+        if ext is not None:
+            s_k = np.concatenate([s_k, ext.s[1:]])
+            L_k = np.concatenate([L_k, np.exp(ext.values[1:, k])])
+            on_axis = np.concatenate([on_axis, ext.on_axis[1:]])
+            if not ext.complete:
+                warnings.append(f"margins: the loop transfer beyond {setup.R:.4g} rad/s winds too often to "
+                                "sample fully; crossings there may be missing")
+        response = LoopResponse(*_dedupe(s_k, L_k, on_axis), setup.axis_poles)
+        marginal_freq = _marginal(red, name, response)
+        P = setup.P0 + wk
+        count = NyquistCount(P, N, P + N, marginal_freq is not None, marginal_freq, tuple(warnings), response)
+        if count.marginal:
+            again = _count_break(red, name, setup.touching((marginal_freq,)))
+            count = NyquistCount(again.P, again.N, again.Z, True, marginal_freq, again.warnings, response)
+        counts[name] = count
+    return setup.P0 + wz, tuple(model_warnings), counts
+
+
+def _dedupe(s: np.ndarray, L: np.ndarray, on_axis: np.ndarray):
+    """Drop a sample that repeats the one before it (pieces share their end points)."""
+    keep = np.concatenate([[True], s[1:] != s[:-1]])
+    return s[keep], L[keep], on_axis[keep]
+
+
+def _extension_all(red: Reduction, setup: Setup):
+    def evaluate(s):
+        _, _, g = red.all_loops(s)
+        with np.errstate(all="ignore"):
+            return np.log(-g / (1.0 + g) + 0j)
+
+    return trace([Piece("axis", setup.R, setup.reach, log=True)], evaluate, np.zeros(0),
+                 (REACH_LEVEL / 5,) * len(red.cut_sets), EXTENSION_SAMPLES, _step_rule(red))
+
+
 def count_break(red: Reduction, name: str, setup: Setup) -> NyquistCount:
     count = _count_break(red, name, setup)
     if count.marginal:
@@ -191,7 +277,7 @@ def _count_break(red: Reduction, name: str, setup: Setup) -> NyquistCount:
         if not complete:
             warnings.append(f"margins: the loop transfer beyond {setup.R:.4g} rad/s winds too often to "
                             "sample fully; crossings there may be missing")
-    response = LoopResponse(s, L, on_axis, setup.axis_poles)
+    response = LoopResponse(*_dedupe(s, L, on_axis), setup.axis_poles)
     marginal_freq = _marginal(red, name, response)
     P = setup.P0 + wk
     return NyquistCount(P, N, P + N, marginal_freq is not None, marginal_freq, tuple(warnings), response)

@@ -97,7 +97,10 @@ def build_contour(axis_poles: np.ndarray, roots: np.ndarray, R: float, indent: s
     marks: dict[float, tuple[float, bool]] = {}
     for p in axis_poles:
         w0 = float(abs(p.imag))
-        marks[w0] = (_indent_radius(w0, roots), indent == "right")
+        # m poles at one point make values of about eps^-m there: keep them below 1e250
+        m = int(np.sum(np.abs(axis_poles - 1j * w0) <= 1e-12 * max(1.0, w0)))
+        eps = max(_indent_radius(w0, roots), 10.0 ** (-250.0 / max(m, 1)) * max(1.0, w0))
+        marks[w0] = (eps, indent == "right")
     for w0 in touching:
         w0 = float(abs(w0))
         if any(abs(w0 - m) <= 1e-6 * max(1.0, m) for m in marks):

@@ -81,3 +81,14 @@ def test_breaks_agree_on_the_whole_model_count():
     res = check_text(text)
     assert {b.closed_loop_rhp_poles for b in res.breaks} == {res.closed_loop_rhp_poles}
     assert not any("numerical" in w for b in res.breaks for w in b.warnings)
+
+
+def test_unstable_block_on_an_input_path_is_counted_and_named():
+    # [1/(s-1)](d): its state grows whatever the loop does; chi = prod(den_b) det(I - A)
+    # includes its denominator, so Z = 1 (python-control's interconnect of the same
+    # wiring has the pole at +1 among its closed-loop poles: (s-1) is a factor by hand)
+    text = "input r, d\nblock G = 2/((s+1)*(s+2))\ne = r - y\ny = G(e) + [1/(s-1)](d)\nbreak b at y\n"
+    res = check_text(text, "x.loop")
+    assert res.closed_loop_rhp_poles == 1 and not res.stable
+    w = [f for f in res.findings if f.code == "W404"]
+    assert len(w) == 1 and "`d`" in w[0].message and w[0].span.line == 4
