@@ -21,7 +21,8 @@ from .results import BreakResult, Margins, ModelResult
 from .stability import NeutralLoop, count_all, count_model, prepare_contour
 from .judge import SEPARATION_WARNING, judge
 
-__all__ = ["Prepared", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop"]
+__all__ = ["Prepared", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop",
+           "nyquist_verdict"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -185,8 +186,19 @@ def _hidden(red: Reduction, name: str) -> list[str]:
     return out
 
 
+def nyquist_verdict(L, indent: str = "right"):
+    """P, N, Z (a stability.NyquistCount) of unity negative feedback around L, without margins."""
+    prep = _single_loop(L, "loop")
+    setup = prepare_contour(prep.reduction, indent, for_margins=False)
+    return count_all(prep.reduction, setup)[2]["loop"]
+
+
 def analyse_loop(L, name: str = "loop", indent: str = "right") -> BreakResult:
     """Unity negative feedback around the loop transfer L (a Transfer)."""
+    return check_prepared(_single_loop(L, name), indent).breaks[0]
+
+
+def _single_loop(L, name: str) -> Prepared:
     from .diagram import build_diagram as _bd
     from .language import ast
     from .language.resolve import Application, Block, Term
@@ -199,5 +211,4 @@ def analyse_loop(L, name: str = "loop", indent: str = "right") -> BreakResult:
         equations={"e": (Term("r", 1.0, None, span), Term("y", -1.0, None, span)), "y": (Term("e", 1.0, app, span),)},
         breaks=(ast.BreakStmt(span, name, "y", span),), requirements=(), findings=(),
     )
-    prep = _prepare(model)
-    return check_prepared(prep, indent).breaks[0]
+    return _prepare(model)

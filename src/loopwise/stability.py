@@ -83,7 +83,7 @@ def _features(roots: np.ndarray) -> np.ndarray:
     return np.unique(f[f > 0]) if f.size else f
 
 
-def prepare_contour(red: Reduction, indent: str = "right") -> Setup:
+def prepare_contour(red: Reduction, indent: str = "right", for_margins: bool = True) -> Setup:
     poles = red.block_poles()
     roots = np.concatenate([poles, red.block_zeros()])
     R = 0.0
@@ -95,7 +95,8 @@ def prepare_contour(red: Reduction, indent: str = "right") -> Setup:
     axis = poles[poles.real == 0]
     P0 = int(np.sum(poles.real > 0)) + (axis.size if indent == "left" else 0)
     pieces = build_contour(axis, roots, R, indent)
-    return Setup(tuple(pieces), R, _margin_reach(red, R), P0, _features(roots),
+    reach = _margin_reach(red, R) if for_margins else R
+    return Setup(tuple(pieces), R, reach, P0, _features(roots),
                  tuple(sorted({abs(p.imag) for p in axis})), indent, roots, axis)
 
 
