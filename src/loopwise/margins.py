@@ -14,7 +14,7 @@ Conventions (docs/margins.md states them in full):
 - balanced disk margin (Seiler, Packard & Gahinet, IEEE Control Systems
   Magazine 2020): ``alpha = 2 / max |(1 - L)/(1 + L)|``.
 
-Pure numpy; scipy.optimize is imported inside the functions that refine.
+Pure numpy: roots and peaks are refined by loopwise.solve (batched, no scipy import).
 """
 from __future__ import annotations
 
@@ -24,6 +24,7 @@ from typing import Callable
 
 import numpy as np
 
+from .solve import illinois, zoom_max
 from .results import DiskMargin, GainCrossover, LoopResponse, Margins, Peak, PhaseCrossover
 
 __all__ = ["loop_margins", "stabilising_gains"]
@@ -269,29 +270,9 @@ def _refine_all(crossings: list[_Crossing], evaluate: Evaluate | None) -> None:
     a = np.array([c.bracket[0] for c in todo])
     b = np.array([c.bracket[1] for c in todo])
     with np.errstate(all="ignore"):
-        fa, fb = h(a), h(b)
-    ok = (fa * fb <= 0) & (np.abs(fa - fb) < np.pi) & np.isfinite(fa) & np.isfinite(fb)
-    tol = _XTOL_REL * np.maximum(np.abs(a), np.abs(b))
-    live = ok & (fa != 0) & (fb != 0)
-    x = np.where(fa == 0, a, b)
-    for _ in range(100):
-        if not live.any():
-            break
-        with np.errstate(all="ignore"):
-            xs = b - fb * (b - a) / (fb - fa)
-        bad = ~np.isfinite(xs) | (xs <= np.minimum(a, b)) | (xs >= np.maximum(a, b))
-        xs = np.where(bad, 0.5 * (a + b), xs)
-        fx = np.zeros_like(xs)
-        with np.errstate(all="ignore"):
-            fx[live] = h(xs[live])
-        flip = live & (fx * fb < 0)
-        keep = live & ~flip
-        a = np.where(flip, b, a)
-        fa = np.where(flip, fb, np.where(keep, fa / 2.0, fa))
-        b = np.where(live, xs, b)
-        fb = np.where(live, fx, fb)
-        x = np.where(live, xs, x)
-        live &= (fx != 0) & (np.abs(b - a) > tol)
+        jump = np.abs(h(a) - h(b)) >= np.pi  # a wrap of the angle, not a crossing
+    x, ok = illinois(h, a, b, _XTOL_REL)
+    ok &= ~jump
     for c, xi, good in zip(todo, x, ok):
         c.refined = True
         if good:
@@ -305,24 +286,7 @@ def _refine_all(crossings: list[_Crossing], evaluate: Evaluate | None) -> None:
 
 def _refine(c: _Crossing, evaluate: Evaluate | None) -> None:
     """Solve arg(-L(jw)) = 0 on the crossing's axis bracket to full precision."""
-    if c.refined or c.bracket is None or evaluate is None:
-        return
-    from scipy.optimize import brentq
-
-    c.refined = True
-    w0, w1 = c.bracket
-    h = lambda w: float(np.angle(-evaluate(np.array([1j * w]))[0]))  # noqa: E731
-    h0, h1 = h(w0), h(w1)
-    if h0 == 0.0:
-        w = w0
-    elif h1 == 0.0:
-        w = w1
-    elif h0 * h1 < 0 and abs(h0 - h1) < np.pi:
-        w = brentq(h, w0, w1, xtol=_XTOL_REL * w1, rtol=_RTOL)
-    else:
-        return
-    c.x = float(evaluate(np.array([1j * w]))[0].real)
-    c.freq = w
+    _refine_all([c], evaluate)
 
 
 def _stretches(crossings: list[_Crossing], P: int) -> list[tuple[float, float, bool]]:
@@ -396,24 +360,25 @@ def _scalar(evaluate: Evaluate) -> Callable[[float], complex]:
 
 
 def _gain_crossovers(curve: _Curve, evaluate: Evaluate) -> list[GainCrossover]:
-    """Every |L(jw)| = 1 for w > 0, bracketed on the samples and solved by brentq."""
-    from scipy.optimize import brentq
-
-    Lw = _scalar(evaluate)
-    g = lambda w: math.log(abs(Lw(w)))  # noqa: E731
-    out: list[GainCrossover] = []
+    """Every |L(jw)| = 1 for w > 0, bracketed on the samples and solved all at once."""
+    roots, lo, hi = [], [], []
     for run in _axis_runs(curve):
         w = curve.s[run].imag
         with np.errstate(divide="ignore"):
             mag = np.log(np.abs(curve.L[run]))
-        on = np.flatnonzero((mag == 0.0) & (w > 0))
+        roots += [float(w[i]) for i in np.flatnonzero((mag == 0.0) & (w > 0))]
         brackets = np.flatnonzero((mag[:-1] * mag[1:] < 0) & (w[:-1] > 0)
                                   & np.isfinite(mag[:-1]) & np.isfinite(mag[1:]))
-        roots = [w[i] for i in on] + [brentq(g, w[i], w[i + 1], xtol=_XTOL_REL * w[i + 1],
-                                             rtol=_RTOL) for i in brackets]
-        for wc in roots:
-            lag = (math.degrees(np.angle(Lw(wc))) + 180.0) % 360.0
-            out.append(GainCrossover(float(wc), lag, min(lag, 360.0 - lag)))
+        lo += list(w[brackets])
+        hi += list(w[brackets + 1])
+    if lo:
+        x, ok = illinois(lambda w: np.log(np.abs(evaluate(1j * w))), lo, hi, _XTOL_REL)
+        roots += [float(v) for v in x[ok]]
+    if not roots:
+        return []
+    wc = np.array(roots)
+    lag = (np.degrees(np.angle(evaluate(1j * wc))) + 180.0) % 360.0
+    out = [GainCrossover(float(w), float(g), float(min(g, 360.0 - g))) for w, g in zip(wc, lag)]
     return sorted(out, key=lambda c: c.freq)
 
 
@@ -457,22 +422,12 @@ def _peak(curve: _Curve, evaluate: Evaluate, fn: Callable[[np.ndarray], np.ndarr
 
 
 def _refine_peak(evaluate: Evaluate, fn, w: np.ndarray, i: int, sample: Peak) -> Peak:
-    """Bounded scalar search between the neighbours of the best sample (in log w)."""
+    """Zooming grid search between the neighbours of the best sample (in log w)."""
     if not 0 < i < w.size - 1:
         return sample
-    from scipy.optimize import minimize_scalar
-
-    lo, hi = w[i - 1], w[i + 1]
-    if lo > 0:
-        obj = lambda u: -float(fn(evaluate(np.array([1j * math.exp(u)])))[0])  # noqa: E731
-        r = minimize_scalar(obj, bounds=(math.log(lo), math.log(hi)), method="bounded",
-                            options={"xatol": 1e-12})
-        wr = math.exp(r.x)
-    else:
-        obj = lambda x: -float(fn(evaluate(np.array([1j * x])))[0])  # noqa: E731
-        r = minimize_scalar(obj, bounds=(lo, hi), method="bounded", options={"xatol": 1e-12 * hi})
-        wr = r.x
-    return Peak(float(-r.fun), float(wr)) if -r.fun > sample.value else sample
+    lo, hi = float(w[i - 1]), float(w[i + 1])
+    x, v = zoom_max(lambda x: fn(evaluate(1j * x)), lo, hi, log=lo > 0)
+    return Peak(v, x) if v > sample.value else sample
 
 
 def _sensitivity(L: np.ndarray) -> np.ndarray:

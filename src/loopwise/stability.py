@@ -307,14 +307,13 @@ def _marginal(red: Reduction, name: str, resp: LoopResponse) -> float | None:
     cand = np.nonzero((rel[1:-1] <= rel[:-2]) & (rel[1:-1] <= rel[2:]) & (rel[1:-1] < 1e-3))[0] + 1
     if cand.size == 0:
         return None
-    from scipy.optimize import minimize_scalar
+    from .solve import zoom_max
 
     for i in cand[:20]:
-        def f(x):
-            Lx = red.loop_transfer(name, np.array([1j * x]))[0]
-            return abs(1.0 + Lx) / (1.0 + abs(Lx))
-        res = minimize_scalar(f, bounds=(w[i - 1], w[i + 1]), method="bounded",
-                              options={"xatol": 1e-15 * max(w[i], 1e-300)})
-        if res.fun < MARGINAL:
-            return float(res.x)
+        def closeness(x):
+            Lx = red.loop_transfer(name, 1j * np.asarray(x))
+            return -np.abs(1.0 + Lx) / (1.0 + np.abs(Lx))
+        x, v = zoom_max(closeness, float(w[i - 1]), float(w[i + 1]), log=w[i - 1] > 0, rounds=14)
+        if -v < MARGINAL:
+            return float(x)
     return None
