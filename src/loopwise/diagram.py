@@ -147,14 +147,24 @@ def _algebraic_loops(model: Model, g, signals, errors) -> list[Finding]:
 
 
 def _cycles(g, model: Model):
+    """Simple cycles, each starting at its signal defined first, shortest first.
+
+    networkx returns them in an order that follows set iteration (string
+    hashes vary between runs), so they are put in a fixed order here.
+    """
+    order = {n: i for i, n in enumerate(model.signals)}
     sub = g.subgraph(model.signals)
     simple = nx.DiGraph(sub)
     cycles = []
+    complete = True
     for cyc in nx.simple_cycles(simple):
-        cycles.append(tuple(cyc))
+        k = min(range(len(cyc)), key=lambda i: order[cyc[i]])
+        cycles.append(tuple(cyc[k:] + cyc[:k]))
         if len(cycles) >= MAX_CYCLES:
-            return cycles, False
-    return cycles, True
+            complete = False
+            break
+    cycles.sort(key=lambda c: (len(c), [order[n] for n in c]))
+    return cycles, complete
 
 
 def _breaks(model: Model, g, errors) -> list[BreakCut]:

@@ -17,7 +17,7 @@ def test_structure_of_the_servo_demo(capsys):
     assert main(["graph", str(MODELS / "servo_axis.loop")]) == 0
     out = capsys.readouterr().out
     assert "signals (8): pos_err, spd_ref, spd_err, cur_ref, cur_err, cur, spd, pos" in out
-    assert "loops (3):" in out and "cur -> cur_err -> cur" in out
+    assert "loops (3):" in out and "cur_err -> cur -> cur_err" in out
     assert re.search(r"current\s+at cur -> cur_err\s+line \d+\s+inside speed", out)
     assert re.search(r"position\s+at pos\s+line \d+\s+outermost", out)
     nesting = out.split("nesting (outer to inner):")[1].splitlines()
