@@ -250,3 +250,16 @@ def test_plot_of_an_unreadable_model_prints_the_located_error_and_exits_2(tmp_pa
     err = capsys.readouterr().err
     assert f"{bad}:4:15:" in err and "^" in err and "Traceback" not in err
     assert not (tmp_path / "f.svg").exists()
+
+
+@pytest.mark.parametrize("name", sorted(LOOPS))
+def test_thinned_svg_curve_still_winds_as_the_engine_counts(loops, name):
+    """The HTML report drops points closer than a pixel along the path; the curve it
+    draws must still turn around -1 exactly N times (same ray count as above)."""
+    result = loops[name]
+    fig = plots.nyquist_figure(result, model=name)
+    full = _line(fig, "nyquist-positive").size
+    plots._thin_lines(fig)
+    drawn = np.concatenate([_line(fig, "nyquist-positive"), _line(fig, "nyquist-negative")])
+    assert _ray_crossings(drawn) == result.encirclements
+    assert _line(fig, "nyquist-positive").size <= full

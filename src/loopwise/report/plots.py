@@ -478,8 +478,40 @@ def save_figure(fig, path: str | Path, salt: str = "loopwise") -> None:
         fig.savefig(path, format=fmt, metadata=meta, dpi=150)
 
 
+def _thin_lines(fig, tol_px: float = 0.35) -> None:
+    """Drop points closer than `tol_px` display pixels along the path to the last kept one.
+
+    The engine samples densely (thousands of points a break); an inline SVG
+    needs only what a screen can show. Gaps (NaN) and their neighbours are
+    kept, and every step between kept points stays under a pixel, so the drawn
+    curve, and its turns around -1, are those of the full samples.
+    """
+    for ax in fig.axes:
+        for line in ax.get_lines():
+            x = np.asarray(line.get_xdata(orig=False), float)
+            y = np.asarray(line.get_ydata(orig=False), float)
+            if x.size < 400:
+                continue
+            with np.errstate(all="ignore"):
+                d = line.get_transform().transform(np.column_stack([x, y]))
+            finite = np.all(np.isfinite(d), axis=1)
+            keep = ~finite
+            keep[0] = keep[-1] = True
+            edge = np.zeros_like(keep)
+            edge[:-1] |= ~finite[1:]
+            edge[1:] |= ~finite[:-1]
+            keep |= edge
+            # a point is kept each time the path length grows by another tol_px
+            step = np.abs(np.diff(d, axis=0)).sum(axis=1)
+            length = np.concatenate([[0.0], np.cumsum(np.where(np.isfinite(step), step, 0.0))])
+            bucket = np.floor(length / tol_px)
+            keep[1:] |= bucket[1:] != bucket[:-1]
+            line.set_data(x[keep], y[keep])
+
+
 def svg_text(fig, salt: str = "loopwise") -> str:
     """The figure as an <svg> element to inline in HTML (no XML prolog or doctype)."""
+    _thin_lines(fig)
     buf = io.StringIO()
     with _style(salt):
         fig.savefig(buf, format="svg", metadata={"Date": None})
