@@ -357,3 +357,18 @@ def test_an_error_in_a_shared_file_is_reported_once(tmp_path, cli):
     assert code == 2
     errors = json.loads(out)["errors"]
     assert len(errors) == 1 and errors[0]["file"].endswith("shared.loop"), errors
+
+
+def test_a_default_requirement_error_points_into_the_settings_file(tmp_path, capsys):
+    # the located error shows the settings file's own line with a caret under the metric
+    from loopwise.cli import main as cli_main
+
+    (tmp_path / "pyproject.toml").write_text(
+        '[tool.loopwise]\nrequirements = ["* phase_margin >= 30deg", "* delay_margn >= 1ms"]\n')
+    model = tmp_path / "m.loop"
+    model.write_text("input r\nblock G = 2/((s+1)*(s+2))\ne = r - y\ny = G(e)\nbreak b at y\n")
+    assert cli_main(["check", str(model), "--config", str(tmp_path / "pyproject.toml")]) == 2
+    out = capsys.readouterr()
+    text = out.out + out.err
+    assert "pyproject.toml:2:47: error E243 unknown metric `delay_margn`" in text
+    assert "did you mean `delay_margin`" in text

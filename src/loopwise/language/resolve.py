@@ -509,14 +509,29 @@ def resolve_text(text: str, file: str = "<text>", extra_requirements: tuple[str,
     path = Path(file).resolve() if not file.startswith("<") else None
     extra = []
     for i, line in enumerate(extra_requirements):
-        # blank lines first, so that each default requirement reports its own entry number
-        sub = parse_text("\n" * i + "require " + line, extra_source)
+        where = _settings_position(extra_source, line, i)
+        # pad so that spans point at the requirement's own place in the settings file
+        sub = parse_text(where, extra_source)
         for stmt in sub.statements:
             if not isinstance(stmt, ast.RequireStmt):
                 raise ModelError("E240", f"a default requirement must look like `* metric >= value`: {line!r}",
-                                 Span(extra_source, i + 1, 1), None)
+                                 Span(extra_source, i + 1, 1), "for example `* phase_margin >= 45deg`")
             extra.append(stmt)
     return _Resolver(file).resolve(mf, path, tuple(extra))
+
+
+def _settings_position(source: str, requirement: str, index: int) -> str:
+    """`require <requirement>` placed at the line and column where the settings file
+    holds it (found by its text), or on line index + 1 when it cannot be found."""
+    try:
+        lines = Path(source).read_text(encoding="utf-8").split("\n")
+    except (OSError, ValueError):
+        lines = []
+    for n, text in enumerate(lines):
+        col = text.find(requirement)
+        if col >= len("require "):
+            return "\n" * n + " " * (col - len("require ")) + "require " + requirement
+    return "\n" * index + "require " + requirement
 
 
 def resolve_file(path: str | Path, extra_requirements: tuple[str, ...] = (),
