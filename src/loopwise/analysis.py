@@ -7,14 +7,12 @@ negative feedback around one loop transfer (used by the reference tests).
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 
 from .diagram import Diagram, build_diagram
-from .errors import Finding, ModelError, ModelErrors, Span
+from .errors import Finding, ModelError, Span
 from .language.resolve import Model, resolve_file, resolve_text
 from .reduce import Reduction, reduce_diagram
 from .results import BreakResult, Margins, ModelResult
@@ -199,7 +197,6 @@ def analyse_loop(L, name: str = "loop", indent: str = "right") -> BreakResult:
 
 
 def _single_loop(L, name: str) -> Prepared:
-    from .diagram import build_diagram as _bd
     from .language import ast
     from .language.resolve import Application, Block, Term
 

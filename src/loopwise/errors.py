@@ -5,7 +5,7 @@ these objects, and the reporters (or :func:`render`) turn them into text.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
 __all__ = [

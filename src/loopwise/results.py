@@ -7,7 +7,7 @@ stable key order, so diffs of JSON output stay clean. "No crossover" or
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 

@@ -12,7 +12,7 @@ from importlib import resources
 from pathlib import Path
 
 from lark import Lark, Token, Transformer, Tree, v_args
-from lark.exceptions import UnexpectedCharacters, UnexpectedEOF, UnexpectedInput, UnexpectedToken
+from lark.exceptions import UnexpectedCharacters, UnexpectedInput, UnexpectedToken
 
 from ..errors import ModelError, Span
 from . import ast

@@ -1,0 +1,62 @@
+"""The resolved model: params, blocks, wiring terms (frozen dataclasses)."""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from ..errors import Finding, Span
+from ..transfer import Transfer
+from . import ast
+from .requirements import Requirement
+
+__all__ = ["Quantity", "Block", "Application", "Term", "Model"]
+
+
+@dataclass(frozen=True)
+class Quantity:
+    """A constant in SI units; `kind` is the unit kind of its literals, if any."""
+
+    value: float
+    kind: str | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class Block:
+    name: str
+    transfer: Transfer
+    span: Span
+
+
+@dataclass(frozen=True, eq=False)
+class Application:
+    """One use of a block (or of a bracketed transfer) in the wiring: one instance."""
+
+    label: str  # block name, or "[..]@line:col" for an inline transfer
+    transfer: Transfer
+    span: Span
+
+
+@dataclass(frozen=True, eq=False)
+class Term:
+    """``gain * app(source)``; `app` None means the plain scaled signal."""
+
+    source: str
+    gain: float
+    app: Application | None
+    span: Span
+
+
+@dataclass(frozen=True, eq=False)
+class Model:
+    name: str
+    file: str
+    params: dict[str, Quantity]
+    blocks: dict[str, Block]
+    inputs: dict[str, Span]
+    signals: dict[str, Span]  # defined by an equation (hidden ones included)
+    hidden: frozenset[str]
+    equations: dict[str, tuple[Term, ...]]
+    breaks: tuple[ast.BreakStmt, ...]
+    requirements: tuple[Requirement, ...]
+    findings: tuple[Finding, ...]
+    block_uses: dict[str, int] = field(default_factory=dict)
+    hidden_owner: dict[str, str] = field(default_factory=dict)  # hidden signal -> its equation
