@@ -1,6 +1,6 @@
 """Time of our full margin set vs python-control on the same delay-free loops, same run.
 
-Ours: `loopwise.margins.loop_margins` (every gain and phase crossover refined
+Ours: `loopwise.engine.margins.loop_margins` (every gain and phase crossover refined
 to full precision, gain margins up and down from the winding count, delay
 margin, balanced disk margin, Ms, Mt), given the engine's contour samples,
 which the verdict computes anyway (timed apart as "engine count").
@@ -33,7 +33,7 @@ sys.path.insert(0, str(ROOT / "tests"))
 from reference.loopsets import delay_free_loops  # noqa: E402
 
 from loopwise.analysis import analyse_loop  # noqa: E402
-from loopwise.margins import loop_margins  # noqa: E402
+from loopwise.engine.margins import loop_margins  # noqa: E402
 from loopwise.transfer import Transfer  # noqa: E402
 
 

@@ -11,12 +11,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .diagram import Diagram, build_diagram
+from .engine.diagram import Diagram, build_diagram
 from .errors import Finding, ModelError, Span
 from .language.resolve import Model, resolve_file, resolve_text
-from .reduce import Reduction, reduce_diagram
+from .engine.reduce import Reduction, reduce_diagram
 from .results import BreakResult, Margins, ModelResult
-from .stability import NeutralLoop, count_all, count_model, prepare_contour
+from .engine.stability import NeutralLoop, count_all, count_model, prepare_contour
 from .judge import SEPARATION_WARNING, judge
 
 __all__ = ["Prepared", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop",
@@ -37,11 +37,11 @@ class Prepared:
         return self.reduction.loop_transfer(name, np.atleast_1d(np.asarray(s, complex)))
 
     def closed_loop_poles(self) -> np.ndarray:
-        from .statespace import closed_loop_poles
+        from .engine.statespace import closed_loop_poles
         return closed_loop_poles(self.reduction)
 
     def loop_state_space(self, name: str):
-        from .statespace import loop_state_space
+        from .engine.statespace import loop_state_space
         ss = loop_state_space(self.reduction, name)
         return ss.A, ss.B, ss.C, ss.D
 
@@ -115,7 +115,7 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
     touching = tuple(sorted({c.marginal_freq for c in counts.values() if c.marginal}))
     if touching:
         Z, _ = count_model(red, setup.touching(touching))
-    from .margins import loop_margins, stabilising_gains
+    from .engine.margins import loop_margins, stabilising_gains
 
     margins: dict[str, Margins | None] = {}
     for cut in prep.diagram.breaks:
@@ -165,7 +165,7 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
 
 
 def _hidden(red: Reduction, name: str) -> list[str]:
-    from .statespace import hidden_modes
+    from .engine.statespace import hidden_modes
     try:
         modes = hidden_modes(red, name)
     except (np.linalg.LinAlgError, ValueError):

@@ -5,7 +5,7 @@ from pathlib import Path
 
 import pytest
 
-from loopwise.diagram import build_diagram
+from loopwise.engine.diagram import build_diagram
 from loopwise.errors import ModelErrors
 from loopwise.language.resolve import resolve_file, resolve_text
 

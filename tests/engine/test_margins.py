@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from loopwise.analysis import analyse_loop
-from loopwise.margins import loop_margins, stabilising_gains
+from loopwise.engine.margins import loop_margins, stabilising_gains
 from loopwise.results import LoopResponse
 from loopwise.transfer import Transfer
 

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from loopwise.solve import illinois, zoom_max
+from loopwise.engine.solve import illinois, zoom_max
 
 
 def test_illinois_finds_many_roots_at_once():

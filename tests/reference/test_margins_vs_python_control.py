@@ -36,7 +36,7 @@ import numpy as np
 import pytest
 
 from loopwise.analysis import analyse_loop
-from loopwise.margins import loop_margins
+from loopwise.engine.margins import loop_margins
 from loopwise.transfer import Transfer
 
 from .loopsets import LoopCase, closed_loop_rhp, delay_free_loops, near_axis

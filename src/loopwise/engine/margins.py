@@ -14,7 +14,7 @@ Conventions (docs/margins.md states them in full):
 - balanced disk margin (Seiler, Packard & Gahinet, IEEE Control Systems
   Magazine 2020): ``alpha = 2 / max |(1 - L)/(1 + L)|``.
 
-Pure numpy: roots and peaks are refined by loopwise.solve (batched, no scipy import).
+Pure numpy: roots and peaks are refined by loopwise.engine.solve (batched, no scipy import).
 """
 from __future__ import annotations
 
@@ -25,7 +25,7 @@ from typing import Callable
 import numpy as np
 
 from .solve import illinois, zoom_max
-from .results import DiskMargin, GainCrossover, LoopResponse, Margins, Peak, PhaseCrossover
+from ..results import DiskMargin, GainCrossover, LoopResponse, Margins, Peak, PhaseCrossover
 
 __all__ = ["loop_margins", "stabilising_gains"]
 

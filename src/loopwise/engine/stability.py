@@ -14,9 +14,9 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .errors import ModelError, Span
+from ..errors import ModelError, Span
 from .reduce import Reduction, certificate_radius, closing_phase
-from .results import LoopResponse
+from ..results import LoopResponse
 from .winding import Piece, build_contour, encirclements, phase_change, trace
 
 __all__ = ["Setup", "NyquistCount", "NeutralLoop", "prepare_contour", "count_model", "count_break",

@@ -20,9 +20,9 @@ from dataclasses import dataclass
 import networkx as nx
 import numpy as np
 
-from .errors import Finding, ModelError, ModelErrors, Span
-from .language.ast import BreakStmt
-from .language.resolve import Model, Term
+from ..errors import Finding, ModelError, ModelErrors, Span
+from ..language.ast import BreakStmt
+from ..language.resolve import Model, Term
 
 __all__ = ["Diagram", "BreakCut", "build_diagram", "MAX_CYCLES"]
 

@@ -17,7 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .diagram import Diagram
-from .language.resolve import Term
+from ..language.resolve import Term
 
 __all__ = ["Instance", "Reduction", "reduce_diagram", "LoopEvaluation"]
 
