@@ -80,21 +80,21 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
     findings = list(prep.diagram.findings)
     if not model.equations:
         # a library of params and blocks, meant for `use`: nothing to check on its own
-        findings.append(Finding("note", "N401", "no signal equations: a library of params and blocks "
+        findings.append(Finding("note", "LW491", "no signal equations: a library of params and blocks "
                                 "(for `use`), nothing to check on its own", Span(model.file, 1, 1)))
         return ModelResult(model.file, model.name, True, 0, (), tuple(findings))
     try:
         setup = prepare_contour(red, indent)
     except NeutralLoop as exc:
         raise ModelError(
-            "E401", f"the model is of neutral type: its high-frequency loop gain through delays is "
+            "LW401", f"the model is of neutral type: its high-frequency loop gain through delays is "
             f"{exc.rho:.3g} (>= 1), so no finite frequency range certifies its stability", Span(model.file, 1, 1),
             "a loop with direct feedthrough and a delay must have a high-frequency gain below 1; "
             "add a filter pole") from None
     roots = np.abs(setup.roots[setup.roots != 0])
     if roots.size and roots.max() / roots.min() > 1e10:
         findings.append(Finding(
-            "warning", "W403", f"poles and zeros span {np.log10(roots.max() / roots.min()):.0f} decades "
+            "warning", "LW483", f"poles and zeros span {np.log10(roots.max() / roots.min()):.0f} decades "
             f"({roots.min():.3g} to {roots.max():.3g} rad/s): double precision may not resolve such a model; "
             "treat its margins with care", Span(model.file, 1, 1),
             "rescale time (e.g. work in ms) or drop modes far outside the loop's bandwidth"))
@@ -102,7 +102,7 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
         n_rhp = term.app.transfer.rhp_poles
         if n_rhp:
             findings.append(Finding(
-                "warning", "W404", f"`{term.app.label.split('@')[0]}` is driven by the input `{term.source}` only "
+                "warning", "LW484", f"`{term.app.label.split('@')[0]}` is driven by the input `{term.source}` only "
                 f"and has {n_rhp} pole(s) in the right half plane: its output grows whatever the loops do "
                 "(it counts in Z, the same at every break, though no loop transfer shows it)", term.app.span,
                 "an unstable filter on an input path cannot be stabilised by feedback; check the model"))
@@ -110,8 +110,8 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
         Z, model_warnings, counts = count_all(red, setup)
     else:
         (Z, model_warnings), counts = count_model(red, setup), {}
-    for w in model_warnings:
-        findings.append(Finding("warning", "W402", w, Span(model.file, 1, 1)))
+    for code, message in model_warnings:
+        findings.append(Finding("warning", code, message, Span(model.file, 1, 1)))
     touching = tuple(sorted({c.marginal_freq for c in counts.values() if c.marginal}))
     if touching:
         Z, _ = count_model(red, setup.touching(touching))
@@ -130,8 +130,8 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
         c = counts[name]
         warnings = list(c.warnings)
         if c.Z != Z:
-            warnings.append(f"numerical: this break counts Z = {c.Z} closed-loop RHP poles but the whole "
-                            f"model counts {Z}; the verdict is not trustworthy")
+            warnings.append(("LW486", f"this break counts Z = {c.Z} closed-loop RHP poles but the whole "
+                             f"model counts {Z}; the verdict is not trustworthy"))
         if not red.has_delay:
             warnings.extend(_hidden(red, name))
         stable = c.Z == 0 and not c.marginal
@@ -142,8 +142,8 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
             if m.crossover_freq is not None and outer:
                 separation = m.crossover_freq / outer
                 if separation < SEPARATION_WARNING:
-                    warnings.append(f"separation: crossover only {separation:.2g} times that of the enclosing "
-                                    f"break `{cut.enclosed_by}` (common practice: 3 to 5 times or more)")
+                    warnings.append(("LW383", f"crossover only {separation:.2g} times that of the enclosing "
+                                     f"break `{cut.enclosed_by}` (common practice: 3 to 5 times or more)"))
         verdict = "marginal" if c.marginal else ("stable" if stable else "unstable")
         reqs = tuple(r for r in model.requirements if r.target in (name, "*"))
         evaluate = (lambda s, n=name: red.loop_transfer(n, s))
@@ -152,19 +152,20 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
         ambiguous = stable and m is not None and m.gain_margin_up_db is None and m.gain_margin_down_db is None
         gains = stabilising_gains(c.response, c.P, evaluate) if (ambiguous or not stable) else ()
         if ambiguous and not any(lo < 1.0 < hi for lo, hi in gains):
-            warnings.append("numerical: the gain-margin stretches do not place k = 1 in a stable range "
-                            "although the count is stable; treat the gain margins with care")
+            warnings.append(("LW582", "the gain-margin stretches do not place k = 1 in a stable range "
+                             "although the count is stable; treat the gain margins with care"))
         results.append(BreakResult(
             name=name, at=cut.stmt.at, line=cut.stmt.span.line, stable=stable, open_loop_rhp_poles=c.P,
             encirclements=c.N, closed_loop_rhp_poles=c.Z, marginal=c.marginal, marginal_freq=c.marginal_freq,
-            margins=m, requirements=judge(reqs, m, separation, verdict), warnings=tuple(warnings),
+            margins=m, requirements=judge(reqs, m, separation, verdict),
+            warnings=tuple(Finding("warning", code, message, cut.stmt.span) for code, message in warnings),
             stabilising_gains=() if stable else gains, enclosed_by=cut.enclosed_by, separation=separation, response=c.response,
         ))
     marginal = any(r.marginal for r in results)
     return ModelResult(model.file, model.name, Z == 0 and not marginal, Z, tuple(results), tuple(findings))
 
 
-def _hidden(red: Reduction, name: str) -> list[str]:
+def _hidden(red: Reduction, name: str) -> list[tuple[str, str]]:
     from .engine.statespace import hidden_modes
     try:
         modes = hidden_modes(red, name)
@@ -179,8 +180,8 @@ def _hidden(red: Reduction, name: str) -> list[str]:
             near = np.abs(red.loop_transfer(name, np.array([l + d, l + d * 1e-2])))
         if np.all(np.isfinite(near)) and near[1] > 10.0 * near[0]:
             continue
-        out.append(f"hidden unstable mode at s = {l.real:.4g}{l.imag:+.4g}j inside the loop (cancelled, "
-                   f"invisible in L): blocks {', '.join(names)}")
+        out.append(("LW487", f"hidden unstable mode at s = {l.real:.4g}{l.imag:+.4g}j inside the loop "
+                    f"(cancelled, invisible in L): blocks {', '.join(names)}"))
     return out
 
 

@@ -117,7 +117,7 @@ def render(finding: Finding, text: str | None = None) -> str:
     head = f"{finding.span}: {finding.severity} {finding.code} {finding.message}"
     out = [head]
     line = source_line(finding.span, text)
-    if finding.code == "E104":
+    if finding.code == "LW104":
         line = None  # not text: echoing it would only print garbage
     if line is not None:
         # a model's bytes must not drive the terminal: control characters become "?"

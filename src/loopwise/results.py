@@ -1,6 +1,6 @@
 """Frozen result objects: what a check finds, what every reporter renders.
 
-`to_dict()` gives the JSON contract (`"schema": 1`, see docs/results.md) with a
+`to_dict()` gives the JSON contract (`"schema": 2`, see docs/results.md) with a
 stable key order, so diffs of JSON output stay clean. "No crossover" or
 "unbounded" is always ``None``.
 """
@@ -19,7 +19,7 @@ __all__ = [
     "RunResult", "CAUTION",
 ]
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 
 CAUTION = (
     "Results describe the linear model only: an analysis aid, not a substitute for "
@@ -170,7 +170,7 @@ class BreakResult:
     marginal_freq: float | None
     margins: Margins | None  # None when the closed loop is not stable
     requirements: tuple[RequirementResult, ...]
-    warnings: tuple[str, ...]
+    warnings: tuple[Finding, ...]  # this break's warnings, located at its `break` line
     stabilising_gains: tuple[tuple[float, float], ...] = ()  # factor intervals k with k*L stable
     enclosed_by: str | None = None
     separation: float | None = None
@@ -203,7 +203,7 @@ class BreakResult:
             "separation": _num(self.separation),
             "stabilising_gains": [[_num(a), _num(b)] for a, b in self.stabilising_gains],
             "requirements": [r.to_dict() for r in self.requirements],
-            "warnings": list(self.warnings),
+            "warnings": [w.to_dict() for w in self.warnings],
         }
         return d
 

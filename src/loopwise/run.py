@@ -23,10 +23,10 @@ __all__ = [
 MODEL_SUFFIX = ".loop"
 #: below this many models a progress bar is more flicker than help
 PROGRESS_MIN_MODELS = 6
-#: codes for models that could not be checked at all (located syntax/model errors are E1xx+)
-E_UNREADABLE = "E001"
-E_NOT_TEXT = "E002"
-E_INTERNAL = "E999"
+#: codes for models that could not be checked at all (located syntax/model errors are LW1xx+)
+E_UNREADABLE = "LW001"
+E_NOT_TEXT = "LW002"
+E_INTERNAL = "LW900"
 
 
 # --- finding the models --------------------------------------------------------

@@ -50,7 +50,8 @@ def stable_break(name="b", reqs=(), warnings=(), at="y", line=6, **kw) -> BreakR
     return BreakResult(name=name, at=at, line=line, stable=True, open_loop_rhp_poles=0,
                        encirclements=0, closed_loop_rhp_poles=0, marginal=False,
                        marginal_freq=None, margins=margins(**kw), requirements=tuple(reqs),
-                       warnings=tuple(warnings), response=response())
+                       warnings=tuple(Finding("warning", "LW481", w, Span("m.loop", line, 1)) for w in warnings),
+                       response=response())
 
 
 def unstable_break(name="b", P=1, N=1, reqs=(), gains=((0.2, 0.8),)) -> BreakResult:
@@ -74,7 +75,7 @@ def model(file="m.loop", name="m", breaks=(), findings=()) -> ModelResult:
 
 
 def syntax_error(file="bad.loop", line=2, col=9) -> Finding:
-    return Finding("error", "E101", "unexpected `)`", Span(file, line, col, col + 1),
+    return Finding("error", "LW101", "unexpected `)`", Span(file, line, col, col + 1),
                    "expected a name")
 
 
@@ -98,10 +99,10 @@ def build_mixed_run(folder: Path) -> RunResult:
         model("unstable.loop", "tipping", [unstable_break("b", reqs=[requirement(value=None, met=False)])]),
         model("ring.loop", "ring", [marginal_break("b")]),
         model("warn.loop", "warned", [stable_break("b", warnings=["the loop gain is neutral"])],
-              findings=[Finding("warning", "W201", "block `K` is never used",
+              findings=[Finding("warning", "LW281", "block `K` is never used",
                                 Span("warn.loop", 3, 7, 8))]),
         errors=[syntax_error(str(bad), 2, 18),
-                Finding("error", "E001", "cannot read the model: Permission denied",
+                Finding("error", "LW001", "cannot read the model: Permission denied",
                         Span("locked.loop", 0, 0))],
     )
 

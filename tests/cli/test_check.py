@@ -96,7 +96,7 @@ def test_a_file_that_is_not_text_is_reported_and_others_still_checked(tmp_path, 
     errors = {Path(e["file"]).name: e for e in doc["errors"]}
     assert set(errors) == {"junk.loop", "dangling.loop"}
     assert errors["junk.loop"]["line"] == 2
-    assert errors["dangling.loop"]["code"].startswith("E") and errors["dangling.loop"]["message"]
+    assert errors["dangling.loop"]["code"].startswith("LW") and errors["dangling.loop"]["message"]
 
 
 @pytest.mark.parametrize("args, expect", [
@@ -132,7 +132,7 @@ def test_json_output_validates_and_carries_the_figures(tmp_path):
     assert proc.returncode == 1
     doc = json.loads(proc.stdout)
     jsonschema.Draft202012Validator(SCHEMA).validate(doc)
-    assert doc["caution"] == CAUTION and doc["schema"] == 1
+    assert doc["caution"] == CAUTION and doc["schema"] == 2
     good, tip = doc["models"]
     b = good["breaks"][0]
     assert (b["stable"], b["open_loop_rhp_poles"], b["encirclements"]) == (True, 0, 0)
@@ -159,7 +159,7 @@ def test_junit_to_a_file_with_the_text_summary_on_stdout(tmp_path):
     assert (root.get("tests"), root.get("failures"), root.get("errors")) == ("5", "1", "1")
     failure = root.find(".//testcase/failure")
     assert failure.get("type") == "requirement" and "u.loop:7" in failure.text
-    assert root.find(".//testcase/error").get("type").startswith("E")
+    assert root.find(".//testcase/error").get("type").startswith("LW")
 
 
 
@@ -370,5 +370,5 @@ def test_a_default_requirement_error_points_into_the_settings_file(tmp_path, cap
     assert cli_main(["check", str(model), "--config", str(tmp_path / "pyproject.toml")]) == 2
     out = capsys.readouterr()
     text = out.out + out.err
-    assert "pyproject.toml:2:47: error E243 unknown metric `delay_margn`" in text
+    assert "pyproject.toml:2:47: error LW243 unknown metric `delay_margn`" in text
     assert "did you mean `delay_margin`" in text

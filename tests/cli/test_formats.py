@@ -38,12 +38,12 @@ def test_json_is_the_contract_and_matches_the_schema(mixed_run):
     text = render(mixed_run, "json")
     doc = json.loads(text)
     assert doc == json.loads(json.dumps(mixed_run.to_dict()))
-    assert doc["schema"] == 1 and doc["caution"] == CAUTION
+    assert doc["schema"] == 2 and doc["caution"] == CAUTION
     validate(doc)
     b = doc["models"][0]["breaks"][1]
     assert b["gain_margin_down_db"] == -7.5 and b["delay_margin_s"] == 2.5e-6
     assert doc["models"][2]["breaks"][0]["phase_margin_deg"] is None  # not claimed: unstable
-    assert [e["code"] for e in doc["errors"]] == ["E101", "E001"]
+    assert [e["code"] for e in doc["errors"]] == ["LW101", "LW001"]
 
 
 def test_json_maps_non_finite_numbers_to_null():
@@ -113,8 +113,8 @@ def test_text_verdicts_are_words_and_unmet_requirements_have_their_line(mixed_ru
     assert "model tipping: UNSTABLE (2 closed-loop pole(s) in the right half plane)" in out
     assert "factor in [0.2, 0.8]" in out
     assert "model ring: MARGINAL (a closed-loop pole on the imaginary axis at 1.414 rad/s)" in out
-    assert "warning: break b: the loop gain is neutral" in out
-    assert "warn.loop:3:7: warning W201 block `K` is never used" in out
+    assert "warning: break b: LW481 the loop gain is neutral" in out
+    assert "warn.loop:3:7: warning LW281 block `K` is never used" in out
     assert "5 models checked, 2 passed, 3 failed, 2 could not be read." in out
     assert out.rstrip().endswith(CAUTION)
     assert not ANSI.search(out)
@@ -123,12 +123,12 @@ def test_text_verdicts_are_words_and_unmet_requirements_have_their_line(mixed_ru
 def test_text_renders_located_errors_with_line_and_caret(mixed_run):
     out = render(mixed_run, "text")
     lines = out.splitlines()
-    head = next(i for i, l in enumerate(lines) if "error E101" in l)
-    assert lines[head].strip().endswith("bad.loop:2:18: error E101 unexpected `)`")
+    head = next(i for i, l in enumerate(lines) if "error LW101" in l)
+    assert lines[head].strip().endswith("bad.loop:2:18: error LW101 unexpected `)`")
     assert lines[head + 1].strip() == "block G = 1/(s+1))"
     assert lines[head + 2].index("^") - lines[head + 1].index("b") == 17
     assert "hint: expected a name" in lines[head + 3]
-    assert "locked.loop: error E001 cannot read the model: Permission denied" in out
+    assert "locked.loop: error LW001 cannot read the model: Permission denied" in out
 
 
 def test_text_colour_is_only_on_top_of_words(mixed_run):
@@ -167,7 +167,7 @@ def test_junit_has_a_case_per_model_and_break_and_an_error_per_unreadable(mixed_
     assert failures[("tipping", "break b at y")].get("type") == "instability"
     assert root.get("failures") == "5" and root.get("errors") == "2"
     errors = [c.find("error") for c in root.iter("testcase") if c.find("error") is not None]
-    assert errors[0].get("type") == "E101" and "^" in errors[0].text
+    assert errors[0].get("type") == "LW101" and "^" in errors[0].text
     caution = suites[0].find("properties/property[@name='caution']")
     assert caution.get("value") == CAUTION
 
@@ -238,7 +238,7 @@ def test_margins_helper_is_consistent():
 # --- a library file (params and blocks only, for `use`) ----------------------------------
 
 def library_run():
-    note = Finding("note", "N401", "no signal equations: a library of params and blocks",
+    note = Finding("note", "LW491", "no signal equations: a library of params and blocks",
                    Span("common/drive.loop", 1, 1))
     return run_of(model("common/drive.loop", "drive", [], findings=[note]),
                   model(breaks=[stable_break()]))
@@ -248,7 +248,7 @@ def test_a_library_file_is_neither_a_pass_nor_a_verdict():
     run = library_run()
     text = render(run, "text")
     assert "PASS  common/drive.loop  library of params and blocks for `use`" in text
-    assert "N401" not in text and "STABLE (" not in text.split("\n")[0]
+    assert "LW491" not in text and "STABLE (" not in text.split("\n")[0]
     root = ET.fromstring(render(run, "junit"))
     suite = root.find("testsuite")
     assert suite.find("testcase/skipped") is not None and suite.get("skipped") == "1"
@@ -263,7 +263,7 @@ def test_a_library_file_is_neither_a_pass_nor_a_verdict():
 def test_control_characters_from_a_model_never_reach_the_terminal(tmp_path):
     bad = tmp_path / "esc.loop"
     bad.write_text("model x\nblock G = \x1b]0;pwned\x07 1/s\n")
-    err = Finding("error", "E101", "unexpected character", Span(str(bad), 2, 11, 12))
+    err = Finding("error", "LW101", "unexpected character", Span(str(bad), 2, 11, 12))
     out = render(run_of(errors=[err]), "text")
     assert "\x1b" not in out and "\x07" not in out
     assert "?]0;pwned? 1/s" in out  # errors.render replaces control characters

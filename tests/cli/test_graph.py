@@ -56,7 +56,7 @@ def test_graph_of_a_broken_model_exits_2_with_a_located_error(tmp_path, capsys):
     bad.write_text("input r\nblock G = 1/(s+1)\ne = r - y\ny = G(ee)\nbreak b at y\n")
     assert main(["graph", str(bad)]) == 2
     err = capsys.readouterr().err
-    assert f"{bad}:4:7: error E218" in err and "did you mean `e`" in err and "^" in err
+    assert f"{bad}:4:7: error LW218" in err and "did you mean `e`" in err and "^" in err
 
 
 def test_graph_through_a_subprocess_has_no_traceback(tmp_path):

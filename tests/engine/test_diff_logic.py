@@ -178,7 +178,7 @@ def test_added_unstable_model_and_removed_model():
 
 
 def test_errors_appeared_on_the_new_side_is_unreadable_input():
-    err = Finding("error", "E100", "unexpected token", Span("m.loop", 4, 7))
+    err = Finding("error", "LW100", "unexpected token", Span("m.loop", 4, 7))
     result = compare({"m.loop": model(brk())}, {"m.loop": Unreadable("m.loop", (err,), ("m.loop:4:7: boom",))})
     assert result.models[0].status == "errors appeared"
     assert result.exit_code == 2
@@ -186,7 +186,7 @@ def test_errors_appeared_on_the_new_side_is_unreadable_input():
 
 
 def test_errors_disappeared_on_the_new_side():
-    err = Finding("error", "E100", "unexpected token", Span("m.loop", 4, 7))
+    err = Finding("error", "LW100", "unexpected token", Span("m.loop", 4, 7))
     result = compare({"m.loop": Unreadable("m.loop", (err,))}, {"m.loop": model(brk())})
     assert result.models[0].status == "errors disappeared"
     assert result.exit_code == 0
@@ -213,7 +213,7 @@ def test_json_of_unbounded_changes_follows_the_schema():
 
     from loopwise.report import diff_json, diff_markdown
     schema = json.loads((Path(__file__).resolve().parents[2] / "docs" / "diff.schema.json").read_text())
-    err = Finding("error", "E100", "unexpected token", Span("x.loop", 4, 7))
+    err = Finding("error", "LW100", "unexpected token", Span("x.loop", 4, 7))
     result = compare(
         {"m.loop": model(brk(m=margins(up=None, wc=2.0), reqs=[req(True)])), "x.loop": model(brk())},
         {"m.loop": model(brk(m=margins(up=20.0, wc=None), reqs=[req(True), req(False, metric="phase_margin")])),

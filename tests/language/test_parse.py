@@ -342,7 +342,7 @@ def test_two_statements_on_one_line_are_refused():
 
 # --- reserved words ------------------------------------------------------------------
 # The grammar never takes a statement word or `at`/`in` for a name; `s` and `exp` are
-# refused as declared names by the resolver (E201, tests in test_errors.py).
+# refused as declared names by the resolver (LW201, tests in test_errors.py).
 
 STATEMENT_WORDS = ["model", "use", "param", "input", "block", "break", "require"]
 
@@ -350,7 +350,7 @@ STATEMENT_WORDS = ["model", "use", "param", "input", "block", "break", "require"
 @pytest.mark.parametrize("word", STATEMENT_WORDS)
 def test_statement_word_cannot_start_an_equation(word):
     err, _ = parse_error(f"{word} = 3")
-    assert isinstance(err, ModelError) and err.code == "E101"
+    assert isinstance(err, ModelError) and err.code == "LW101"
 
 
 @pytest.mark.parametrize("text", [

@@ -86,15 +86,15 @@ def test_requirement_limits_convert_to_the_metric_unit():
 
 
 @pytest.mark.parametrize("line, code, hint_part", [
-    ("block H = 1/(s+1)*exp(+0.1*s)", "E231", "exp(-T*s)"),
-    ("block H = exp(-s^2)", "E232", "T is a constant"),
-    ("block H = exp(2)", "E232", None),
-    ("block H = s^2/(s+1)", "E220", "filter"),
-    ("block H = 1/(s+1) + exp(-s)/(s+2)", "E221", "own block"),
-    ("block H = 1/(s+1)^0.5", "E223", None),
-    ("block K = 3", "E202", None),
-    ("param s = 3", "E201", None),
-    ("param z = 1/0", "E219", None),
+    ("block H = 1/(s+1)*exp(+0.1*s)", "LW231", "exp(-T*s)"),
+    ("block H = exp(-s^2)", "LW232", "T is a constant"),
+    ("block H = exp(2)", "LW232", None),
+    ("block H = s^2/(s+1)", "LW220", "filter"),
+    ("block H = 1/(s+1) + exp(-s)/(s+2)", "LW221", "own block"),
+    ("block H = 1/(s+1)^0.5", "LW223", None),
+    ("block K = 3", "LW202", None),
+    ("param s = 3", "LW201", None),
+    ("param z = 1/0", "LW219", None),
 ])
 def test_block_and_param_mistakes(line, code, hint_part):
     err = next(e for e in errors_of(BASE + line + "\n") if e.span.line == 8)
@@ -108,43 +108,43 @@ def test_block_and_param_mistakes(line, code, hint_part):
 
 def test_unknown_signal_suggests_a_close_name():
     err = one_error("input r\nblock G = 1/(s+1)\nerr = r - y\ny = G(er)\nbreak b at y\n")
-    assert err.code == "E218" and "did you mean `err`" in err.hint
+    assert err.code == "LW218" and "did you mean `err`" in err.hint
     assert (err.span.line, err.span.col) == (4, 7)
 
 
 def test_unknown_block_suggests_a_close_name():
     err = one_error("input r\nblock Gain = 1/(s+1)\ne = r - y\ny = Gian(e)\nbreak b at y\n")
-    assert err.code == "E227" and "Gain" in err.hint
+    assert err.code == "LW227" and "Gain" in err.hint
 
 
 def test_signal_defined_twice():
     errs = errors_of("input r\nblock G = 1/(s+1)\ne = r - y\ny = G(e)\ny = G(r)\nbreak b at y\n")
-    assert errs[0].code == "E202" and errs[0].span.line == 5
+    assert errs[0].code == "LW202" and errs[0].span.line == 5
 
 
 def test_param_used_before_its_definition():
     err = one_error("param a = b + 1\nparam b = 2\n" + BASE.split("\n", 1)[1])
-    assert err.code == "E217" and "above" in err.hint
+    assert err.code == "LW217" and "above" in err.hint
 
 
 def test_nonlinear_wiring_is_refused():
     err = one_error("input r\nblock G = 1/(s+1)\ne = r - y\ny = G(e)*e\nbreak b at y\n")
-    assert err.code == "E222"
+    assert err.code == "LW222"
 
 
 def test_laplace_variable_outside_a_transfer():
     err = one_error("input r\nblock G = 1/(s+1)\ne = r - s*y\ny = G(e)\nbreak b at y\n")
-    assert err.code == "E214"
+    assert err.code == "LW214"
 
 
 def test_unit_that_does_not_fit_the_metric():
     err = one_error(BASE + "require b phase_margin >= 6dB\n")
-    assert err.code == "E241" and err.span.line == 8
+    assert err.code == "LW241" and err.span.line == 8
 
 
 def test_unknown_metric():
     err = one_error(BASE + "require b phase_margn >= 6\n")
-    assert err.code == "E243" and "phase_margin" in err.hint
+    assert err.code == "LW243" and "phase_margin" in err.hint
 
 
 def test_includes_and_their_errors(tmp_path):
@@ -158,11 +158,11 @@ def test_includes_and_their_errors(tmp_path):
     (tmp_path / "c.loop").write_text('use "a.loop"\ninput r\nblock G = 1/s\ne = r - y\ny = G(e)\n')
     with pytest.raises(ModelErrors) as info:
         resolve_file(tmp_path / "c.loop")
-    assert info.value.errors[0].code == "E205" and "cycle" in info.value.errors[0].message
+    assert info.value.errors[0].code == "LW205" and "cycle" in info.value.errors[0].message
     (tmp_path / "d.loop").write_text('use "missing.loop"\n')
     with pytest.raises(ModelErrors) as info:
         resolve_file(tmp_path / "d.loop")
-    assert info.value.errors[0].code == "E206"
+    assert info.value.errors[0].code == "LW206"
     assert (info.value.errors[0].span.line, info.value.errors[0].span.col) == (1, 5)
 
 
@@ -173,10 +173,10 @@ def test_library_file_without_equations_is_not_an_error():
 
 def test_empty_file_is_an_error():
     err = one_error("")
-    assert err.code == "E230"
+    assert err.code == "LW230"
 
 
 def test_exact_cancellation_of_an_unstable_pole_warns():
     m = resolve_text("input r\nblock G = (s-1)/((s-1)*(s+2))\ne = r - y\ny = G(e)\nbreak b at y\n")
     assert m.blocks["G"].transfer.poles.tolist() == [-2]
-    assert any(f.code == "W201" for f in m.findings)
+    assert any(f.code == "LW281" for f in m.findings)

@@ -80,7 +80,7 @@ def test_minutes_are_not_milli_or_inches():
 @pytest.mark.parametrize("text", ["x = 3 ms", "x = 3 deg"])
 def test_a_space_before_the_unit_is_an_error(text):
     err, out = parse_error(text)
-    assert err.code == "E102"
+    assert err.code == "LW102"
     # regression: the hint suggested `3*ms` instead of `3ms`
     assert "`3" + text.split()[-1] + "`" in err.hint, out
 
@@ -88,7 +88,7 @@ def test_a_space_before_the_unit_is_an_error(text):
 @pytest.mark.parametrize("text", ["x = 3S", "x = 3MS", "x = 3hz", "x = 3khz", "x = 3Deg", "x = 3db"])
 def test_units_are_case_sensitive(text):
     err, _ = parse_error(text)
-    assert err.code in ("E102", "E103")
+    assert err.code in ("LW102", "LW103")
 
 
 def test_negative_decibels_are_a_negated_literal():
@@ -139,6 +139,6 @@ def test_requirement_units_match_the_reference():
                 accepted = True
             except (ModelError, ModelErrors) as exc:
                 errors = exc.errors if isinstance(exc, ModelErrors) else [exc]
-                assert [e.code for e in errors] == ["E241"], (metric, unit, [str(e) for e in errors])
+                assert [e.code for e in errors] == ["LW241"], (metric, unit, [str(e) for e in errors])
                 accepted = False
             assert accepted == (unit in allowed), (metric, unit)

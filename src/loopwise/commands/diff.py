@@ -159,7 +159,7 @@ class ModelChecker:
                 try:
                     out.append(fut.result())
                 except BrokenProcessPool:
-                    out.append((None, (Finding("error", "E999", "the worker process checking this "
+                    out.append((None, (Finding("error", "LW900", "the worker process checking this "
                                                "model stopped", Span(f, 0, 0), "try --jobs 1"),)))
             return out
 

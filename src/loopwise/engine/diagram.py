@@ -82,7 +82,7 @@ def build_diagram(model: Model) -> Diagram:
     used = {u for u, _ in g.edges()}
     for name, span in model.inputs.items():
         if name not in used:
-            findings.append(Finding("warning", "W301", f"input `{name}` is never used", span,
+            findings.append(Finding("warning", "LW381", f"input `{name}` is never used", span,
                                     "use it in a signal equation or remove it"))
     signals = tuple(n for n in model.signals)  # defined order: equations, then hidden ones
     findings.extend(_algebraic_loops(model, g, signals, errors))
@@ -91,7 +91,7 @@ def build_diagram(model: Model) -> Diagram:
     names = {c.stmt.name for c in cuts} | {b.name for b in model.breaks}
     for req in model.requirements:
         if req.target != "*" and req.target not in names:
-            errors.append(ModelError("E307", f"requirement on unknown break `{req.target}`", req.target_span,
+            errors.append(ModelError("LW307", f"requirement on unknown break `{req.target}`", req.target_span,
                                      _hint(req.target, names) or
                                      ("breaks: " + ", ".join(sorted(names)) if names else "the model has no breaks")))
     if errors:
@@ -100,13 +100,13 @@ def build_diagram(model: Model) -> Diagram:
     findings.extend(_unbroken(cycles, cuts, model))
     for cut in cuts:
         if not cut.loop:
-            errors.append(ModelError("E302", f"break `{cut.stmt.name}` at `{cut.stmt.at}` opens no loop",
+            errors.append(ModelError("LW302", f"break `{cut.stmt.name}` at `{cut.stmt.at}` opens no loop",
                                      cut.stmt.signal_span, "the cut wire lies on no feedback loop; "
                                      "break a signal that the loop feeds back"))
     if errors:
         raise ModelErrors(errors)
     if not complete:
-        findings.append(Finding("note", "N302", f"more than {MAX_CYCLES} loops: structural loop checks "
+        findings.append(Finding("note", "LW392", f"more than {MAX_CYCLES} loops: structural loop checks "
                                 "covered the first ones only", Span(model.file, 1, 1), None))
     return Diagram(model, g, signals, tuple(cycles), tuple(cuts), tuple(findings), complete)
 
@@ -137,11 +137,11 @@ def _algebraic_loops(model: Model, g, signals, errors) -> list[Finding]:
                 m[idx[v], idx[u]] -= t.gain * (1.0 if t.app is None else t.app.transfer.feedthrough)
         span = model.signals[sorted(comp)[0]]
         if abs(np.linalg.det(m)) < 1e-12 * max(1.0, np.abs(m).max()) ** len(idx):
-            errors.append(ModelError("E301", "ill-posed algebraic loop through " + ", ".join(f"`{n}`" for n in names),
+            errors.append(ModelError("LW301", "ill-posed algebraic loop through " + ", ".join(f"`{n}`" for n in names),
                                      span, "the loop has no dynamics and its direct gain is exactly 1: "
                                      "the signals are not determined; add dynamics or change a gain"))
         else:
-            out.append(Finding("note", "N301", "algebraic loop (no dynamics) through "
+            out.append(Finding("note", "LW391", "algebraic loop (no dynamics) through "
                                + ", ".join(f"`{n}`" for n in names) + "; it is well-posed", span, None))
     return out
 
@@ -172,16 +172,16 @@ def _breaks(model: Model, g, errors) -> list[BreakCut]:
     seen: dict[str, Span] = {}
     for stmt in model.breaks:
         if stmt.name in seen:
-            errors.append(ModelError("E304", f"break `{stmt.name}` is defined twice (first at {seen[stmt.name]})",
+            errors.append(ModelError("LW304", f"break `{stmt.name}` is defined twice (first at {seen[stmt.name]})",
                                      stmt.span, "give each break its own name"))
             continue
         seen[stmt.name] = stmt.span
         if stmt.signal in model.inputs:
-            errors.append(ModelError("E305", f"`{stmt.signal}` is an input: no loop returns to it",
+            errors.append(ModelError("LW305", f"`{stmt.signal}` is an input: no loop returns to it",
                                      stmt.signal_span, "break a signal inside the loop"))
             continue
         if stmt.signal not in model.signals or stmt.signal in model.hidden:
-            errors.append(ModelError("E306", f"break at unknown signal `{stmt.signal}`", stmt.signal_span,
+            errors.append(ModelError("LW306", f"break at unknown signal `{stmt.signal}`", stmt.signal_span,
                                      _hint(stmt.signal, [s for s in model.signals if s not in model.hidden])))
             continue
         out_edges = [(u, v) for u, v in g.out_edges(stmt.signal)]
@@ -189,7 +189,7 @@ def _breaks(model: Model, g, errors) -> list[BreakCut]:
             edges = out_edges
         else:
             if stmt.target not in model.signals or stmt.target in model.hidden:
-                errors.append(ModelError("E306", f"unknown target signal `{stmt.target}`", stmt.target_span,
+                errors.append(ModelError("LW306", f"unknown target signal `{stmt.target}`", stmt.target_span,
                                          _hint(stmt.target, [s for s in model.signals if s not in model.hidden])))
                 continue
             edges = [(u, v) for u, v in out_edges
@@ -197,7 +197,7 @@ def _breaks(model: Model, g, errors) -> list[BreakCut]:
             if not edges:
                 users = sorted({_display(v, model) for _, v in out_edges})
                 errors.append(ModelError(
-                    "E303", f"`{stmt.target}` does not use `{stmt.signal}`", stmt.target_span,
+                    "LW303", f"`{stmt.target}` does not use `{stmt.signal}`", stmt.target_span,
                     ("`" + stmt.signal + "` feeds " + ", ".join(f"`{u}`" for u in users)) if users
                     else f"`{stmt.signal}` is not used by any equation"))
                 continue
@@ -239,7 +239,7 @@ def _unbroken(cycles, cuts: list[BreakCut], model: Model) -> list[Finding]:
         names = [_display(n, model) for n in cyc]
         names = [n for n, _ in itertools.groupby(names)]
         first = next((n for n in cyc if n not in model.hidden), cyc[0])
-        out.append(Finding("warning", "W302", "loop " + " -> ".join(names + [names[0]])
+        out.append(Finding("warning", "LW382", "loop " + " -> ".join(names + [names[0]])
                            + " is not opened by any break", model.signals[first],
                            f"add e.g. `break <name> at {first}` to check its stability margins"))
     return out

@@ -57,7 +57,7 @@ class NyquistCount:
     Z: int
     marginal: bool
     marginal_freq: float | None
-    warnings: tuple[str, ...]
+    warnings: tuple[tuple[str, str], ...]  # (code, message) of this break's warnings
     response: LoopResponse | None = None
 
 
@@ -123,7 +123,7 @@ def _margin_reach(red: Reduction, R: float) -> float:
     return min(max(1.5 * last_small, 30.0 * last_unit, R), 1e4 * R)
 
 
-def count_model(red: Reduction, setup: Setup) -> tuple[int, tuple[str, ...]]:
+def count_model(red: Reduction, setup: Setup) -> tuple[int, tuple[tuple[str, str], ...]]:
     """Z of the whole closed loop: P0 + wind(det(I - A))."""
     def evaluate(s):
         phase, logabs = red.characteristic(s)
@@ -136,8 +136,8 @@ def count_model(red: Reduction, setup: Setup) -> tuple[int, tuple[str, ...]]:
     if not tr.complete:
         raise _uncertified(red, "the whole model", tr.s.size)
     if err > 1e-3:
-        warnings.append("numerical: the whole-model count did not settle cleanly "
-                        f"(residual {err:.2g}); treat the verdict with care")
+        warnings.append(("LW482", "the whole-model count did not settle cleanly "
+                         f"(residual {err:.2g}); treat the verdict with care"))
     return setup.P0 + w, tuple(warnings)
 
 
@@ -146,12 +146,12 @@ def _step_rule(red: Reduction):
 
 
 def _uncertified(red: Reduction, what: str, n: int) -> ModelError:
-    return ModelError("E402", f"the Nyquist count of {what} could not be certified within {n} samples",
+    return ModelError("LW402", f"the Nyquist count of {what} could not be certified within {n} samples",
                       Span(red.diagram.model.file, 1, 1),
                       "the loop is extremely wide-band or lightly damped; check the model's numbers")
 
 
-def count_all(red: Reduction, setup: Setup) -> tuple[int, tuple[str, ...], dict[str, NyquistCount]]:
+def count_all(red: Reduction, setup: Setup) -> tuple[int, tuple[tuple[str, str], ...], dict[str, NyquistCount]]:
     """The whole model's Z and every break's count from one trace of the contour.
 
     Each point needs one factorisation of I - A for all breaks (reduce.all_loops):
@@ -187,8 +187,8 @@ def count_all(red: Reduction, setup: Setup) -> tuple[int, tuple[str, ...], dict[
     wz, err_z = encirclements(steps[0] + close_full)
     model_warnings = []
     if err_z > 1e-3:
-        model_warnings.append("numerical: the whole-model count did not settle cleanly "
-                              f"(residual {err_z:.2g}); treat the verdict with care")
+        model_warnings.append(("LW482", "the whole-model count did not settle cleanly "
+                               f"(residual {err_z:.2g}); treat the verdict with care"))
     ext = _extension_all(red, setup) if K and setup.reach > setup.R * (1 + 1e-12) else None
     counts = {}
     for k, name in enumerate(names):
@@ -197,18 +197,18 @@ def count_all(red: Reduction, setup: Setup) -> tuple[int, tuple[str, ...], dict[
         N, err_n = encirclements(-steps[1 + k] + close_full - close_k)
         warnings = []
         if max(err_k, err_n) > 1e-3:
-            warnings.append("numerical: the count did not settle cleanly "
-                            f"(residual {max(err_k, err_n):.2g}); treat the verdict with care")
+            warnings.append(("LW481", "the count did not settle cleanly "
+                             f"(residual {max(err_k, err_n):.2g}); treat the verdict with care"))
         for w in tr.unresolved:
-            warnings.append(f"numerical: sampling could not resolve the curve near {w:.6g} rad/s")
+            warnings.append(("LW485", f"sampling could not resolve the curve near {w:.6g} rad/s"))
         s_k, L_k, on_axis = tr.s, np.exp(tr.values[:, 1 + K + k]), tr.on_axis
         if ext is not None:
             s_k = np.concatenate([s_k, ext.s[1:]])
             L_k = np.concatenate([L_k, np.exp(ext.values[1:, k])])
             on_axis = np.concatenate([on_axis, ext.on_axis[1:]])
             if not ext.complete:
-                warnings.append(f"margins: the loop transfer beyond {setup.R:.4g} rad/s winds too often to "
-                                "sample fully; crossings there may be missing")
+                warnings.append(("LW581", f"the loop transfer beyond {setup.R:.4g} rad/s winds too often to "
+                                 "sample fully; crossings there may be missing"))
         response = LoopResponse(*_dedupe(s_k, L_k, on_axis), setup.axis_poles)
         marginal_freq = _marginal(red, name, response)
         P = setup.P0 + wk
@@ -265,10 +265,10 @@ def _count_break(red: Reduction, name: str, setup: Setup) -> NyquistCount:
     N, err_n = encirclements(steps[1] + close_full - close_k)
     warnings = []
     if max(err_k, err_n) > 1e-3:
-        warnings.append("numerical: the count did not settle cleanly "
-                        f"(residual {max(err_k, err_n):.2g}); treat the verdict with care")
+        warnings.append(("LW481", "the count did not settle cleanly "
+                         f"(residual {max(err_k, err_n):.2g}); treat the verdict with care"))
     for w in tr.unresolved:
-        warnings.append(f"numerical: sampling could not resolve the curve near {w:.6g} rad/s")
+        warnings.append(("LW485", f"sampling could not resolve the curve near {w:.6g} rad/s"))
     s, L, on_axis = tr.s, np.exp(tr.values[:, 2]), tr.on_axis
     if setup.reach > setup.R * (1 + 1e-12):
         ext, complete = _extension(red, name, setup)
@@ -276,8 +276,8 @@ def _count_break(red: Reduction, name: str, setup: Setup) -> NyquistCount:
         L = np.concatenate([L, np.exp(ext.values[1:, 0])])
         on_axis = np.concatenate([on_axis, ext.on_axis[1:]])
         if not complete:
-            warnings.append(f"margins: the loop transfer beyond {setup.R:.4g} rad/s winds too often to "
-                            "sample fully; crossings there may be missing")
+            warnings.append(("LW581", f"the loop transfer beyond {setup.R:.4g} rad/s winds too often to "
+                             "sample fully; crossings there may be missing"))
     response = LoopResponse(*_dedupe(s, L, on_axis), setup.axis_poles)
     marginal_freq = _marginal(red, name, response)
     P = setup.P0 + wk

@@ -46,36 +46,36 @@ class Evaluator:
             if self.mode == "transfer":
                 return Transfer.laplace()
             where = "a constant" if self.mode == "const" else "a signal sum"
-            raise ModelError("E214", f"the Laplace variable `s` cannot appear in {where}", e.span,
+            raise ModelError("LW214", f"the Laplace variable `s` cannot appear in {where}", e.span,
                              "`s` belongs in a block's transfer or in a bracketed transfer `[..](x)`")
         if e.name in r.params:
             return r.params[e.name]
         if e.name in r.eq_stmts or e.name in r.inputs:
             if self.mode == "wiring":
                 return [Term(e.name, 1.0, None, e.span)]
-            raise ModelError("E215", f"signal `{e.name}` cannot appear in a transfer or constant", e.span,
+            raise ModelError("LW215", f"signal `{e.name}` cannot appear in a transfer or constant", e.span,
                              "signals belong in signal equations")
         if e.name in r.block_stmts:
-            raise ModelError("E216", f"block `{e.name}` is used as a value", e.span,
+            raise ModelError("LW216", f"block `{e.name}` is used as a value", e.span,
                              f"apply it to a signal: `{e.name}(x)`")
         if e.name in r.param_spans:  # declared, but its own definition failed
-            raise ModelError("E217", f"param `{e.name}` could not be evaluated (see its error)", e.span,
+            raise ModelError("LW217", f"param `{e.name}` could not be evaluated (see its error)", e.span,
                              "fix the error reported at its definition first")
         if e.name in r.all_params:
-            raise ModelError("E217", f"param `{e.name}` is used before it is defined", e.span,
+            raise ModelError("LW217", f"param `{e.name}` is used before it is defined", e.span,
                              "params may only use params defined above them")
         known = list(r.params) + (list(r.eq_stmts) + list(r.inputs) if self.mode == "wiring" else [])
         what = "signal or param" if self.mode == "wiring" else "param"
         fallback = (f"define it: `{e.name} = ...` for a signal, `input {e.name}` for an input, "
                     f"or `param {e.name} = ...`") if self.mode == "wiring" else \
             f"define it above with `param {e.name} = ...`"
-        raise ModelError("E218", f"unknown {what} `{e.name}`", e.span, close_match(e.name, known + ["s"]) or fallback)
+        raise ModelError("LW218", f"unknown {what} `{e.name}`", e.span, close_match(e.name, known + ["s"]) or fallback)
 
     def binary(self, op: str, a, b, span: Span):
         if isinstance(a, Quantity) and isinstance(b, Quantity):
             kind = a.kind if a.kind == b.kind or b.kind is None else (b.kind if a.kind is None else None)
             if op == "/" and b.value == 0:
-                raise ModelError("E219", "division by zero", span, "check the params in the divisor")
+                raise ModelError("LW219", "division by zero", span, "check the params in the divisor")
             v = {"+": a.value + b.value, "-": a.value - b.value, "*": a.value * b.value,
                  "/": a.value / b.value if op == "/" else 0.0}[op]
             if op in "*/" and a.kind and b.kind:
@@ -88,18 +88,18 @@ class Evaluator:
         try:
             return {"+": ta.__add__, "-": ta.__sub__, "*": ta.__mul__, "/": ta.__truediv__}[op](tb)
         except (TransferError, ZeroDivisionError) as exc:
-            raise ModelError("E221", str(exc), span,
+            raise ModelError("LW221", str(exc), span,
                              "give each delayed path its own block and add the signals in a wiring"
                              if "delay" in str(exc) else None) from None
 
     def wiring_binary(self, op: str, a, b, span: Span):
         if isinstance(a, Transfer) or isinstance(b, Transfer):
-            raise ModelError("E213", "a transfer function must be applied to a signal in a wiring", span,
+            raise ModelError("LW213", "a transfer function must be applied to a signal in a wiring", span,
                              "write `[G](x)` (brackets around the transfer) or name it with `block`")
         if op in "+-":
             if isinstance(a, Quantity) or isinstance(b, Quantity):
                 const = a if isinstance(a, Quantity) else b
-                self.r.findings.append(Finding("note", "N201", f"a constant offset ({const.value:g}) in a "
+                self.r.findings.append(Finding("note", "LW291", f"a constant offset ({const.value:g}) in a "
                                                "signal sum does not affect linear stability and is ignored",
                                                span, None))
                 terms = a if isinstance(a, list) else []
@@ -110,15 +110,15 @@ class Evaluator:
             return [*a, *[_scale(t, sign) for t in b]]
         if op == "*":
             if isinstance(a, list) and isinstance(b, list):
-                raise ModelError("E222", "a product of two signals is not linear", span,
+                raise ModelError("LW222", "a product of two signals is not linear", span,
                                  "scale a signal by a constant or apply a block to it")
             terms, k = (a, b) if isinstance(a, list) else (b, a)
             return [_scale(t, k.value) for t in terms]
         if isinstance(b, list):
-            raise ModelError("E222", "dividing by a signal is not linear", span,
+            raise ModelError("LW222", "dividing by a signal is not linear", span,
                              "divide a signal by a constant, or apply a block")
         if b.value == 0:
-            raise ModelError("E219", "division by zero", span, "check the params in the divisor")
+            raise ModelError("LW219", "division by zero", span, "check the params in the divisor")
         return [_scale(t, 1.0 / b.value) for t in a]
 
     def ev_BinOp(self, e: ast.BinOp):
@@ -136,48 +136,48 @@ class Evaluator:
         base = self.ev(e.base)
         exp_value = self.ev(e.exponent)
         if not isinstance(exp_value, Quantity):
-            raise ModelError("E223", "an exponent must be a constant", e.exponent.span, "write s^2 or wn^2")
+            raise ModelError("LW223", "an exponent must be a constant", e.exponent.span, "write s^2 or wn^2")
         if isinstance(base, list):
-            raise ModelError("E222", "a power of a signal is not linear", e.span,
+            raise ModelError("LW222", "a power of a signal is not linear", e.span,
                              "apply a block to the signal instead")
         if isinstance(base, Quantity):
             # constants may take any real power (sqrt as ^0.5); transfers only whole ones
             if base.value < 0 and exp_value.value != round(exp_value.value):
-                raise ModelError("E223", "a negative number to a fractional power is not real",
+                raise ModelError("LW223", "a negative number to a fractional power is not real",
                                  e.span, "use a positive base or a whole exponent")
             try:
                 v = float(base.value) ** float(exp_value.value)
             except (ZeroDivisionError, OverflowError):
-                raise ModelError("E219", "the power has no finite value", e.span,
+                raise ModelError("LW219", "the power has no finite value", e.span,
                                  "check the base and the exponent") from None
             return Quantity(v, base.kind if exp_value.value == 1 else None)
         if exp_value.value != round(exp_value.value) or abs(exp_value.value) > 64:
-            raise ModelError("E223", "powers of a transfer must be whole numbers (at most 64)",
+            raise ModelError("LW223", "powers of a transfer must be whole numbers (at most 64)",
                              e.exponent.span, "write s^2, (s+1)^3 or (T*s+1)^-1")
         try:
             return base ** int(exp_value.value)
         except TransferError as exc:
-            raise ModelError("E221", str(exc), e.span, "simplify the transfer expression") from None
+            raise ModelError("LW221", str(exc), e.span, "simplify the transfer expression") from None
 
     def ev_Call(self, e: ast.Call):
         r = self.r
         if e.func == "exp":
             if self.mode != "transfer":
-                raise ModelError("E224", "`exp` is only for pure delays inside a transfer", e.func_span,
+                raise ModelError("LW224", "`exp` is only for pure delays inside a transfer", e.func_span,
                                  "write the delay in a block: `block D = exp(-T*s)`")
             arg = self.ev(e.arg)
             return _delay(arg, e)
         if self.mode != "wiring":
             if e.func in r.block_stmts:
-                raise ModelError("E225", f"block `{e.func}` cannot be applied inside a transfer", e.func_span,
+                raise ModelError("LW225", f"block `{e.func}` cannot be applied inside a transfer", e.func_span,
                                  "apply blocks to signals in signal equations")
-            raise ModelError("E226", f"unknown function `{e.func}`", e.func_span,
+            raise ModelError("LW226", f"unknown function `{e.func}`", e.func_span,
                              "the only function is exp(-T*s) for a pure delay")
         if e.func not in r.block_stmts:
-            raise ModelError("E227", f"unknown block `{e.func}`", e.func_span,
+            raise ModelError("LW227", f"unknown block `{e.func}`", e.func_span,
                              close_match(e.func, r.block_stmts) or "define it with `block Name = ...`")
         if e.func not in r.blocks:
-            raise ModelError("E228", f"block `{e.func}` could not be evaluated (see its error)",
+            raise ModelError("LW228", f"block `{e.func}` could not be evaluated (see its error)",
                              e.func_span, "fix the error reported at the block's definition first")
         r.block_uses[e.func] = r.block_uses.get(e.func, 0) + 1
         app = Application(e.func, r.blocks[e.func].transfer, e.span)
@@ -185,7 +185,7 @@ class Evaluator:
 
     def ev_Inline(self, e: ast.Inline):
         if self.mode != "wiring":
-            raise ModelError("E229", "a bracketed transfer `[..](x)` belongs in a signal equation",
+            raise ModelError("LW229", "a bracketed transfer `[..](x)` belongs in a signal equation",
                              e.span, "in a block or param, write the transfer without brackets")
         value = Evaluator(self.r, "transfer").ev(e.transfer)
         tf = value if isinstance(value, Transfer) else Transfer.constant(value.value)
@@ -195,7 +195,7 @@ class Evaluator:
 
     def apply(self, app: Application, arg, span: Span) -> list[Term]:
         if not isinstance(arg, list):
-            raise ModelError("E212", "a block must be applied to a signal (or a sum of signals)", span,
+            raise ModelError("LW212", "a block must be applied to a signal (or a sum of signals)", span,
                              "the argument holds no signal")
         if len(arg) == 1 and arg[0].app is None:
             t = arg[0]
@@ -215,10 +215,10 @@ def _delay(arg, e: ast.Call) -> Transfer:
             and arg.zeros[0] == 0 and arg.delay == 0:
         T = -arg.gain
         if T < 0:
-            raise ModelError("E231", "`exp(+T*s)` is a prediction, not a delay", e.span,
+            raise ModelError("LW231", "`exp(+T*s)` is a prediction, not a delay", e.span,
                              "a pure delay is written exp(-T*s) with T >= 0")
         if not math.isfinite(T) or T > 1e12:
-            raise ModelError("E106", "the delay is not a finite time", e.span, None)
+            raise ModelError("LW106", "the delay is not a finite time", e.span, None)
         return Transfer.pure_delay(T)
-    raise ModelError("E232", "`exp` is only allowed as a pure delay `exp(-T*s)`", e.span,
+    raise ModelError("LW232", "`exp` is only allowed as a pure delay `exp(-T*s)`", e.span,
                      "T is a constant time >= 0, e.g. exp(-150us*s) or exp(-Td*s)")

@@ -187,41 +187,41 @@ def _expected(names) -> str:
 def _unexpected_token(tok: Token, prev: str, exc, span: Span) -> ModelError:
     word = str(tok)
     if word in RESERVED:
-        return ModelError("E101", f"`{word}` is a reserved word", span,
+        return ModelError("LW101", f"`{word}` is a reserved word", span,
                           f"`{word}` cannot name a param, block, signal or break; choose another name")
     if tok.type == "NAME" and word in _UNITS and re.search(r"\d$", prev):
         number = prev.split()[-1]
-        return ModelError("E102", f"a space between `{number}` and its unit `{word}`", span,
+        return ModelError("LW102", f"a space between `{number}` and its unit `{word}`", span,
                           f"write the unit right after the number: `{number}{word}`")
     operand_done = bool({"TIMES", "DIVIDE", "PLUS", "MINUS", "CARET"} & set(exc.expected))
     if operand_done and tok.type in ("NAME", "NUMBER", "LPAR", "LSQB") and re.search(r"[\w.)\]]$", prev):
         m = re.search(r"([\w.]+|\))$", prev)
         left = m.group(1) if m else ""
         right = {"(": "(...)", "[": "[...]"}.get(word, word)
-        return ModelError("E102", f"missing operator before `{word}`", span,
+        return ModelError("LW102", f"missing operator before `{word}`", span,
                           f"multiplication is always written with `*`: `{left}*{right}`")
     what = {"NAME": "name ", "NUMBER": "number "}.get(tok.type, "")
-    return ModelError("E101", f"unexpected {what}`{word}`", span,
+    return ModelError("LW101", f"unexpected {what}`{word}`", span,
                       _expected(exc.expected) or _GENERIC_HINT)
 
 
 def _unexpected_character(src: str, ch: str, line: int, col: int, file: str) -> ModelError:
     span = Span(file, line, col, col + 1)
     if ch == '"':
-        return ModelError("E101", "a quoted path is not closed", Span(file, line, col, len(src) + 1),
+        return ModelError("LW101", "a quoted path is not closed", Span(file, line, col, len(src) + 1),
                           'write the path in double quotes on one line: use "common/drive.loop"')
     if ch == "\r":
-        return ModelError("E104", "a carriage return without a line feed", span,
+        return ModelError("LW104", "a carriage return without a line feed", span,
                           "save the file with LF or CRLF line ends")
     if ch == "\ufffd" or (ch and not ch.isprintable()):
-        return ModelError("E104", "the file is not readable text here", span, "a model is plain UTF-8 text")
+        return ModelError("LW104", "the file is not readable text here", span, "a model is plain UTF-8 text")
     if ch.isalpha():
-        return ModelError("E101", f"unexpected character `{ch}`", span,
+        return ModelError("LW101", f"unexpected character `{ch}`", span,
                           "names use the ASCII letters A-Z a-z, digits and `_`")
     if ch == "%":
-        return ModelError("E102", "a space before `%`", span,
+        return ModelError("LW102", "a space before `%`", span,
                           "write the unit right after the number: `5%`")
-    return ModelError("E101", f"unexpected character `{ch}`", span,
+    return ModelError("LW101", f"unexpected character `{ch}`", span,
                       "operators are + - * / ^, comparisons >= <= > <, comments start with #")
 
 
@@ -239,7 +239,7 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str) -> ModelError:
         if tok.type in ("_NL", "$END"):
             msg = "the statement ends too early"
             exp = _expected(exc.expected)
-            return ModelError("E101", msg, Span(file, line, max(col, 1)), exp or _GENERIC_HINT)
+            return ModelError("LW101", msg, Span(file, line, max(col, 1)), exp or _GENERIC_HINT)
         return _unexpected_token(tok, prev, exc, span)
     if isinstance(exc, UnexpectedCharacters):
         span = Span(file, line, col, col + 1)
@@ -249,33 +249,33 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str) -> ModelError:
             suffix = m.group(4)
             number = rest[: m.start(4)]
             if suffix[0] in "_eE" or (number == "0" and suffix[0] in "xXbBoO"):
-                return ModelError("E103", f"malformed number `{m.group(0)}`",
+                return ModelError("LW103", f"malformed number `{m.group(0)}`",
                                   Span(file, line, col, col + len(m.group(0))),
                                   "numbers look like 12, 0.5, 1e-3 or 150us (no `_` separators, no hex)")
             if suffix == "s" or suffix.startswith("s"):
                 hint = f"write `{number}*{suffix}`: `s` is the Laplace variable, not a unit (plain numbers are seconds)"
-                return ModelError("E102", f"missing `*` between `{number}` and `{suffix}`", Span(file, line, col, col + len(m.group(0))), hint)
+                return ModelError("LW102", f"missing `*` between `{number}` and `{suffix}`", Span(file, line, col, col + len(m.group(0))), hint)
             hint = ("units are ns us ms min h Hz kHz deg rad dB %, written right after the number; "
                     f"for a product write `{number}*{suffix}`")
-            return ModelError("E103", f"unknown unit or missing `*` in `{m.group(0)}`", Span(file, line, col, col + len(m.group(0))), hint)
+            return ModelError("LW103", f"unknown unit or missing `*` in `{m.group(0)}`", Span(file, line, col, col + len(m.group(0))), hint)
         if re.match(r"\d", rest[:1]):
-            return ModelError("E103", "malformed number", span, "numbers look like 12, 0.5, 1e-3 or 150us")
+            return ModelError("LW103", "malformed number", span, "numbers look like 12, 0.5, 1e-3 or 150us")
         pos = getattr(exc, "pos_in_stream", None)
         ch = text[pos] if pos is not None and pos < len(text) else rest[:1]
         return _unexpected_character(src, ch, line, col, file)
-    return ModelError("E101", "syntax error", Span(file, line, col), _GENERIC_HINT)
+    return ModelError("LW101", "syntax error", Span(file, line, col), _GENERIC_HINT)
 
 
 def parse_text(text: str, file: str = "<text>") -> ast.ModelFile:
     """Parse one model file's text into its syntax tree (includes unresolved)."""
     if len(text) > MAX_MODEL_BYTES:
         raise ModelError(
-            "E105", f"the model is too large ({len(text) // 1024} KiB; the limit is {MAX_MODEL_BYTES // 1024 // 1024} MiB)",
+            "LW105", f"the model is too large ({len(text) // 1024} KiB; the limit is {MAX_MODEL_BYTES // 1024 // 1024} MiB)",
             Span(file, 1, 1), "split it into files joined with `use`",
         )
     if "\x00" in text:
         line = text.count("\n", 0, text.index("\x00")) + 1
-        raise ModelError("E104", "the file holds binary data, not model text", Span(file, line, 1),
+        raise ModelError("LW104", "the file holds binary data, not model text", Span(file, line, 1),
                          "a model is plain UTF-8 text")
     text = text.removeprefix("\ufeff")  # a byte-order mark some editors write
     try:
@@ -284,13 +284,13 @@ def parse_text(text: str, file: str = "<text>") -> ast.ModelFile:
         raise _syntax_error(exc, text, file) from None
     deep = _too_deep(tree)
     if deep is not None:
-        raise ModelError("E107", f"the expression is nested more than {MAX_NESTING} levels deep",
+        raise ModelError("LW107", f"the expression is nested more than {MAX_NESTING} levels deep",
                          Span(file, deep.meta.line, deep.meta.column),
                          "split it with params, blocks or intermediate signals")
     statements = _ToAst(file).transform(tree)
     for stmt in _numbers(statements):
         if not math.isfinite(stmt.value) or (stmt.value == 0.0 and re.match(r"[0.]*[1-9]", stmt.text)):
-            raise ModelError("E106", f"the number `{stmt.text}` is out of range", stmt.span,
+            raise ModelError("LW106", f"the number `{stmt.text}` is out of range", stmt.span,
                              "numbers must be finite and within about 1e-300 to 1e300")
     return ast.ModelFile(file, statements)
 

@@ -63,7 +63,7 @@ def _to_metric_unit(metric: Metric, value: float, kind: str | None, span: Span) 
         return value
     if kind not in metric.kinds:
         unit = metric.unit or "a plain ratio"
-        raise ModelError("E241", f"a {kind} unit does not fit `{metric.name}` (its unit is {unit})", span,
+        raise ModelError("LW241", f"a {kind} unit does not fit `{metric.name}` (its unit is {unit})", span,
                          f"write the limit in {unit}" + (", or without a unit" if metric.unit else ""))
     if kind == "angle":
         return math.degrees(value)
@@ -72,7 +72,7 @@ def _to_metric_unit(metric: Metric, value: float, kind: str | None, span: Span) 
             hint = ("a down margin is judged as the size of the decrease, a positive dB figure: "
                     "write e.g. `gain_margin_down >= 6dB`") if metric.name == "gain_margin_down" else \
                 "write the limit as a positive dB figure, e.g. `>= 6dB`"
-            raise ModelError("E242", "a dB limit must come from a positive ratio (`-6dB` is read as minus "
+            raise ModelError("LW242", "a dB limit must come from a positive ratio (`-6dB` is read as minus "
                              "the ratio of 6 dB)", span, hint)
         return 20.0 * math.log10(value) if metric.unit == "dB" else value
     return value  # time in s, frequency in rad/s, ratio as is
@@ -84,7 +84,7 @@ def make_requirement(stmt: ast.RequireStmt, const) -> Requirement:
         import difflib
         match = difflib.get_close_matches(stmt.metric, list(METRICS), n=1, cutoff=0.5)
         hint = f"did you mean `{match[0]}`?" if match else "metrics: " + ", ".join(METRICS)
-        raise ModelError("E243", f"unknown metric `{stmt.metric}`", stmt.metric_span, hint)
+        raise ModelError("LW243", f"unknown metric `{stmt.metric}`", stmt.metric_span, hint)
     q = const(stmt.value, f"the limit of `{stmt.metric}`")
     limit = _to_metric_unit(metric, q.value, q.kind, stmt.value.span)
     # 30deg -> rad -> deg must read 30, not 29.999999999999996

@@ -52,13 +52,13 @@ class _Resolver:
     # --- collecting statements (includes first, in place) ----------------------
     def declare(self, name: str, what: str, span: Span) -> bool:
         if name in RESERVED:
-            self.errors.append(ModelError("E201", f"`{name}` is a reserved word and cannot name {'an' if what[0] in 'aeiou' else 'a'} {what}",
+            self.errors.append(ModelError("LW201", f"`{name}` is a reserved word and cannot name {'an' if what[0] in 'aeiou' else 'a'} {what}",
                                           span, "choose another name"))
             return False
         if name in self.names:
             prev_what, prev = self.names[name]
             self.errors.append(ModelError(
-                "E202", f"`{name}` is defined twice (first as a {prev_what} at {prev})", span,
+                "LW202", f"`{name}` is defined twice (first as a {prev_what} at {prev})", span,
                 "every name (param, block, signal, input) is defined exactly once"))
             return False
         self.names[name] = (what, span)
@@ -70,7 +70,7 @@ class _Resolver:
                 if not top:
                     continue  # an included file's own name does not rename the model
                 if i != 0 or self.model_name is not None:
-                    self.errors.append(ModelError("E203", "`model` must be the first statement, once",
+                    self.errors.append(ModelError("LW203", "`model` must be the first statement, once",
                                                   stmt.span, "move it to the top of the file"))
                 else:
                     self.model_name = stmt.name
@@ -85,7 +85,7 @@ class _Resolver:
                     self.block_stmts[stmt.name] = stmt
             elif not top:
                 self.errors.append(ModelError(
-                    "E204", "an included file may hold only `param`, `block` and `use` statements",
+                    "LW204", "an included file may hold only `param`, `block` and `use` statements",
                     stmt.span, "keep signals, breaks and requirements in the model that uses it"))
             elif isinstance(stmt, ast.InputStmt):
                 for name, span in stmt.names:
@@ -94,7 +94,7 @@ class _Resolver:
             elif isinstance(stmt, ast.EquationStmt):
                 if stmt.signal in self.inputs:
                     self.errors.append(ModelError(
-                        "E202", f"`{stmt.signal}` is an input and cannot also have an equation", stmt.span,
+                        "LW202", f"`{stmt.signal}` is an input and cannot also have an equation", stmt.span,
                         "an input is driven from outside; remove it from `input` or drop the equation"))
                 elif self.declare(stmt.signal, "signal", stmt.span):
                     self.eq_stmts[stmt.signal] = stmt
@@ -108,17 +108,17 @@ class _Resolver:
         path = (base / stmt.path).resolve()
         if path in stack:
             chain = " -> ".join(p.name for p in (*stack[stack.index(path):], path))
-            self.errors.append(ModelError("E205", f"include cycle: {chain}", stmt.span,
+            self.errors.append(ModelError("LW205", f"include cycle: {chain}", stmt.span,
                                           "a file may not use itself, directly or through others"))
             return
         try:
             text = path.read_text(encoding="utf-8", errors="replace")
         except FileNotFoundError:
-            self.errors.append(ModelError("E206", f"included file not found: {stmt.path}", stmt.span,
+            self.errors.append(ModelError("LW206", f"included file not found: {stmt.path}", stmt.span,
                                           f"the path is relative to this file's folder ({base})"))
             return
         except OSError as exc:
-            self.errors.append(ModelError("E206", f"cannot read included file {stmt.path}: {exc.strerror}",
+            self.errors.append(ModelError("LW206", f"cannot read included file {stmt.path}: {exc.strerror}",
                                           stmt.span, None))
             return
         try:
@@ -132,10 +132,10 @@ class _Resolver:
     def const(self, expr: ast.Expr, what: str) -> Quantity:
         value = self.evaluate(expr, "const")
         if not isinstance(value, Quantity):
-            raise ModelError("E210", f"{what} must be a constant", expr.span,
+            raise ModelError("LW210", f"{what} must be a constant", expr.span,
                              "use numbers and params only here (no `s`, no signals)")
         if not math.isfinite(value.value) or abs(value.value) > 1e300:
-            raise ModelError("E106", f"{what} is not a finite number", expr.span,
+            raise ModelError("LW106", f"{what} is not a finite number", expr.span,
                              "check for overflow or a division by zero")
         return value
 
@@ -150,7 +150,7 @@ class _Resolver:
                 lo = self.const(stmt.low, "the range's low end").value
                 hi = self.const(stmt.high, "the range's high end").value
                 if not lo <= q.value <= hi:
-                    raise ModelError("E211", f"param `{stmt.name}` = {q.value:g} lies outside its range "
+                    raise ModelError("LW211", f"param `{stmt.name}` = {q.value:g} lies outside its range "
                                      f"[{lo:g}, {hi:g}]", stmt.value.span,
                                      "the nominal value must lie within its uncertainty range")
             self.params[stmt.name] = q
@@ -171,17 +171,17 @@ class _Resolver:
         for p in cancelled:
             if p.real >= 0:
                 self.findings.append(Finding(
-                    "warning", "W201", f"{what} cancels a pole at {p:.4g} with a zero: the unstable "
+                    "warning", "LW281", f"{what} cancels a pole at {p:.4g} with a zero: the unstable "
                     "mode is dropped from the block", span,
                     "an exact cancellation of an unstable pole hides that mode; model it explicitly"))
         if tf.is_zero:
             return tf
         if not tf.is_proper:
-            raise ModelError("E220", f"{what} is improper ({tf.zeros.size} zeros, {tf.poles.size} poles): "
+            raise ModelError("LW220", f"{what} is improper ({tf.zeros.size} zeros, {tf.poles.size} poles): "
                              "its gain grows without bound at high frequency", span,
                              "add filter poles, e.g. Kd*s/(Tf*s + 1) instead of Kd*s")
         if not (math.isfinite(tf.gain) and np.all(np.isfinite(tf.poles)) and np.all(np.isfinite(tf.zeros))):
-            raise ModelError("E106", f"{what} has non-finite coefficients", span,
+            raise ModelError("LW106", f"{what} has non-finite coefficients", span,
                              "check for overflow or division by zero in its parameters")
         return tf
 
@@ -200,13 +200,13 @@ class _Resolver:
                 self.errors.append(exc)
         for name in self.block_stmts:
             if self.eq_stmts and name in self.blocks and self.block_uses.get(name, 0) == 0:
-                self.findings.append(Finding("warning", "W202", f"block `{name}` is never used",
+                self.findings.append(Finding("warning", "LW282", f"block `{name}` is never used",
                                              self.block_stmts[name].span, "apply it in a signal equation or remove it"))
         if not self.eq_stmts and not self.errors and not (self.block_stmts or self.param_spans):
-            self.errors.append(ModelError("E230", "the model has no signal equations",
+            self.errors.append(ModelError("LW230", "the model has no signal equations",
                                           Span(self.file, 1, 1), "wire blocks with lines like `y = G(e)`"))
         if not self.eq_stmts and (self.block_stmts or self.param_spans) and (self.breaks or self.requires):
-            self.errors.append(ModelError("E230", "the model has breaks or requirements but no signal equations",
+            self.errors.append(ModelError("LW230", "the model has breaks or requirements but no signal equations",
                                           Span(self.file, 1, 1), "wire blocks with lines like `y = G(e)`"))
         requirements = []
         for stmt in (*self.requires, *extra_requirements):
@@ -230,9 +230,9 @@ class _Resolver:
         if isinstance(value, list):
             return value
         if isinstance(value, Quantity):
-            raise ModelError("E212", "a signal equation needs at least one signal on the right",
+            raise ModelError("LW212", "a signal equation needs at least one signal on the right",
                              span, "a constant alone does not take part in a linear model")
-        raise ModelError("E213", "a transfer function must be applied to a signal in a wiring",
+        raise ModelError("LW213", "a transfer function must be applied to a signal in a wiring",
                          span, "write it in brackets applied to a signal: `[G](x)`, or name it with `block`")
 
     def hidden_signal(self, terms: list[Term], span: Span, label: str) -> str:
@@ -256,7 +256,7 @@ def resolve_text(text: str, file: str = "<text>", extra_requirements: tuple[str,
         sub = parse_text(where, extra_source)
         for stmt in sub.statements:
             if not isinstance(stmt, ast.RequireStmt):
-                raise ModelError("E240", f"a default requirement must look like `* metric >= value`: {line!r}",
+                raise ModelError("LW240", f"a default requirement must look like `* metric >= value`: {line!r}",
                                  Span(extra_source, i + 1, 1), "for example `* phase_margin >= 45deg`")
             extra.append(stmt)
     return _Resolver(file).resolve(mf, path, tuple(extra))
@@ -282,10 +282,10 @@ def resolve_file(path: str | Path, extra_requirements: tuple[str, ...] = (),
     try:
         data = p.read_bytes()
     except FileNotFoundError:
-        raise ModelError("E001", "no such file", Span(str(path), 0, 0), None) from None
+        raise ModelError("LW001", "no such file", Span(str(path), 0, 0), None) from None
     except IsADirectoryError:
-        raise ModelError("E001", "is a folder, not a model file", Span(str(path), 0, 0), None) from None
+        raise ModelError("LW001", "is a folder, not a model file", Span(str(path), 0, 0), None) from None
     except OSError as exc:
-        raise ModelError("E001", f"cannot read the file: {exc.strerror}", Span(str(path), 0, 0), None) from None
+        raise ModelError("LW001", f"cannot read the file: {exc.strerror}", Span(str(path), 0, 0), None) from None
     text = data.decode("utf-8", errors="replace")
     return resolve_text(text, str(path), extra_requirements, extra_source)

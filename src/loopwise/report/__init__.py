@@ -36,7 +36,7 @@ def render(run, fmt: str, *, colour: bool = False, fail_on_warnings: bool = Fals
 # --- verdicts -----------------------------------------------------------------------
 
 #: the analysis's note for a file of params and blocks only (brought in with `use`)
-LIBRARY_NOTE = "N401"
+LIBRARY_NOTE = "LW491"
 
 
 def is_library(m) -> bool:

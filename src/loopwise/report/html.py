@@ -190,7 +190,7 @@ def _requirements(m) -> list[str]:
 
 
 def _warnings(m) -> list[str]:
-    items = [f"<li>{_word('WARNING')} break {_e(b.name)}: {_e(w)}</li>"
+    items = [f"<li>{_word('WARNING')} break {_e(b.name)}: {_e(w.code)} {_e(w.message)}</li>"
              for b in m.breaks for w in b.warnings]
     for b in m.breaks:
         if not b.stable and b.stabilising_gains:

@@ -50,7 +50,8 @@ def _break_problems(m, b, fail_on_warnings: bool) -> tuple[str, str, list[str]] 
         return "requirement", f"{len(unmet)} requirement(s) not met: " + "; ".join(
             r.describe() for r in unmet), details
     if fail_on_warnings and b.warnings:
-        return "warning", b.warnings[0], list(b.warnings)
+        texts = [f"{w.code} {w.message}" for w in b.warnings]
+        return "warning", texts[0], texts
     return None
 
 
@@ -83,7 +84,7 @@ def _model_suite(root, m, fail_on_warnings: bool) -> None:
         if problem:
             _fail(case, *problem)
             failures += 1
-    notes = [f"break {b.name}: warning: {w}" for b in m.breaks for w in b.warnings]
+    notes = [f"break {b.name}: warning: {w.code} {w.message}" for b in m.breaks for w in b.warnings]
     notes += [finding_text(f) for f in m.findings]
     if notes:
         ET.SubElement(suite, "system-out").text = _clean("\n".join(notes))

@@ -68,7 +68,7 @@ def _details(m, fail_on_warnings: bool) -> list[str]:
         out += [f"- {_code(requirement_place(m, r))} break {_code(b.name)}: {_code(r.describe())}"
                 for b, r in unmet]
         out.append("")
-    notes = [f"break {b.name}: {w}" for b in m.breaks for w in b.warnings]
+    notes = [f"break {b.name}: {w.code} {w.message}" for b in m.breaks for w in b.warnings]
     notes += [finding_text(f) for f in m.findings]
     if notes:
         out += ["Warnings:", "", *_fenced(notes), ""]

@@ -79,7 +79,7 @@ def _model_block(m, colour: bool, fail_on_warnings: bool) -> list[str]:
                        f"factor in {ranges}")
     warn = _paint("warning", "warning", colour)
     for b in m.breaks:
-        out += [f"  {warn}: break {b.name}: {w}" for w in b.warnings]
+        out += [f"  {warn}: break {b.name}: {w.code} {w.message}" for w in b.warnings]
     for f in m.findings:
         if f.code != LIBRARY_NOTE:   # already said on the verdict line
             out += ["  " + line for line in finding_text(f).splitlines()]

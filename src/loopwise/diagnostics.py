@@ -1,0 +1,122 @@
+"""Every diagnostic code loopwise emits: severity, a one-line summary, where it is documented.
+
+Codes are ``LW`` and three digits. The hundreds digit is the stage that finds
+the problem (0 reading files, 1 syntax, 2 names and values, 3 the loop graph,
+4 the engine, 5 margins and requirements, 6 sweeps, 7 comparisons, 9 internal);
+within a stage, a tens digit of 8 marks a warning and 9 a note, every other
+tens digit an error. Codes are never reused for something else.
+
+Before release 0.2 the codes were written ``E101``, ``W201``, ``N401``; the
+``old`` field keeps that spelling (docs/language.md lists both for one release).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+__all__ = ["Code", "CODES", "lookup", "DOCS"]
+
+#: the page that documents every code (each code has a row in its table)
+DOCS = "docs/language.md#diagnostics"
+
+
+@dataclass(frozen=True)
+class Code:
+    """One diagnostic: its code, severity, one-line summary and documentation section."""
+
+    code: str
+    severity: str  # "error" | "warning" | "note"
+    summary: str
+    section: str
+    old: str | None = None
+
+
+def _severity(code: str) -> str:
+    tens = code[3]
+    return "warning" if tens == "8" else "note" if tens == "9" else "error"
+
+
+_TABLE: tuple[tuple[str, str, str, str | None], ...] = (
+    # code, summary, doc section, old code
+    ("LW001", "the file cannot be read (missing, a folder, no permission)", "files", "E001"),
+    ("LW002", "the file is not UTF-8 text", "files", "E002"),
+    ("LW101", "syntax error: unexpected token or character, unclosed quote, reserved word as a name",
+     "syntax", "E101"),
+    ("LW102", "a missing `*`, or a space between a number and its unit", "syntax", "E102"),
+    ("LW103", "malformed number or unknown unit", "syntax", "E103"),
+    ("LW104", "not text: NUL bytes, invalid UTF-8, a lone carriage return", "syntax", "E104"),
+    ("LW105", "the model is larger than the size limit", "syntax", "E105"),
+    ("LW106", "a number that is not finite in SI or underflows to zero", "syntax", "E106"),
+    ("LW107", "an expression nested too deeply", "syntax", "E107"),
+    ("LW201", "a reserved word used as a name", "names", "E201"),
+    ("LW202", "a name defined twice (or an input that also has an equation)", "names", "E202"),
+    ("LW203", "`model` is not the first statement", "names", "E203"),
+    ("LW204", "an included file holds more than params, blocks and includes", "includes", "E204"),
+    ("LW205", "an include cycle", "includes", "E205"),
+    ("LW206", "an included file cannot be found or read", "includes", "E206"),
+    ("LW210", "a constant was expected", "values", "E210"),
+    ("LW211", "a param's nominal value lies outside its range", "values", "E211"),
+    ("LW212", "a signal equation or application without a signal", "values", "E212"),
+    ("LW213", "a transfer function used in a wiring without being applied", "values", "E213"),
+    ("LW214", "the Laplace variable `s` outside a transfer", "values", "E214"),
+    ("LW215", "a signal inside a transfer or constant", "values", "E215"),
+    ("LW216", "a block used as a value", "values", "E216"),
+    ("LW217", "a param used before its definition, or whose definition failed", "values", "E217"),
+    ("LW218", "an unknown name", "values", "E218"),
+    ("LW219", "division by zero, or a power without a finite value", "values", "E219"),
+    ("LW220", "an improper block (more zeros than poles)", "values", "E220"),
+    ("LW221", "a sum with different delays, or another transfer without a rational form", "values", "E221"),
+    ("LW222", "a non-linear wiring (product, quotient or power of signals)", "values", "E222"),
+    ("LW223", "a bad exponent", "values", "E223"),
+    ("LW224", "`exp` outside a transfer", "values", "E224"),
+    ("LW225", "a block applied inside a transfer", "values", "E225"),
+    ("LW226", "an unknown function", "values", "E226"),
+    ("LW227", "an unknown block", "values", "E227"),
+    ("LW228", "a block whose definition failed", "values", "E228"),
+    ("LW229", "a bracketed transfer outside a signal equation", "values", "E229"),
+    ("LW230", "no signal equations where a model needs them", "values", "E230"),
+    ("LW231", "`exp(+T*s)`: a prediction, not a delay", "values", "E231"),
+    ("LW232", "`exp` used other than as a pure delay", "values", "E232"),
+    ("LW240", "a default requirement in the settings that is not a requirement", "requirements", "E240"),
+    ("LW241", "a limit's unit does not fit the metric", "requirements", "E241"),
+    ("LW242", "a dB limit from a negative ratio", "requirements", "E242"),
+    ("LW243", "an unknown requirement metric", "requirements", "E243"),
+    ("LW281", "a block cancels an unstable pole with a zero", "values", "W201"),
+    ("LW282", "a block that is never used", "names", "W202"),
+    ("LW291", "a constant offset in a signal sum (ignored)", "values", "N201"),
+    ("LW301", "an ill-posed algebraic loop", "structure", "E301"),
+    ("LW302", "a break that opens no loop", "structure", "E302"),
+    ("LW303", "a break target that does not use the broken signal", "structure", "E303"),
+    ("LW304", "a break defined twice", "structure", "E304"),
+    ("LW305", "a break at an input", "structure", "E305"),
+    ("LW306", "a break at an unknown signal", "structure", "E306"),
+    ("LW307", "a requirement on an unknown break", "structure", "E307"),
+    ("LW381", "an input that is never used", "structure", "W301"),
+    ("LW382", "a loop that no break opens", "structure", "W302"),
+    ("LW383", "an inner loop not much faster than the loop around it (cascade separation)",
+     "structure", None),
+    ("LW391", "a well-posed algebraic loop", "structure", "N301"),
+    ("LW392", "too many loops to list: structural checks covered the first ones", "structure", "N302"),
+    ("LW401", "a neutral-type loop (high-frequency gain through delays >= 1)", "engine", "E401"),
+    ("LW402", "the Nyquist count could not be certified within the sample budget", "engine", "E402"),
+    ("LW481", "a break's count that did not settle cleanly (rounding residual)", "engine", None),
+    ("LW482", "the whole-model count did not settle cleanly", "engine", "W402"),
+    ("LW483", "poles and zeros span too many decades for double precision", "engine", "W403"),
+    ("LW484", "an unstable block driven by an input only", "engine", "W404"),
+    ("LW485", "sampling could not resolve the curve near a frequency", "engine", None),
+    ("LW486", "a break's count disagrees with the whole model's", "engine", None),
+    ("LW487", "an unstable mode hidden by a cancellation inside the loop", "engine", None),
+    ("LW581", "the loop transfer beyond the certified range winds too often to sample fully",
+     "margins", None),
+    ("LW582", "the gain-margin stretches disagree with the count", "margins", None),
+    ("LW491", "a library of params and blocks: nothing to check on its own", "engine", "N401"),
+    ("LW900", "an internal error: no verdict was given", "files", "E999"),
+)
+
+CODES: dict[str, Code] = {
+    code: Code(code, _severity(code), summary, section, old) for code, summary, section, old in _TABLE
+}
+
+
+def lookup(code: str) -> Code:
+    """The registry entry of a code (KeyError for a code that is not registered)."""
+    return CODES[code]
