@@ -17,15 +17,17 @@ from .language.resolve import Model, resolve_file, resolve_text
 from .engine.reduce import Reduction, reduce_diagram
 from .results import BreakResult, HiddenMode, ModelResult
 from .engine.hidden import applications, cancelled_modes, structural_modes
-from .engine.stability import count_all, count_model, prepare_contour
+from .engine.stability import count, nyquist_counts
 from .judge import SEPARATION_WARNING, judge
 
-__all__ = ["Prepared", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop",
+__all__ = ["PreparedModel", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop",
            "nyquist_verdict"]
 
 
 @dataclass(frozen=True, eq=False)
-class Prepared:
+class PreparedModel:
+    """A model read, its loop graph built and its wiring reduced: everything but the verdict."""
+
     model: Model
     diagram: Diagram
     reduction: Reduction
@@ -51,17 +53,17 @@ def _settings_requirements(settings) -> tuple[str, ...]:
     return tuple(getattr(settings, "requirements", ()) or ()) if settings is not None else ()
 
 
-def _prepare(model: Model) -> Prepared:
+def _prepare(model: Model) -> PreparedModel:
     diagram = build_diagram(model)
-    return Prepared(model, diagram, reduce_diagram(diagram))
+    return PreparedModel(model, diagram, reduce_diagram(diagram))
 
 
-def prepare_text(text: str, file: str = "<text>", settings=None) -> Prepared:
+def prepare_text(text: str, file: str = "<text>", settings=None) -> PreparedModel:
     return _prepare(resolve_text(text, file, _settings_requirements(settings),
                                  getattr(settings, "source", None) or "<settings>"))
 
 
-def prepare_file(path, settings=None) -> Prepared:
+def prepare_file(path, settings=None) -> PreparedModel:
     return _prepare(resolve_file(path, _settings_requirements(settings),
                                  getattr(settings, "source", None) or "<settings>"))
 
@@ -76,7 +78,7 @@ def check_file(path, settings=None, indent: str = "right") -> ModelResult:
     return check_prepared(prepare_file(path, settings), indent)
 
 
-def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
+def check_prepared(prep: PreparedModel, indent: str = "right") -> ModelResult:
     model, red = prep.model, prep.reduction
     findings = list(prep.diagram.findings)
     if not model.equations:
@@ -84,23 +86,18 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
         findings.append(Finding("note", "LW491", "no signal equations: a library of params and blocks "
                                 "(for `use`), nothing to check on its own", Span(model.file, 1, 1)))
         return ModelResult(model.file, model.name, True, 0, (), tuple(findings))
-    setup = prepare_contour(red, indent)
-    roots = np.abs(setup.roots[setup.roots != 0])
+    result = count(red, indent)
+    roots = np.concatenate([red.block_poles(), red.block_zeros()])
+    roots = np.abs(roots[roots != 0])
     if roots.size and roots.max() / roots.min() > 1e10:
         findings.append(Finding(
             "warning", "LW483", f"poles and zeros span {np.log10(roots.max() / roots.min()):.0f} decades "
             f"({roots.min():.3g} to {roots.max():.3g} rad/s): double precision may not resolve such a model; "
             "treat its margins with care", Span(model.file, 1, 1),
             "rescale time (e.g. work in ms) or drop modes far outside the loop's bandwidth"))
-    if prep.diagram.breaks:
-        Z, model_warnings, counts = count_all(red, setup)
-    else:
-        (Z, model_warnings), counts = count_model(red, setup), {}
-    for code, message in model_warnings:
+    Z, counts = result.Z, result.counts
+    for code, message in dict.fromkeys(result.warnings):
         findings.append(Finding("warning", code, message, Span(model.file, 1, 1)))
-    touching = tuple(sorted({c.marginal_freq for c in counts.values() if c.marginal}))
-    if touching:
-        Z, _ = count_model(red, setup.touching(touching))
     modes = counted_modes(cancelled_modes(red) + structural_modes(red), model)
     findings.extend(_mode_findings(red, modes))
     extra_rhp, hidden_axis = verdict_adjustment(modes)
@@ -284,8 +281,7 @@ def _check_not_zero(cut, count) -> None:
 def nyquist_verdict(L, indent: str = "right"):
     """P, N, Z (a stability.NyquistCount) of unity negative feedback around L, without margins."""
     prep = _single_loop(L, "loop")
-    setup = prepare_contour(prep.reduction, indent, for_margins=False)
-    return count_all(prep.reduction, setup)[2]["loop"]
+    return nyquist_counts(prep.reduction, indent).counts["loop"]
 
 
 def analyse_loop(L, name: str = "loop", indent: str = "right") -> BreakResult:
@@ -293,7 +289,7 @@ def analyse_loop(L, name: str = "loop", indent: str = "right") -> BreakResult:
     return check_prepared(_single_loop(L, name), indent).breaks[0]
 
 
-def _single_loop(L, name: str) -> Prepared:
+def _single_loop(L, name: str) -> PreparedModel:
     from .language import ast
     from .language.resolve import Application, Block, Term
 

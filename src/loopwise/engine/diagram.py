@@ -1,4 +1,4 @@
-"""Resolved model -> the loop graph (networkx) and its structural checks.
+"""Resolved model -> the loop graph (engine/graph.py) and its structural checks.
 
 Signals are nodes; each wiring term is an edge from its source signal into the
 signal whose equation uses it, carrying the term (a gain, or one block
@@ -17,12 +17,12 @@ import difflib
 import itertools
 from dataclasses import dataclass
 
-import networkx as nx
 import numpy as np
 
 from ..errors import Finding, ModelError, ModelErrors, Span
 from ..language.ast import BreakStmt
 from ..language.resolve import Model, Term
+from .graph import MultiGraph, simple_cycles, strongly_connected_components
 from .solve import nonsingular
 
 __all__ = ["Diagram", "BreakCut", "build_diagram", "MAX_CYCLES"]
@@ -45,15 +45,13 @@ class BreakCut:
 @dataclass(frozen=True, eq=False)
 class Diagram:
     model: Model
-    graph: nx.MultiDiGraph
+    graph: MultiGraph
     signals: tuple[str, ...]  # the state of the wiring, in a fixed order (inputs excluded)
     cycles: tuple[tuple[str, ...], ...]
     breaks: tuple[BreakCut, ...]
     findings: tuple[Finding, ...]
     cycles_complete: bool = True
 
-    def index(self) -> dict[str, int]:
-        return {n: i for i, n in enumerate(self.signals)}
 
 
 def _hint(name: str, options) -> str | None:
@@ -70,7 +68,7 @@ def _feeds(term: Term) -> bool:
 
 
 def build_diagram(model: Model) -> Diagram:
-    g = nx.MultiDiGraph()
+    g = MultiGraph()
     for name in model.inputs:
         g.add_node(name, kind="input")
     for name in model.signals:
@@ -122,16 +120,15 @@ def _display(name: str, model: Model) -> str:
 
 
 def _algebraic_loops(model: Model, g, signals, errors) -> list[Finding]:
-    direct = nx.DiGraph()
-    direct.add_nodes_from(signals)
+    direct: dict[str, list[str]] = {n: [] for n in signals}
     for u, v, data in g.edges(data=True):
         if u in model.signals and _feeds(data["term"]):
-            direct.add_edge(u, v)
+            direct[u].append(v)
     out = []
-    for comp in nx.strongly_connected_components(direct):
+    for comp in strongly_connected_components(signals, direct):
         if len(comp) == 1:
             (n,) = comp
-            if not direct.has_edge(n, n):
+            if n not in direct[n]:
                 continue
         names = sorted({_display(n, model) for n in comp})
         # well-posedness: I - A(inf) restricted to the loop must be invertible
@@ -165,11 +162,10 @@ def _cycles(g, model: Model):
     hashes vary between runs), so they are put in a fixed order here.
     """
     order = {n: i for i, n in enumerate(model.signals)}
-    sub = g.subgraph(model.signals)
-    simple = nx.DiGraph(sub)
+    succ = {n: [v for v in g.successors(n) if v in model.signals] for n in model.signals}
     cycles = []
     complete = True
-    for cyc in nx.simple_cycles(simple):
+    for cyc in simple_cycles(list(model.signals), succ):
         k = min(range(len(cyc)), key=lambda i: order[cyc[i]])
         cycles.append(tuple(cyc[k:] + cyc[:k]))
         if len(cycles) >= MAX_CYCLES:

@@ -124,13 +124,18 @@ def _at_pole(s: np.ndarray, L: np.ndarray, axis: np.ndarray,
         with np.errstate(all="ignore"):
             if evaluate is not None:  # 1000 times closer: a simple pole grows |L| 1000-fold
                 far, near = np.abs(evaluate(centre + radius * np.array([1e-1, 1e-4])))
-                growth = near / far
+                # L that underflows to 0.0 at both (a zero of high order there) does not grow
+                growth = near / far if far > 0 else (np.inf if near > 0 else 0.0)
             else:  # at least 100 times closer
                 after = np.flatnonzero(axis[group[-1]:] & (np.abs(s[group[-1]:] - centre) >= 100 * radius))
                 if after.size == 0:
                     continue
                 growth = 10.0 * abs(L[group[group.size // 2]]) / abs(L[group[-1] + after[0]])
-        mask[group] = not (np.isfinite(growth) and growth < 100.0)
+        # a pole of L puts |L| beyond 1 on the indentation (a crossing there is the limit at
+        # -inf); where |L| stays below 1 (values at the level of rounding noise, a zero of
+        # high order) there is no pole to speak of
+        large = bool(np.max(np.abs(L[group])) >= 1.0)
+        mask[group] = large and not (np.isfinite(growth) and growth < 100.0)
     return mask
 
 

@@ -4,7 +4,7 @@ The contour runs up the imaginary axis with small semicircular indentations
 around every block pole on the axis (to the right by default), to s = jR, and
 closes along |s| = R back to the real axis. By conjugate symmetry only the upper
 half is traced; the count is -(change of arg f)/pi over it. R comes from a
-high-frequency certificate (reduce.certificate_radius) beyond which no zero can
+high-frequency certificate (certificate.certificate_radius) beyond which no zero can
 lie, and the arc's phase change is computed from that certificate, not sampled.
 
 Sampling is adaptive: an interval between two samples is accepted only when,
