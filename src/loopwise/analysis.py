@@ -15,7 +15,7 @@ from .engine.diagram import Diagram, build_diagram
 from .errors import Finding, ModelError, Span
 from .language.resolve import Model, resolve_file, resolve_text
 from .engine.reduce import Reduction, reduce_diagram
-from .results import BreakResult, HiddenMode, ModelResult
+from .results import BreakResult, HiddenMode, Margins, ModelResult
 from .engine.hidden import applications, cancelled_modes, structural_modes
 from .engine.stability import count, nyquist_counts
 from .judge import SEPARATION_WARNING, judge
@@ -102,9 +102,7 @@ def check_prepared(prep: PreparedModel, indent: str = "right") -> ModelResult:
     findings.extend(_mode_findings(red, modes))
     extra_rhp, hidden_axis = verdict_adjustment(modes)
     Z += extra_rhp
-    from .engine.margins import loop_margins, stabilising_gains
-
-    rows, margins = [], {}
+    rows = []
     for cut in prep.diagram.breaks:
         name = cut.stmt.name
         c = counts[name]
@@ -114,8 +112,6 @@ def check_prepared(prep: PreparedModel, indent: str = "right") -> ModelResult:
         if hidden_axis and not marginal:
             marginal, marginal_freq, cause = True, hidden_axis[0], "hidden"
         stable = Zk == 0 and not marginal
-        evaluate = (lambda s, n=name: red.loop_transfer(n, s))
-        margins[name] = loop_margins(evaluate, c.response, c.P) if stable else None
         warnings = list(c.warnings)
         if Zk != Z:
             warnings.append(("LW486", f"this break counts Z = {Zk} closed-loop RHP poles but the whole "
@@ -124,8 +120,15 @@ def check_prepared(prep: PreparedModel, indent: str = "right") -> ModelResult:
         if not stable and not marginal and P == 0:
             warnings.extend(_positive_feedback(red, cut, c))
         rows.append((cut, c, P, Zk, marginal, marginal_freq, cause, stable, warnings))
+    margins = _margins(red, counts, [r[0].stmt.name for r in rows if r[7]])
+    # for a stable break the margins already hold the stretch around k = 1; both margins
+    # unbounded is the one case worth checking against the count (it also means "no stretch");
     # no gain factor moves a mode that a cancellation hides: no stabilising range then
     fixable = not any(h.counted for h in modes)
+    ambiguous = {n for n, m in margins.items()
+                 if m is not None and m.gain_margin_up_db is None and m.gain_margin_down_db is None}
+    gain_ranges = _gain_ranges(red, counts, [r[0].stmt.name for r in rows if r[0].stmt.name in ambiguous
+                                             or (not r[7] and fixable)])
     results = []
     for cut, c, P, Zk, marginal, marginal_freq, cause, stable, warnings in rows:
         name = cut.stmt.name
@@ -140,12 +143,8 @@ def check_prepared(prep: PreparedModel, indent: str = "right") -> ModelResult:
                                      f"break `{cut.enclosed_by}` (common practice: 3 to 5 times or more)"))
         verdict = "marginal" if marginal else ("stable" if stable else "unstable")
         reqs = tuple(r for r in model.requirements if r.target in (name, "*"))
-        evaluate = (lambda s, n=name: red.loop_transfer(n, s))
-        # for a stable break the margins already hold the stretch around k = 1; both margins
-        # unbounded is the one case worth checking against the count (it also means "no stretch")
-        ambiguous = stable and m is not None and m.gain_margin_up_db is None and m.gain_margin_down_db is None
-        gains = stabilising_gains(c.response, c.P, evaluate) if (ambiguous or (not stable and fixable)) else ()
-        if ambiguous and not any(lo < 1.0 < hi for lo, hi in gains):
+        gains = gain_ranges.get(name, ())
+        if name in ambiguous and not any(lo < 1.0 < hi for lo, hi in gains):
             warnings.append(("LW582", "the gain-margin stretches do not place k = 1 in a stable range "
                              "although the count is stable; treat the gain margins with care"))
         results.append(BreakResult(
@@ -159,6 +158,45 @@ def check_prepared(prep: PreparedModel, indent: str = "right") -> ModelResult:
     marginal = any(r.marginal for r in results) or bool(hidden_axis)
     return ModelResult(model.file, model.name, Z == 0 and not marginal, Z, tuple(results), tuple(findings),
                        tuple(modes))
+
+
+def _by_component(red: Reduction, names: list[str]) -> dict[int, list[str]]:
+    groups: dict[int, list[str]] = {}
+    for n in names:
+        groups.setdefault(red.component_of[n], []).append(n)
+    return groups
+
+
+def _evaluator(comp, names: list[str]):
+    """L of break names[i[j]] at s[j], for the margins of a component's breaks."""
+    cols = np.array([comp.breaks.index(n) for n in names])
+    return lambda s, i: comp.loops(s, cols[np.asarray(i, dtype=int)])
+
+
+def _margins(red: Reduction, counts, names: list[str]) -> dict[str, Margins | None]:
+    """Every stable break's margins, one vectorised pass per loop component."""
+    from .engine.margins import break_margins
+
+    out: dict[str, Margins | None] = {c.stmt.name: None for c in red.diagram.breaks}
+    for k, group in _by_component(red, names).items():
+        comp = red.components[k]
+        found = break_margins(_evaluator(comp, group), [counts[n].response for n in group],
+                              [counts[n].P for n in group], tidy=True)
+        out.update(zip(group, found))
+    return out
+
+
+def _gain_ranges(red: Reduction, counts, names: list[str]) -> dict[str, tuple]:
+    """The stabilising gain ranges of the named breaks, one pass per loop component."""
+    from .engine.margins import break_stabilising_gains
+
+    out = {}
+    for k, group in _by_component(red, names).items():
+        comp = red.components[k]
+        found = break_stabilising_gains(_evaluator(comp, group), [counts[n].response for n in group],
+                                        [counts[n].P for n in group])
+        out.update(zip(group, found))
+    return out
 
 
 def counted_modes(modes: list[HiddenMode], model: Model) -> list[HiddenMode]:

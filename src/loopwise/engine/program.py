@@ -8,10 +8,10 @@ gives the Schur complement S = A_KK + A_KH (I - A_HH)^-1 A_HK and every break's
 injection U at once (I - A_HH is unit triangular: det(I - A_c) = det(I - S)).
 
 Eliminating H needs no pivoting, but a term that is huge at s (next to its own pole)
-is then multiplied into every path through it. A component therefore keeps a second
-program per pole p on or right of the imaginary axis, with the outputs of the terms
-that have that pole kept too: points within a small radius of p use it, so the huge
-values sit in S where the pivoted solve handles them (docs/method.md).
+would then be multiplied into every path through it. So the outputs of the terms with
+a pole on or right of the imaginary axis are kept as well: next to such a pole the
+huge values sit in S, where the pivoted solve handles them, and no path multiplies
+two of them (tens of integrators in series would overflow near s = 0).
 """
 from __future__ import annotations
 
@@ -51,7 +51,7 @@ class Program:
     kept: tuple[int, ...]  # global signal indices, first in the local order
     feeds: tuple[tuple[tuple[int, int], ...], ...]
     inject: tuple[tuple[tuple[int, int], ...], ...]
-    measured: tuple[int, ...]  # per break: local node of its signal (kept)
+    measured: tuple[int, ...]  # per break: local node of its signal (kept or eliminated)
     cuts: tuple[frozenset[int], ...]  # per break: bank positions of its cut terms
     head: dict  # bank position -> local node it feeds
 
@@ -61,24 +61,62 @@ class Program:
 
     # --- every break at once (Sherman-Morrison) -------------------------------------
     def values(self, V: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Phase and log|.| of det(I - A_c), and g_k = e_sig^T (I - S)^-1 U_k for every break."""
+        """Phase and log|.| of det(I - A_c), and g_k = e_sig^T (I - A_c)^-1 u_k for every break."""
         m = V.shape[0]
-        S, U = self._reduced(V, m)
+        S, U, Xm = self._reduced(V, m)
         M = np.eye(self.n_kept)[None] - S
         phase, logabs = _logdet(M)
         if not U.shape[2]:
             return phase, logabs, np.zeros((m, 0), complex)
-        if self.n_kept == 1:
-            X = U / M[:, :1, :1]
-        else:
-            # one step of iterative refinement: where the loops' gains are huge (integrators
-            # at low frequency) the solve alone leaves noise far above a tiny g_k
-            X = solve(M, U)
-            X = X + solve(M, U - M @ X)
-        rows = np.array(self.measured, dtype=int)
-        return phase, logabs, X[:, rows, np.arange(rows.size)]
+        X = self._solve_refined(M, U)
+        g = np.empty((m, U.shape[2]), complex)
+        for b, node in enumerate(self.measured):
+            g[:, b] = X[:, node, b] if Xm[b] is None else \
+                np.sum(Xm[b][:, :self.n_kept] * X[:, :, b], axis=1) + Xm[b][:, self.n_kept + b]
+        return phase, logabs, g
 
-    def _reduced(self, V: np.ndarray, m: int) -> tuple[np.ndarray, np.ndarray]:
+    def selected(self, V: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        """g_k of break cols[j] at point j: one injection column, chosen point by point."""
+        m = V.shape[0]
+        nk = self.n_kept
+        pick = [cols == b for b in range(len(self.measured))]
+        X: list[np.ndarray | None] = [None] * len(self.feeds)
+        rows = np.zeros((m, nk, nk + 1), complex)
+        for node in list(range(nk, len(self.feeds))) + list(range(nk)):
+            acc = rows[:, node] if node < nk else np.zeros((m, nk + 1), complex)
+            for p, src in self.feeds[node]:
+                if src < nk:
+                    acc[:, src] += V[:, p]
+                else:
+                    acc += V[:, p, None] * X[src]
+            for p, b in self.inject[node]:
+                acc[:, nk] += np.where(pick[b], V[:, p], 0.0)
+            if node >= nk:
+                X[node] = acc
+        M = np.eye(nk)[None] - rows[:, :, :nk]
+        x = self._solve_refined(M, rows[:, :, nk:])[:, :, 0]
+        g = np.empty(m, complex)
+        for b, node in enumerate(self.measured):
+            sel = pick[b]
+            if not sel.any():
+                continue
+            if node < nk:
+                g[sel] = x[sel, node]
+            else:
+                g[sel] = np.sum(X[node][sel, :nk] * x[sel], axis=1) + X[node][sel, nk]
+        return g
+
+    def _solve_refined(self, M: np.ndarray, B: np.ndarray) -> np.ndarray:
+        if self.n_kept == 1:
+            return B / M[:, :1, :1]
+        # one step of iterative refinement: where the loops' gains are huge (integrators at
+        # low frequency) the solve alone leaves noise far above a tiny g_k
+        X = solve(M, B)
+        return X + solve(M, B - M @ X)
+
+    def _reduced(self, V: np.ndarray, m: int):
+        """S (m, |K|, |K|), U (m, |K|, breaks) and, for each break whose signal is eliminated,
+        that signal's row [coefficients of x_K | injections] (None where it is kept)."""
         nk = self.n_kept
         width = nk + len(self.measured)
         X: list[np.ndarray | None] = [None] * len(self.feeds)
@@ -94,7 +132,8 @@ class Program:
                 acc[:, nk + b] += V[:, p]
             if node >= nk:
                 X[node] = acc
-        return rows[:, :, :nk], rows[:, :, nk:]
+        Xm = [None if node < nk else X[node] for node in self.measured]
+        return rows[:, :, :nk], rows[:, :, nk:], Xm
 
     # --- one break with its wires cut -------------------------------------------------
     def direct(self, V: np.ndarray, b: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -169,30 +208,54 @@ class Program:
         return out
 
 
-def _loops_left(rest: list[int], ends) -> tuple[list[list[int]], dict[int, list[int]]]:
-    from .graph import strongly_connected_components
-    succ = {m: [] for m in rest}
+def _feedback_set(members: list[int], ends, keep: list[int]) -> list[int]:
+    """`keep` first, then a small set of signals whose removal leaves no loop.
+
+    The reductions of Levy and Low ("A contraction algorithm for finding small cycle
+    cutsets", J. Algorithms 9, 1988): a signal with a loop onto itself must be kept; one
+    with no predecessor or no successor lies on no loop; one with a single predecessor
+    (or successor) can be bypassed, its loops all pass that neighbour. When none applies,
+    the signal with the most loop edges is kept. A nested cascade reduces to one signal.
+    """
+    kept = list(dict.fromkeys(keep))
+    succ: dict[int, set[int]] = {m: set() for m in members if m not in kept}
+    pred: dict[int, set[int]] = {m: set() for m in succ}
     for row, col in ends:
         if col in succ and row in succ:
-            succ[col].append(row)
-    return [c for c in strongly_connected_components(rest, succ) if len(c) > 1 or c[0] in succ[c[0]]], succ
+            succ[col].add(row)
+            pred[row].add(col)
 
+    def remove(v: int) -> None:
+        for w in succ.pop(v):
+            pred[w].discard(v)
+        for u in pred.pop(v):
+            succ[u].discard(v)
 
-def _feedback_set(members: list[int], ends, keep: list[int]) -> list[int]:
-    """`keep` first, then greedily the signal with the most loop edges until the rest
-    carries no loop."""
-    kept = list(dict.fromkeys(keep))
-    while True:
-        loops, succ = _loops_left([m for m in members if m not in kept], ends)
-        if not loops:
-            return kept
-        comp = set(max(loops, key=len))
-        indeg = {m: 0 for m in comp}
-        for v in comp:
-            for w in succ[v]:
-                if w in comp:
-                    indeg[w] += 1
-        kept.append(max(comp, key=lambda v: (indeg[v] * sum(w in comp for w in succ[v]), -v)))
+    while succ:
+        changed = False
+        for v in sorted(succ):
+            if v not in succ:
+                continue
+            if v in succ[v]:
+                kept.append(v)
+                remove(v)
+            elif not pred[v] or not succ[v]:
+                remove(v)
+            elif len(pred[v]) == 1 or len(succ[v]) == 1:
+                ins, outs = set(pred[v]), set(succ[v])
+                remove(v)
+                for u in ins:
+                    for w in outs:
+                        succ[u].add(w)
+                        pred[w].add(u)
+            else:
+                continue
+            changed = True
+        if not changed:
+            v = max(sorted(succ), key=lambda x: len(pred[x]) * len(succ[x]))
+            kept.append(v)
+            remove(v)
+    return kept
 
 
 def _topological(nodes: list[int], ends) -> list[int]:
@@ -211,12 +274,39 @@ def _topological(nodes: list[int], ends) -> list[int]:
     return out
 
 
+def _bound_paths(kept: list[int], order: list[int], ends, big: set[int], most: int) -> list[int]:
+    """Keep, in topological order, each eliminated signal that more than `most` big terms
+    reach along a path through the eliminated ones (so no product of more than `most`
+    huge values forms: tens of integrators in series would overflow near s = 0)."""
+    kept = list(kept)
+    depth: dict[int, int] = {}
+    into: dict[int, list[tuple[int, int]]] = {}
+    for p, (row, col) in enumerate(ends):
+        into.setdefault(row, []).append((p, col))
+    for v in order:
+        d = max((int(p in big) + (0 if col in kept else depth.get(col, 0)) for p, col in into.get(v, ())),
+                default=0)
+        if d > most:
+            kept.append(v)
+        else:
+            depth[v] = d
+    return kept
+
+
+#: at most this many terms with a pole on or right of the axis multiply along one path
+#: (points where one of them exceeds reduce.SAFE_LEVEL use a program that keeps them all)
+BIG_PER_PATH = 12
+
+
 def build_program(members: list[int], ends: list[tuple[int, int]], measured: list[int],
-                  cuts: list[frozenset[int]], keep_also: list[int] = ()) -> Program:
+                  cuts: list[frozenset[int]], big: set[int], keep_also: list[int] = ()) -> Program:
     """The program for a component: `ends` (row, col) per bank position, `measured` the
-    global signals of its breaks, `cuts` their cut bank positions."""
-    kept = _feedback_set(members, ends, list(measured) + [k for k in keep_also if k in members])
-    eliminated = _topological([m for m in members if m not in kept], ends)
+    global signals of its breaks, `cuts` their cut bank positions, `big` the positions of
+    the terms with a pole in Re s >= 0, `keep_also` signals to keep whatever."""
+    kept = _feedback_set(members, ends, [k for k in keep_also if k in members])
+    order = _topological([m for m in members if m not in kept], ends)
+    kept = _bound_paths(kept, order, ends, big, BIG_PER_PATH)
+    eliminated = [v for v in order if v not in kept]
     local = {g: i for i, g in enumerate(kept + eliminated)}
     feeds: list[list[tuple[int, int]]] = [[] for _ in local]
     inject: list[list[tuple[int, int]]] = [[] for _ in local]

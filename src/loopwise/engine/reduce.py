@@ -40,8 +40,10 @@ __all__ = ["Instance", "Component", "Reduction", "reduce_diagram", "ComponentVal
 #: 1 + g_k smaller than this (relative to max(1, |g_k|)) is solved with the break's wires cut
 CANCEL = 1e-3
 #: points closer to a pole in Re s >= 0 than this fraction of its distance to the nearest
-#: other root are evaluated with the outputs of the terms that have the pole kept
+#: other root are evaluated with the outputs of the terms with that pole kept
 NEAR = 1e-3
+#: a term with a pole in Re s >= 0 larger than this at a point sends it to the safe program
+SAFE_LEVEL = 1e16
 
 
 @dataclass(frozen=True, eq=False)
@@ -73,9 +75,11 @@ class Component:
 
     `signals` and `instances` are global indices; `bank` holds the values of its terms
     (one position per instance, in the order of `instances`), `entries` their (global
-    row, global column, gain, transfer or None). `program` is the elimination used at
-    most points; `near` holds, per pole p of its terms in Re s >= 0, a radius and a
-    program that keeps the outputs of the terms with that pole too (program.py).
+    row, global column, gain, transfer or None); `program` the elimination used at most
+    points (program.py). `safe` keeps the outputs of every term with a pole in Re s >= 0;
+    points within `near` (pole, radius) of such a pole, or where such a term exceeds
+    SAFE_LEVEL, use it, so the values that are huge there meet the pivoted solve rather
+    than being multiplied into paths.
     """
 
     signals: tuple[int, ...]
@@ -85,29 +89,39 @@ class Component:
     cut_positions: tuple[tuple[int, ...], ...]  # per break: bank positions of its cut terms
     entries: tuple[tuple[int, int, float, object], ...]
     program: Program
-    near: tuple[tuple[complex, float, Program], ...] = ()
+    safe: Program | None = None
+    near: tuple[tuple[complex, float], ...] = ()
+    big: tuple[int, ...] = ()  # bank positions of the terms with a pole in Re s >= 0
 
     @property
     def kept(self) -> tuple[int, ...]:
         return self.program.kept
 
-    def _groups(self, s: np.ndarray) -> list[tuple[np.ndarray, Program]]:
-        """Which program evaluates which points (those next to a pole use its own)."""
-        which = np.full(s.size, -1)
-        for i, (p, r, _) in enumerate(self.near):
-            which[((np.abs(s - p) <= r) | (np.abs(s - np.conj(p)) <= r)) & (which < 0)] = i
-        out = [(np.nonzero(which < 0)[0], self.program)]
-        out += [(np.nonzero(which == i)[0], prog) for i, (_, _, prog) in enumerate(self.near)]
-        return [(idx, prog) for idx, prog in out if idx.size]
+    def _groups(self, s: np.ndarray, V: np.ndarray) -> list[tuple[np.ndarray | slice, Program]]:
+        """Which program evaluates which points: next to a pole in Re s >= 0, or where a
+        term with such a pole is huge, the safe one."""
+        if self.safe is None:
+            return [(slice(None), self.program)]
+        with np.errstate(all="ignore"):
+            risky = ~(np.max(np.abs(V[:, list(self.big)]), axis=1) < SAFE_LEVEL)
+        for p, r in self.near:
+            risky |= (np.abs(s - p) <= r) | (np.abs(s - np.conj(p)) <= r)
+        if not risky.any():
+            return [(slice(None), self.program)]
+        return [(idx, prog) for idx, prog in ((np.nonzero(~risky)[0], self.program),
+                                              (np.nonzero(risky)[0], self.safe)) if idx.size]
 
     def values(self, s: np.ndarray) -> ComponentValues:
         """det(I - A_c) and every break's g_k at the points s (one propagation, one solve)."""
         s = np.asarray(s, dtype=complex).ravel()
-        phase, logabs = np.zeros(s.size), np.zeros(s.size)
-        g = np.zeros((s.size, len(self.breaks)), complex)
         with np.errstate(all="ignore"):
             V = self.bank.values(s)
-            for idx, prog in self._groups(s):
+            groups = self._groups(s, V)
+            if len(groups) == 1:
+                return ComponentValues(*groups[0][1].values(V))
+            phase, logabs = np.zeros(s.size), np.zeros(s.size)
+            g = np.zeros((s.size, len(self.breaks)), complex)
+            for idx, prog in groups:
                 phase[idx], logabs[idx], g[idx] = prog.values(V[idx])
         return ComponentValues(phase, logabs, g)
 
@@ -134,6 +148,25 @@ class Component:
                 L[rows, k] = Lk
         return log_det, log_one_g, L
 
+    def loops(self, s: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        """L of break cols[j] (position in `breaks`) at s[j]: the margins' evaluator.
+
+        Sherman-Morrison with one right-hand side per point; where 1 + g cancels (|L|
+        large) that break is solved with its wires cut."""
+        s = np.asarray(s, dtype=complex).ravel()
+        cols = np.broadcast_to(np.asarray(cols, dtype=int), s.shape).ravel()
+        g = np.empty(s.size, complex)
+        with np.errstate(all="ignore"):
+            V = self.bank.values(s)
+            for idx, prog in self._groups(s, V):
+                g[idx] = prog.selected(V[idx], cols[idx])
+            L = -g / (1.0 + g)
+            bad = ~(np.abs(1.0 + g) > CANCEL * np.maximum(1.0, np.abs(g)))
+            for k in np.unique(cols[bad]):
+                rows = np.nonzero(bad & (cols == k))[0]
+                L[rows] = self.direct(int(k), s[rows])[2]
+        return L
+
     def direct(self, b: int, s: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Break b solved with its wires cut: phase and log|.| of det(I - A_k), and L_k
         (accurate where L_k is far below or far above 1; see Program.direct)."""
@@ -141,9 +174,41 @@ class Component:
         phase, logabs, L = np.zeros(s.size), np.zeros(s.size), np.zeros(s.size, complex)
         with np.errstate(all="ignore"):
             V = self.bank.values(s)
-            for idx, prog in self._groups(s):
+            for idx, prog in self._groups(s, V):
                 phase[idx], logabs[idx], L[idx] = prog.direct(V[idx], b)
         return phase, logabs, L
+
+    @cached_property
+    def _delayed(self) -> tuple[np.ndarray, Bank | None]:
+        """The delays and a bank of the component's delayed terms alone (for step_ok)."""
+        pos = np.nonzero(self.bank.delay > 0)[0]
+        if pos.size == 0:
+            return np.zeros(0), None
+        return self.bank.delay[pos], Bank([self.entries[p][2] for p in pos], [self.entries[p][3] for p in pos])
+
+    @property
+    def has_delay(self) -> bool:
+        return self.bank.has_delay
+
+    def step_ok(self, sa: np.ndarray, sb: np.ndarray) -> np.ndarray:
+        """Whether each interval [sa, sb] is short enough for the delays that matter there.
+
+        The sum of the delays of the terms that are not negligible at either end
+        (|term| > 1e-6) times the interval's length must stay below pi/4: three samples
+        cannot tell a whole number of turns of exp(-j w T) from none.
+        """
+        delays, bank = self._delayed
+        if bank is None:
+            return np.ones(sa.shape, bool)
+        with np.errstate(all="ignore"):
+            big = np.maximum(np.abs(bank.values(sa)), np.abs(bank.values(sb)))
+        rate = np.where(~(big < 1e-6), delays[None, :], 0.0).sum(axis=1)
+        return np.abs(sb - sa) * rate <= np.pi / 4
+
+    def phase_at(self, V: np.ndarray, b: int | None = None) -> np.ndarray:
+        """arg det(I - A_c) (or A_k with break b cut) for given term values V (rows: points)."""
+        with np.errstate(all="ignore"):
+            return self.program.values(V)[0] if b is None else self.program.direct(V, b)[0]
 
     def dense(self, s: np.ndarray, cut: frozenset[int] = frozenset()) -> np.ndarray:
         """The component's own block A_c (or A_k with the bank positions in `cut` removed),
@@ -226,24 +291,6 @@ class Reduction:
         c = self.components[self.component_of[name]]
         return c.direct(c.breaks.index(name), s)[2]
 
-    def delay_step_ok(self, sa: np.ndarray, sb: np.ndarray, positions=None,
-                      bank: Bank | None = None) -> np.ndarray:
-        """Whether each interval [sa, sb] is short enough for the delays that matter there.
-
-        Sum of the delays of the terms that are not negligible at either end
-        (|term| > 1e-6) times the interval's length must stay below pi/4.
-        """
-        bank = bank or Bank([i.term.gain for i in self.instances], [i.transfer for i in self.instances])
-        delayed = np.nonzero(bank.delay > 0)[0]
-        if positions is not None:
-            delayed = np.intersect1d(delayed, positions)
-        if delayed.size == 0:
-            return np.ones(sa.shape, bool)
-        with np.errstate(all="ignore"):
-            big = np.maximum(np.abs(bank.values(sa)[:, delayed]), np.abs(bank.values(sb)[:, delayed]))
-        rate = np.where(~(big < 1e-6), bank.delay[delayed][None, :], 0.0).sum(axis=1)
-        return np.abs(sb - sa) * rate <= np.pi / 4
-
 
 def reduce_diagram(diagram: Diagram) -> Reduction:
     model = diagram.model
@@ -295,18 +342,18 @@ def _component(members, insts, breaks, instances, cut_sets, signals) -> Componen
     ends = [(instances[k].row, instances[k].col) for k in insts]
     measured = [instances[next(iter(cut_sets[name]))].col for name in breaks]
     cuts = [frozenset(position[k] for k in cut_sets[name] if k in position) for name in breaks]
-    program = build_program(members, ends, measured, cuts)
     entries = tuple((instances[k].row, instances[k].col, instances[k].term.gain, instances[k].transfer)
                     for k in insts)
     tfs = [e[3] for e in entries]
+    big = {p for p, tf in enumerate(tfs) if tf is not None and np.any(tf.poles.real >= 0)}
+    program = build_program(members, ends, measured, cuts, big)
     roots = np.concatenate([np.concatenate([t.poles, t.zeros]) for t in tfs if t is not None] or [np.zeros(0)])
     near = []
-    for p in dict.fromkeys(complex(p) for t in tfs if t is not None for p in t.poles
-                           if p.real >= 0 and p.imag >= 0):
-        outputs = [row for (row, _), t in zip(ends, tfs) if t is not None and np.any(t.poles == p)]
+    for p in dict.fromkeys(complex(p) for t in tfs if t is not None for p in t.poles if p.real >= 0 <= p.imag):
         others = roots[roots != p]
         d = float(np.min(np.abs(others - p))) if others.size else max(1.0, abs(p))
-        near.append((p, NEAR * d, build_program(members, ends, measured, cuts, outputs)))
+        near.append((p, NEAR * d))
+    safe = build_program(members, ends, measured, cuts, big, [ends[p][0] for p in sorted(big)]) if big else None
     bank = Bank([instances[k].term.gain for k in insts], [instances[k].transfer for k in insts])
     return Component(tuple(members), tuple(insts), tuple(breaks), bank, tuple(tuple(sorted(c)) for c in cuts),
-                     entries, program, tuple(near))
+                     entries, program, safe, tuple(near), tuple(sorted(big)))

@@ -22,10 +22,10 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..results import LoopResponse
-from .certificate import ImproperLoop, Uncertified, certificate_radius, closing_phase, scaling
+from .certificate import ImproperLoop, ScaledTerms, Uncertified, certificate_radius, closing_phase, scaling
 from .reduce import Component, Reduction
 from .refusals import check_range, check_values, improper_loop, uncertified_radius, unresolved
-from .winding import Piece, build_contour, encirclements, phase_change, trace
+from .winding import Piece, axis_orders, build_contour, encirclements, phase_change, trace
 
 __all__ = ["Contour", "NyquistCount", "ModelCount", "count", "prepare", "nyquist_counts"]
 
@@ -56,10 +56,12 @@ class Contour:
     roots: np.ndarray
     axis_poles: np.ndarray
     scaling: np.ndarray
+    orders: dict
+    terms: object  # certificate.ScaledTerms
 
     def touching(self, freqs: tuple[float, ...]) -> "Contour":
         """The same contour with extra indentations around closed-loop poles on the axis."""
-        pieces = build_contour(self.axis_poles, self.roots, self.R, self.indent, freqs)
+        pieces = build_contour(self.axis_poles, self.roots, self.R, self.indent, freqs, self.orders)
         return replace(self, pieces=tuple(pieces))
 
 
@@ -110,21 +112,21 @@ def prepare(red: Reduction, indent: str = "right", for_margins: bool = True) -> 
             d = scaling(comp)
         except ImproperLoop as exc:
             raise improper_loop(red, comp, exc) from None
-        R = 0.0
-        for name, cut in [(None, ())] + list(zip(comp.breaks, comp.cut_positions)):
-            try:
-                r, _ = certificate_radius(comp, d, frozenset(cut))
-            except Uncertified as exc:
-                raise uncertified_radius(red, comp, breaks.get(name), exc) from None
-            R = max(R, r)
+        terms = ScaledTerms(comp, d)
+        names = [None, *comp.breaks]
+        try:
+            R, _ = certificate_radius(comp, terms, [(), *comp.cut_positions])
+        except Uncertified as exc:
+            raise uncertified_radius(red, comp, breaks.get(names[exc.cut]), exc) from None
         check_values(red, comp, R)
         poles, zeros = comp.roots()
         roots = np.concatenate([poles, zeros])
         axis = poles[poles.real == 0]
-        pieces = build_contour(axis, roots, R, indent)
+        orders = axis_orders(tf for _, _, _, tf in comp.entries)
+        pieces = build_contour(axis, roots, R, indent, (), orders)
         reach = _margin_reach(comp, R) if for_margins else R
         out.append(Contour(comp, tuple(pieces), R, reach, _open_rhp(poles, indent), _features(roots),
-                           tuple(sorted({abs(p.imag) for p in axis})), indent, roots, axis, d))
+                           tuple(sorted({abs(p.imag) for p in axis})), indent, roots, axis, d, orders, terms))
     return out
 
 
@@ -167,40 +169,80 @@ def count(red: Reduction, indent: str = "right", for_margins: bool = True) -> Mo
 
 
 def _step_rule(comp: Component, red: Reduction):
-    if not comp.bank.has_delay:
-        return None
-    return lambda sa, sb: red.delay_step_ok(sa, sb, bank=comp.bank)
+    return comp.step_ok if comp.has_delay else None
+
+
+def _raw(comp: Component, s: np.ndarray, B: int) -> np.ndarray:
+    log_det, log_one_g, L = comp.terms(s, B)
+    with np.errstate(all="ignore"):
+        return np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
+
+
+def _origin_orders(comp: Component, ct: Contour, B: int) -> np.ndarray:
+    """For each traced function f, an integer q with f ~ c s^-q next to s = 0, where the
+    contour starts on an indentation round poles at the origin (else zeros).
+
+    The trace follows f s^q instead, which is flat there: tens of integrators make
+    det(I - A) fall by hundreds of dB a decade, and sampling that slope finely would
+    serve nothing. Any integer q is exact (see _count_component); this one only saves
+    samples.
+    """
+    first = ct.pieces[0]
+    q = np.zeros(1 + 2 * B)
+    if first.kind != "indent" or first.a != 0.0:
+        return q
+    eps = first.b
+    s = np.array([2.0 * eps, 20.0 * eps]) * np.exp(1j * first.theta0)
+    with np.errstate(all="ignore"):
+        v = _raw(comp, s, B)
+        slope = -(v[1].real - v[0].real) / np.log(10.0)
+    whole = np.round(slope)
+    ok = np.isfinite(slope) & (np.abs(slope - whole) < 0.05)
+    return np.where(ok, whole, 0.0)
 
 
 def _trace(red: Reduction, ct: Contour, with_breaks: bool = True):
-    """Trace log det(I - A_c), log(1 + g_k) and log L_k for the component's breaks.
+    """Trace log det(I - A_c), log(1 + g_k) and log L_k for the component's breaks, each
+    times s^q next to the origin (`_origin_orders`). Returns the trace (values with the
+    s^q factors) and the q.
 
     arg det(I - A_c,k) = arg det(I - A_c) + arg(1 + g_k), arg(1 + L_k) = -arg(1 + g_k).
     """
     comp = ct.component
     B = len(comp.breaks) if with_breaks else 0
+    q = _origin_orders(comp, ct, B)
 
     def evaluate(s):
-        log_det, log_one_g, L = comp.terms(s, B)
-        with np.errstate(all="ignore"):
-            return np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
+        v = _raw(comp, s, B)
+        if q.any():
+            with np.errstate(all="ignore"):
+                v = v + np.log(s)[:, None] * q[None, :]
+        return v
 
     floors = (None,) * (1 + B) + (1e-2,) * B
-    tr = trace(list(ct.pieces), evaluate, ct.features, floors, step_ok=_step_rule(comp, red))
+    tr = trace(list(ct.pieces), evaluate, ct.features, floors, step_ok=_step_rule(comp, red), orders=q)
     if not tr.complete:
         names = comp.breaks[:B]
         raise unresolved(red, tr, ["the characteristic function det(I - A) of the model"]
                          + [f"the loop opened at break `{n}` (det(I - A_k))" for n in names]
                          + [f"the loop transfer L at break `{n}`" for n in names])
-    return tr
+    return tr, q
+
+
+def _steps(tr, q: np.ndarray) -> np.ndarray:
+    """Continuous phase change of each traced function itself: that of f s^q (certified by
+    the sampling rule) minus q times that of s, which runs from the contour's first point
+    to j R exactly: arg s_end - arg s_start (both principal values, no turn in between)."""
+    turn = float(np.angle(tr.s[-1]) - np.angle(tr.s[0]))
+    return phase_change(tr.values) - q * turn
 
 
 def _count_component(red: Reduction, ct: Contour) -> tuple[int, list, dict[str, NyquistCount]]:
     comp = ct.component
-    tr = _trace(red, ct)
+    tr, q = _trace(red, ct)
     B = len(comp.breaks)
-    steps = phase_change(tr.values)
-    close_full = closing_phase(comp, ct.scaling, frozenset(), ct.R)
+    steps = _steps(tr, q)
+    close_full = closing_phase(comp, ct.terms, ct.scaling, None, ct.R)
     wz, err_z = encirclements(steps[0] + close_full)
     warnings = []
     if err_z > 1e-3:
@@ -210,7 +252,7 @@ def _count_component(red: Reduction, ct: Contour) -> tuple[int, list, dict[str, 
     counts = {}
     touching = []
     for k, name in enumerate(comp.breaks):
-        close_k = closing_phase(comp, ct.scaling, frozenset(comp.cut_positions[k]), ct.R)
+        close_k = closing_phase(comp, ct.terms, ct.scaling, k, ct.R)
         wk, err_k = encirclements(steps[0] + steps[1 + k] + close_k)
         N, err_n = encirclements(-steps[1 + k] + close_full - close_k)
         warns = []
@@ -219,7 +261,9 @@ def _count_component(red: Reduction, ct: Contour) -> tuple[int, list, dict[str, 
                           f"(residual {max(err_k, err_n):.2g}); treat the verdict with care"))
         for w in tr.unresolved:
             warns.append(("LW485", f"sampling could not resolve the curve near {w:.6g} rad/s"))
-        s_k, L_k, on_axis = tr.s, np.exp(tr.values[:, 1 + B + k]), tr.on_axis
+        with np.errstate(all="ignore"):
+            L_k = np.exp(tr.values[:, 1 + B + k] - (q[1 + B + k] * np.log(tr.s) if q[1 + B + k] else 0.0))
+        s_k, on_axis = tr.s, tr.on_axis
         if ext is not None:
             s_k = np.concatenate([s_k, ext.s[1:]])
             L_k = np.concatenate([L_k, np.exp(ext.values[1:, k])])
@@ -238,13 +282,13 @@ def _count_component(red: Reduction, ct: Contour) -> tuple[int, list, dict[str, 
         # count again round the closed-loop poles on the axis so that Z counts strictly
         # unstable poles only (the marginal breaks keep their samples and frequency)
         again = ct.touching(tuple(sorted(set(touching))))
-        tr = _trace(red, again)
-        steps = phase_change(tr.values)
+        tr, q = _trace(red, again)
+        steps = _steps(tr, q)
         Zc = again.P0 + encirclements(steps[0] + close_full)[0]
         for k, name in enumerate(comp.breaks):
             c = counts[name]
             if c.marginal:
-                close_k = closing_phase(comp, ct.scaling, frozenset(comp.cut_positions[k]), ct.R)
+                close_k = closing_phase(comp, ct.terms, ct.scaling, k, ct.R)
                 P = again.P0 + encirclements(steps[0] + steps[1 + k] + close_k)[0]
                 N = encirclements(-steps[1 + k] + close_full - close_k)[0]
                 counts[name] = replace(c, P=P, N=N, Z=P + N)

@@ -22,7 +22,8 @@ from typing import Callable
 
 import numpy as np
 
-__all__ = ["Piece", "Trace", "build_contour", "indentation_radius", "trace", "phase_change", "encirclements"]
+__all__ = ["Piece", "Trace", "build_contour", "axis_orders", "indentation_radius", "trace", "phase_change",
+           "encirclements"]
 
 CHORD = 0.35
 MIDPOINT = 0.2
@@ -86,25 +87,42 @@ def _indent_radius(w0: float, roots: np.ndarray) -> float:
     return 1e-9 * min(d, max(1.0, w0))
 
 
-def indentation_radius(w0: float, axis_poles: np.ndarray, roots: np.ndarray) -> float:
-    """The radius of the indentation round the axis pole(s) at j w0."""
-    # m poles at one point make values of about eps^-m there: keep them below 1e250
-    m = int(np.sum(np.abs(axis_poles - 1j * w0) <= 1e-12 * np.maximum(np.abs(axis_poles), w0)))
-    return max(_indent_radius(w0, roots), 10.0 ** (-250.0 / max(m, 1)) * max(1.0, w0))
+def axis_orders(transfers) -> dict[float, int]:
+    """For each frequency w0 of a pole on the imaginary axis: the most poles at j w0 that
+    one transfer has (the engine never multiplies two terms' values where that matters:
+    program.py keeps the outputs of such terms)."""
+    out: dict[float, int] = {}
+    for tf in transfers:
+        if tf is None:
+            continue
+        axis = tf.poles[tf.poles.real == 0]
+        for w0 in {float(abs(p.imag)) for p in axis}:
+            m = int(np.sum(np.abs(np.abs(axis.imag) - w0) <= 1e-12 * max(w0, 1e-300)))
+            out[w0] = max(out.get(w0, 0), m)
+    return out
+
+
+def indentation_radius(w0: float, order: int, roots: np.ndarray) -> float:
+    """The radius of the indentation round the axis pole(s) at j w0; `order` is the most
+    poles one term has there (their value, about eps^-order, stays below 1e250)."""
+    return max(_indent_radius(w0, roots), 10.0 ** (-250.0 / max(order, 1)) * max(1.0, w0))
 
 
 def build_contour(axis_poles: np.ndarray, roots: np.ndarray, R: float, indent: str = "right",
-                  touching: tuple[float, ...] = ()) -> list[Piece]:
+                  touching: tuple[float, ...] = (), orders: dict[float, int] | None = None) -> list[Piece]:
     """Pieces of the upper half contour from the real axis near 0 up to jR.
 
     `touching` are frequencies where a closed-loop pole sits on the axis (a
     marginal case): they get an indentation to the right too, so that the count
-    is of poles strictly in the right half plane.
+    is of poles strictly in the right half plane. `orders` (axis_orders) bounds the
+    indentations' radii from below; without it every pole at a point counts.
     """
     marks: dict[float, tuple[float, bool]] = {}
     for p in axis_poles:
         w0 = float(abs(p.imag))
-        marks[w0] = (indentation_radius(w0, axis_poles, roots), indent == "right")
+        m = (orders or {}).get(w0) or int(np.sum(np.abs(axis_poles - 1j * w0)
+                                                <= 1e-12 * np.maximum(np.abs(axis_poles), w0)))
+        marks[w0] = (indentation_radius(w0, m, roots), indent == "right")
     for w0 in touching:
         w0 = float(abs(w0))
         if any(abs(w0 - m) <= 1e-6 * max(1.0, m) for m in marks):
@@ -181,13 +199,17 @@ def _seed(piece: Piece, features: np.ndarray) -> np.ndarray:
     return np.unique(np.clip(u, 0.0, 1.0))
 
 
-def _accept(la, lb, lm, floors) -> np.ndarray:
+def _accept(la, lb, lm, floors, shift=None) -> np.ndarray:
     """Whether each interval (rows) is resolved for every function."""
-    return np.all(_accept_columns(la, lb, lm, floors), axis=1)
+    return np.all(_accept_columns(la, lb, lm, floors, shift), axis=1)
 
 
-def _accept_columns(la, lb, lm, floors) -> np.ndarray:
-    """Whether each interval (rows) is resolved for each function (columns)."""
+def _accept_columns(la, lb, lm, floors, shift=None) -> np.ndarray:
+    """Whether each interval (rows) is resolved for each function (columns).
+
+    `shift` (rows, columns), when given, is the log of the factor each traced value
+    carries at the interval's midpoint (a traced f s^q stands for f): a floor applies
+    to f, so it is scaled by that factor."""
     with np.errstate(all="ignore"):
         rb = np.exp(lb - la)
         rm = np.exp(lm - la)
@@ -199,7 +221,8 @@ def _accept_columns(la, lb, lm, floors) -> np.ndarray:
             if floor is None:
                 continue
             fa, fb, fm = np.exp(la[:, k]), np.exp(lb[:, k]), np.exp(lm[:, k])
-            scale = np.maximum(np.minimum(np.abs(fa), np.abs(fb)), floor)
+            level = floor if shift is None else floor * np.exp(shift[:, k])
+            scale = np.maximum(np.minimum(np.abs(fa), np.abs(fb)), level)
             ok_k = (np.abs(fb - fa) <= CHORD * scale) & (np.abs(fm - 0.5 * (fa + fb)) <= MIDPOINT * scale)
             ok[:, k] = ok_k
         # a value that is NaN (a pole hit) or infinite settles nothing; an exact zero of a
@@ -214,13 +237,17 @@ def _accept_columns(la, lb, lm, floors) -> np.ndarray:
 
 def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], features: np.ndarray,
           floors: tuple[float | None, ...], max_samples: int = MAX_SAMPLES,
-          step_ok: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None) -> Trace:
+          step_ok: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None,
+          orders: np.ndarray | None = None) -> Trace:
     """Adaptive sampling of `evaluate` (s -> (M, K) complex logs) along the pieces.
 
     `step_ok(s_a, s_b)` may refuse intervals that are too long whatever the
     samples say: a delay turns the curve by T*dw between two samples, and
-    three samples cannot tell a whole number of turns from none.
+    three samples cannot tell a whole number of turns from none. `orders` (one per
+    column): the traced values are those of f s^q (see stability._origin_orders); a
+    column's floor applies to f.
     """
+    q = None if orders is None or not np.any(orders) else np.asarray(orders, float)
     all_u, all_piece = [], []
     for i, p in enumerate(pieces):
         u = _seed(p, features)
@@ -256,7 +283,9 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
         out_v.append(lm)
         out_pid.append(pa)
         out_u.append(um)
-        ok = _accept(la, lb, lm, floors)
+        with np.errstate(all="ignore"):
+            shift = None if q is None else np.log(np.abs(sm))[:, None] * q[None, :]
+        ok = _accept(la, lb, lm, floors, shift)
         if step_ok is not None:
             sa = np.empty(um.size, complex)
             sb = np.empty(um.size, complex)
@@ -272,7 +301,8 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
         if total > max_samples:
             complete = not np.any(redo)
             if not complete:
-                cols = ~_accept_columns(la[redo], lb[redo], lm[redo], floors)
+                cols = ~_accept_columns(la[redo], lb[redo], lm[redo], floors,
+                                        None if shift is None else shift[redo])
                 by_delay = step_ok is not None and not np.all(step_ok(sa[redo], sb[redo])) \
                     if sa.shape == um.shape else False
                 w = np.abs(sm[redo].imag)
@@ -293,7 +323,7 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
     u = np.concatenate(out_u)
     order = np.lexsort((u, pid))
     s, vals, pid = s[order], vals[order], pid[order]
-    on_axis = np.array([pieces[i].kind == "axis" for i in pid], dtype=bool)
+    on_axis = np.array([p.kind == "axis" for p in pieces], dtype=bool)[pid]
     return Trace(s, vals, on_axis, tuple(sorted(set(unresolved))), complete, stuck)
 
 
