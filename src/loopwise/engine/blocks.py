@@ -22,47 +22,48 @@ from ..transfer import Transfer
 __all__ = ["Bank"]
 
 
-def _pad(rows: Sequence[np.ndarray], width: int) -> tuple[np.ndarray, np.ndarray]:
-    out = np.zeros((len(rows), width), complex)
-    mask = np.zeros((len(rows), width), bool)
-    for i, r in enumerate(rows):
-        out[i, :r.size] = r
-        mask[i, :r.size] = True
-    return out, mask
-
-
 class Bank:
-    """gain_i * transfer_i(s) for terms i (a transfer of None is a plain gain)."""
+    """gain_i * transfer_i(s) for terms i (a transfer of None is a plain gain).
+
+    Terms are grouped by shape (paired factors, unpaired zeros, unpaired poles, delay or
+    not), so each group evaluates with plain broadcasting: no padding, no masks.
+    """
 
     def __init__(self, gains: Sequence[float], transfers: Sequence[Transfer | None]):
         tfs = [t if t is not None else Transfer.constant(1.0) for t in transfers]
         self.size = len(tfs)
-        self.k = np.array([g * t.gain for g, t in zip(gains, tfs)], dtype=float)
-        common = [min(t.zeros.size, t.poles.size) for t in tfs]
-        self.pz, self.pair = _pad([t.zeros[:c] for t, c in zip(tfs, common)], max(common, default=0))
-        self.pp, _ = _pad([t.poles[:c] for t, c in zip(tfs, common)], max(common, default=0))
-        extra_z = [t.zeros[c:] for t, c in zip(tfs, common)]
-        extra_p = [t.poles[c:] for t, c in zip(tfs, common)]
-        self.ez, self.ez_mask = _pad(extra_z, max((r.size for r in extra_z), default=0))
-        self.ep, self.ep_mask = _pad(extra_p, max((r.size for r in extra_p), default=0))
         self.delay = np.array([t.delay for t in tfs], dtype=float)
         self.has_delay = bool(np.any(self.delay > 0))
+        shapes: dict[tuple[int, int, int, bool], list[int]] = {}
+        for i, t in enumerate(tfs):
+            c = min(t.zeros.size, t.poles.size)
+            shapes.setdefault((c, t.zeros.size - c, t.poles.size - c, t.delay > 0), []).append(i)
+        self.groups = []
+        for (c, nz, npl, delayed), idx in shapes.items():
+            members = [tfs[i] for i in idx]
+            k = np.array([gains[i] * tfs[i].gain for i in idx], dtype=float)
+            pz = np.array([t.zeros[:c] for t in members], complex).reshape(len(idx), c)
+            pp = np.array([t.poles[:c] for t in members], complex).reshape(len(idx), c)
+            ez = np.array([t.zeros[c:] for t in members], complex).reshape(len(idx), nz)
+            ep = np.array([t.poles[c:] for t in members], complex).reshape(len(idx), npl)
+            T = np.array([t.delay for t in members]) if delayed else None
+            self.groups.append((np.array(idx), k, pz, pp, ez, ep, T))
 
     def values(self, s: np.ndarray) -> np.ndarray:
         """All terms at every point: shape (len(s), terms)."""
-        s = np.asarray(s, dtype=complex).reshape(-1, 1)
-        out = np.broadcast_to(self.k.astype(complex), (s.shape[0], self.size)).copy()
-        if self.size == 0:
-            return out
+        s = np.asarray(s, dtype=complex).ravel()
+        out = np.empty((s.size, self.size), complex)
+        x = s[:, None, None]
         with np.errstate(all="ignore"):
-            if self.pz.shape[1]:
-                x = s[:, :, None]
-                ratio = np.where(self.pair, (x - self.pz) / (x - self.pp), 1.0)
-                out *= np.prod(ratio, axis=2)
-            if self.ez.shape[1]:
-                out *= np.prod(np.where(self.ez_mask, s[:, :, None] - self.ez, 1.0), axis=2)
-            if self.ep.shape[1]:
-                out /= np.prod(np.where(self.ep_mask, s[:, :, None] - self.ep, 1.0), axis=2)
-            if self.has_delay:
-                out *= np.exp(-s * self.delay)
+            for idx, k, pz, pp, ez, ep, T in self.groups:
+                v = np.broadcast_to(k.astype(complex), (s.size, k.size))
+                if pz.shape[1]:
+                    v = v * np.prod((x - pz) / (x - pp), axis=2)
+                if ez.shape[1]:
+                    v = v * np.prod(x - ez, axis=2)
+                if ep.shape[1]:
+                    v = v / np.prod(x - ep, axis=2)
+                if T is not None:
+                    v = v * np.exp(-s[:, None] * T)
+                out[:, idx] = v
         return out

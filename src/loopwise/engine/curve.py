@@ -67,7 +67,8 @@ class Crossing:
     curve: int        # index of its curve
     x: float          # position; -inf: round a pole of L (limit k -> 0); 0.0: limit k -> inf
     up: int           # +1: the curve goes from Im <= 0 to Im > 0 here, else -1
-    bracket: tuple[float, float] | None  # axis frequencies to refine it between, if any
+    bracket: tuple[float, float, complex, complex] | None  # axis frequencies to refine it between,
+    #                                                        and L there (samples), if any
     listed: bool = False    # a phase crossover (upper half, engine samples, w > 0)
     freq: float = math.nan  # its frequency (upper half)
     refined: bool = False
@@ -249,16 +250,19 @@ def _rolls_off(c: Curve) -> bool:
     return math.log(l1 / l0) / math.log(w1 / w0) < -0.5
 
 
-def _bracket(c: Curve, k: int) -> tuple[float, float]:
-    """Axis frequencies around upper segment k: its ends, or the axis samples either side
-    of the indentation it lies on (an indentation round a point where L is finite)."""
+def _bracket(c: Curve, k: int) -> tuple[float, float, complex, complex] | None:
+    """Axis frequencies around upper segment k, and the samples of L there: its ends, or
+    the axis samples either side of the indentation it lies on (an indentation round a
+    point where L is finite)."""
     w, axis = c.s.imag, c.axis
     lo, hi = k, k + 1
     while lo > 0 and not axis[lo]:
         lo -= 1
     while hi < axis.size - 1 and not axis[hi]:
         hi += 1
-    return (float(w[lo]) if axis[lo] else 0.0, float(w[hi]))
+    if not axis[lo]:
+        return (0.0, float(w[hi]), complex("nan"), complex(c.L[hi]))
+    return (float(w[lo]), float(w[hi]), complex(c.L[lo]), complex(c.L[hi]))
 
 
 def _limit(c: Curve, k: int, x: float) -> float:
@@ -304,10 +308,19 @@ def refine(found: list[Crossing], evaluate: Evaluate | None) -> None:
     h = lambda w, i: np.angle(-evaluate(1j * w, cols[i]))  # noqa: E731
     a = np.array([c.bracket[0] for c in todo])
     b = np.array([c.bracket[1] for c in todo])
+    La = np.array([c.bracket[2] for c in todo])
+    Lb = np.array([c.bracket[3] for c in todo])
+    unknown = ~np.isfinite(La)
+    if unknown.any():
+        La[unknown] = evaluate(1j * a[unknown], cols[unknown])
     with np.errstate(all="ignore"):
-        jump = np.abs(h(a, np.arange(a.size)) - h(b, np.arange(b.size))) >= np.pi  # a wrap, not a crossing
-    x, ok = illinois(h, a, b, _XTOL_REL, indexed=True)
-    ok &= ~jump
+        ha, hb = np.angle(-La), np.angle(-Lb)
+        jump = ~(np.abs(ha - hb) < np.pi)  # a wrap, not a crossing: nothing to refine there
+    x, ok = a.copy(), np.zeros(a.size, bool)
+    live = np.nonzero(~jump)[0]
+    if live.size:
+        x[live], ok[live] = illinois(lambda w, i: h(w, live[i]), a[live], b[live], _XTOL_REL,
+                                     indexed=True, fa=ha[live], fb=hb[live])
     for c, xi, good in zip(todo, x, ok):
         c.refined = True
         if good:

@@ -31,7 +31,7 @@ TIDY_DB = 20.0
 def gain_crossovers(curves: list[Curve], evaluate: Evaluate) -> list[list[GainCrossover]]:
     """Every |L(jw)| = 1 for w > 0 of every curve, bracketed on the samples and solved at once."""
     roots: list[list[float]] = [[] for _ in curves]
-    lo, hi, owner = [], [], []
+    lo, hi, owner, flo, fhi = [], [], [], [], []
     for n, c in enumerate(curves):
         for run in c.axis_runs():
             w = c.s[run].imag
@@ -42,12 +42,14 @@ def gain_crossovers(curves: list[Curve], evaluate: Evaluate) -> list[list[GainCr
                                & np.isfinite(mag[:-1]) & np.isfinite(mag[1:]))
             lo += list(w[b])
             hi += list(w[b + 1])
+            flo += list(mag[b])
+            fhi += list(mag[b + 1])
             owner += [n] * b.size
     if lo:
         owner_a = np.array(owner)
         cols = np.array([curves[n].index for n in owner])
         x, ok = illinois(lambda w, i: np.log(np.abs(evaluate(1j * w, cols[i]))), lo, hi, _XTOL_REL,
-                         indexed=True)
+                         indexed=True, fa=flo, fb=fhi)
         for n, v, good in zip(owner_a, x, ok):
             if good:
                 roots[n].append(float(v))

@@ -10,23 +10,28 @@ __all__ = ["illinois", "zoom_max", "zoom_max_many", "nonsingular"]
 
 
 def illinois(h: Callable, a, b, xtol_rel: float = 1e-14, max_iter: int = 100,
-             indexed: bool = False) -> tuple[np.ndarray, np.ndarray]:
-    """Roots of h in the brackets [a_i, b_i] at once (regula falsi, Illinois variant).
+             indexed: bool = False, fa=None, fb=None) -> tuple[np.ndarray, np.ndarray]:
+    """Roots of h in the brackets [a_i, b_i] at once (regula falsi, Anderson-Bjorck variant
+    of the Illinois rule: Anderson & Bjorck, BIT 13, 1973).
 
     Returns (x, ok): ok is False where the bracket holds no sign change.
     Superlinear like the secant method, but never leaves its bracket. With `indexed`,
     h is called as h(x, i): the points and the indices of their brackets (so one call
     can serve brackets of different functions, e.g. the loop transfers of many breaks).
+    `fa`, `fb`: h at the bracket ends, when already known (saves an evaluation).
     """
     a = np.asarray(a, float).copy()
     b = np.asarray(b, float).copy()
     idx = np.arange(a.size)
     f = (lambda x, i: h(x, i)) if indexed else (lambda x, i: h(x))
     with np.errstate(all="ignore"):
-        fa, fb = f(a, idx), f(b, idx)
+        fa = f(a, idx) if fa is None else np.asarray(fa, float).copy()
+        fb = f(b, idx) if fb is None else np.asarray(fb, float).copy()
     ok = (fa * fb <= 0) & np.isfinite(fa) & np.isfinite(fb)
     x = np.where(fa == 0, a, b)
     tol = xtol_rel * np.maximum(np.abs(a), np.abs(b))
+    # a value this small is at the level of rounding: the root is found
+    ftol = 1e-14 * np.maximum(np.abs(fa), np.abs(fb))
     live = ok & (fa != 0) & (fb != 0)
     for _ in range(max_iter):
         if not live.any():
@@ -40,12 +45,20 @@ def illinois(h: Callable, a, b, xtol_rel: float = 1e-14, max_iter: int = 100,
             fx[live] = f(xs[live], idx[live])
         flip = live & (fx * fb < 0)
         keep = live & ~flip
+        # Anderson-Bjorck: the end kept a second time has its value scaled by 1 - f(x)/f(b)
+        # (by 1/2 when that is not positive), which restores superlinear convergence
+        with np.errstate(all="ignore"):
+            m = 1.0 - fx / fb
+        m = np.where((m > 0) & np.isfinite(m), m, 0.5)
         a = np.where(flip, b, a)
-        fa = np.where(flip, fb, np.where(keep, fa / 2.0, fa))
+        fa = np.where(flip, fb, np.where(keep, fa * m, fa))
         b = np.where(live, xs, b)
         fb = np.where(live, fx, fb)
+        moved = np.abs(xs - x)
         x = np.where(live, xs, x)
-        live &= (fx != 0) & (np.abs(b - a) > tol)
+        # done when the bracket or the last step is within the tolerance (a secant step
+        # that small means the root is found to it; the bracket need not shrink as fast)
+        live &= (np.abs(fx) > ftol) & (np.abs(b - a) > tol) & (moved > 0.5 * tol)
     return x, ok
 
 

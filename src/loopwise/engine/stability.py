@@ -35,6 +35,9 @@ MARGINAL = 1e-8
 REACH_LEVEL = 1e-3
 #: sample budget of the margins' extension (the count itself has the engine's own budget)
 EXTENSION_SAMPLES = 60_000
+#: the extension's chord test: looser than the count's (no count depends on it; the delay
+#: step rule still keeps every turn, and the crossings found are refined)
+EXTENSION_CHORD = 0.6
 
 
 @dataclass(frozen=True, eq=False)
@@ -172,6 +175,14 @@ def _step_rule(comp: Component, red: Reduction):
     return comp.step_ok if comp.has_delay else None
 
 
+def _max_step(comp: Component) -> float | None:
+    """The seed grid's widest axis step with delays: 0.3 rad of the summed delays' phase
+    (within the step rule's pi/4, and about what the chord rule asks of a curve a delay
+    turns), so that few halving rounds remain."""
+    total = float(comp.bank.delay.sum())
+    return 0.3 / total if total > 0 else None
+
+
 def _raw(comp: Component, s: np.ndarray, B: int) -> np.ndarray:
     log_det, log_one_g, L = comp.terms(s, B)
     with np.errstate(all="ignore"):
@@ -220,7 +231,8 @@ def _trace(red: Reduction, ct: Contour, with_breaks: bool = True):
         return v
 
     floors = (None,) * (1 + B) + (1e-2,) * B
-    tr = trace(list(ct.pieces), evaluate, ct.features, floors, step_ok=_step_rule(comp, red), orders=q)
+    tr = trace(list(ct.pieces), evaluate, ct.features, floors, step_ok=_step_rule(comp, red), orders=q,
+               max_step=_max_step(comp))
     if not tr.complete:
         names = comp.breaks[:B]
         raise unresolved(red, tr, ["the characteristic function det(I - A) of the model"]
@@ -311,8 +323,10 @@ def _extension(red: Reduction, ct: Contour):
         with np.errstate(all="ignore"):
             return np.log(-g / (1.0 + g) + 0j)
 
+    step = _max_step(comp)
     return trace([Piece("axis", ct.R, ct.reach, log=True)], evaluate, np.zeros(0),
-                 (REACH_LEVEL / 5,) * len(comp.breaks), EXTENSION_SAMPLES, _step_rule(comp, red))
+                 (REACH_LEVEL / 5,) * len(comp.breaks), EXTENSION_SAMPLES, _step_rule(comp, red),
+                 max_step=None if step is None else 2.0 * step, chord=EXTENSION_CHORD, midpoint=0.3)
 
 
 def _loop_values(comp: Component, k: int, s: np.ndarray) -> np.ndarray:

@@ -184,7 +184,10 @@ class Trace:
     stuck: tuple[tuple[float, float], tuple[int, ...], bool] | None = None
 
 
-def _seed(piece: Piece, features: np.ndarray) -> np.ndarray:
+def _seed(piece: Piece, features: np.ndarray, max_step: float | None = None) -> np.ndarray:
+    """The first grid of a piece: 30 points a decade and the features; with `max_step`
+    (rad/s), also no wider step on the axis than that (what the delay step rule would
+    otherwise reach by halving), unless that alone exceeds the sample budget."""
     if piece.kind == "indent":
         return np.linspace(0.0, 1.0, 9)
     if piece.log or piece.center is not None:
@@ -196,15 +199,18 @@ def _seed(piece: Piece, features: np.ndarray) -> np.ndarray:
     inside = features[(features > lo) & (features < hi)]
     if inside.size:
         u = np.concatenate([u, piece.u_of(inside)])
-    return np.unique(np.clip(u, 0.0, 1.0))
+    if max_step is not None and 2 < (hi - lo) / max_step < MAX_SAMPLES / 4:
+        with np.errstate(all="ignore"):
+            u = np.concatenate([u, piece.u_of(np.arange(lo, hi, max_step)[1:])])
+    return np.unique(np.clip(u[np.isfinite(u)], 0.0, 1.0))
 
 
-def _accept(la, lb, lm, floors, shift=None) -> np.ndarray:
+def _accept(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT) -> np.ndarray:
     """Whether each interval (rows) is resolved for every function."""
-    return np.all(_accept_columns(la, lb, lm, floors, shift), axis=1)
+    return np.all(_accept_columns(la, lb, lm, floors, shift, chord, midpoint), axis=1)
 
 
-def _accept_columns(la, lb, lm, floors, shift=None) -> np.ndarray:
+def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT) -> np.ndarray:
     """Whether each interval (rows) is resolved for each function (columns).
 
     `shift` (rows, columns), when given, is the log of the factor each traced value
@@ -213,9 +219,9 @@ def _accept_columns(la, lb, lm, floors, shift=None) -> np.ndarray:
     with np.errstate(all="ignore"):
         rb = np.exp(lb - la)
         rm = np.exp(lm - la)
-        ok = (np.abs(rb - 1.0) <= CHORD) & (np.abs(1.0 / rb - 1.0) <= CHORD)
+        ok = (np.abs(rb - 1.0) <= chord) & (np.abs(1.0 / rb - 1.0) <= chord)
         dev = np.abs(rm - 0.5 * (1.0 + rb))
-        ok &= dev <= MIDPOINT * np.minimum(1.0, np.minimum(np.abs(rb), np.abs(rm)))
+        ok &= dev <= midpoint * np.minimum(1.0, np.minimum(np.abs(rb), np.abs(rm)))
         # functions with a floor (the loop transfer itself) only need resolving while large
         for k, floor in enumerate(floors):
             if floor is None:
@@ -223,7 +229,7 @@ def _accept_columns(la, lb, lm, floors, shift=None) -> np.ndarray:
             fa, fb, fm = np.exp(la[:, k]), np.exp(lb[:, k]), np.exp(lm[:, k])
             level = floor if shift is None else floor * np.exp(shift[:, k])
             scale = np.maximum(np.minimum(np.abs(fa), np.abs(fb)), level)
-            ok_k = (np.abs(fb - fa) <= CHORD * scale) & (np.abs(fm - 0.5 * (fa + fb)) <= MIDPOINT * scale)
+            ok_k = (np.abs(fb - fa) <= chord * scale) & (np.abs(fm - 0.5 * (fa + fb)) <= midpoint * scale)
             ok[:, k] = ok_k
         # a value that is NaN (a pole hit) or infinite settles nothing; an exact zero of a
         # function with a floor (the loop transfer, cancelled to 0.0 by rounding far below
@@ -238,19 +244,22 @@ def _accept_columns(la, lb, lm, floors, shift=None) -> np.ndarray:
 def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], features: np.ndarray,
           floors: tuple[float | None, ...], max_samples: int = MAX_SAMPLES,
           step_ok: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None,
-          orders: np.ndarray | None = None) -> Trace:
+          orders: np.ndarray | None = None, max_step: float | None = None,
+          chord: float = CHORD, midpoint: float = MIDPOINT) -> Trace:
     """Adaptive sampling of `evaluate` (s -> (M, K) complex logs) along the pieces.
 
     `step_ok(s_a, s_b)` may refuse intervals that are too long whatever the
     samples say: a delay turns the curve by T*dw between two samples, and
     three samples cannot tell a whole number of turns from none. `orders` (one per
     column): the traced values are those of f s^q (see stability._origin_orders); a
-    column's floor applies to f.
+    column's floor applies to f. `max_step` seeds the axis no coarser than that (a
+    delay's step rule: fewer halving rounds). `chord` and `midpoint` loosen the two
+    acceptance tests for a trace no count depends on (the margins' extension).
     """
     q = None if orders is None or not np.any(orders) else np.asarray(orders, float)
     all_u, all_piece = [], []
     for i, p in enumerate(pieces):
-        u = _seed(p, features)
+        u = _seed(p, features, max_step)
         all_u.append(u)
         all_piece.append(np.full(u.size, i))
     u = np.concatenate(all_u)
@@ -285,7 +294,7 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
         out_u.append(um)
         with np.errstate(all="ignore"):
             shift = None if q is None else np.log(np.abs(sm))[:, None] * q[None, :]
-        ok = _accept(la, lb, lm, floors, shift)
+        ok = _accept(la, lb, lm, floors, shift, chord, midpoint)
         if step_ok is not None:
             sa = np.empty(um.size, complex)
             sb = np.empty(um.size, complex)
@@ -302,7 +311,7 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
             complete = not np.any(redo)
             if not complete:
                 cols = ~_accept_columns(la[redo], lb[redo], lm[redo], floors,
-                                        None if shift is None else shift[redo])
+                                        None if shift is None else shift[redo], chord, midpoint)
                 by_delay = step_ok is not None and not np.all(step_ok(sa[redo], sb[redo])) \
                     if sa.shape == um.shape else False
                 w = np.abs(sm[redo].imag)
