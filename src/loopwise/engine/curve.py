@@ -238,7 +238,8 @@ def crossings(c: Curve) -> list[Crossing]:
         out.append(Crossing(c.index, 0.0 if abs(x) < HORIZON or _rolls_off(c) else x, up, None))
     # closing chord at the bottom: the real axis at s = 0 (or the start of an indentation)
     for _, x, up, _ in _segment_crossings(np.conj(L[:1]), L[:1]):
-        out.append(Crossing(c.index, -math.inf if c.at_pole[0] else (0.0 if abs(x) < HORIZON else x), up, None))
+        far = c.at_pole[0] or abs(x) > 1.0 / HORIZON
+        out.append(Crossing(c.index, -math.inf if far else (0.0 if abs(x) < HORIZON else x), up, None))
     return out
 
 
@@ -269,6 +270,8 @@ def _limit(c: Curve, k: int, x: float) -> float:
     """Position of a crossing on upper segment k, with the limits made explicit."""
     if c.at_pole[k] or c.at_pole[k + 1]:
         return -math.inf  # round a pole: |L| grows without bound as the radius shrinks
+    if abs(x) > 1.0 / HORIZON:
+        return -math.inf  # a gain decrease beyond 160 dB: the limit k -> 0
     if abs(x) < HORIZON:
         # closer to the origin than a 160 dB gain change: the limit at the origin (far out
         # in the tail, or where |L| is at the level of rounding noise)
@@ -329,7 +332,8 @@ def refine(found: list[Crossing], evaluate: Evaluate | None) -> None:
     if good_idx.size:
         vals = evaluate(1j * x[good_idx], cols[good_idx])
         for i, v in zip(good_idx, vals):
-            todo[i].x = float(v.real) if abs(v.real) >= HORIZON else 0.0
+            x_i = float(v.real)
+            todo[i].x = 0.0 if abs(x_i) < HORIZON else (-math.inf if abs(x_i) > 1.0 / HORIZON else x_i)
 
 
 def stretches(found: list[Crossing], P: int) -> list[tuple[float, float, bool]]:

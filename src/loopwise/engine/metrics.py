@@ -82,7 +82,7 @@ def phase_crossovers(found: list[list[Crossing]], evaluate: Evaluate,
     for f in found:
         seen, mine = set(), []
         for c in f:
-            if c.listed and id(c) not in seen and c.x < 0 and (c.freq > 0 or c.bracket is not None):
+            if c.listed and id(c) not in seen and -math.inf < c.x < 0 and (c.freq > 0 or c.bracket is not None):
                 seen.add(id(c))
                 mine.append(c)
         per_curve.append(mine)
@@ -97,7 +97,8 @@ def phase_crossovers(found: list[list[Crossing]], evaluate: Evaluate,
     refine([c for ch in chosen for c in ch], evaluate)
     out = []
     for mine, ch, (up, down) in zip(per_curve, chosen, bounds):
-        every = [PhaseCrossover(float(c.freq), -20.0 * math.log10(-c.x)) for c in ch if c.freq > 0 and c.x < 0]
+        every = [PhaseCrossover(float(c.freq), -20.0 * math.log10(-c.x)) for c in ch
+                 if c.freq > 0 and -math.inf < c.x < 0]
         if not tidy or not every:
             out.append((sorted(every, key=lambda p: p.freq), 0))
             continue
@@ -167,7 +168,7 @@ def peaks(curves: list[Curve], evaluate: Evaluate) -> list[dict[str, Peak]]:
                 out[row] = fns[i](L[row])
             return out
 
-        x, v = zoom_max_many(f, lo, hi, lo > 0)
+        x, v = zoom_max_many(f, lo, hi, lo > 0, points=13, rounds=20)
         for (n, m, _, _), xi, vi in zip(windows, x, v):
             if vi > best[n][m].value:
                 best[n][m] = Peak(float(vi), float(xi))

@@ -68,12 +68,25 @@ class Program:
         phase, logabs = _logdet(M)
         if not U.shape[2]:
             return phase, logabs, np.zeros((m, 0), complex)
-        X = self._solve_refined(M, U)
-        g = np.empty((m, U.shape[2]), complex)
+        X = U / M[:, :1, :1] if self.n_kept == 1 else solve(M, U)
+        g = self._measure(X, Xm)
+        if self.n_kept > 1:
+            # one step of iterative refinement where some g_k is small: where the loops'
+            # gains are huge (integrators at low frequency) the solve alone leaves noise
+            # far above a tiny g_k
+            idx = np.nonzero(np.any(np.abs(g) < 1e-6, axis=1))[0]
+            if idx.size:
+                X = X[idx] + solve(M[idx], U[idx] - M[idx] @ X[idx])
+                g[idx] = self._measure(X, [None if x is None else x[idx] for x in Xm])
+        return phase, logabs, g
+
+    def _measure(self, X: np.ndarray, Xm) -> np.ndarray:
+        """g_k from the kept values of every break's solution (X: points, kept, breaks)."""
+        g = np.empty((X.shape[0], X.shape[2]), complex)
         for b, node in enumerate(self.measured):
             g[:, b] = X[:, node, b] if Xm[b] is None else \
                 np.sum(Xm[b][:, :self.n_kept] * X[:, :, b], axis=1) + Xm[b][:, self.n_kept + b]
-        return phase, logabs, g
+        return g
 
     def selected(self, V: np.ndarray, cols: np.ndarray) -> np.ndarray:
         """g_k of break cols[j] at point j: one injection column, chosen point by point."""
@@ -299,13 +312,15 @@ BIG_PER_PATH = 12
 
 
 def build_program(members: list[int], ends: list[tuple[int, int]], measured: list[int],
-                  cuts: list[frozenset[int]], big: set[int], keep_also: list[int] = ()) -> Program:
+                  cuts: list[frozenset[int]], big: set[int], keep_also: list[int] = (),
+                  most: int = BIG_PER_PATH) -> Program:
     """The program for a component: `ends` (row, col) per bank position, `measured` the
     global signals of its breaks, `cuts` their cut bank positions, `big` the positions of
-    the terms with a pole in Re s >= 0, `keep_also` signals to keep whatever."""
+    the terms with a pole in Re s >= 0, `keep_also` signals to keep whatever, `most` the
+    big terms allowed on one path through the eliminated signals."""
     kept = _feedback_set(members, ends, [k for k in keep_also if k in members])
     order = _topological([m for m in members if m not in kept], ends)
-    kept = _bound_paths(kept, order, ends, big, BIG_PER_PATH)
+    kept = _bound_paths(kept, order, ends, big, most)
     eliminated = [v for v in order if v not in kept]
     local = {g: i for i, g in enumerate(kept + eliminated)}
     feeds: list[list[tuple[int, int]]] = [[] for _ in local]

@@ -44,6 +44,11 @@ CANCEL = 1e-3
 NEAR = 1e-3
 #: a term with a pole in Re s >= 0 larger than this at a point sends it to the safe program
 SAFE_LEVEL = 1e16
+#: the safe program lets this many such terms multiply on one path: their values stay below
+#: about 1e75 each at the smallest indentation (radius >= 1e-250^(1/order) scaled), 1e300 together
+SAFE_PER_PATH = 4
+#: complex values one batch of points may hold in a propagation (about 64 MB)
+CHUNK = 4_000_000
 
 
 @dataclass(frozen=True, eq=False)
@@ -76,10 +81,10 @@ class Component:
     `signals` and `instances` are global indices; `bank` holds the values of its terms
     (one position per instance, in the order of `instances`), `entries` their (global
     row, global column, gain, transfer or None); `program` the elimination used at most
-    points (program.py). `safe` keeps the outputs of every term with a pole in Re s >= 0;
-    points within `near` (pole, radius) of such a pole, or where such a term exceeds
-    SAFE_LEVEL, use it, so the values that are huge there meet the pivoted solve rather
-    than being multiplied into paths.
+    points (program.py). `safe` lets at most SAFE_PER_PATH terms with a pole in Re s >= 0
+    multiply along a path through the eliminated signals; points within `near` (pole, radius) of such a
+    pole, or where such a term exceeds SAFE_LEVEL, use it, so the values that are huge
+    there meet the pivoted solve rather than being multiplied together.
     """
 
     signals: tuple[int, ...]
@@ -101,15 +106,22 @@ class Component:
         """Which program evaluates which points: next to a pole in Re s >= 0, or where a
         term with such a pole is huge, the safe one."""
         if self.safe is None:
-            return [(slice(None), self.program)]
-        with np.errstate(all="ignore"):
-            risky = ~(np.max(np.abs(V[:, list(self.big)]), axis=1) < SAFE_LEVEL)
-        for p, r in self.near:
-            risky |= (np.abs(s - p) <= r) | (np.abs(s - np.conj(p)) <= r)
-        if not risky.any():
-            return [(slice(None), self.program)]
-        return [(idx, prog) for idx, prog in ((np.nonzero(~risky)[0], self.program),
-                                              (np.nonzero(risky)[0], self.safe)) if idx.size]
+            groups = [(np.arange(s.size), self.program)]
+        else:
+            with np.errstate(all="ignore"):
+                risky = ~(np.max(np.abs(V[:, list(self.big)]), axis=1) < SAFE_LEVEL)
+            for p, r in self.near:
+                risky |= (np.abs(s - p) <= r) | (np.abs(s - np.conj(p)) <= r)
+            groups = [(np.nonzero(~risky)[0], self.program), (np.nonzero(risky)[0], self.safe)]
+        # bounded memory: a propagation holds (points, nodes, kept + breaks) values
+        out = []
+        for idx, prog in groups:
+            per_point = len(prog.feeds) * (prog.n_kept + len(self.breaks) + 1) + prog.n_kept ** 2
+            step = max(64, int(CHUNK / per_point))
+            out += [(idx[i:i + step], prog) for i in range(0, idx.size, step)]
+        if len(out) == 1 and out[0][0].size == s.size:
+            return [(slice(None), out[0][1])]
+        return out
 
     def values(self, s: np.ndarray) -> ComponentValues:
         """det(I - A_c) and every break's g_k at the points s (one propagation, one solve)."""
@@ -353,7 +365,7 @@ def _component(members, insts, breaks, instances, cut_sets, signals) -> Componen
         others = roots[roots != p]
         d = float(np.min(np.abs(others - p))) if others.size else max(1.0, abs(p))
         near.append((p, NEAR * d))
-    safe = build_program(members, ends, measured, cuts, big, [ends[p][0] for p in sorted(big)]) if big else None
+    safe = build_program(members, ends, measured, cuts, big, most=SAFE_PER_PATH) if big else None
     bank = Bank([instances[k].term.gain for k in insts], [instances[k].transfer for k in insts])
     return Component(tuple(members), tuple(insts), tuple(breaks), bank, tuple(tuple(sorted(c)) for c in cuts),
                      entries, program, safe, tuple(near), tuple(sorted(big)))

@@ -13,13 +13,16 @@ from ..errors import ModelError, Span
 from .certificate import ImproperLoop, Uncertified
 from .reduce import Component, Reduction
 
-__all__ = ["check_range", "check_values", "improper_loop", "uncertified_radius", "unresolved",
+__all__ = ["check_range", "check_span", "check_values", "improper_loop", "uncertified_radius", "unresolved",
            "ROOT_RANGE", "VALUE_LIMIT"]
 
 #: poles and zeros (rad/s, nonzero) must lie in this range (LW406 otherwise)
 ROOT_RANGE = (1e-150, 1e150)
 #: a wiring term larger than this on the axis overflows the engine's solves (LW406)
 VALUE_LIMIT = 1e200
+#: one loop component's nonzero poles and zeros may span at most this many decades (LW406):
+#: beyond, its loops' gains multiplied together exceed what double precision resolves
+MAX_DECADES = 26
 
 
 def check_range(red: Reduction) -> None:
@@ -36,6 +39,20 @@ def check_range(red: Reduction) -> None:
                 raise ModelError("LW406", f"`{term.app.label}` has a {what} at {bad[0]:.3g} rad/s, beyond the "
                                  f"engine's range ({lo:g} to {hi:g} rad/s)", term.app.span,
                                  "rescale the model's time unit or drop modes far outside the loops' bandwidth")
+
+
+def check_span(red: Reduction, comp: Component) -> None:
+    """LW406 for a component whose poles and zeros span more than MAX_DECADES."""
+    poles, zeros = comp.roots()
+    mags = np.abs(np.concatenate([poles, zeros]))
+    mags = mags[mags > 0]
+    if mags.size and np.log10(mags.max() / mags.min()) > MAX_DECADES:
+        span = np.log10(mags.max() / mags.min())
+        raise ModelError("LW406", f"the poles and zeros of one set of connected loops span {span:.0f} decades "
+                         f"({mags.min():.3g} to {mags.max():.3g} rad/s): beyond {MAX_DECADES} decades their "
+                         "gains multiplied together exceed what double precision resolves",
+                         Span(red.diagram.model.file, 1, 1),
+                         "split the model, or leave out loops and modes far outside the bandwidth of interest")
 
 
 def check_values(red: Reduction, comp: Component, R: float) -> None:

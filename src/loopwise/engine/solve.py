@@ -116,6 +116,11 @@ def nonsingular(M: np.ndarray, gross: np.ndarray, rel: float = 1e-12) -> bool:
     G = np.array(gross, dtype=float)
     n = A.shape[0]
     with np.errstate(all="ignore"):
+        sign, logdet = np.linalg.slogdet(A)
+        hadamard = float(np.sum(np.log(np.linalg.norm(G, axis=1))))
+    if sign != 0 and np.isfinite(logdet) and logdet > hadamard + np.log(1e-6):
+        return True  # far from singular: no cancellation leaves that much
+    with np.errstate(all="ignore"):
         for k in range(n):
             p = k + int(np.argmax(np.abs(A[k:, k])))
             if not abs(A[p, k]) > rel * G[p, k]:

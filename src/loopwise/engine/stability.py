@@ -24,7 +24,7 @@ import numpy as np
 from ..results import LoopResponse
 from .certificate import ImproperLoop, ScaledTerms, Uncertified, certificate_radius, closing_phase, scaling
 from .reduce import Component, Reduction
-from .refusals import check_range, check_values, improper_loop, uncertified_radius, unresolved
+from .refusals import check_range, check_span, check_values, improper_loop, uncertified_radius, unresolved
 from .winding import Piece, axis_orders, build_contour, encirclements, phase_change, trace
 
 __all__ = ["Contour", "NyquistCount", "ModelCount", "count", "prepare", "nyquist_counts"]
@@ -111,6 +111,7 @@ def prepare(red: Reduction, indent: str = "right", for_margins: bool = True) -> 
     breaks = {c.stmt.name: c for c in red.diagram.breaks}
     out = []
     for comp in red.components:
+        check_span(red, comp)
         try:
             d = scaling(comp)
         except ImproperLoop as exc:
@@ -142,7 +143,7 @@ def _margin_reach(comp: Component, R: float) -> float:
     """
     if not comp.breaks:
         return R
-    w = R * np.logspace(-6.0, 4.0, 1001)
+    w = R * np.logspace(-6.0, 4.0, 201)
     g = comp.values(1j * w).g
     with np.errstate(all="ignore"):
         mag = np.abs(g / (1.0 + g))
@@ -207,8 +208,8 @@ def _origin_orders(comp: Component, ct: Contour, B: int) -> np.ndarray:
     with np.errstate(all="ignore"):
         v = _raw(comp, s, B)
         slope = -(v[1].real - v[0].real) / np.log(10.0)
-    whole = np.round(slope)
-    ok = np.isfinite(slope) & (np.abs(slope - whole) < 0.05)
+        whole = np.round(slope)
+        ok = np.isfinite(slope) & (np.abs(slope - whole) < 0.05)
     return np.where(ok, whole, 0.0)
 
 

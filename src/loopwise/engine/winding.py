@@ -27,9 +27,15 @@ __all__ = ["Piece", "Trace", "build_contour", "axis_orders", "indentation_radius
 
 CHORD = 0.35
 MIDPOINT = 0.2
+#: a function with a floor needs no resolving where it exceeds this at both ends of an
+#: interval (the loop transfer beyond 1e8: a gain change of more than 160 dB there is no
+#: margin; docs/margins.md)
+CEILING = 1e8
 MAX_ROUNDS = 70
 #: sample budget of one trace (the models of the test suite need under 10,000)
 MAX_SAMPLES = 100_000
+#: ... and of samples times traced functions (a model with many breaks stops sooner)
+MAX_WORK = 5_000_000
 
 
 @dataclass(frozen=True)
@@ -213,12 +219,19 @@ def _accept(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT) -> n
 def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT) -> np.ndarray:
     """Whether each interval (rows) is resolved for each function (columns).
 
-    `shift` (rows, columns), when given, is the log of the factor each traced value
-    carries at the interval's midpoint (a traced f s^q stands for f): a floor applies
-    to f, so it is scaled by that factor."""
+    A function without a floor is tested as f/|f|: it has the phase of f at every point
+    of the contour, and only phase counts in a winding number, so a change of |f| alone
+    (tens of loop gains multiplied in det(I - A) fall hundreds of dB a decade) asks for
+    no samples. `shift`, when given, holds for the interval's ends and midpoint the logs
+    of the factors the traced values carry (a traced f s^q stands for f; rows, columns
+    each): a floor applies to f, so the tests of a floored function take them off."""
+    phase_only = np.array([f is None for f in floors])
     with np.errstate(all="ignore"):
-        rb = np.exp(lb - la)
-        rm = np.exp(lm - la)
+        db, dm = lb - la, lm - la
+        db = np.where(phase_only[None, :], 1j * db.imag, db)
+        dm = np.where(phase_only[None, :], 1j * dm.imag, dm)
+        rb = np.exp(db)
+        rm = np.exp(dm)
         ok = (np.abs(rb - 1.0) <= chord) & (np.abs(1.0 / rb - 1.0) <= chord)
         dev = np.abs(rm - 0.5 * (1.0 + rb))
         ok &= dev <= midpoint * np.minimum(1.0, np.minimum(np.abs(rb), np.abs(rm)))
@@ -226,10 +239,14 @@ def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOI
         for k, floor in enumerate(floors):
             if floor is None:
                 continue
-            fa, fb, fm = np.exp(la[:, k]), np.exp(lb[:, k]), np.exp(lm[:, k])
-            level = floor if shift is None else floor * np.exp(shift[:, k])
-            scale = np.maximum(np.minimum(np.abs(fa), np.abs(fb)), level)
+            if shift is None:
+                fa, fb, fm = np.exp(la[:, k]), np.exp(lb[:, k]), np.exp(lm[:, k])
+            else:
+                fa, fb, fm = (np.exp(v[:, k] - sh[:, k]) for v, sh in zip((la, lb, lm), shift))
+            scale = np.maximum(np.minimum(np.abs(fa), np.abs(fb)), floor)
             ok_k = (np.abs(fb - fa) <= chord * scale) & (np.abs(fm - 0.5 * (fa + fb)) <= midpoint * scale)
+            # ... and while not huge (CEILING at both ends)
+            ok_k |= np.minimum(np.abs(fa), np.abs(fb)) >= CEILING
             ok[:, k] = ok_k
         # a value that is NaN (a pole hit) or infinite settles nothing; an exact zero of a
         # function with a floor (the loop transfer, cancelled to 0.0 by rounding far below
@@ -239,6 +256,16 @@ def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOI
             if floor is not None:
                 settled[:, k] |= np.isneginf(lm[:, k].real)
     return (ok | ~np.isfinite(rb)) & settled
+
+
+def _ends(pieces: list[Piece], pa: np.ndarray, ua: np.ndarray, ub: np.ndarray):
+    """The contour points at the ends of the intervals (piece ids pa, parameters ua, ub)."""
+    sa, sb = np.empty(ua.size, complex), np.empty(ua.size, complex)
+    for i in np.unique(pa):
+        sel = pa == i
+        sa[sel] = pieces[i].points(ua[sel])
+        sb[sel] = pieces[i].points(ub[sel])
+    return sa, sb
 
 
 def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], features: np.ndarray,
@@ -292,26 +319,26 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
         out_v.append(lm)
         out_pid.append(pa)
         out_u.append(um)
-        with np.errstate(all="ignore"):
-            shift = None if q is None else np.log(np.abs(sm))[:, None] * q[None, :]
+        shift = None
+        if q is not None:
+            ends_a, ends_b = _ends(pieces, pa, ua, ub)
+            with np.errstate(all="ignore"):
+                shift = tuple(np.where(q[None, :] != 0, np.log(x)[:, None] * q[None, :], 0.0)
+                              for x in (ends_a, ends_b, sm))
         ok = _accept(la, lb, lm, floors, shift, chord, midpoint)
         if step_ok is not None:
-            sa = np.empty(um.size, complex)
-            sb = np.empty(um.size, complex)
-            for i in np.unique(pa):
-                sel = pa == i
-                sa[sel] = pieces[i].points(ua[sel])
-                sb[sel] = pieces[i].points(ub[sel])
+            sa, sb = _ends(pieces, pa, ua, ub)
             ok &= step_ok(sa, sb)
         tiny = (ub - ua) < 1e-13
         if np.any(tiny & ~ok):
             unresolved.extend(float(x) for x in sm[tiny & ~ok].imag)
         redo = ~ok & ~tiny
-        if total > max_samples:
+        if total > max_samples or total * lm.shape[1] > MAX_WORK:
             complete = not np.any(redo)
             if not complete:
                 cols = ~_accept_columns(la[redo], lb[redo], lm[redo], floors,
-                                        None if shift is None else shift[redo], chord, midpoint)
+                                        None if shift is None else tuple(x[redo] for x in shift), chord,
+                                        midpoint)
                 by_delay = step_ok is not None and not np.all(step_ok(sa[redo], sb[redo])) \
                     if sa.shape == um.shape else False
                 w = np.abs(sm[redo].imag)
