@@ -188,6 +188,8 @@ class Trace:
     #: when the budget ran out: (frequency range still being refined, the traced functions that
     #: were not settled there (column indices), whether the delay step rule held intervals back)
     stuck: tuple[tuple[float, float], tuple[int, ...], bool] | None = None
+    pid: np.ndarray | None = None  # the piece of each sample
+    unresolved_pieces: tuple[int, ...] = ()  # the pieces of the unresolved frequencies
 
 
 def _seed(piece: Piece, features: np.ndarray, max_step: float | None = None) -> np.ndarray:
@@ -258,21 +260,41 @@ def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOI
     return (ok | ~np.isfinite(rb)) & settled
 
 
-def _ends(pieces: list[Piece], pa: np.ndarray, ua: np.ndarray, ub: np.ndarray):
+class _Table:
+    """The pieces as arrays: the points of many pieces at once (Piece.points, vectorised)."""
+
+    def __init__(self, pieces: list[Piece]):
+        self.kind = np.array([0 if p.kind == "indent" else 1 if p.center is not None else 2 if p.log else 3
+                              for p in pieces])
+        self.a = np.array([p.a for p in pieces], float)
+        self.b = np.array([p.b for p in pieces], float)
+        self.t0 = np.array([p.theta0 for p in pieces], float)
+        self.t1 = np.array([p.theta1 for p in pieces], float)
+        self.c = np.array([p.center if p.center is not None else 0.0 for p in pieces], float)
+        self.sg = np.array([p.sign for p in pieces], float)
+
+    def points(self, pid: np.ndarray, u: np.ndarray) -> np.ndarray:
+        k, a, b = self.kind[pid], self.a[pid], self.b[pid]
+        with np.errstate(all="ignore"):
+            ratio = (b / a) ** u
+            w = np.where(k == 1, self.c[pid] + self.sg[pid] * a * ratio,
+                         np.where(k == 2, a * ratio, a + (b - a) * u))
+            theta = self.t0[pid] + (self.t1[pid] - self.t0[pid]) * u
+            arc = 1j * a + b * np.exp(1j * theta)
+        return np.where(k == 0, arc, 1j * w)
+
+
+def _ends(table: _Table, pa: np.ndarray, ua: np.ndarray, ub: np.ndarray):
     """The contour points at the ends of the intervals (piece ids pa, parameters ua, ub)."""
-    sa, sb = np.empty(ua.size, complex), np.empty(ua.size, complex)
-    for i in np.unique(pa):
-        sel = pa == i
-        sa[sel] = pieces[i].points(ua[sel])
-        sb[sel] = pieces[i].points(ub[sel])
-    return sa, sb
+    return table.points(pa, ua), table.points(pa, ub)
 
 
-def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], features: np.ndarray,
+def trace(pieces: list[Piece], evaluate: Callable, features,
           floors: tuple[float | None, ...], max_samples: int = MAX_SAMPLES,
-          step_ok: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None,
-          orders: np.ndarray | None = None, max_step: float | None = None,
-          chord: float = CHORD, midpoint: float = MIDPOINT) -> Trace:
+          step_ok: Callable | None = None,
+          orders: np.ndarray | None = None, max_step=None,
+          chord: float = CHORD, midpoint: float = MIDPOINT, by_piece: bool = False,
+          max_work: int = MAX_WORK) -> Trace:
     """Adaptive sampling of `evaluate` (s -> (M, K) complex logs) along the pieces.
 
     `step_ok(s_a, s_b)` may refuse intervals that are too long whatever the
@@ -282,17 +304,30 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
     column's floor applies to f. `max_step` seeds the axis no coarser than that (a
     delay's step rule: fewer halving rounds). `chord` and `midpoint` loosen the two
     acceptance tests for a trace no count depends on (the margins' extension).
+
+    With `by_piece`, the pieces may belong to many contours (batch.py): `evaluate(s,
+    piece)` and `step_ok(s_a, s_b, piece)` get the piece index of every point, and
+    `features` and `max_step` may be lists with one entry per piece.
     """
     q = None if orders is None or not np.any(orders) else np.asarray(orders, float)
+    per_piece = q is not None and q.ndim == 2  # one row of orders per piece (batch.py)
+    each = isinstance(features, list)
+    steps = max_step if isinstance(max_step, list) else [max_step] * len(pieces)
+    if by_piece:
+        call, check = evaluate, step_ok
+    else:
+        call = lambda x, _: evaluate(x)  # noqa: E731
+        check = None if step_ok is None else (lambda a, b, _: step_ok(a, b))
+    table = _Table(pieces)
     all_u, all_piece = [], []
     for i, p in enumerate(pieces):
-        u = _seed(p, features, max_step)
+        u = _seed(p, features[i] if each else features, steps[i])
         all_u.append(u)
         all_piece.append(np.full(u.size, i))
     u = np.concatenate(all_u)
     pid = np.concatenate(all_piece)
     s = np.concatenate([pieces[i].points(uu) for i, uu in enumerate(all_u)])
-    vals = evaluate(s)
+    vals = call(s, pid)
     # intervals between consecutive samples of the same piece
     pending = np.nonzero(pid[:-1] == pid[1:])[0]
     ia, ib = pending, pending + 1
@@ -302,6 +337,7 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
     sa, sb = s[ia], s[ib]
     out_s, out_v, out_pid, out_u = [s], [vals], [pid], [u]
     unresolved: list[float] = []
+    unresolved_pieces: list[int] = []
     total = s.size
     complete = True
     stuck = None
@@ -309,11 +345,8 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
         if ua.size == 0:
             break
         um = 0.5 * (ua + ub)
-        sm = np.empty(um.size, complex)
-        for i in np.unique(pa):
-            sel = pa == i
-            sm[sel] = pieces[i].points(um[sel])
-        lm = evaluate(sm)
+        sm = table.points(pa, um)
+        lm = call(sm, pa)
         total += sm.size
         out_s.append(sm)
         out_v.append(lm)
@@ -321,25 +354,26 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
         out_u.append(um)
         shift = None
         if q is not None:
-            ends_a, ends_b = _ends(pieces, pa, ua, ub)
+            ends_a, ends_b = _ends(table, pa, ua, ub)
+            qr = q[pa] if per_piece else q[None, :]
             with np.errstate(all="ignore"):
-                shift = tuple(np.where(q[None, :] != 0, np.log(x)[:, None] * q[None, :], 0.0)
-                              for x in (ends_a, ends_b, sm))
+                shift = tuple(np.where(qr != 0, np.log(x)[:, None] * qr, 0.0) for x in (ends_a, ends_b, sm))
         ok = _accept(la, lb, lm, floors, shift, chord, midpoint)
-        if step_ok is not None:
-            sa, sb = _ends(pieces, pa, ua, ub)
-            ok &= step_ok(sa, sb)
+        if check is not None:
+            sa, sb = _ends(table, pa, ua, ub)
+            ok &= check(sa, sb, pa)
         tiny = (ub - ua) < 1e-13
         if np.any(tiny & ~ok):
             unresolved.extend(float(x) for x in sm[tiny & ~ok].imag)
+            unresolved_pieces.extend(int(x) for x in pa[tiny & ~ok])
         redo = ~ok & ~tiny
-        if total > max_samples or total * lm.shape[1] > MAX_WORK:
+        if total > max_samples or total * lm.shape[1] > max_work:
             complete = not np.any(redo)
             if not complete:
                 cols = ~_accept_columns(la[redo], lb[redo], lm[redo], floors,
                                         None if shift is None else tuple(x[redo] for x in shift), chord,
                                         midpoint)
-                by_delay = step_ok is not None and not np.all(step_ok(sa[redo], sb[redo])) \
+                by_delay = check is not None and not np.all(check(sa[redo], sb[redo], pa[redo])) \
                     if sa.shape == um.shape else False
                 w = np.abs(sm[redo].imag)
                 stuck = ((float(w.min()), float(w.max())), tuple(int(c) for c in np.nonzero(cols.any(axis=0))[0]),
@@ -360,7 +394,8 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
     order = np.lexsort((u, pid))
     s, vals, pid = s[order], vals[order], pid[order]
     on_axis = np.array([p.kind == "axis" for p in pieces], dtype=bool)[pid]
-    return Trace(s, vals, on_axis, tuple(sorted(set(unresolved))), complete, stuck)
+    return Trace(s, vals, on_axis, tuple(sorted(set(unresolved))), complete, stuck, pid,
+                 tuple(sorted(set(unresolved_pieces))))
 
 
 def phase_change(values: np.ndarray) -> np.ndarray:
