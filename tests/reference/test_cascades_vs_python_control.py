@@ -238,7 +238,7 @@ def test_generated_cascade_vs_python_control(n, separation):
 
 @pytest.mark.parametrize("n, separation", [(3, 3.0), (6, 1.5)])
 def test_generated_cascade_verdict_at_every_break(n, separation):
-    """The same Z from every break (ARCHITECTURE: det(I - A) = det(I - A_k)(1 + L_k)), equal
+    """The same Z from every break (docs/method.md: det(I - A) = det(I - A_k)(1 + L_k)), equal
     to python-control's closed-loop RHP count; P_k = RHP eigenvalues of the loop's state space."""
     cascade = nested_cascade(n, seed=31, separation=separation)
     text = cascade.text()
