@@ -410,8 +410,19 @@ def test_demo_models_are_free_of_lw384():
         assert [w for b in cuts for w in b.warnings] == [], path.name
 
 
+def test_two_by_two_plant_broken_at_its_actuators_warns_as_documented():
+    text = ("input r1, r2\nblock C1 = 1 + 1/s\nblock C2 = 2 + 1/s\ne1 = r1 - y1\ne2 = r2 - y2\n"
+            "u1 = C1(e1)\nu2 = C2(e2)\ny1 = [1/(s + 1)](u1) + [0.3/(s + 2)](u2)\n"
+            "y2 = [0.2/(s + 3)](u1) + [1/(2*s + 1)](u2)\nbreak a at u1\nbreak b at u2\n")
+    w = lw384(text)
+    assert set(w) == {"a", "b"} and "route `u1` through one signal" in w["a"][2]
+    fixed = text.replace("](u1)", "](u1_p)").replace("break a at u1", "u1_p = u1\nbreak a at u1 -> u1_p")
+    assert set(lw384(fixed)) == {"b"}
+
+
 def test_derivative_on_the_measurement_warns_and_the_documented_fix_removes_it():
-    pid = "input r\nblock G = 1/((s + 1)*(0.2*s + 1))\ne = r - y\nu = 2*e + [1/s](e) - [0.3*s/(0.01*s + 1)](y)\ny = G(u)\n"
+    pid = ("input r\nblock G = 1/((s + 1)*(0.2*s + 1))\ne = r - y\n"
+           "u = 2*e + [1/s](e) - [0.3*s/(0.01*s + 1)](y)\ny = G(u)\n")
     assert set(lw384(pid + "break b at y\n")) == {"b"}
     fixed = pid.replace("e = r - y", "e = r - y_m").replace("](y)", "](y_m)") + "y_m = y\nbreak b at y -> y_m\n"
     assert lw384(fixed) == {}

@@ -33,8 +33,9 @@ class BreakCut:
     """The wires one break cuts: (source signal, equation signal) pairs.
 
     `loop` holds the signals on every cycle the break opens; `cycles` the
-    break's own cycles (those no other break opens), from which the nesting
-    follows; `warnings` its structural warnings as (code, message, hint).
+    break's own cycles (those it is the most specific opener of, see
+    nesting.own_cycles), from which the nesting follows; `warnings` its
+    structural warnings as (code, message, hint).
     """
 
     stmt: BreakStmt
@@ -47,7 +48,8 @@ class BreakCut:
 
     def findings(self) -> tuple[Finding, ...]:
         """The structural warnings as findings located at the break statement."""
-        return tuple(Finding("warning", code, message, self.stmt.span, hint) for code, message, hint in self.warnings)
+        return tuple(Finding("warning", code, message, self.stmt.span, hint)
+                     for code, message, hint in self.warnings)
 
 
 @dataclass(frozen=True, eq=False)

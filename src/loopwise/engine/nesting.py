@@ -1,10 +1,9 @@
 """Which loops each break opens, how the breaks nest, and cuts that open more than one loop.
 
 A break *opens* the simple cycles that contain one of its cut wires. Its *own*
-cycles are those it opens and no other break opens (all it opens when every one
-is also another break's): a cut at a plant output that also opens the loop
-around it (`break speed at spd`, where `spd` also feeds the position) still
-belongs to the loop it was meant for.
+cycles are those for which it is the most specific opener (see `own_cycles`): a
+cut at a plant output that also opens the loop around it (`break speed at spd`,
+where `spd` also feeds the position) still belongs to the loop it was meant for.
 
 Two cycles of a cascade form a "theta": they share one stretch, the inner
 loop's forward path from the junction M where their returns meet to the signal
@@ -58,10 +57,14 @@ def own_cycles(opened: dict[str, tuple[int, ...]]) -> dict[str, tuple[int, ...]]
     it opens.
     """
     sets = {name: frozenset(idx) for name, idx in opened.items()}
+    within = {(a, b): sets[a] < sets[b] for a in sets for b in sets if a != b}
+    openers: dict[int, list[str]] = {}
+    for name, idx in opened.items():
+        for i in idx:
+            openers.setdefault(i, []).append(name)
     owner: dict[int, str] = {}
-    for i in {i for idx in opened.values() for i in idx}:
-        openers = [name for name, idx in sets.items() if i in idx]
-        specific = [a for a in openers if all(sets[a] < sets[b] for b in openers if b != a)]
+    for i, names in openers.items():
+        specific = [a for a in names if all(within[(a, b)] for b in names if b != a)]
         if len(specific) == 1:
             owner[i] = specific[0]
     return {name: tuple(i for i in idx if owner.get(i) == name) or idx for name, idx in opened.items()}
@@ -213,6 +216,7 @@ def wide_cut_warning(cut, own: dict[str, tuple[int, ...]], cycles, wires, model:
     message = (f"`{x}` feeds {len(targets)} equations that each close a loop, and this break cuts them all: "
                + "; ".join(parts) + ". The margins are those with all of them open at once; to open only "
                f"the loop through `{first}`, write `break {name} at {x} -> {first}`")
-    hint = (f"if all of them belong to the controller (e.g. a derivative on the measurement), feed it through "
-            f"one signal (`{x}_m = {x}`) and break at `{x} -> {x}_m`")
+    hint = (f"if the wider opening is what you mean (a controller that reads `{x}` twice, an actuator that "
+            f"drives several channels), route `{x}` through one signal (`{x}_m = {x}`, used wherever `{x}` was) "
+            f"and break at `{x} -> {x}_m`")
     return ("LW384", message, hint)
