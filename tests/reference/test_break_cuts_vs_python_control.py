@@ -195,3 +195,41 @@ def test_separation_with_a_measurement_delay():
     assert sorted(g.freq for g in b["lvl"].margins.gain_crossovers) == pytest.approx(outer, rel=1e-6)
     assert b["flow"].separation == pytest.approx(max(inner) / max(outer), rel=1e-6)
     assert b["flow"].requirements[0].met and "LW383" not in [w.code for w in b["flow"].warnings]
+
+
+# ----------------------------------------------------------------------------- servo demo, wide speed cut
+
+def _servo_loops(s):
+    """Speed (cut at `spd`, both uses) and position loop transfers of models/servo_axis.loop, by hand.
+
+    Parameters copied from the model file. Current loop closed: T = Pe Ci / (1 + Pe Ci).
+    Speed cut wide: v replaces spd in spd_err and in pos, so spd_ref = -40 v/s and
+    spd = kt/(J s) T Cv (-40/s - 1) v: L = kt/(J s) T Cv (1 + 40/s).
+    Position cut: spd = G/(1 + G) spd_ref with G = kt/(J s) T Cv: L = 40 G/(1 + G) / s.
+    """
+    Rw, Lw, kt, J, Td = 0.9, 1.1e-3, 0.12, 2.4e-4, 150e-6
+    Ci = 4.5 * (1 + 1 / (Lw / Rw * s))
+    Cv = 0.35 * (1 + 1 / (12e-3 * s))
+    Pe = np.exp(-Td * s) / (Lw * s + Rw)
+    T = Pe * Ci / (1 + Pe * Ci)
+    G = kt / (J * s) * T * Cv
+    return G * (1 + 40 / s), 40 * G / (1 + G) / s
+
+
+def test_servo_wide_speed_cut_nests_right_and_gives_no_separation_warning():
+    from pathlib import Path
+
+    text = (Path(__file__).resolve().parents[2] / "models" / "servo_axis.loop").read_text()
+    text = text.replace("break speed    at spd -> spd_err", "break speed    at spd")
+    result = loopwise.check_text(text, "servo_wide.loop")
+    b = {x.name: x for x in result.breaks}
+    assert b["speed"].enclosed_by == "position" and b["position"].enclosed_by is None
+    assert b["current"].enclosed_by == "speed"
+    speed = _unit_crossings(lambda s: _servo_loops(s)[0], 1.0, 1e5)
+    position = _unit_crossings(lambda s: _servo_loops(s)[1], 1.0, 1e5)
+    assert sorted(g.freq for g in b["speed"].margins.gain_crossovers) == pytest.approx(speed, rel=1e-6)
+    assert sorted(g.freq for g in b["position"].margins.gain_crossovers) == pytest.approx(position, rel=1e-6)
+    assert b["speed"].separation == pytest.approx(max(speed) / max(position), rel=1e-6)
+    assert b["speed"].separation > 3  # before, position came out inside speed at 0.09
+    codes = {name: [w.code for w in x.warnings] for name, x in b.items()}
+    assert "LW384" in codes["speed"] and not any("LW383" in c for c in codes.values())
