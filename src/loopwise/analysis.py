@@ -158,7 +158,9 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
             name=name, at=cut.stmt.at, line=cut.stmt.span.line, stable=stable, open_loop_rhp_poles=c.P,
             encirclements=c.N, closed_loop_rhp_poles=c.Z, marginal=c.marginal, marginal_freq=c.marginal_freq,
             margins=m, requirements=judge(reqs, m, separation, verdict),
-            warnings=tuple(Finding("warning", code, message, cut.stmt.span) for code, message in warnings),
+            # the loop graph's warnings about the cut itself (LW384) come first, with their hints
+            warnings=cut.findings() + tuple(Finding("warning", code, message, cut.stmt.span)
+                                            for code, message in warnings),
             stabilising_gains=() if stable else gains, enclosed_by=cut.enclosed_by, separation=separation, response=c.response,
         ))
     marginal = any(r.marginal for r in results)

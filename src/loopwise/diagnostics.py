@@ -94,6 +94,8 @@ _TABLE: tuple[tuple[str, str, str, str | None], ...] = (
     ("LW382", "a loop that no break opens", "structure", "W302"),
     ("LW383", "an inner loop not much faster than the loop around it (cascade separation)",
      "structure", None),
+    ("LW384", "a break without `-> target` that cuts wires into several equations, each closing a loop",
+     "structure", None),
     ("LW391", "a well-posed algebraic loop", "structure", "N301"),
     ("LW392", "too many loops to list: structural checks covered the first ones", "structure", "N302"),
     ("LW401", "a neutral-type loop (high-frequency gain through delays >= 1)", "engine", "E401"),

@@ -50,7 +50,7 @@ def structure_text(diagram) -> str:
 
         for r in roots:
             walk(r, 0)
-    for f in diagram.findings:
+    for f in (*diagram.findings, *(f for b in diagram.breaks for f in b.findings())):
         lines.append("")
         lines.append(render(f))
     return "\n".join(lines) + "\n"
@@ -62,7 +62,9 @@ def _q(name: str) -> str:
 
 def structure_dot(diagram) -> str:
     model = diagram.model
-    cut = {e: b.stmt.name for b in diagram.breaks for e in b.edges}
+    # each cut wire is labelled with its break and, for an enclosed break, the break around it
+    cut = {e: b.stmt.name + (f" (inside {b.enclosed_by})" if b.enclosed_by else "")
+           for b in diagram.breaks for e in b.edges}
     out = [f"digraph {_q(model.name)} {{", "  rankdir=LR;", "  node [fontname=Helvetica];"]
     for name in model.inputs:
         out.append(f"  {_q(name)} [shape=plaintext];")

@@ -6,15 +6,12 @@ application). Checks: unused inputs, algebraic loops (ill-posed or merely
 present), loops that no break opens, breaks that open nothing or name a wire
 that does not exist, and the cascade nesting of the breaks.
 
-Nesting rule: a break *opens* the simple cycles that contain one of its cut
-edges; its loop is the set of signals on those cycles. Break B is enclosed by
-break A when B's loop is a strict subset of A's loop; B's enclosing break is
-the smallest such A. Loops that only partly overlap are not nested.
+Which cycles each break opens, the nesting of the breaks and the cuts that open
+more than one loop (LW384) are worked out in `nesting.py`.
 """
 from __future__ import annotations
 
 import difflib
-import itertools
 from dataclasses import dataclass
 
 import networkx as nx
@@ -23,6 +20,7 @@ import numpy as np
 from ..errors import Finding, ModelError, ModelErrors, Span
 from ..language.ast import BreakStmt
 from ..language.resolve import Model, Term
+from .nesting import cycle_wires, enclosing, loop_text, opened_by, own_cycles, wide_cut_warning
 
 __all__ = ["Diagram", "BreakCut", "build_diagram", "MAX_CYCLES"]
 
@@ -32,13 +30,26 @@ MAX_CYCLES = 20000
 
 @dataclass(frozen=True, eq=False)
 class BreakCut:
-    """The wires one break cuts: (source signal, equation signal) pairs."""
+    """The wires one break cuts: (source signal, equation signal) pairs.
+
+    `loop` holds the signals on every cycle the break opens; `cycles` the
+    break's own cycles (those it is the most specific opener of, see
+    nesting.own_cycles), from which the nesting follows; `warnings` its
+    structural warnings as (code, message, hint).
+    """
 
     stmt: BreakStmt
     signal: str
     edges: tuple[tuple[str, str], ...]
     loop: frozenset[str]
     enclosed_by: str | None = None
+    cycles: tuple[tuple[str, ...], ...] = ()
+    warnings: tuple[tuple[str, str, str | None], ...] = ()
+
+    def findings(self) -> tuple[Finding, ...]:
+        """The structural warnings as findings located at the break statement."""
+        return tuple(Finding("warning", code, message, self.stmt.span, hint)
+                     for code, message, hint in self.warnings)
 
 
 @dataclass(frozen=True, eq=False)
@@ -96,7 +107,7 @@ def build_diagram(model: Model) -> Diagram:
                                      ("breaks: " + ", ".join(sorted(names)) if names else "the model has no breaks")))
     if errors:
         raise ModelErrors(errors)
-    cuts = _loops_and_nesting(cuts, cycles)
+    cuts = _loops_and_nesting(cuts, cycles, model, g)
     findings.extend(_unbroken(cycles, cuts, model))
     for cut in cuts:
         if not cut.loop:
@@ -205,22 +216,18 @@ def _breaks(model: Model, g, errors) -> list[BreakCut]:
     return cuts
 
 
-def _loops_and_nesting(cuts: list[BreakCut], cycles) -> list[BreakCut]:
-    loops = []
-    for cut in cuts:
-        edges = set(cut.edges)
-        nodes: set[str] = set()
-        for cyc in cycles:
-            pairs = zip(cyc, (*cyc[1:], cyc[0]))
-            if any(p in edges for p in pairs):
-                nodes.update(cyc)
-        loops.append(frozenset(nodes))
+def _loops_and_nesting(cuts: list[BreakCut], cycles, model: Model, g) -> list[BreakCut]:
+    wires = cycle_wires(cycles)
+    opened = {c.stmt.name: opened_by(c.edges, wires) for c in cuts}
+    own = own_cycles(opened)
+    outer = enclosing(g, cycles, own)
     out = []
-    for cut, loop in zip(cuts, loops):
-        parents = [(len(other), c.stmt.name) for c, other in zip(cuts, loops)
-                   if c is not cut and loop and loop < other]
-        enclosed_by = min(parents)[1] if parents else None
-        out.append(BreakCut(cut.stmt, cut.signal, cut.edges, loop, enclosed_by))
+    for cut in cuts:
+        name = cut.stmt.name
+        loop = frozenset(n for i in opened[name] for n in cycles[i])
+        warning = wide_cut_warning(cut, own, cycles, wires, model, g)
+        out.append(BreakCut(cut.stmt, cut.signal, cut.edges, loop, outer[name] if loop else None,
+                            tuple(cycles[i] for i in own[name]), (warning,) if warning else ()))
     return out
 
 
@@ -236,10 +243,7 @@ def _unbroken(cycles, cuts: list[BreakCut], model: Model) -> list[Finding]:
         if key in reported:
             continue
         reported.add(key)
-        names = [_display(n, model) for n in cyc]
-        names = [n for n, _ in itertools.groupby(names)]
         first = next((n for n in cyc if n not in model.hidden), cyc[0])
-        out.append(Finding("warning", "LW382", "loop " + " -> ".join(names + [names[0]])
-                           + " is not opened by any break", model.signals[first],
-                           f"add e.g. `break <name> at {first}` to check its stability margins"))
+        out.append(Finding("warning", "LW382", f"loop {loop_text(cyc, model, first)} is not opened by any break",
+                           model.signals[first], f"add e.g. `break <name> at {first}` to check its stability margins"))
     return out
