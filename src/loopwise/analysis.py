@@ -7,12 +7,14 @@ negative feedback around one loop transfer (used by the reference tests).
 """
 from __future__ import annotations
 
+from contextlib import contextmanager
 from dataclasses import dataclass
 
 import numpy as np
 
+from . import arguments as arg
 from .engine.diagram import Diagram, build_diagram
-from .errors import Finding, ModelError, Span
+from .errors import Finding, ModelError, ModelErrors, Span
 from .language.resolve import Model, resolve_file, resolve_text
 from .engine.reduce import Reduction, reduce_diagram
 from .results import BreakResult, Margins, ModelResult
@@ -56,23 +58,41 @@ def _prepare(model: Model) -> Prepared:
 
 
 def prepare_text(text: str, file: str = "<text>", settings=None) -> Prepared:
+    text, file, settings = arg.model_text(text), arg.file_label(file), arg.settings_or_none(settings)
     return _prepare(resolve_text(text, file, _settings_requirements(settings),
                                  getattr(settings, "source", None) or "<settings>"))
 
 
 def prepare_file(path, settings=None) -> Prepared:
+    path, settings = arg.model_path(path), arg.settings_or_none(settings)
     return _prepare(resolve_file(path, _settings_requirements(settings),
                                  getattr(settings, "source", None) or "<settings>"))
 
 
+@contextmanager
+def _unreadable():
+    """Every unreadable model leaves as one ModelError carrying all its located errors
+    (a ModelErrors, so that the older `except ModelErrors` still catches it)."""
+    try:
+        yield
+    except ModelErrors:
+        raise
+    except ModelError as exc:
+        raise ModelErrors(exc.errors) from None
+
+
 def check_text(text: str, file: str = "<text>", settings=None, indent: str = "right") -> ModelResult:
-    """Check one model given as text; raises ModelErrors when it cannot be read."""
-    return check_prepared(prepare_text(text, file, settings), indent)
+    """Check one model given as text; raises loopwise.ModelError when it cannot be read."""
+    indent = arg.check_indent(indent)
+    with _unreadable():
+        return check_prepared(prepare_text(text, file, settings), indent)
 
 
 def check_file(path, settings=None, indent: str = "right") -> ModelResult:
-    """Check one model file; raises ModelError(s) when it cannot be read."""
-    return check_prepared(prepare_file(path, settings), indent)
+    """Check one model file; raises loopwise.ModelError when it cannot be read."""
+    indent = arg.check_indent(indent)
+    with _unreadable():
+        return check_prepared(prepare_file(path, settings), indent)
 
 
 def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
@@ -187,14 +207,16 @@ def _hidden(red: Reduction, name: str) -> list[tuple[str, str]]:
 
 def nyquist_verdict(L, indent: str = "right"):
     """P, N, Z (a stability.NyquistCount) of unity negative feedback around L, without margins."""
-    prep = _single_loop(L, "loop")
+    indent = arg.check_indent(indent)
+    prep = _single_loop(arg.loop_transfer(L), "loop")
     setup = prepare_contour(prep.reduction, indent, for_margins=False)
     return count_all(prep.reduction, setup)[2]["loop"]
 
 
 def analyse_loop(L, name: str = "loop", indent: str = "right") -> BreakResult:
     """Unity negative feedback around the loop transfer L (a Transfer)."""
-    return check_prepared(_single_loop(L, name), indent).breaks[0]
+    indent = arg.check_indent(indent)
+    return check_prepared(_single_loop(arg.loop_transfer(L), arg.break_name(name)), indent).breaks[0]
 
 
 def _single_loop(L, name: str) -> Prepared:
