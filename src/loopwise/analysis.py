@@ -8,7 +8,7 @@ negative feedback around one loop transfer (used by the reference tests).
 from __future__ import annotations
 
 from contextlib import contextmanager
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -20,6 +20,7 @@ from .engine.reduce import Reduction, reduce_diagram
 from .results import BreakResult, Margins, ModelResult
 from .engine.stability import NeutralLoop, count_all, count_model, prepare_contour
 from .judge import SEPARATION_WARNING, judge
+from .waivers import apply_waivers, settings_waivers_for
 
 __all__ = ["Prepared", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop",
            "nyquist_verdict"]
@@ -52,7 +53,8 @@ def _settings_requirements(settings) -> tuple[str, ...]:
     return tuple(getattr(settings, "requirements", ()) or ()) if settings is not None else ()
 
 
-def _prepare(model: Model) -> Prepared:
+def _prepare(model: Model, settings=None) -> Prepared:
+    model = replace(model, waivers=model.waivers.plus(settings_waivers_for(settings, model.file)))
     diagram = build_diagram(model)
     return Prepared(model, diagram, reduce_diagram(diagram))
 
@@ -60,13 +62,13 @@ def _prepare(model: Model) -> Prepared:
 def prepare_text(text: str, file: str = "<text>", settings=None) -> Prepared:
     text, file, settings = arg.model_text(text), arg.file_label(file), arg.settings_or_none(settings)
     return _prepare(resolve_text(text, file, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>"))
+                                 getattr(settings, "source", None) or "<settings>"), settings)
 
 
 def prepare_file(path, settings=None) -> Prepared:
     path, settings = arg.model_path(path), arg.settings_or_none(settings)
     return _prepare(resolve_file(path, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>"))
+                                 getattr(settings, "source", None) or "<settings>"), settings)
 
 
 @contextmanager
@@ -85,14 +87,16 @@ def check_text(text: str, file: str = "<text>", settings=None, indent: str = "ri
     """Check one model given as text; raises loopwise.ModelError when it cannot be read."""
     indent = arg.check_indent(indent)
     with _unreadable():
-        return check_prepared(prepare_text(text, file, settings), indent)
+        prep = prepare_text(text, file, settings)
+        return apply_waivers(check_prepared(prep, indent), prep.model.waivers)
 
 
 def check_file(path, settings=None, indent: str = "right") -> ModelResult:
     """Check one model file; raises loopwise.ModelError when it cannot be read."""
     indent = arg.check_indent(indent)
     with _unreadable():
-        return check_prepared(prepare_file(path, settings), indent)
+        prep = prepare_file(path, settings)
+        return apply_waivers(check_prepared(prep, indent), prep.model.waivers)
 
 
 def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
@@ -125,7 +129,8 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
                 "warning", "LW484", f"`{term.app.label.split('@')[0]}` is driven by the input `{term.source}` only "
                 f"and has {n_rhp} pole(s) in the right half plane: its output grows whatever the loops do "
                 "(it counts in Z, the same at every break, though no loop transfer shows it)", term.app.span,
-                "an unstable filter on an input path cannot be stabilised by feedback; check the model"))
+                "an unstable filter on an input path cannot be stabilised by feedback; check the model",
+                tuple(n for n in (term.app.label.split("@")[0], term.source) if not n.startswith("["))))
     if prep.diagram.breaks:
         Z, model_warnings, counts = count_all(red, setup)
     else:
@@ -178,7 +183,8 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
             name=name, at=cut.stmt.at, line=cut.stmt.span.line, stable=stable, open_loop_rhp_poles=c.P,
             encirclements=c.N, closed_loop_rhp_poles=c.Z, marginal=c.marginal, marginal_freq=c.marginal_freq,
             margins=m, requirements=judge(reqs, m, separation, verdict),
-            warnings=tuple(Finding("warning", code, message, cut.stmt.span) for code, message in warnings),
+            warnings=tuple(Finding("warning", code, message, cut.stmt.span, about=(name,))
+                           for code, message in warnings),
             stabilising_gains=() if stable else gains, enclosed_by=cut.enclosed_by, separation=separation, response=c.response,
         ))
     marginal = any(r.marginal for r in results)

@@ -106,13 +106,25 @@ class UsageError(LoopwiseError):
 
 @dataclass(frozen=True)
 class Finding:
-    """A located error, warning or note."""
+    """A located error, warning or note.
+
+    `about` names what the finding is about (breaks, signals, blocks), so that
+    `waive CODE at NAME` can accept it; `waiver` is the waiver that accepted it
+    (a `loopwise.waivers.Waiver`), None while it stands.
+    """
 
     severity: str  # "error" | "warning" | "note"
     code: str
     message: str
     span: Span = NOWHERE
     hint: str | None = None
+    about: tuple[str, ...] = ()
+    waiver: object | None = None
+
+    @property
+    def counts(self) -> bool:
+        """Whether this finding counts as a warning for `fail_on_warnings`: the one rule."""
+        return self.severity == "warning" and self.waiver is None
 
     def to_dict(self) -> dict:
         return {
@@ -123,6 +135,8 @@ class Finding:
             "col": self.span.col,
             "message": self.message,
             "hint": self.hint,
+            "about": list(self.about),
+            "waived": None if self.waiver is None else self.waiver.to_dict(),
         }
 
 

@@ -243,6 +243,7 @@ def check_paths(paths, settings=None, jobs: int = 1, progress: bool = False):
     from . import arguments as arg
     from .results import RunResult
     from .settings import Settings
+    from .waivers import unmatched_settings_waivers
 
     paths, jobs = arg.model_paths(paths), arg.jobs_count(jobs)
     settings, progress = arg.settings_or_none(settings) or Settings(), arg.flag(progress, "progress")
@@ -266,14 +267,15 @@ def check_paths(paths, settings=None, jobs: int = 1, progress: bool = False):
     # an error outside the model itself (a shared `use` file, a settings requirement)
     # comes back from every model that meets it: report it once
     errors = tuple(dict.fromkeys(e for _, errs in outcomes for e in errs))
-    return RunResult(models=models, errors=errors, version=__version__)
+    return RunResult(models=models, errors=errors, version=__version__,
+                     findings=unmatched_settings_waivers(settings, models))
 
 
 # --- the exit policy ---------------------------------------------------------------
 
 def has_warnings(run) -> bool:
-    return any(b.warnings for m in run.models for b in m.breaks) or any(
-        f.severity == "warning" for m in run.models for f in m.findings)
+    """Whether a warning counts against the run: one not waived (`RunResult.open_warnings`)."""
+    return bool(run.open_warnings)
 
 
 def exit_status(run, fail_on_warnings: bool = False) -> int:

@@ -83,7 +83,7 @@ def build_diagram(model: Model) -> Diagram:
     for name, span in model.inputs.items():
         if name not in used:
             findings.append(Finding("warning", "LW381", f"input `{name}` is never used", span,
-                                    "use it in a signal equation or remove it"))
+                                    "use it in a signal equation or remove it", (name,)))
     signals = tuple(n for n in model.signals)  # defined order: equations, then hidden ones
     findings.extend(_algebraic_loops(model, g, signals, errors))
     cycles, complete = _cycles(g, model)
@@ -142,7 +142,8 @@ def _algebraic_loops(model: Model, g, signals, errors) -> list[Finding]:
                                      "the signals are not determined; add dynamics or change a gain"))
         else:
             out.append(Finding("note", "LW391", "algebraic loop (no dynamics) through "
-                               + ", ".join(f"`{n}`" for n in names) + "; it is well-posed", span, None))
+                               + ", ".join(f"`{n}`" for n in names) + "; it is well-posed", span, None,
+                               tuple(names)))
     return out
 
 
@@ -241,5 +242,6 @@ def _unbroken(cycles, cuts: list[BreakCut], model: Model) -> list[Finding]:
         first = next((n for n in cyc if n not in model.hidden), cyc[0])
         out.append(Finding("warning", "LW382", "loop " + " -> ".join(names + [names[0]])
                            + " is not opened by any break", model.signals[first],
-                           f"add e.g. `break <name> at {first}` to check its stability margins"))
+                           f"add e.g. `break <name> at {first}` to check its stability margins",
+                           tuple(dict.fromkeys(names))))
     return out
