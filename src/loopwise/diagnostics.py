@@ -39,6 +39,10 @@ _TABLE: tuple[tuple[str, str, str, str | None], ...] = (
     # code, summary, doc section, old code
     ("LW001", "the file cannot be read (missing, a folder, no permission)", "files", "E001"),
     ("LW002", "the file is not UTF-8 text", "files", "E002"),
+    ("LW010", "the settings file is not valid TOML", "settings", None),
+    ("LW011", "an unknown setting in the settings file", "settings", None),
+    ("LW012", "a setting of the wrong type, not finite, or out of range", "settings", None),
+    ("LW013", "a bad glob in the settings (include, exclude, a waiver's files)", "settings", None),
     ("LW101", "syntax error: unexpected token or character, unclosed quote, reserved word as a name",
      "syntax", "E101"),
     ("LW102", "a missing `*`, or a space between a number and its unit", "syntax", "E102"),

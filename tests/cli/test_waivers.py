@@ -124,3 +124,65 @@ def test_the_html_report_shows_waived_warnings(cli, tmp_path):
     page = (tmp_path / "r.html").read_text()
     assert "waived: kept for the next tuning round (m.loop:9)" in page
     ET.fromstring(page.split("\n", 1)[1])  # still well-formed
+
+
+# --- waivers in the settings ------------------------------------------------------------------
+
+SETTINGS = """\
+fail_on_warnings = true
+
+[[waive]]
+files = "tanks/*.loop"
+code = "LW282"
+reason = "tank models share one library of blocks"
+
+[[waive]]
+files = ["tanks/*.loop", "pumps/*.loop"]
+code = "LW381"
+at = "d"
+reason = "the disturbance input is wired in the next revision"
+"""
+
+
+def test_settings_waivers_apply_to_the_files_their_globs_cover(cli, tmp_path):
+    write(tmp_path, "tanks/t1.loop", MODEL.replace("input r", "input r, d"))
+    write(tmp_path, "other/o1.loop", MODEL)
+    write(tmp_path, "loopwise.toml", SETTINGS)
+    code, out, _ = cli("check", "tanks", "other", "--format", "json")
+    doc = json.loads(out)
+    validate(doc)
+    tank = doc["models"][0]["findings"]
+    assert {f["code"]: f["waived"]["line"] for f in tank} == {"LW381": 10, "LW282": 5}
+    assert all(f["waived"]["file"].endswith("loopwise.toml") for f in tank)
+    assert all(f["waived"] is None for f in doc["models"][1]["findings"])  # other/ is not covered
+    assert doc["findings"] == [] and code == 1  # other/o1.loop's warnings still count
+    assert cli("check", "tanks")[0] == 0
+
+
+def test_a_settings_waiver_that_matches_nothing_is_reported_once_in_every_format(cli, tmp_path):
+    write(tmp_path, "tanks/t1.loop", MODEL)   # LW282 is waived; no unused input `d` in either model
+    write(tmp_path, "tanks/t2.loop", MODEL)
+    write(tmp_path, "loopwise.toml", SETTINGS)
+    code, out, _ = cli("check", "tanks")
+    assert code == 1, out
+    assert out.count("warning LW283") == 1
+    assert "loopwise.toml:10:1: warning LW283 the waiver of LW381 at d matches no finding in the 2 checked " \
+           "models its files cover" in out
+    assert 'code = "LW381"' in out  # the settings line, with a caret under it
+    assert "1 settings warning" in out
+    doc = json.loads(cli("check", "tanks", "--format", "json")[1])
+    validate(doc)
+    assert [(f["code"], f["line"], f["about"]) for f in doc["findings"]] == [("LW283", 10, ["d"])]
+    junit = ET.fromstring(cli("check", "tanks", "--format", "junit")[1])
+    settings_suite = [s for s in junit.findall("testsuite") if s.get("name").endswith("loopwise.toml")]
+    assert len(settings_suite) == 1 and settings_suite[0].get("failures") == "1"
+    markdown = cli("check", "tanks", "--format", "markdown")[1]
+    assert "#### Settings" in markdown and "LW283 the waiver of LW381 at d" in markdown
+    assert cli("check", "tanks", "--no-fail-on-warnings")[0] == 0
+
+
+def test_a_settings_waiver_is_not_judged_when_no_checked_model_is_covered(cli, tmp_path):
+    write(tmp_path, "elsewhere/m.loop", MODEL + WAIVE_A + WAIVE_B)
+    write(tmp_path, "loopwise.toml", SETTINGS)
+    code, out, _ = cli("check", "elsewhere")
+    assert code == 0 and "LW283" not in out, out
