@@ -186,3 +186,14 @@ def test_a_settings_waiver_is_not_judged_when_no_checked_model_is_covered(cli, t
     write(tmp_path, "loopwise.toml", SETTINGS)
     code, out, _ = cli("check", "elsewhere")
     assert code == 0 and "LW283" not in out, out
+
+
+def test_the_html_report_shows_a_settings_waiver_that_matches_nothing(cli, tmp_path):
+    write(tmp_path, "tanks/t1.loop", MODEL)
+    write(tmp_path, "loopwise.toml", SETTINGS.replace("fail_on_warnings = true\n", ""))
+    code, _, err = cli("report", "tanks", "--output", "r.html")
+    assert code == 0, err
+    page = (tmp_path / "r.html").read_text()
+    section = page.split('<section id="settings">')[1].split("</section>")[0]
+    assert "warning LW283 the waiver of LW381 at d matches no finding" in section
+    assert "waived: tank models share one library of blocks" in page  # the other one matched
