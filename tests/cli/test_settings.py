@@ -172,3 +172,17 @@ def test_the_toml_reader_is_in_the_standard_library_of_every_python_allowed():
     requires = tomllib.loads((ROOT / "pyproject.toml").read_text())["project"]["requires-python"]
     low = tuple(int(x) for x in re.match(r">=\s*(\d+)\.(\d+)", requires).groups())
     assert low >= (3, 11), requires
+
+
+@pytest.mark.parametrize("option, value, words", [
+    ("--max-delay-loss", "20", "0.2 is 20%"),         # a percentage written as a fraction
+    ("--max-phase-loss", "200", "0 to 180"),
+    ("--max-phase-loss", "nan", "finite"),
+    ("--max-gain-loss", "inf", "finite"),
+])
+def test_diff_options_follow_the_same_rule_as_the_settings(tmp_path, cli, option, value, words):
+    # before this rule was shared, an out-of-range option reached Regression and was an internal error
+    write(tmp_path, "a.loop", GOOD)
+    code, _, err = cli("diff", "a.loop", "a.loop", option, value)
+    assert code == 2 and words in err and "internal error" not in err, err
+    assert err.startswith(f"loopwise: argument {option}: ")
