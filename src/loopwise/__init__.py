@@ -7,6 +7,9 @@ Library use::
     for brk in result.breaks:
         print(brk.name, brk.stable, brk.margins.phase_margin_deg if brk.margins else None)
 
+A model that cannot be read, for a mistake in its syntax or its meaning, raises
+`loopwise.ModelError`, whose `errors` list every located error.
+
 The heavy modules are imported on first use, so `loopwise --help` starts fast;
 type checkers see every name below through the ``TYPE_CHECKING`` imports.
 """

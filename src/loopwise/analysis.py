@@ -7,17 +7,20 @@ negative feedback around one loop transfer (used by the reference tests).
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from contextlib import contextmanager
+from dataclasses import dataclass, replace
 
 import numpy as np
 
+from . import arguments as arg
 from .engine.diagram import Diagram, build_diagram
-from .errors import Finding, ModelError, Span
+from .errors import Finding, ModelError, ModelErrors, Span
 from .language.resolve import Model, resolve_file, resolve_text
 from .engine.reduce import Reduction, reduce_diagram
 from .results import BreakResult, Margins, ModelResult
 from .engine.stability import NeutralLoop, count_all, count_model, prepare_contour
 from .judge import SEPARATION_WARNING, judge
+from .waivers import apply_waivers, settings_waivers_for
 
 __all__ = ["Prepared", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop",
            "nyquist_verdict"]
@@ -50,29 +53,50 @@ def _settings_requirements(settings) -> tuple[str, ...]:
     return tuple(getattr(settings, "requirements", ()) or ()) if settings is not None else ()
 
 
-def _prepare(model: Model) -> Prepared:
+def _prepare(model: Model, settings=None) -> Prepared:
+    model = replace(model, waivers=model.waivers.plus(settings_waivers_for(settings, model.file)))
     diagram = build_diagram(model)
     return Prepared(model, diagram, reduce_diagram(diagram))
 
 
 def prepare_text(text: str, file: str = "<text>", settings=None) -> Prepared:
+    text, file, settings = arg.model_text(text), arg.file_label(file), arg.settings_or_none(settings)
     return _prepare(resolve_text(text, file, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>"))
+                                 getattr(settings, "source", None) or "<settings>"), settings)
 
 
 def prepare_file(path, settings=None) -> Prepared:
+    path, settings = arg.model_path(path), arg.settings_or_none(settings)
     return _prepare(resolve_file(path, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>"))
+                                 getattr(settings, "source", None) or "<settings>"), settings)
+
+
+@contextmanager
+def _unreadable():
+    """Every unreadable model leaves as one ModelError carrying all its located errors
+    (a ModelErrors, so that the older `except ModelErrors` still catches it)."""
+    try:
+        yield
+    except ModelErrors:
+        raise
+    except ModelError as exc:
+        raise ModelErrors(exc.errors) from None
 
 
 def check_text(text: str, file: str = "<text>", settings=None, indent: str = "right") -> ModelResult:
-    """Check one model given as text; raises ModelErrors when it cannot be read."""
-    return check_prepared(prepare_text(text, file, settings), indent)
+    """Check one model given as text; raises loopwise.ModelError when it cannot be read."""
+    indent = arg.check_indent(indent)
+    with _unreadable():
+        prep = prepare_text(text, file, settings)
+        return apply_waivers(check_prepared(prep, indent), prep.model.waivers)
 
 
 def check_file(path, settings=None, indent: str = "right") -> ModelResult:
-    """Check one model file; raises ModelError(s) when it cannot be read."""
-    return check_prepared(prepare_file(path, settings), indent)
+    """Check one model file; raises loopwise.ModelError when it cannot be read."""
+    indent = arg.check_indent(indent)
+    with _unreadable():
+        prep = prepare_file(path, settings)
+        return apply_waivers(check_prepared(prep, indent), prep.model.waivers)
 
 
 def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
@@ -105,7 +129,8 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
                 "warning", "LW484", f"`{term.app.label.split('@')[0]}` is driven by the input `{term.source}` only "
                 f"and has {n_rhp} pole(s) in the right half plane: its output grows whatever the loops do "
                 "(it counts in Z, the same at every break, though no loop transfer shows it)", term.app.span,
-                "an unstable filter on an input path cannot be stabilised by feedback; check the model"))
+                "an unstable filter on an input path cannot be stabilised by feedback; check the model",
+                tuple(n for n in (term.app.label.split("@")[0], term.source) if not n.startswith("["))))
     if prep.diagram.breaks:
         Z, model_warnings, counts = count_all(red, setup)
     else:
@@ -159,7 +184,7 @@ def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
             encirclements=c.N, closed_loop_rhp_poles=c.Z, marginal=c.marginal, marginal_freq=c.marginal_freq,
             margins=m, requirements=judge(reqs, m, separation, verdict),
             # the loop graph's warnings about the cut itself (LW384) come first, with their hints
-            warnings=cut.findings() + tuple(Finding("warning", code, message, cut.stmt.span)
+            warnings=cut.findings() + tuple(Finding("warning", code, message, cut.stmt.span, about=(name,))
                                             for code, message in warnings),
             stabilising_gains=() if stable else gains, enclosed_by=cut.enclosed_by, separation=separation, response=c.response,
         ))
@@ -189,14 +214,16 @@ def _hidden(red: Reduction, name: str) -> list[tuple[str, str]]:
 
 def nyquist_verdict(L, indent: str = "right"):
     """P, N, Z (a stability.NyquistCount) of unity negative feedback around L, without margins."""
-    prep = _single_loop(L, "loop")
+    indent = arg.check_indent(indent)
+    prep = _single_loop(arg.loop_transfer(L), "loop")
     setup = prepare_contour(prep.reduction, indent, for_margins=False)
     return count_all(prep.reduction, setup)[2]["loop"]
 
 
 def analyse_loop(L, name: str = "loop", indent: str = "right") -> BreakResult:
     """Unity negative feedback around the loop transfer L (a Transfer)."""
-    return check_prepared(_single_loop(L, name), indent).breaks[0]
+    indent = arg.check_indent(indent)
+    return check_prepared(_single_loop(arg.loop_transfer(L), arg.break_name(name)), indent).breaks[0]
 
 
 def _single_loop(L, name: str) -> Prepared:

@@ -180,6 +180,11 @@ class BreakResult:
     def requirements_met(self) -> bool:
         return all(r.met for r in self.requirements)
 
+    @property
+    def open_warnings(self) -> tuple[Finding, ...]:
+        """This break's warnings that count for fail_on_warnings (not waived)."""
+        return tuple(w for w in self.warnings if w.counts)
+
     def to_dict(self) -> dict:
         m = self.margins
         d = {
@@ -225,6 +230,16 @@ class ModelResult:
     def ok(self) -> bool:
         return self.stable and self.requirements_met
 
+    @property
+    def every_finding(self) -> tuple[Finding, ...]:
+        """The model's findings, then each break's warnings."""
+        return self.findings + tuple(w for b in self.breaks for w in b.warnings)
+
+    @property
+    def open_warnings(self) -> tuple[Finding, ...]:
+        """The warnings that count for fail_on_warnings: every one not waived (`Finding.counts`)."""
+        return tuple(f for f in self.every_finding if f.counts)
+
     def to_dict(self) -> dict:
         return {
             "file": self.file, "model": self.model, "stable": bool(self.stable),
@@ -236,11 +251,19 @@ class ModelResult:
 
 @dataclass(frozen=True, eq=False)
 class RunResult:
-    """All models of one run, in a stable order, and the errors of those not read."""
+    """All models of one run, in a stable order, the errors of those not read, and
+    warnings about the run itself (a settings waiver that matched nothing)."""
 
     models: tuple[ModelResult, ...]
     errors: tuple[Finding, ...]
     version: str = ""
+    findings: tuple[Finding, ...] = ()
+
+    @property
+    def open_warnings(self) -> tuple[Finding, ...]:
+        """Every warning of the run that counts for fail_on_warnings."""
+        return tuple(f for m in self.models for f in m.open_warnings) + tuple(
+            f for f in self.findings if f.counts)
 
     @property
     def exit_code(self) -> int:
@@ -255,4 +278,5 @@ class RunResult:
             "models": [m.to_dict() for m in self.models],
             "errors": [{"file": e.span.file, "line": e.span.line, "col": e.span.col,
                         "code": e.code, "message": e.message, "hint": e.hint} for e in self.errors],
+            "findings": [f.to_dict() for f in self.findings],
         }

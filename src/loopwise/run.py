@@ -13,7 +13,7 @@ import sys
 from functools import lru_cache
 from pathlib import Path
 
-from .errors import Finding, ModelError, ModelErrors, Span, UsageError
+from .errors import Finding, ModelError, Span, UsageError
 
 __all__ = [
     "MODEL_SUFFIX", "discover", "check_paths", "check_one", "exit_status", "has_warnings",
@@ -141,10 +141,8 @@ def check_one(path: str, settings=None) -> tuple[object | None, tuple[Finding, .
 
     try:
         return check_file(path, settings=settings), ()
-    except ModelErrors as exc:
-        return None, tuple(e.as_finding() for e in exc.errors)
-    except ModelError as exc:
-        return None, (exc.as_finding(),)
+    except ModelError as exc:  # every unreadable model, with all its located errors
+        return None, exc.findings
     except UnicodeDecodeError as exc:
         return None, (_not_text(path, exc),)
     except OSError as exc:
@@ -242,10 +240,13 @@ def check_paths(paths, settings=None, jobs: int = 1, progress: bool = False):
     stderr is a terminal that wants one).
     """
     from . import __version__
+    from . import arguments as arg
     from .results import RunResult
     from .settings import Settings
+    from .waivers import unmatched_settings_waivers
 
-    settings = settings or Settings()
+    paths, jobs = arg.model_paths(paths), arg.jobs_count(jobs)
+    settings, progress = arg.settings_or_none(settings) or Settings(), arg.flag(progress, "progress")
     files = discover(paths, settings)
     if jobs == 0:
         jobs = os.cpu_count() or 1
@@ -266,14 +267,15 @@ def check_paths(paths, settings=None, jobs: int = 1, progress: bool = False):
     # an error outside the model itself (a shared `use` file, a settings requirement)
     # comes back from every model that meets it: report it once
     errors = tuple(dict.fromkeys(e for _, errs in outcomes for e in errs))
-    return RunResult(models=models, errors=errors, version=__version__)
+    return RunResult(models=models, errors=errors, version=__version__,
+                     findings=unmatched_settings_waivers(settings, models))
 
 
 # --- the exit policy ---------------------------------------------------------------
 
 def has_warnings(run) -> bool:
-    return any(b.warnings for m in run.models for b in m.breaks) or any(
-        f.severity == "warning" for m in run.models for f in m.findings)
+    """Whether a warning counts against the run: one not waived (`RunResult.open_warnings`)."""
+    return bool(run.open_warnings)
 
 
 def exit_status(run, fail_on_warnings: bool = False) -> int:

@@ -22,7 +22,7 @@ from pathlib import Path
 
 from ..diff import DiffResult, Side, Unreadable, compare
 from ..errors import Finding, Span, UsageError, render
-from ..settings import Settings, load_settings
+from ..settings import Settings, load_settings, regression_problem
 from .check import _jobs  # one parser of --jobs for every command
 
 __all__ = ["add_parser", "run", "ModelChecker", "content_key"]
@@ -34,14 +34,15 @@ _USE = re.compile(r'^[ \t]*use[ \t]+"([^"\n]*)"', re.MULTILINE)
 
 # --------------------------------------------------------------------------- arguments
 
-def _non_negative(unit: str):
+def _non_negative(unit: str, key: str):
     def convert(text: str) -> float:
         try:
             value = float(text[:-1]) / 100.0 if unit == "fraction" and text.endswith("%") else float(text)
         except ValueError:
             raise argparse.ArgumentTypeError(f"expected a number ({unit}), got {text!r}") from None
-        if not value >= 0.0 or value == float("inf"):
-            raise argparse.ArgumentTypeError(f"expected a finite number >= 0 ({unit}), got {text!r}")
+        problem = regression_problem(key, value)  # the same rule as the settings file's
+        if problem:
+            raise argparse.ArgumentTypeError(f"{problem} (got {text!r})")
         return value
     return convert
 
@@ -62,11 +63,12 @@ def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
     p.add_argument("--output", "-o", metavar="FILE", help="write the report to FILE instead of stdout")
     p.add_argument("--jobs", "-j", type=_jobs, default=1, metavar="N",
                    help="check models in N processes (0: one per CPU; default 1)")
-    p.add_argument("--max-phase-loss", type=_non_negative("deg"), metavar="DEG",
+    p.add_argument("--max-phase-loss", type=_non_negative("deg", "phase_margin_loss_deg"), metavar="DEG",
                    help="phase margin loss that counts as a regression (default 5, common practice)")
-    p.add_argument("--max-gain-loss", type=_non_negative("dB"), metavar="DB",
+    p.add_argument("--max-gain-loss", type=_non_negative("dB", "gain_margin_loss_db"), metavar="DB",
                    help="gain margin loss, up or down, that counts as a regression (default 2)")
-    p.add_argument("--max-delay-loss", type=_non_negative("fraction"), metavar="FRACTION",
+    p.add_argument("--max-delay-loss", type=_non_negative("fraction", "delay_margin_loss_fraction"),
+                   metavar="FRACTION",
                    help="delay margin loss as a fraction (0.2 or 20%%) that counts as a regression "
                         "(default 0.2)")
     return p

@@ -94,7 +94,7 @@ def build_diagram(model: Model) -> Diagram:
     for name, span in model.inputs.items():
         if name not in used:
             findings.append(Finding("warning", "LW381", f"input `{name}` is never used", span,
-                                    "use it in a signal equation or remove it"))
+                                    "use it in a signal equation or remove it", (name,)))
     signals = tuple(n for n in model.signals)  # defined order: equations, then hidden ones
     findings.extend(_algebraic_loops(model, g, signals, errors))
     cycles, complete = _cycles(g, model)
@@ -153,7 +153,8 @@ def _algebraic_loops(model: Model, g, signals, errors) -> list[Finding]:
                                      "the signals are not determined; add dynamics or change a gain"))
         else:
             out.append(Finding("note", "LW391", "algebraic loop (no dynamics) through "
-                               + ", ".join(f"`{n}`" for n in names) + "; it is well-posed", span, None))
+                               + ", ".join(f"`{n}`" for n in names) + "; it is well-posed", span, None,
+                               tuple(names)))
     return out
 
 
@@ -244,6 +245,8 @@ def _unbroken(cycles, cuts: list[BreakCut], model: Model) -> list[Finding]:
             continue
         reported.add(key)
         first = next((n for n in cyc if n not in model.hidden), cyc[0])
+        about = tuple(dict.fromkeys(_display(n, model) for n in cyc))
         out.append(Finding("warning", "LW382", f"loop {loop_text(cyc, model, first)} is not opened by any break",
-                           model.signals[first], f"add e.g. `break <name> at {first}` to check its stability margins"))
+                           model.signals[first], f"add e.g. `break <name> at {first}` to check its stability margins",
+                           about))
     return out

@@ -27,11 +27,11 @@ MAX_MODEL_BYTES = 4 * 1024 * 1024
 MAX_NESTING = 200
 
 #: words the grammar never accepts as a name (keep in step with NAME in the grammar)
-RESERVED = frozenset({"model", "use", "param", "input", "block", "break", "require", "at", "in"})
+RESERVED = frozenset({"model", "use", "param", "input", "block", "break", "require", "waive", "at", "in"})
 
 _UNITS = ("ns", "us", "ms", "min", "h", "Hz", "kHz", "deg", "rad", "dB")
-_GENERIC_HINT = ("one statement per line: model, use, param, input, block, break, require "
-                 "or `signal = ...`; see docs/language.md")
+_GENERIC_HINT = ("one statement per line: model, use, param, input, block, break, require, "
+                 "waive or `signal = ...`; see docs/language.md")
 
 _NUMBER = re.compile(
     r"(?P<num>(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?)(?P<unit>kHz|Hz|min|ms|us|ns|h|deg|rad|dB|%)?$"
@@ -162,6 +162,17 @@ class _ToAst(Transformer):
             self._span(metric), str(op), value,
         )
 
+    @v_args(meta=True)
+    def waive_stmt(self, meta, children):
+        code, rest = children[0], list(children[1:])
+        reason = rest.pop() if rest and rest[-1].type == "STRING" else None
+        at = rest[0] if rest else None
+        return ast.WaiveStmt(
+            self._span(meta), str(code), self._span(code),
+            None if at is None else str(at), None if at is None else self._span(at),
+            None if reason is None else str(reason)[1:-1], None if reason is None else self._span(reason),
+        )
+
     def start(self, children):
         return tuple(children)
 
@@ -173,7 +184,7 @@ _TOKEN_WORDS = {
     "STRING": "a quoted path", "COMPARE": "a comparison (>= <= > <)", "ARROW": "`->`",
     "STAR": "`*`", "_IN": "`in`", "$END": "end of file", "AT": "`at`", "MODEL": "`model`",
     "USE": "`use`", "PARAM": "`param`", "INPUT": "`input`", "BLOCK": "`block`", "BREAK": "`break`",
-    "REQUIRE": "`require`",
+    "REQUIRE": "`require`", "WAIVE": "`waive`",
 }
 
 

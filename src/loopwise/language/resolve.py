@@ -21,10 +21,11 @@ from .parse import parse_text
 from .evaluate import Evaluator
 from .model import Application, Block, Model, Quantity, Term
 from .requirements import make_requirement
+from ..waivers import Waivers, make_waiver
 
 __all__ = ["Quantity", "Block", "Application", "Term", "Model", "resolve_text", "resolve_file"]
 
-RESERVED = {"s", "exp", "model", "use", "param", "input", "block", "break", "require", "at", "in"}
+RESERVED = {"s", "exp", "model", "use", "param", "input", "block", "break", "require", "waive", "at", "in"}
 
 
 class _Resolver:
@@ -40,6 +41,7 @@ class _Resolver:
         self.eq_stmts: dict[str, ast.EquationStmt] = {}
         self.breaks: list[ast.BreakStmt] = []
         self.requires: list[ast.RequireStmt] = []
+        self.waives: list[ast.WaiveStmt] = []
         self.model_name: str | None = None
         self.names: dict[str, tuple[str, Span]] = {}  # name -> (what, where)
         self.equations: dict[str, tuple[Term, ...]] = {}
@@ -102,6 +104,8 @@ class _Resolver:
                 self.breaks.append(stmt)
             elif isinstance(stmt, ast.RequireStmt):
                 self.requires.append(stmt)
+            elif isinstance(stmt, ast.WaiveStmt):
+                self.waives.append(stmt)
 
     def include(self, stmt: ast.UseStmt, stack: tuple[Path, ...]) -> None:
         base = stack[-1].parent if stack else Path.cwd()
@@ -162,18 +166,19 @@ class _Resolver:
             value = self.evaluate(stmt.transfer, "transfer")
             tf = value if isinstance(value, Transfer) else Transfer.constant(value.value)
             self.blocks[stmt.name] = Block(stmt.name, self.checked_transfer(tf, f"block `{stmt.name}`",
-                                                                            stmt.transfer.span), stmt.span)
+                                                                            stmt.transfer.span, (stmt.name,)),
+                                           stmt.span)
         except ModelError as exc:
             self.errors.append(exc)
 
-    def checked_transfer(self, tf: Transfer, what: str, span: Span) -> Transfer:
+    def checked_transfer(self, tf: Transfer, what: str, span: Span, about: tuple[str, ...] = ()) -> Transfer:
         tf, cancelled = tf.minimal()
         for p in cancelled:
             if p.real >= 0:
                 self.findings.append(Finding(
                     "warning", "LW281", f"{what} cancels a pole at {p:.4g} with a zero: the unstable "
                     "mode is dropped from the block", span,
-                    "an exact cancellation of an unstable pole hides that mode; model it explicitly"))
+                    "an exact cancellation of an unstable pole hides that mode; model it explicitly", about))
         if tf.is_zero:
             return tf
         if not tf.is_proper:
@@ -201,7 +206,8 @@ class _Resolver:
         for name in self.block_stmts:
             if self.eq_stmts and name in self.blocks and self.block_uses.get(name, 0) == 0:
                 self.findings.append(Finding("warning", "LW282", f"block `{name}` is never used",
-                                             self.block_stmts[name].span, "apply it in a signal equation or remove it"))
+                                             self.block_stmts[name].span, "apply it in a signal equation or remove it",
+                                             (name,)))
         if not self.eq_stmts and not self.errors and not (self.block_stmts or self.param_spans):
             self.errors.append(ModelError("LW230", "the model has no signal equations",
                                           Span(self.file, 1, 1), "wire blocks with lines like `y = G(e)`"))
@@ -214,6 +220,7 @@ class _Resolver:
                 requirements.append(make_requirement(stmt, self.const))
             except ModelError as exc:
                 self.errors.append(exc)
+        waivers = self.waivers()
         if self.errors:
             raise ModelErrors(list(self.errors))  # in the order found: causes before follow-ups
         signals = {n: s.span for n, s in self.eq_stmts.items()}
@@ -223,8 +230,20 @@ class _Resolver:
             blocks=dict(self.blocks), inputs=dict(self.inputs), signals=signals,
             hidden=frozenset(self.hidden), equations=dict(self.equations), breaks=tuple(self.breaks),
             requirements=tuple(requirements), findings=tuple(self.findings),
-            block_uses=dict(self.block_uses), hidden_owner=dict(self.hidden_owner),
+            block_uses=dict(self.block_uses), hidden_owner=dict(self.hidden_owner), waivers=waivers,
         )
+
+    def waivers(self) -> Waivers:
+        """The model's `waive` statements, checked against its names (after they are all known)."""
+        names = {name: what for name, (what, _) in self.names.items()}
+        names.update({stmt.name: "break" for stmt in self.breaks})
+        out = []
+        for stmt in self.waives:
+            try:
+                out.append(make_waiver(stmt, names))
+            except ModelError as exc:
+                self.errors.append(exc)
+        return Waivers(tuple(out))
 
     def as_terms(self, value, span: Span) -> list[Term]:
         if isinstance(value, list):

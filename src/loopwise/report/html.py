@@ -13,7 +13,7 @@ from html import escape
 from typing import Callable
 
 from ..results import CAUTION
-from . import (BREAK_COLUMNS, break_row, break_status, count_met, finding_text, model_passes,
+from . import (BREAK_COLUMNS, break_row, break_status, break_warning_text, count_met, finding_text, model_passes,
                model_status, requirement_place, tally)
 
 __all__ = ["render_html", "figure_count", "draw_svg", "CSS"]
@@ -190,7 +190,7 @@ def _requirements(m) -> list[str]:
 
 
 def _warnings(m) -> list[str]:
-    items = [f"<li>{_word('WARNING')} break {_e(b.name)}: {_e(w.code)} {_e(w.message)}</li>"
+    items = [f"<li>{_word('WARNING' if w.waiver is None else 'WAIVED')} {_e(break_warning_text(b, w))}</li>"
              for b in m.breaks for w in b.warnings]
     for b in m.breaks:
         if not b.stable and b.stabilising_gains:
@@ -222,6 +222,13 @@ def _model_section(m, n: int, fail: bool, svgs: dict) -> list[str]:
         out += _break_figures(b, f"m{n}b{k}", svgs, (n, k))
     out.append("</section>")
     return out
+
+
+def _settings(run) -> list[str]:
+    if not run.findings:
+        return []
+    return ['<section id="settings">', f"<h2>{_word('WARNING')} settings</h2>",
+            *[f"<pre>{_e(finding_text(f))}</pre>" for f in run.findings], "</section>"]
 
 
 def _errors(run) -> list[str]:
@@ -263,6 +270,6 @@ def render_html(run, *, hz: bool = False, fail_on_warnings: bool = False, jobs: 
             for n, m in enumerate(run.models)) + "</ul></nav>")
     for n, m in enumerate(run.models):
         out += _model_section(m, n, fail_on_warnings, svgs)
-    out += _errors(run)
+    out += _settings(run) + _errors(run)
     out += ["</main>", f"<footer><p>{_e(CAUTION)}</p></footer>", "</body>", "</html>"]
     return "\n".join(out) + "\n"
