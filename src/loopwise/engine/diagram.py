@@ -48,7 +48,7 @@ class BreakCut:
 
     def findings(self) -> tuple[Finding, ...]:
         """The structural warnings as findings located at the break statement."""
-        return tuple(Finding("warning", code, message, self.stmt.span, hint)
+        return tuple(Finding("warning", code, message, self.stmt.span, hint, (self.stmt.name,))
                      for code, message, hint in self.warnings)
 
 
