@@ -6,7 +6,7 @@ the settings for the models a glob covers (`[[tool.loopwise.waive]]`).
 
 The rules (docs/language.md, "waive"):
 
-- Warnings and notes can be waived; errors never (LW251), nor LW283 itself.
+- Warnings and notes can be waived; errors never (LW251), nor LW284 itself.
 - A waived finding still shows, marked with its waiver and reason, in every
   format; it no longer counts for `fail_on_warnings` (`Finding.counts`).
 - A finding is about the names in `Finding.about`; `at NAME` matches when NAME
@@ -14,7 +14,7 @@ The rules (docs/language.md, "waive"):
   matched only by a waiver without `at`.
 - When several waivers match, the finding records the model's own before the
   settings', and one naming its subject before one for the whole code.
-- A waiver that matches no finding is itself a warning (LW283): a model's own at
+- A waiver that matches no finding is itself a warning (LW284): a model's own at
   its `waive` line; a settings waiver once per run, at its settings entry, when
   none of the checked models its glob covers has a finding it matches.
 """
@@ -31,7 +31,7 @@ __all__ = ["Waiver", "Waivers", "UNMATCHED", "check_code", "check_reason", "make
            "apply_waivers", "settings_waivers_for", "unmatched_settings_waivers"]
 
 #: a waiver that matches nothing (never waivable itself: it would match nothing in turn)
-UNMATCHED = "LW283"
+UNMATCHED = "LW284"
 
 #: what `waive CODE at NAME` may name, as the resolver calls it
 SUBJECT_KINDS = ("break", "signal", "input", "block")
@@ -100,7 +100,7 @@ def _code_hint(code: str) -> str:
 
 
 def check_code(code: str, span: Span) -> None:
-    """A located error unless `code` is a registered warning or note other than LW283."""
+    """A located error unless `code` is a registered warning or note other than LW284."""
     entry = CODES.get(code)
     if entry is None:
         raise ModelError("LW250", f"unknown diagnostic code `{code}` in a waiver", span, _code_hint(code))
@@ -149,7 +149,7 @@ def _unmatched(w: Waiver, where: str) -> Finding:
 
 def apply_waivers(result, waivers: Waivers):
     """The ModelResult with each waivable finding marked by the waiver that accepts it,
-    and an LW283 warning for each of the model's own waivers that matches nothing."""
+    and an LW284 warning for each of the model's own waivers that matches nothing."""
     def mark(f: Finding) -> Finding:
         if f.severity == "error" or f.waiver is not None:
             return f
@@ -187,7 +187,7 @@ def settings_waivers_for(settings, file: str) -> tuple[Waiver, ...]:
 
 
 def unmatched_settings_waivers(settings, models) -> tuple[Finding, ...]:
-    """LW283 for each settings waiver that covers checked models but matches no finding in
+    """LW284 for each settings waiver that covers checked models but matches no finding in
     any of them (one that covers none of this run's models cannot be judged, and is not)."""
     waivers = tuple(getattr(settings, "waivers", ()) or ()) if settings is not None else ()
     out = []

@@ -113,7 +113,7 @@ def test_a_model_waiver_that_matches_nothing_fails_with_fail_on_warnings(cli, tm
     code, out, _ = cli("check", "m.loop", "--fail-on-warnings")
     assert code == 1
     assert out.startswith("FAIL  m.loop")
-    assert "m.loop:11:1: warning LW283 the waiver of LW381 matches no finding in this model" in out
+    assert "m.loop:11:1: warning LW284 the waiver of LW381 matches no finding in this model" in out
     assert cli("check", "m.loop")[0] == 0
 
 
@@ -165,19 +165,19 @@ def test_a_settings_waiver_that_matches_nothing_is_reported_once_in_every_format
     write(tmp_path, "loopwise.toml", SETTINGS)
     code, out, _ = cli("check", "tanks")
     assert code == 1, out
-    assert out.count("warning LW283") == 1
-    assert "loopwise.toml:10:1: warning LW283 the waiver of LW381 at d matches no finding in the 2 checked " \
+    assert out.count("warning LW284") == 1
+    assert "loopwise.toml:10:1: warning LW284 the waiver of LW381 at d matches no finding in the 2 checked " \
            "models its files cover" in out
     assert 'code = "LW381"' in out  # the settings line, with a caret under it
     assert "1 settings warning" in out
     doc = json.loads(cli("check", "tanks", "--format", "json")[1])
     validate(doc)
-    assert [(f["code"], f["line"], f["about"]) for f in doc["findings"]] == [("LW283", 10, ["d"])]
+    assert [(f["code"], f["line"], f["about"]) for f in doc["findings"]] == [("LW284", 10, ["d"])]
     junit = ET.fromstring(cli("check", "tanks", "--format", "junit")[1])
     settings_suite = [s for s in junit.findall("testsuite") if s.get("name").endswith("loopwise.toml")]
     assert len(settings_suite) == 1 and settings_suite[0].get("failures") == "1"
     markdown = cli("check", "tanks", "--format", "markdown")[1]
-    assert "#### Settings" in markdown and "LW283 the waiver of LW381 at d" in markdown
+    assert "#### Settings" in markdown and "LW284 the waiver of LW381 at d" in markdown
     assert cli("check", "tanks", "--no-fail-on-warnings")[0] == 0
 
 
@@ -185,7 +185,7 @@ def test_a_settings_waiver_is_not_judged_when_no_checked_model_is_covered(cli, t
     write(tmp_path, "elsewhere/m.loop", MODEL + WAIVE_A + WAIVE_B)
     write(tmp_path, "loopwise.toml", SETTINGS)
     code, out, _ = cli("check", "elsewhere")
-    assert code == 0 and "LW283" not in out, out
+    assert code == 0 and "LW284" not in out, out
 
 
 def test_the_html_report_shows_a_settings_waiver_that_matches_nothing(cli, tmp_path):
@@ -195,5 +195,5 @@ def test_the_html_report_shows_a_settings_waiver_that_matches_nothing(cli, tmp_p
     assert code == 0, err
     page = (tmp_path / "r.html").read_text()
     section = page.split('<section id="settings">')[1].split("</section>")[0]
-    assert "warning LW283 the waiver of LW381 at d matches no finding" in section
+    assert "warning LW284 the waiver of LW381 at d matches no finding" in section
     assert "waived: tank models share one library of blocks" in page  # the other one matched

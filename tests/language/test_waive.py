@@ -69,7 +69,7 @@ def test_waive_is_a_reserved_word():
     ('waive banana "x"', "LW250", 7, "three digits"),
     ('waive LW301 "x"', "LW251", 7, "only warnings and notes"),
     ('waive LW101 "x"', "LW251", 7, "only warnings and notes"),
-    ('waive LW283 "x"', "LW251", 7, "remove the waiver"),
+    ('waive LW284 "x"', "LW251", 7, "remove the waiver"),
     ('waive LW282', "LW252", 1, "say why"),
     ('waive LW282 at A', "LW252", 1, "say why"),
     ('waive LW282 "   "', "LW252", 13, "say why"),
@@ -123,13 +123,13 @@ def test_with_at_a_waiver_accepts_only_findings_about_that_name():
     got = findings(BASE + 'waive LW282 at A "kept for the next revision"\n')
     assert got[("LW282", ("A",))].waiver.reason == "kept for the next revision"
     assert got[("LW282", ("B",))].waiver is None
-    assert ("LW283", ("A",)) not in got
+    assert ("LW284", ("A",)) not in got
 
 
 def test_a_waiver_that_matches_nothing_is_a_warning_at_its_line():
     text = BASE + 'waive LW282 at G "G is used"\nwaive LW487 "no hidden modes here"\n'
     result = check_text(text, "m.loop")
-    unmatched = [f for f in result.findings if f.code == "LW283"]
+    unmatched = [f for f in result.findings if f.code == "LW284"]
     assert [(f.span.line, f.severity, f.about) for f in unmatched] == [(9, "warning", ("G",)), (10, "warning", ())]
     assert all(f.counts for f in unmatched)  # they count for fail_on_warnings
 
@@ -139,7 +139,7 @@ def test_the_waiver_naming_its_subject_wins_over_the_general_one():
     assert got[("LW282", ("A",))].waiver.reason == "general"
     assert got[("LW282", ("B",))].waiver.reason == "about B"
     # both match something, so neither is reported as matching nothing
-    assert not any(code == "LW283" for code, _ in got)
+    assert not any(code == "LW284" for code, _ in got)
 
 
 def test_a_loop_warning_is_about_every_signal_on_the_loop():
@@ -173,7 +173,7 @@ break outer at y2
     assert [(w.code, w.about) for w in inner.warnings] == [("LW383", ("inner",))]
     wrong = check_text(cascade + 'waive LW383 at outer "slow on purpose"\n', "c.loop")
     assert {b.name: b for b in wrong.breaks}["inner"].open_warnings
-    assert [f.code for f in wrong.findings] == ["LW283"]
+    assert [f.code for f in wrong.findings] == ["LW284"]
     right = check_text(cascade + 'waive LW383 at inner "slow on purpose"\n', "c.loop")
     assert not right.open_warnings and [f.code for f in right.findings] == []
 

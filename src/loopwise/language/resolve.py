@@ -172,22 +172,27 @@ class _Resolver:
             self.errors.append(exc)
 
     def checked_transfer(self, tf: Transfer, what: str, span: Span, about: tuple[str, ...] = ()) -> Transfer:
+        if not (math.isfinite(tf.gain) and np.all(np.isfinite(tf.poles)) and np.all(np.isfinite(tf.zeros))) \
+                or (tf.gain == 0.0 and (tf.zeros.size or tf.poles.size)):
+            raise ModelError("LW106", f"{what} has coefficients beyond double precision (overflow, "
+                             "underflow or a division by zero)", span,
+                             "rescale its parameters (e.g. time in ms) or check them")
         tf, cancelled = tf.minimal()
         for p in cancelled:
-            if p.real >= 0:
+            if p.real >= 0 and p.imag >= 0:
+                where = "on the imaginary axis" if p.real == 0 else "in the right half plane"
                 self.findings.append(Finding(
-                    "warning", "LW281", f"{what} cancels a pole at {p:.4g} with a zero: the unstable "
-                    "mode is dropped from the block", span,
-                    "an exact cancellation of an unstable pole hides that mode; model it explicitly", about))
-        if tf.is_zero:
-            return tf
+                    "warning", "LW281", f"{what} cancels its pole at {p:.4g} ({where}) with a zero: the "
+                    "mode stays in the system, unseen by any loop, and counts against stability", span,
+                    "an exact cancellation does not remove a mode; model it explicitly (or waive "
+                    "this with a reason if the mode is known not to exist)", about))
         if not tf.is_proper:
-            raise ModelError("LW220", f"{what} is improper ({tf.zeros.size} zeros, {tf.poles.size} poles): "
-                             "its gain grows without bound at high frequency", span,
-                             "add filter poles, e.g. Kd*s/(Tf*s + 1) instead of Kd*s")
-        if not (math.isfinite(tf.gain) and np.all(np.isfinite(tf.poles)) and np.all(np.isfinite(tf.zeros))):
-            raise ModelError("LW106", f"{what} has non-finite coefficients", span,
-                             "check for overflow or division by zero in its parameters")
+            # an ideal derivative is accepted where every loop around it stays proper
+            # (the engine refuses the loops that are not, naming the break and the blocks)
+            self.findings.append(Finding(
+                "warning", "LW283", f"{what} is improper ({tf.zeros.size} zeros, {tf.poles.size} poles): an "
+                "ideal derivative, analysed as written", span,
+                "a real implementation needs a derivative filter, e.g. Kd*s/(Tf*s + 1) instead of Kd*s", about))
         return tf
 
     # --- the pass ---------------------------------------------------------------
