@@ -39,6 +39,7 @@ _TABLE: tuple[tuple[str, str, str, str | None], ...] = (
     # code, summary, doc section, old code
     ("LW001", "the file cannot be read (missing, a folder, no permission)", "files", "E001"),
     ("LW002", "the file is not UTF-8 text", "files", "E002"),
+    ("LW003", "a model not checked because a file it uses has errors", "files", None),
     ("LW101", "syntax error: unexpected token or character, unclosed quote, reserved word as a name",
      "syntax", "E101"),
     ("LW102", "a missing `*`, or a space between a number and its unit", "syntax", "E102"),

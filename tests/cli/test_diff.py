@@ -282,20 +282,37 @@ def test_gain_margin_down_moving_towards_0_db(tmp_path, monkeypatch, capsys):
     capsys.readouterr()
 
 
-def test_policy_from_settings_and_options_that_win(repo, capsys):
+def test_policy_comes_from_the_base_revision_and_options_win(repo, capsys):
     # K 10 -> 12 (python-control stability_margins): PM 25.4 -> 20.9 deg, GM 9.54 -> 7.96 dB,
     # delay margin 0.361 -> 0.267 s (-26 %): only the delay margin passes a default threshold
     ref10, ref12 = reference(10), reference(12)
     assert 0.2 < 1 - ref12["delay_margin_s"] / ref10["delay_margin_s"] < 0.5
     assert 4 < ref10["phase_margin_deg"] - ref12["phase_margin_deg"] < 5
+    relaxed = PYPROJECT + "[tool.loopwise.regression]\ndelay_margin_loss_fraction = 0.5\n"
+    models12 = {k: v for k, v in model_set(K=12).items() if k != "pyproject.toml"}
     commit(repo, model_set(K=10), "K = 10")
-    write(repo, model_set(K=12))
+    write(repo, models12)
     assert main(["diff", "--rev", "HEAD"]) == 1
-    (repo / "pyproject.toml").write_text(PYPROJECT + "[tool.loopwise.regression]\n"
-                                                    "delay_margin_loss_fraction = 0.5\n")
+    # the change under review loosens its own gate: the working tree's settings are not used
+    (repo / "pyproject.toml").write_text(relaxed)
+    assert main(["diff", "--rev", "HEAD"]) == 1
+    out = capsys.readouterr().out
+    assert "settings: pyproject.toml at HEAD (the base revision; the other side's settings " \
+           "are not used)" in out
+    assert "delay margin loss > 20%" in out
+    # named on purpose with --config, a file is used as it is
+    assert main(["diff", "--rev", "HEAD", "--config", "pyproject.toml"]) == 0
+    assert "settings: pyproject.toml (--config)" in capsys.readouterr().out
+    # once the base revision holds the looser threshold, it is the gate
+    commit(repo, {**model_set(K=10), "pyproject.toml": relaxed}, "looser delay threshold")
+    write(repo, models12)
     assert main(["diff", "--rev", "HEAD"]) == 0
     assert main(["diff", "--rev", "HEAD", "--max-delay-loss", "20%"]) == 1
     assert main(["diff", "--rev", "HEAD", "--max-phase-loss", "4"]) == 1
+    # two revisions: the first is the base
+    commit(repo, {"pyproject.toml": PYPROJECT}, "K = 12, default thresholds again")
+    assert main(["diff", "--rev", "HEAD~1", "--rev", "HEAD"]) == 0
+    assert main(["diff", "--rev", "HEAD~2", "--rev", "HEAD"]) == 1
     capsys.readouterr()
 
 
