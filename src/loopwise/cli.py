@@ -98,9 +98,11 @@ def main(argv: list[str] | None = None) -> int:
         print(f"loopwise: {exc}", file=sys.stderr)
         return 2
     except Terminated:
+        _exiting()
         print("loopwise: terminated", file=sys.stderr)
         return 143
     except KeyboardInterrupt:
+        _exiting()
         print("loopwise: interrupted", file=sys.stderr)
         return 130
     except BrokenPipeError:
@@ -111,6 +113,16 @@ def main(argv: list[str] | None = None) -> int:
         print(f"loopwise: internal error ({type(exc).__name__}: {exc}); no verdict was given. "
               "Set LOOPWISE_DEBUG=1 to see the traceback, and please report it.", file=sys.stderr)
         return 2
+
+
+def _exiting() -> None:
+    """The command is stopping: a further Ctrl-C (users press it again) must not
+    turn the orderly exit into a traceback."""
+    import signal
+    import threading
+
+    if threading.current_thread() is threading.main_thread():
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
 def entry() -> None:
