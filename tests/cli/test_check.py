@@ -381,3 +381,22 @@ def test_a_default_requirement_error_points_into_the_settings_file(tmp_path, cap
     text = out.out + out.err
     assert "pyproject.toml:2:47: error LW243 unknown metric `delay_margn`" in text
     assert "did you mean `delay_margin`" in text
+
+
+def test_a_symlink_loop_in_a_folder_is_a_located_problem_and_the_rest_is_checked(tmp_path, cli):
+    write(tmp_path, "models/good.loop", GOOD)
+    (tmp_path / "models" / "a.loop").symlink_to("b.loop")
+    (tmp_path / "models" / "b.loop").symlink_to("a.loop")
+    (tmp_path / "models" / "sub").mkdir()
+    (tmp_path / "models" / "sub" / "up").symlink_to("..")  # a folder loop: not followed
+    code, out, err = cli("check", "models", "--format", "json")
+    assert code == 2, err
+    data = json.loads(out)
+    assert [m["model"] for m in data["models"]] == ["m"]
+    assert data["models"][0]["breaks"][0]["stable"] is True
+    located = sorted((Path(e["file"]).name, e["code"]) for e in data["errors"])
+    assert located == [("a.loop", "LW001"), ("b.loop", "LW001")]
+    assert all("symbolic links" in e["message"] for e in data["errors"])
+    # a looping link named on the command line is checked like any other file
+    code, out, _ = cli("check", "models/a.loop", "models/good.loop")
+    assert code == 2 and "PASS  models/good.loop" in out and "models/a.loop" in out

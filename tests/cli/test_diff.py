@@ -374,3 +374,85 @@ def test_installed_command_in_a_subprocess(repo):
     assert "### loopwise diff: `HEAD~1` -> `working tree`" in done.stdout
     assert "requirement" in done.stdout and CAUTION in done.stdout
     assert done.stderr == ""
+
+
+def _git_out(root: Path, *argv: str, stdin: str | None = None) -> str:
+    return subprocess.run(["git", *argv], cwd=root, input=stdin, capture_output=True, text=True,
+                          check=True).stdout.strip()
+
+
+def _crafted_commit(root: Path, top_entries: str) -> str:
+    """A commit whose top tree is `top_entries` (git mktree input lines)."""
+    tree = _git_out(root, "mktree", stdin=top_entries)
+    return _git_out(root, "commit-tree", tree, "-m", "crafted")
+
+
+def test_a_tree_with_dot_dot_entries_is_refused_and_nothing_lands_outside(repo, tmp_path, capsys,
+                                                                          monkeypatch):
+    import tempfile
+
+    scratch = tmp_path / "scratch"
+    scratch.mkdir()
+    monkeypatch.setattr(tempfile, "tempdir", str(scratch))  # where diff makes its folder
+    commit(repo, model_set(K=10), "K = 10")
+    blob = _git_out(repo, "hash-object", "-w", "--stdin", stdin="model pwned\n")
+    escaped = _git_out(repo, "mktree", stdin=f"100644 blob {blob}\tPWNED.loop\n")
+    inner = _git_out(repo, "mktree", stdin=f"040000 tree {escaped}\tescaped\n")
+    # ../../escaped/PWNED.loop from <scratch>/loopwise-diff-*/side0 is <scratch>/escaped
+    up_one = _git_out(repo, "mktree", stdin=f"040000 tree {inner}\t..\n")
+    evil = _crafted_commit(repo, f"040000 tree {up_one}\t..\n100644 blob {blob}\tok.loop\n")
+    assert "../../escaped/PWNED.loop" in _git_out(repo, "ls-tree", "-r", "--name-only", evil)
+    for argv in (["--rev", evil], ["--rev", "HEAD", "--rev", evil]):
+        code = main(["diff", *argv])
+        out, err = capsys.readouterr()
+        assert code == 2 and out == "", err
+        assert err.startswith(f"loopwise: revision {evil[:12]} holds an unsafe path "
+                              "'../../escaped/PWNED.loop'") and err.count("\n") == 1, err
+    assert sorted(p.name for p in scratch.rglob("*")) == []  # nothing written, temp folder gone
+    assert not (tmp_path / "escaped").exists() and not (repo.parent / "escaped").exists()
+
+
+@pytest.mark.parametrize("name", [".", ".git", ".GIT"])
+def test_a_tree_with_dot_or_git_entries_is_refused(repo, capsys, name):
+    commit(repo, model_set(K=10), "K = 10")
+    blob = _git_out(repo, "hash-object", "-w", "--stdin", stdin="model pwned\n")
+    inner = _git_out(repo, "mktree", stdin=f"100644 blob {blob}\tx.loop\n")
+    evil = _crafted_commit(repo, f"040000 tree {inner}\t{name}\n")
+    assert main(["diff", "--rev", evil]) == 2
+    assert "unsafe path" in capsys.readouterr().err
+
+
+def test_safe_paths_and_targets(tmp_path):
+    from loopwise.errors import UsageError
+    from loopwise.revisions import _target, safe_relative
+
+    for good in ("a.loop", "models/common/plant.loop", "a..b/c.loop", "..x.loop"):
+        assert safe_relative(good), good
+    for bad in ("", "/etc/x.loop", "../x.loop", "a/../../x.loop", "a/./x.loop", "a//x.loop",
+                "a/", ".git/config", "a\\..\\x.loop", "a\0b.loop", "."):
+        assert not safe_relative(bad), bad
+    with pytest.raises(UsageError):
+        _target(tmp_path, "../etc/passwd")
+    # a path that is safe as text but would pass through a link out of the folder
+    (tmp_path / "into").mkdir()
+    (tmp_path / "outside").mkdir()
+    (tmp_path / "into" / "link").symlink_to(tmp_path / "outside")
+    with pytest.raises(UsageError, match="outside"):
+        _target(tmp_path / "into", "link/x.loop")
+    assert _target(tmp_path / "into", "a/x.loop") == tmp_path / "into" / "a" / "x.loop"
+
+
+def test_an_included_file_with_another_suffix_comes_out_of_the_revision(repo, capsys):
+    # the language takes any file name after `use`; a revision must hold its own copy
+    def files(b):
+        plant = PLANT.replace('use "common/plant.loop"', 'use "common/plant.inc"')
+        return {"models/common/plant.inc": PLANT_LIB.format(b=b),
+                "models/plant.loop": plant.format(K=10, name="loop")}
+    commit(repo, files(5), "plant pole at 5")
+    commit(repo, files(10), "plant pole at 10")
+    code, data, err = run_json(capsys, "--rev", "HEAD~1", "--rev", "HEAD")
+    m = by_metric(models(data)["models/plant.loop"], "loop")
+    # analytic: GM = b (1 + b) / K (module docstring)
+    assert m["gain_margin_up_db"]["before"] == pytest.approx(gm_analytic(10, 5), abs=1e-3)
+    assert m["gain_margin_up_db"]["after"] == pytest.approx(gm_analytic(10, 10), abs=1e-3)
+    assert code == 0, err
