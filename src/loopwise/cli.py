@@ -10,8 +10,8 @@ in `loopwise.commands.options`; output goes through `loopwise.output`.
 `main(argv) -> int` returns the exit code: 0 all good; 1 an instability, an
 unmet requirement or a regression; 2 input that could not be read or a usage
 mistake (one line on stderr, never a traceback); 130 interrupted (Ctrl-C);
-143 terminated (SIGTERM while models were being checked in parallel: the
-worker processes are ended first).
+143 terminated (SIGTERM; worker processes are ended first, and an output
+being written is left as it was).
 """
 from __future__ import annotations
 
@@ -22,7 +22,7 @@ import sys
 
 from . import __version__
 from .errors import LoopwiseError, UsageError
-from .pool import Terminated
+from .pool import Terminated, sigterm_raises
 
 __all__ = ["main", "entry", "COMMANDS"]
 
@@ -90,7 +90,8 @@ def main(argv: list[str] | None = None) -> int:
             parser.print_help()
             return 2
         module = importlib.import_module(f"loopwise.commands.{args.command}")
-        return int(module.run(args))
+        with sigterm_raises():
+            return int(module.run(args))
     except UsageError as exc:
         print(f"loopwise: {exc}", file=sys.stderr)
         return 2

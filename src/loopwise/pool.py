@@ -31,7 +31,7 @@ import signal
 import threading
 from typing import Callable, Iterable, Sequence, TypeVar
 
-__all__ = ["Terminated", "cpu_limit", "worker_count", "run_pool", "JOBS_HELP"]
+__all__ = ["Terminated", "cpu_limit", "worker_count", "run_pool", "sigterm_raises", "JOBS_HELP"]
 
 T = TypeVar("T")
 R = TypeVar("R")
@@ -98,7 +98,7 @@ def _parallel(work, items, order, workers, tick, on_broken) -> list:
     from concurrent.futures.process import BrokenProcessPool
 
     out: list = [None] * len(items)
-    with _stop_signals_raise():
+    with sigterm_raises():
         pool = ProcessPoolExecutor(max_workers=workers, initializer=_worker_start,
                                    initargs=(os.getpid(),))
         try:
@@ -171,9 +171,12 @@ def _raise_terminated(signum, frame):
     raise Terminated()
 
 
-class _stop_signals_raise:
-    """While a pool runs, SIGTERM raises `Terminated` (Ctrl-C already raises
-    KeyboardInterrupt), so the pool is stopped before the command exits."""
+class sigterm_raises:
+    """A context in which SIGTERM raises `Terminated` (as Ctrl-C raises
+    KeyboardInterrupt), so cleanup runs: a pool stops its workers, an output
+    being written removes its temporary file. Used around every pool, and by
+    `loopwise.cli.main` around a whole command. Main thread only (elsewhere a
+    no-op: Python runs signal handlers in the main thread)."""
 
     def __enter__(self):
         self.previous = None

@@ -75,9 +75,9 @@ def commit_of(root: Path, rev: str) -> str:
 
 def safe_relative(path: str) -> bool:
     """A tree path that stays inside the folder it is written into: relative, no
-    empty, `.`, `..` or `.git` part (git refuses those in a checkout too), no NUL,
-    no backslash (a separator elsewhere)."""
-    if not path or path.startswith("/") or "\0" in path or "\\" in path:
+    empty, `.`, `..` or `.git` part (git refuses those in a checkout too), no NUL.
+    (A backslash is an ordinary character in a POSIX file name.)"""
+    if not path or path.startswith("/") or "\0" in path:
         return False
     return all(part not in ("", ".", "..") and part.lower() != ".git" for part in path.split("/"))
 

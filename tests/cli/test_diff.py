@@ -426,10 +426,10 @@ def test_safe_paths_and_targets(tmp_path):
     from loopwise.errors import UsageError
     from loopwise.revisions import _target, safe_relative
 
-    for good in ("a.loop", "models/common/plant.loop", "a..b/c.loop", "..x.loop"):
+    for good in ("a.loop", "models/common/plant.loop", "a..b/c.loop", "..x.loop", "a\\..\\x.loop"):
         assert safe_relative(good), good
     for bad in ("", "/etc/x.loop", "../x.loop", "a/../../x.loop", "a/./x.loop", "a//x.loop",
-                "a/", ".git/config", "a\\..\\x.loop", "a\0b.loop", "."):
+                "a/", ".git/config", "a\0b.loop", "."):
         assert not safe_relative(bad), bad
     with pytest.raises(UsageError):
         _target(tmp_path, "../etc/passwd")

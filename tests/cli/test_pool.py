@@ -234,3 +234,28 @@ def test_jobs_above_the_cpus_start_no_more_workers_than_cpus(slow_folder, tmp_pa
     os.kill(proc.pid, signal.SIGTERM)
     code, err = _finish(proc, seen)
     assert len(seen) <= cpu_limit() and code == 143, err
+
+
+def _wait_for_numpy(proc: subprocess.Popen, timeout: float = 60.0) -> None:
+    """Until the command has loaded numpy, i.e. it is inside the check (the command
+    line itself never imports it)."""
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline and proc.poll() is None:
+        try:
+            if "_multiarray_umath" in Path(f"/proc/{proc.pid}/maps").read_text():
+                return
+        except OSError:
+            pass
+        time.sleep(0.05)
+    proc.kill()
+    pytest.fail("the check never started")
+
+
+def test_sigterm_to_a_serial_check_is_an_orderly_exit_143(slow_folder, tmp_path):
+    proc = _start(["check", str(slow_folder), "--format", "json", "--output", "out.json"],
+                  tmp_path)
+    _wait_for_numpy(proc)
+    os.kill(proc.pid, signal.SIGTERM)
+    code, err = _finish(proc, set())
+    assert code == 143 and err.strip() == "loopwise: terminated", err
+    assert list(tmp_path.glob("*out.json*")) == []

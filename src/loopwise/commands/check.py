@@ -64,8 +64,9 @@ def _colour(choice: str, stream) -> bool:
 
 def run(args) -> int:
     from ..output import emit, guard_output, protected_inputs
+    from ..progress import wants_progress
     from ..report import render
-    from ..run import check_files, discover, exit_status, wants_progress
+    from ..run import check_files, discover, exit_status
 
     settings = _settings(args)
     files = discover(args.paths, settings)

@@ -38,9 +38,9 @@ def add_parser(subparsers, help_text: str):
 def run(args) -> int:
     from ..output import emit, guard_output, protected_inputs
     from ..report import finding_text
+    from ..progress import progress_bar, wants_progress
     from ..report.html import figure_count, render_html
-    from ..run import check_files, discover, exit_status, wants_progress
-    from ..progress import progress_bar
+    from ..run import check_files, discover, exit_status
 
     out = Path(args.output)
     if out.suffix.lower() not in (".html", ".htm"):
