@@ -99,8 +99,13 @@ def _parallel(work, items, order, workers, tick, on_broken) -> list:
 
     out: list = [None] * len(items)
     with sigterm_raises():
+        import multiprocessing
+
+        # forked workers are this process's children; other start methods fork them
+        # from a server process, so there is no parent to watch for
+        forked = multiprocessing.get_start_method() == "fork"
         pool = ProcessPoolExecutor(max_workers=workers, initializer=_worker_start,
-                                   initargs=(os.getpid(),))
+                                   initargs=(os.getpid() if forked else None,))
         try:
             # the workers are forked while SIGINT and SIGTERM are blocked, so none
             # can catch one before `_worker_start` has set its own handling
@@ -137,16 +142,17 @@ def _stop(pool) -> None:
                 process.join()
 
 
-def _worker_start(parent: int) -> None:
+def _worker_start(parent: int | None) -> None:
     """In each worker: Ctrl-C is the command's to handle; SIGTERM ends the worker;
-    the worker ends with the command even if the command is killed outright."""
+    a forked worker ends with the command even if the command is killed outright."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     signal.signal(signal.SIGTERM, signal.SIG_DFL)
-    _die_with_parent()
+    if parent is not None:
+        _die_with_parent()
     if hasattr(signal, "pthread_sigmask"):
         signal.pthread_sigmask(signal.SIG_UNBLOCK, _STOP_SIGNALS)
-    if os.getppid() != parent:  # the command died before the line above took effect
-        os._exit(1)
+    if parent is not None and os.getppid() != parent:
+        os._exit(1)  # the command died before the parent-death signal was set
 
 
 def _die_with_parent() -> None:
