@@ -39,6 +39,7 @@ _TABLE: tuple[tuple[str, str, str, str | None], ...] = (
     # code, summary, doc section, old code
     ("LW001", "the file cannot be read (missing, a folder, no permission)", "files", "E001"),
     ("LW002", "the file is not UTF-8 text", "files", "E002"),
+    ("LW003", "a model not checked because a file it uses has errors", "files", None),
     ("LW010", "the settings file is not valid TOML", "settings", None),
     ("LW011", "an unknown setting in the settings file", "settings", None),
     ("LW012", "a setting of the wrong type, not finite, or out of range", "settings", None),

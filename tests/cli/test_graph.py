@@ -122,3 +122,18 @@ def test_graph_shows_a_wide_cut_warning_at_its_break(tmp_path, capsys):
     model.write_text(FLOW_LEVEL.replace("break flow at flow\n", "break flow at flow -> flow_meas\n"))
     assert main(["graph", str(model)]) == 0
     assert "LW384" not in capsys.readouterr().out
+
+
+def test_graph_reads_settings_like_every_command(tmp_path, capsys):
+    model = tmp_path / "m.loop"
+    model.write_text("# invented\ninput r\nblock G = 2/((s+1)*(s+2))\ne = r - y\ny = G(e)\nbreak b at y\n")
+    settings = tmp_path / "loopwise.toml"
+    settings.write_text('requirements = ["* phase_margn >= 30deg"]\n')
+    assert main(["graph", str(model)]) == 0  # no settings file found from the working folder
+    capsys.readouterr()
+    # named with --config, its requirements are resolved with the model: the typo is located
+    assert main(["graph", str(model), "--config", str(settings)]) == 2
+    err = capsys.readouterr().err
+    assert "loopwise.toml:1:" in err and "LW243" in err and "phase_margin" in err
+    assert main(["graph", str(model), "--config", str(tmp_path / "none.toml")]) == 2
+    assert capsys.readouterr().err == f"loopwise: settings file {tmp_path / 'none.toml'} does not exist\n"

@@ -121,9 +121,16 @@ def draw_svg(job) -> str:
     return _unique_ids(svg, prefix)
 
 
+def _samples(job) -> int:
+    return len(job[0].response.s)
+
+
 def _draw_all(run, hz: bool, jobs: int, tick: Callable[[], None]) -> dict:
     """Every figure of the run, keyed (model index, break index, kind); in `jobs`
-    processes when more than one. The pages are the same either way."""
+    processes when more than one (`loopwise.pool`, the most densely sampled
+    first). The pages are the same either way."""
+    from ..pool import run_pool
+
     keys, work = [], []
     for n, m in enumerate(run.models):
         for k, b in enumerate(m.breaks):
@@ -131,21 +138,7 @@ def _draw_all(run, hz: bool, jobs: int, tick: Callable[[], None]) -> dict:
                 for kind in VIEWS:
                     keys.append((n, k, kind))
                     work.append((b, kind, m.model, hz, f"m{n}b{k}{kind[0]}-"))
-    if jobs <= 1 or len(work) < 2:
-        out = {}
-        for key, job in zip(keys, work):
-            out[key] = draw_svg(job)
-            tick()
-        return out
-    from concurrent.futures import ProcessPoolExecutor, as_completed
-
-    with ProcessPoolExecutor(max_workers=min(jobs, len(work))) as pool:
-        futures = {pool.submit(draw_svg, job): key for key, job in zip(keys, work)}
-        out = {}
-        for future in as_completed(futures):
-            out[futures[future]] = future.result()
-            tick()
-    return out
+    return dict(zip(keys, run_pool(draw_svg, work, jobs, cost=_samples, tick=tick)))
 
 
 def _break_figures(b, index: str, svgs: dict, key) -> list[str]:
