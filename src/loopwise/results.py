@@ -16,7 +16,7 @@ from .errors import Finding
 __all__ = [
     "SCHEMA_VERSION", "GainCrossover", "PhaseCrossover", "DiskMargin", "Peak",
     "Margins", "RequirementResult", "LoopResponse", "BreakResult", "ModelResult",
-    "RunResult", "CAUTION",
+    "RunResult", "CAUTION", "error_to_dict",
 ]
 
 SCHEMA_VERSION = 2
@@ -28,10 +28,17 @@ CAUTION = (
 
 
 def _num(x: float | None) -> float | None:
+    """A number for JSON, which has no infinity: a non-finite one is written as null."""
     if x is None:
         return None
     x = float(x)
     return x if math.isfinite(x) else None
+
+
+def error_to_dict(e: Finding) -> dict:
+    """An error of a model that could not be read, as the JSON contracts write it."""
+    return {"file": e.span.file, "line": e.span.line, "col": e.span.col,
+            "code": e.code, "message": e.message, "hint": e.hint}
 
 
 @dataclass(frozen=True)
@@ -253,6 +260,5 @@ class RunResult:
             "schema": SCHEMA_VERSION, "tool": "loopwise", "version": self.version,
             "caution": CAUTION,
             "models": [m.to_dict() for m in self.models],
-            "errors": [{"file": e.span.file, "line": e.span.line, "col": e.span.col,
-                        "code": e.code, "message": e.message, "hint": e.hint} for e in self.errors],
+            "errors": [error_to_dict(e) for e in self.errors],
         }

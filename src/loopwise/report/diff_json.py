@@ -6,21 +6,14 @@ unbounded or absent are ``null``; the change is then also given in words.
 from __future__ import annotations
 
 import json
-import math
 
 from .. import __version__
 from ..compare import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
-from ..errors import Finding
-from ..results import CAUTION
+from ..results import CAUTION, _num, error_to_dict
 
 __all__ = ["DIFF_SCHEMA_VERSION", "to_dict", "render"]
 
 DIFF_SCHEMA_VERSION = 1
-
-
-def _num(x: float | None) -> float | None:
-    """JSON has no infinity: a non-finite number is written as null (unbounded)."""
-    return None if x is None or not math.isfinite(x) else float(x)
 
 
 def _verdict(v: VerdictChange | None) -> dict | None:
@@ -53,18 +46,13 @@ def _break(d: BreakDiff) -> dict:
             "regressions": list(d.regressions)}
 
 
-def _error(f: Finding) -> dict:
-    return {"file": f.span.file, "line": f.span.line, "col": f.span.col, "code": f.code,
-            "message": f.message, "hint": f.hint}
-
-
 def _model(m: ModelDiff) -> dict:
     return {"file": m.file, "status": m.status, "model_before": m.model_before,
             "model_after": m.model_after, "stable_after": m.stable_after,
             "verdict": _verdict(m.verdict), "breaks": [_break(d) for d in m.breaks],
             "breaks_unchanged": m.breaks_unchanged,
-            "errors_before": [_error(e) for e in m.errors_before],
-            "errors_after": [_error(e) for e in m.errors_after],
+            "errors_before": [error_to_dict(e) for e in m.errors_before],
+            "errors_after": [error_to_dict(e) for e in m.errors_after],
             "regressions": list(m.regressions)}
 
 

@@ -6,27 +6,20 @@ signed delta, and a regression under the policy says so at the end of its line.
 from __future__ import annotations
 
 from ..compare import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
+from ..language.requirements import METRICS
 from ..results import CAUTION
 from ..settings import Regression
+from .numbers import fmt_time
 
 __all__ = ["render", "fmt_value", "fmt_delta", "verdict_words", "requirement_words",
            "policy_words", "summary_words", "margin_words"]
 
-#: a requirement metric's unit (limits are stored in the metric's own unit)
-REQUIREMENT_UNITS = {
-    "phase_margin": "deg", "gain_margin": "dB", "gain_margin_up": "dB", "gain_margin_down": "dB",
-    "delay_margin": "s", "disk_gain": "dB", "disk_phase": "deg", "crossover": "rad/s",
-}
-
-
 def fmt_value(x: float | None, unit: str, none_words: str = "none") -> str:
-    """A value with its unit; delays in the most readable of s, ms, us."""
+    """A value with its unit; times in natural units (`fmt_time`)."""
     if x is None:
         return none_words
     if unit == "s":
-        for scale, name in ((1.0, "s"), (1e-3, "ms"), (1e-6, "us")):
-            if abs(x) >= scale or name == "us":
-                return f"{x / scale:.4g} {name}"
+        return fmt_time(x, 4)
     if unit in ("deg", "dB"):
         return f"{x:.2f} {unit}"
     if unit == "":
@@ -68,7 +61,7 @@ def verdict_words(v: VerdictChange) -> str:
 
 
 def requirement_words(r: RequirementChange) -> str:
-    unit = REQUIREMENT_UNITS.get(r.metric, "")
+    unit = METRICS[r.metric].unit if r.metric in METRICS else ""
     limit = r.limit_after if r.limit_after is not None else r.limit_before
     head = f"{r.metric} {r.op} {fmt_value(limit, unit)}"
     if r.limit_before is not None and r.limit_after is not None and r.limit_before != r.limit_after:
