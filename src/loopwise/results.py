@@ -127,15 +127,12 @@ class RequirementResult:
     file: str = ""
     note: str | None = None
     unit: str = ""  # the metric's own unit, for display ("deg", "dB", "s", "rad/s", "")
+    limit_text: str = ""  # the limit as written in the model (`6dB`, `0.5Hz`); "" for an expression
 
     def to_dict(self) -> dict:
         return {"metric": self.metric, "op": self.op, "limit": _num(self.limit),
-                "value": _num(self.value), "met": bool(self.met), "line": self.line}
-
-    def describe(self) -> str:
-        u = f" {self.unit}" if self.unit else ""
-        v = "none" if self.value is None else f"{self.value:.4g}{u}"
-        return f"{self.metric} {self.op} {self.limit:.4g}{u} (value {v})"
+                "limit_text": self.limit_text, "value": _num(self.value), "met": bool(self.met),
+                "line": self.line}
 
 
 @dataclass(frozen=True, eq=False)

@@ -14,6 +14,12 @@ the file. Keys (all optional)::
     phase_margin_loss_deg = 5.0          # common practice, no source
     gain_margin_loss_db = 2.0            # common practice, no source
     delay_margin_loss_fraction = 0.20    # common practice, no source
+    near_requirement_deg = 5.0           # a loss matters within this of a requirement's limit
+    near_requirement_db = 2.0
+    near_requirement_fraction = 0.20     # (delay margin: a fraction of the limit)
+    relevant_phase_margin_deg = 60.0     # ... or below these levels (common practice, no source;
+    relevant_gain_margin_db = 12.0       #     0 switches a level off)
+    relevant_delay_margin_s = 0.0
 """
 from __future__ import annotations
 
@@ -35,6 +41,15 @@ class Regression:
     delay_margin_loss_fraction: float = 0.20
     verdict_to_unstable: bool = True
     requirement_stops_being_met: bool = True
+    # a margin loss beyond its threshold is a regression only where it matters: it
+    # fails or comes this close to a requirement on that margin ...
+    near_requirement_deg: float = 5.0
+    near_requirement_db: float = 2.0
+    near_requirement_fraction: float = 0.20
+    # ... or it ends below these levels (common practice, no source; 0 switches one off)
+    relevant_phase_margin_deg: float = 60.0
+    relevant_gain_margin_db: float = 12.0
+    relevant_delay_margin_s: float = 0.0
 
 
 @dataclass(frozen=True)

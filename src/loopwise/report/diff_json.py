@@ -5,6 +5,7 @@ unbounded or absent are ``null``; the change is then also given in words.
 """
 from __future__ import annotations
 
+import dataclasses
 import json
 
 from .. import __version__
@@ -26,20 +27,23 @@ def _verdict(v: VerdictChange | None) -> dict | None:
 
 
 def _margin(c: MarginChange) -> dict:
-    return {"metric": c.key, "label": c.label, "unit": c.unit, "before": _num(c.before),
+    return {"metric": c.metric, "label": c.label, "unit": c.unit, "before": _num(c.before),
             "after": _num(c.after), "delta": _num(c.delta), "direction": c.direction,
             "words": c.words, "regression": c.regression}
 
 
 def _requirement(r: RequirementChange) -> dict:
-    return {"metric": r.metric, "op": r.op, "limit_before": _num(r.limit_before),
-            "limit_after": _num(r.limit_after), "value_before": _num(r.value_before),
+    return {"metric": r.metric, "op": r.op, "unit": r.unit, "limit_before": _num(r.limit_before),
+            "limit_after": _num(r.limit_after), "limit_text_before": r.limit_text_before,
+            "limit_text_after": r.limit_text_after, "value_before": _num(r.value_before),
             "value_after": _num(r.value_after), "met_before": r.met_before,
-            "met_after": r.met_after, "status": r.status, "regression": r.regression}
+            "met_after": r.met_after, "status": r.status, "regression": r.regression,
+            "line": r.line}
 
 
 def _break(d: BreakDiff) -> dict:
-    return {"name": d.name, "status": d.status, "at_before": d.at_before, "at_after": d.at_after,
+    return {"name": d.name, "status": d.status, "line": d.line,
+            "at_before": d.at_before, "at_after": d.at_after,
             "stable_before": d.stable_before, "stable_after": d.stable_after,
             "verdict": _verdict(d.verdict), "margins": [_margin(c) for c in d.margins],
             "requirements": [_requirement(r) for r in d.requirements],
@@ -64,11 +68,7 @@ def to_dict(result: DiffResult) -> dict:
         "schema": DIFF_SCHEMA_VERSION, "kind": "diff", "tool": "loopwise", "version": __version__,
         "caution": CAUTION,
         "old": result.old_label, "new": result.new_label,
-        "policy": {"phase_margin_loss_deg": p.phase_margin_loss_deg,
-                   "gain_margin_loss_db": p.gain_margin_loss_db,
-                   "delay_margin_loss_fraction": p.delay_margin_loss_fraction,
-                   "verdict_to_unstable": p.verdict_to_unstable,
-                   "requirement_stops_being_met": p.requirement_stops_being_met},
+        "policy": dataclasses.asdict(p),
         "settings": result.settings,
         "summary": {"models": len(result.models),
                     **{s.replace(" ", "_"): result.count(s) for s in statuses},
