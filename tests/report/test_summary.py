@@ -29,7 +29,7 @@ def unstable_run():
     return run_of(model("tip.loop", "tip", [unstable_break("b", reqs=[req])]))
 
 
-@pytest.mark.parametrize("fmt", ["text", "markdown", "junit"])
+@pytest.mark.parametrize("fmt", ["text", "markdown", "junit", "sarif"])
 def test_every_format_says_the_stabilising_range_and_why_a_requirement_has_no_value(fmt):
     # Markdown and JUnit used to leave out both (issue 14): they now come from one summary
     out = render(unstable_run(), fmt)
@@ -65,8 +65,8 @@ def test_format_choices_come_from_the_registry():
         sub = next(a for a in parser._actions if a.dest == "command").choices[command]
         choices = next(a for a in sub._actions if a.dest == "format").choices
         assert tuple(choices) == formats(kind)
-    assert {"text", "json", "junit", "markdown"} <= set(formats("check"))
-    assert {"text", "json", "markdown"} <= set(formats("diff"))
+    assert {"text", "json", "junit", "markdown", "sarif"} <= set(formats("check"))
+    assert {"text", "json", "markdown", "sarif"} <= set(formats("diff"))
 
 
 def test_another_kind_of_result_can_register_its_formats(monkeypatch):

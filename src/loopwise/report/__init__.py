@@ -74,6 +74,8 @@ register("check", "text", "text", description="aligned plain text for a terminal
 register("check", "json", "json_report", description="the results contract (docs/results.md)")
 register("check", "junit", "junit", description="JUnit XML for CI test views")
 register("check", "markdown", "markdown", description="a pull-request comment")
+register("check", "sarif", "sarif", "render_check", description="SARIF 2.1.0 for code-review annotations")
 register("diff", "text", "diff_text")
 register("diff", "markdown", "diff_markdown")
 register("diff", "json", "diff_json")
+register("diff", "sarif", "sarif", "render_diff")
