@@ -6,11 +6,11 @@ unbounded or absent are ``null``; the change is then also given in words.
 from __future__ import annotations
 
 import dataclasses
-import json
 
 from .. import __version__
 from ..compare import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
 from ..results import CAUTION, _num, error_to_dict
+from .escape import json_dumps
 
 __all__ = ["DIFF_SCHEMA_VERSION", "to_dict", "render"]
 
@@ -79,4 +79,4 @@ def to_dict(result: DiffResult) -> dict:
 
 
 def render(result: DiffResult) -> str:
-    return json.dumps(to_dict(result), indent=2, allow_nan=False) + "\n"
+    return json_dumps(to_dict(result))

@@ -11,17 +11,21 @@ Every reporter passes such text through the helper of its format:
   cell), `md_fence` (a fenced block that nothing inside can close);
 - XML (HTML and JUnit): `xml_text` (characters XML 1.0 cannot carry removed; the
   XML writer or `html_text` escapes the markup characters);
-- JSON and SARIF need nothing beyond JSON's own escaping (`json.dumps` escapes
-  every control character), so no helper.
+- JSON and SARIF: `json_dumps`. JSON's own escaping covers only U+0000-U+001F;
+  DEL, the C1 controls, the line separators and the bidirectional controls
+  would stand raw in the file (a `cat` of the report could act on them), so they
+  are written as `\\uXXXX` escapes too. The data is unchanged.
 """
 from __future__ import annotations
 
+import json
 import re
 from html import escape
 
 from ..errors import printable
 
-__all__ = ["printable", "md_text", "md_code", "md_cell", "md_fence", "xml_text", "html_text"]
+__all__ = ["printable", "md_text", "md_code", "md_cell", "md_fence", "xml_text", "html_text",
+           "json_dumps"]
 
 _BACKTICKS = re.compile("`+")
 
@@ -88,3 +92,16 @@ def html_text(text) -> str:
     """`text` for an HTML page that is also well-formed XML: `xml_text`, then
     `<`, `>`, `&` and both quotes escaped."""
     return escape(xml_text(str(text)), quote=True)
+
+
+#: what JSON leaves raw but a terminal or an editor may act on (see `printable`)
+_JSON_RAW = re.compile("[\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
+
+
+def json_dumps(doc) -> str:
+    """`doc` as indented JSON text (UTF-8 kept readable) with every control and
+    bidirectional character escaped; not-a-number and infinities refused (the
+    contracts write them as null)."""
+    text = json.dumps(doc, indent=2, ensure_ascii=False, allow_nan=False)
+    # these characters can only stand inside JSON strings, where `\uXXXX` means the same
+    return _JSON_RAW.sub(lambda m: f"\\u{ord(m.group()):04x}", text) + "\n"

@@ -13,7 +13,7 @@ from html import escape
 from typing import Callable
 
 from ..results import CAUTION
-from .escape import html_text
+from .escape import html_text, xml_text
 from .summary import BREAK_COLUMNS, ModelSummary, finding_text, summarise, tally
 
 __all__ = ["render_html", "figure_count", "draw_svg", "CSS"]
@@ -137,7 +137,7 @@ def _draw_all(run, hz: bool, jobs: int, tick: Callable[[], None]) -> dict:
             if b.response is not None:
                 for kind in VIEWS:
                     keys.append((n, k, kind))
-                    work.append((b, kind, m.model, hz, f"m{n}b{k}{kind[0]}-"))
+                    work.append((b, kind, xml_text(m.model), hz, f"m{n}b{k}{kind[0]}-"))  # a title in the SVG
     return dict(zip(keys, run_pool(draw_svg, work, jobs, cost=_samples, tick=tick)))
 
 

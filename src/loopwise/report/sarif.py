@@ -13,12 +13,11 @@ rules a log uses are listed. File locations are relative to the repository
 root (`uriBaseId` "SRCROOT", given in `originalUriBaseIds`) when the file lies
 inside one, else absolute `file:` URIs. A waived finding carries a SARIF
 `suppression` with the waiver's reason. The text comes from the per-model
-summary, so it says what the other formats say; JSON's own escaping is all
-the sanitising SARIF needs (every control character is written as `\\uXXXX`).
+summary, so it says what the other formats say; `escape.json_dumps` writes
+every control and bidirectional character as a `\\uXXXX` escape.
 """
 from __future__ import annotations
 
-import json
 import os
 from pathlib import Path
 from urllib.parse import quote
@@ -26,6 +25,7 @@ from urllib.parse import quote
 from .. import __version__
 from ..diagnostics import CODES
 from ..results import CAUTION
+from .escape import json_dumps
 from .summary import ModelSummary, summarise
 
 __all__ = ["SARIF_SCHEMA", "render_check", "render_diff", "check_log", "diff_log", "repository_root"]
@@ -148,7 +148,7 @@ def check_log(run, fail_on_warnings: bool = False, root: Path | None = None) -> 
 
 
 def render_check(run, fail_on_warnings: bool = False) -> str:
-    return json.dumps(check_log(run, fail_on_warnings), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    return json_dumps(check_log(run, fail_on_warnings))
 
 
 # --- diff ---------------------------------------------------------------------------------
@@ -211,4 +211,4 @@ def diff_log(result, root: Path | None = None) -> dict:
 
 
 def render_diff(result) -> str:
-    return json.dumps(diff_log(result), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    return json_dumps(diff_log(result))
