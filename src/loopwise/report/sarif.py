@@ -28,7 +28,7 @@ from ..results import CAUTION
 from .escape import json_dumps
 from .summary import ModelSummary, summarise
 
-__all__ = ["SARIF_SCHEMA", "render_check", "render_diff", "check_log", "diff_log", "repository_root"]
+__all__ = ["SARIF_SCHEMA", "SarifLog", "render_check", "render_diff", "check_log", "diff_log", "repository_root"]
 
 #: the OASIS schema of SARIF 2.1.0 (errata 01), named in every log
 SARIF_SCHEMA = "https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/sarif-schema-2.1.0.json"
@@ -45,8 +45,10 @@ def repository_root(start: Path | None = None) -> Path | None:
     return None
 
 
-class _Log:
-    """Collects results and the rules they use for one SARIF run."""
+class SarifLog:
+    """Collects results and the rules they use for one SARIF run. Other kinds of
+    result (a sweep's) build their log with it: `add` a result per code and place,
+    `finding` a located Finding, then `log(exit_code, properties)`."""
 
     def __init__(self, root: Path | None, base: Path | None = None):
         self.root = root
@@ -116,7 +118,7 @@ class _Log:
 
 # --- check --------------------------------------------------------------------------------
 
-def _model_results(log: _Log, s: ModelSummary) -> None:
+def _model_results(log: SarifLog, s: ModelSummary) -> None:
     for b in s.breaks:
         if b.status != "STABLE":
             res = b.result
@@ -136,7 +138,7 @@ def _model_results(log: _Log, s: ModelSummary) -> None:
 
 def check_log(run, fail_on_warnings: bool = False, root: Path | None = None) -> dict:
     """The SARIF log (a dict) of a check run."""
-    log = _Log(root if root is not None else repository_root())
+    log = SarifLog(root if root is not None else repository_root())
     summaries = [summarise(m, fail_on_warnings) for m in run.models]
     for s in summaries:
         if not s.is_library:
@@ -169,7 +171,7 @@ def _diff_file(result, m) -> str:
     return new.name if new.is_file() else m.file
 
 
-def _break_results(log: _Log, file: str, d) -> None:
+def _break_results(log: SarifLog, file: str, d) -> None:
     for reason in d.regressions:
         if "became unstable" in reason or "added and unstable" in reason:
             log.add("LW701", reason, file, d.line)
@@ -195,7 +197,7 @@ def _break_results(log: _Log, file: str, d) -> None:
 def diff_log(result, root: Path | None = None) -> dict:
     """The SARIF log (a dict) of a diff: regressions and information on the new side."""
     root = root if root is not None else repository_root()
-    log = _Log(root, _diff_base(result, root))
+    log = SarifLog(root, _diff_base(result, root))
     for m in result.models:
         file = _diff_file(result, m)
         for d in m.breaks:
