@@ -23,12 +23,14 @@ __all__ = [
     "Unreadable", "MarginSpec", "MARGINS", "MarginChange", "VerdictChange",
     "RequirementChange", "BreakDiff", "ModelDiff", "DiffResult", "compare",
     "compare_models", "compare_breaks", "compare_margins", "compare_requirements", "Side",
+    "matters", "requirement_words",
 ]
 
-#: relative tolerance below which two margin values count as equal
-#: (re-checking the same loop is deterministic; this only absorbs round-off)
-REL_TOL = 1e-6
-ABS_TOL = 1e-9
+#: two values closer than the reports can show are no change (a `+0.00, better` line
+#: says nothing): angles and dB to 0.005 (shown to two decimals), everything else
+#: to half a unit of its fourth significant digit (shown to four)
+ABS_TOL = {"deg": 0.005, "dB": 0.005}
+REL_TOL = 5e-5
 
 
 @dataclass(frozen=True)
@@ -45,31 +47,37 @@ Side = Union[ModelResult, Unreadable, None]
 
 @dataclass(frozen=True)
 class MarginSpec:
-    """How one margin is read: its label, unit, which way is better, what None means."""
+    """How one margin is read: its label, unit, which way is better, what None means,
+    and which requirement metrics bound it."""
 
-    key: str             # the key in BreakResult.to_dict() / the JSON contract
+    metric: str          # the margin's name in the diff (JSON `metric`): a `Margins` field or a derived figure
     label: str
     unit: str
     higher_is_better: bool | None  # None: neither (informational, e.g. crossover frequency)
     none_means: str      # words for a None value
+    requirements: tuple[str, ...] = ()  # requirement metrics that bound this margin
 
     def value(self, margins: Margins) -> float | None:
-        if self.key == "disk_margin_alpha":
+        if self.metric == "disk_margin_alpha":
             return margins.disk_margin.alpha if margins.disk_margin else None
-        if self.key == "sensitivity_peak_db":
+        if self.metric == "sensitivity_peak_db":
             return margins.sensitivity_peak.db if margins.sensitivity_peak else None
-        if self.key == "complementary_peak_db":
+        if self.metric == "complementary_peak_db":
             return margins.complementary_peak.db if margins.complementary_peak else None
-        return getattr(margins, self.key)
+        return getattr(margins, self.metric)
 
 
 MARGINS: tuple[MarginSpec, ...] = (
-    MarginSpec("phase_margin_deg", "phase margin", "deg", True, "unbounded (no gain crossover)"),
-    MarginSpec("gain_margin_up_db", "gain margin up", "dB", True, "unbounded (no phase crossover)"),
+    MarginSpec("phase_margin_deg", "phase margin", "deg", True, "unbounded (no gain crossover)",
+               ("phase_margin",)),
+    MarginSpec("gain_margin_up_db", "gain margin up", "dB", True, "unbounded (no phase crossover)",
+               ("gain_margin_up", "gain_margin")),
     # a down margin is a negative dB value: more negative is better, so "higher is better"
     # is False and None (any gain reduction keeps the loop stable) is the best value
-    MarginSpec("gain_margin_down_db", "gain margin down", "dB", False, "unbounded (no phase crossover)"),
-    MarginSpec("delay_margin_s", "delay margin", "s", True, "unbounded (no gain crossover)"),
+    MarginSpec("gain_margin_down_db", "gain margin down", "dB", False, "unbounded (no phase crossover)",
+               ("gain_margin_down", "gain_margin")),
+    MarginSpec("delay_margin_s", "delay margin", "s", True, "unbounded (no gain crossover)",
+               ("delay_margin",)),
     MarginSpec("disk_margin_alpha", "disk margin alpha", "", True, "not available"),
     MarginSpec("sensitivity_peak_db", "sensitivity peak Ms", "dB", False, "not available"),
     MarginSpec("complementary_peak_db", "complementary peak Mt", "dB", False, "not available"),
@@ -79,7 +87,7 @@ MARGINS: tuple[MarginSpec, ...] = (
 
 @dataclass(frozen=True)
 class MarginChange:
-    key: str
+    metric: str               # MarginSpec.metric
     label: str
     unit: str
     before: float | None
@@ -88,6 +96,7 @@ class MarginChange:
     direction: str            # "better" | "worse" | "changed" (no better/worse for this metric)
     words: str | None         # the change in words when a side is None
     regression: str | None    # why this counts as a regression under the policy, else None
+                              # (then the change is information)
 
 
 @dataclass(frozen=True)
@@ -120,6 +129,11 @@ class RequirementChange:
     met_after: bool | None
     status: str                 # "stopped being met" | "now met" | "added" | "removed" | "changed"
     regression: str | None
+    unit: str = ""              # the metric's own unit (limits and values are in it)
+    limit_text_before: str = ""  # the limit as the model wrote it ("" for an expression)
+    limit_text_after: str = ""
+    file: str = ""              # where the requirement is written (new side, else old); "" = the model
+    line: int = 0
 
 
 @dataclass(frozen=True)
@@ -134,6 +148,7 @@ class BreakDiff:
     regressions: tuple[str, ...]
     stable_after: bool | None = None   # for added/removed breaks: their verdict on their side
     stable_before: bool | None = None
+    line: int = 0                      # the `break` line (new side, else old)
 
 
 @dataclass(frozen=True)
@@ -187,10 +202,12 @@ class DiffResult:
 
 # --------------------------------------------------------------------------- margins
 
-def _same(a: float | None, b: float | None) -> bool:
+def _same(a: float | None, b: float | None, unit: str = "") -> bool:
     if a is None or b is None:
         return a is None and b is None
-    return math.isclose(a, b, rel_tol=REL_TOL, abs_tol=ABS_TOL)
+    if unit in ABS_TOL:
+        return abs(a - b) < ABS_TOL[unit] or a == b
+    return math.isclose(a, b, rel_tol=REL_TOL, abs_tol=1e-300)
 
 
 def _as_number(spec: MarginSpec, x: float | None) -> float:
@@ -220,23 +237,21 @@ def _words(spec: MarginSpec, before: float | None, after: float | None) -> str |
     return None
 
 
-def _margin_regression(spec: MarginSpec, before: float | None, after: float | None,
-                       policy: Regression) -> str | None:
-    """The policy's loss thresholds; unbounded -> finite is an unbounded loss."""
-    if spec.key == "phase_margin_deg":
-        loss = _as_number(spec, before) - _as_number(spec, after)
-        if loss > policy.phase_margin_loss_deg:
+def _loss(spec: MarginSpec, before: float | None, after: float | None,
+          policy: Regression) -> str | None:
+    """The policy's loss threshold, when the loss exceeds it; unbounded -> finite is an
+    unbounded loss."""
+    if spec.metric == "phase_margin_deg":
+        if _as_number(spec, before) - _as_number(spec, after) > policy.phase_margin_loss_deg:
             return f"phase margin loss above {policy.phase_margin_loss_deg:g} deg"
-    elif spec.key == "gain_margin_up_db":
-        loss = _as_number(spec, before) - _as_number(spec, after)
-        if loss > policy.gain_margin_loss_db:
+    elif spec.metric == "gain_margin_up_db":
+        if _as_number(spec, before) - _as_number(spec, after) > policy.gain_margin_loss_db:
             return f"gain margin up loss above {policy.gain_margin_loss_db:g} dB"
-    elif spec.key == "gain_margin_down_db":
+    elif spec.metric == "gain_margin_down_db":
         # moving towards 0 dB (less room to reduce the gain) is the loss
-        loss = _as_number(spec, after) - _as_number(spec, before)
-        if loss > policy.gain_margin_loss_db:
+        if _as_number(spec, after) - _as_number(spec, before) > policy.gain_margin_loss_db:
             return f"gain margin down loss above {policy.gain_margin_loss_db:g} dB"
-    elif spec.key == "delay_margin_s":
+    elif spec.metric == "delay_margin_s":
         b, a = _as_number(spec, before), _as_number(spec, after)
         if b > 0 and a < b:
             fraction = 1.0 if math.isinf(b) else (b - a) / b
@@ -245,17 +260,88 @@ def _margin_regression(spec: MarginSpec, before: float | None, after: float | No
     return None
 
 
-def compare_margins(before: Margins, after: Margins, policy: Regression) -> tuple[MarginChange, ...]:
-    """Every margin that differs between two stable versions of one break."""
+def requirement_words(r: RequirementResult) -> str:
+    """`phase_margin >= 45deg`: the requirement with its limit as the model wrote it."""
+    limit = r.limit_text or (f"{r.limit:.4g} {r.unit}" if r.unit else f"{r.limit:.4g}")
+    return f"{r.metric} {r.op} {limit}"
+
+
+def _near(size: float, r: RequirementResult, policy: Regression) -> str | None:
+    """How close a margin (`size`, in the requirement's unit) is to a lower-bound
+    requirement it meets, when within the policy's distance."""
+    room = size - r.limit
+    if r.unit == "deg" and room <= policy.near_requirement_deg:
+        return f"within {policy.near_requirement_deg:g} deg"
+    if r.unit == "dB" and room <= policy.near_requirement_db:
+        return f"within {policy.near_requirement_db:g} dB"
+    if r.unit == "s" and r.limit > 0 and room <= policy.near_requirement_fraction * r.limit:
+        return f"within {policy.near_requirement_fraction:.0%}"
+    return None
+
+
+def _relevance(spec: MarginSpec, policy: Regression) -> tuple[float, str]:
+    """The level below which the margin matters on its own (0: none), in words."""
+    if spec.metric == "phase_margin_deg":
+        level = policy.relevant_phase_margin_deg
+        return level, f"{level:g} deg"
+    if spec.metric in ("gain_margin_up_db", "gain_margin_down_db"):
+        level = policy.relevant_gain_margin_db
+        return level, f"{level:g} dB"
+    if spec.metric == "delay_margin_s":
+        level = policy.relevant_delay_margin_s
+        return level, f"{level:g} s"
+    return 0.0, ""
+
+
+def matters(spec: MarginSpec, after: float | None, requirements: tuple[RequirementResult, ...],
+            policy: Regression) -> str | None:
+    """Why a margin's new value matters, or None: it fails a requirement on it or
+    comes within the policy's distance of one, or it is below its relevance level.
+
+    The margin's own value is judged (a gain margin down as the size of the
+    decrease), so `gain_margin >= 6dB`, which bounds both gain margins, counts
+    only for the one that is near it."""
+    if after is None:
+        return None  # unbounded: no limit is near
+    size = -after if spec.metric == "gain_margin_down_db" else after
+    for r in requirements:
+        if r.metric not in spec.requirements or r.op not in (">=", ">"):
+            continue
+        if not (size > r.limit if r.op == ">" else size >= r.limit):
+            return f"it fails `{requirement_words(r)}`"
+        near = _near(size, r, policy)
+        if near:
+            return f"{near} of `{requirement_words(r)}`"
+    level, words = _relevance(spec, policy)
+    if level > 0 and size < level:
+        default, _ = _relevance(spec, Regression())
+        return f"below {words} " + ("(common practice)" if level == default else "(the settings' level)")
+    return None
+
+
+def _margin_regression(spec: MarginSpec, before: float | None, after: float | None,
+                       policy: Regression, requirements: tuple[RequirementResult, ...] = ()) -> str | None:
+    """A loss beyond its threshold where it matters (`matters`); other changes are information."""
+    loss = _loss(spec, before, after, policy)
+    if loss is None:
+        return None
+    why = matters(spec, after, requirements, policy)
+    return None if why is None else f"{loss}; {why}"
+
+
+def compare_margins(before: Margins, after: Margins, policy: Regression,
+                    requirements: tuple[RequirementResult, ...] = ()) -> tuple[MarginChange, ...]:
+    """Every margin that differs (by more than the reports show) between two stable
+    versions of one break; `requirements` are the new side's, which say where a loss matters."""
     changes = []
     for spec in MARGINS:
         b, a = spec.value(before), spec.value(after)
-        if _same(b, a):
+        if _same(b, a, spec.unit):
             continue
         delta = None if b is None or a is None else a - b
         changes.append(MarginChange(
-            spec.key, spec.label, spec.unit, b, a, delta, _direction(spec, b, a),
-            _words(spec, b, a), _margin_regression(spec, b, a, policy)))
+            spec.metric, spec.label, spec.unit, b, a, delta, _direction(spec, b, a),
+            _words(spec, b, a), _margin_regression(spec, b, a, policy, requirements)))
     return tuple(changes)
 
 
@@ -275,7 +361,7 @@ def _req_key(reqs: tuple[RequirementResult, ...]) -> dict[tuple[str, str, int], 
 def _requirement_change(b: RequirementResult | None, a: RequirementResult | None,
                         policy: Regression) -> RequirementChange | None:
     if b is not None and a is not None:
-        if b.met == a.met and _same(b.limit, a.limit) and _same(b.value, a.value):
+        if b.met == a.met and _same(b.limit, a.limit) and _same(b.value, a.value, a.unit):
             return None
         status = ("stopped being met" if b.met and not a.met else
                   "now met" if a.met and not b.met else "changed")
@@ -290,8 +376,8 @@ def _requirement_change(b: RequirementResult | None, a: RequirementResult | None
         r.metric, r.op, b.limit if b else None, a.limit if a else None,
         b.value if b else None, a.value if a else None,
         b.met if b else None, a.met if a else None, status,
-        None if regression is None else f"{regression}: {r.metric} {r.op} "
-                                        f"{(a or b).limit:.4g}")
+        None if regression is None else f"{regression}: {requirement_words(r)}",
+        r.unit, b.limit_text if b else "", a.limit_text if a else "", r.file, r.line)
 
 
 def compare_requirements(before: tuple[RequirementResult, ...], after: tuple[RequirementResult, ...],
@@ -325,7 +411,7 @@ def compare_breaks(before: BreakResult, after: BreakResult, policy: Regression) 
                        after.closed_loop_rhp_poles, before.marginal, after.marginal)
     margins: tuple[MarginChange, ...] = ()
     if before.margins is not None and after.margins is not None:
-        margins = compare_margins(before.margins, after.margins, policy)
+        margins = compare_margins(before.margins, after.margins, policy, after.requirements)
     reqs = compare_requirements(before.requirements, after.requirements, policy)
     if verdict is None and not margins and not reqs and before.at == after.at:
         return None
@@ -333,7 +419,8 @@ def compare_breaks(before: BreakResult, after: BreakResult, policy: Regression) 
     regressions += [f"break {after.name}: {m.regression}" for m in margins if m.regression]
     regressions += [f"break {after.name}: {r.regression}" for r in reqs if r.regression]
     return BreakDiff(after.name, "changed", before.at, after.at, verdict, margins, reqs,
-                     tuple(regressions), stable_after=after.stable, stable_before=before.stable)
+                     tuple(regressions), stable_after=after.stable, stable_before=before.stable,
+                     line=after.line)
 
 
 def _added_break(after: BreakResult, policy: Regression) -> BreakDiff:
@@ -345,12 +432,12 @@ def _added_break(after: BreakResult, policy: Regression) -> BreakDiff:
                            f"(Z {after.closed_loop_rhp_poles})")
     regressions += [f"break {after.name}: {r.regression}" for r in reqs if r.regression]
     return BreakDiff(after.name, "added", None, after.at, None, (), reqs, tuple(regressions),
-                     stable_after=after.stable)
+                     stable_after=after.stable, line=after.line)
 
 
 def _removed_break(before: BreakResult) -> BreakDiff:
     return BreakDiff(before.name, "removed", before.at, None, None, (), (), (),
-                     stable_before=before.stable)
+                     stable_before=before.stable, line=before.line)
 
 
 # --------------------------------------------------------------------------- models

@@ -5,6 +5,7 @@ these objects, and the reporters (or :func:`render`) turn them into text.
 """
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -15,6 +16,7 @@ __all__ = [
     "ModelErrors",
     "Finding",
     "render",
+    "printable",
 ]
 
 
@@ -162,18 +164,30 @@ def source_line(span: Span, text: str | None = None) -> str | None:
 #: long lines are shown as a window around the column
 _WINDOW = 120
 
+#: what must not reach a terminal or a log as it is: C0 and C1 control characters
+#: and DEL (escape sequences clear screens and set window titles), line and
+#: paragraph separators, and the bidirectional embedding, override and isolate
+#: controls (they reorder what a reader sees)
+_UNSAFE = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
+
+
+def printable(text: str, keep: str = "\t") -> str:
+    """`text` safe for a terminal: every character of `_UNSAFE` becomes `?`, except
+    those in `keep` (a tab by default; pass "\t\n" for text of several lines).
+    One character for one, so columns under a caret stay where they were."""
+    return _UNSAFE.sub(lambda m: m.group() if m.group() in keep else "?", text)
+
 
 def render(finding: Finding, text: str | None = None) -> str:
     """`file:line:col: severity CODE message`, the line, a caret, a hint."""
     head = f"{finding.span}: {finding.severity} {finding.code} {finding.message}"
-    out = [head]
+    out = [printable(head)]
     line = source_line(finding.span, text)
     if finding.code == "LW104":
         line = None  # not text: echoing it would only print garbage
     if line is not None:
-        # a model's bytes must not drive the terminal: control characters become "?"
-        line = "".join(c if c == "\t" or (c.isprintable() and c != "\x7f") else "?" for c in line)
-    if line is not None:
+        # a model's bytes must not drive the terminal
+        line = printable(line)
         col = max(finding.span.col, 1)
         width = 1
         if finding.span.end_col and finding.span.end_col > finding.span.col:
@@ -191,5 +205,5 @@ def render(finding: Finding, text: str | None = None) -> str:
         out.append("    " + shown)
         out.append("    " + lead + "^" * width)
     if finding.hint:
-        out.append(f"    hint: {finding.hint}")
+        out.append(printable(f"    hint: {finding.hint}"))
     return "\n".join(out)

@@ -57,10 +57,10 @@ def judge(requirements: tuple[Requirement, ...], margins: Margins | None, separa
         if margins is None:
             out.append(RequirementResult(req.metric, req.op, req.limit, None, False, req.span.line,
                                          req.span.file, f"closed loop {verdict}: no margins",
-                                         METRICS[req.metric].unit))
+                                         METRICS[req.metric].unit, req.limit_text))
             continue
         value, note = metric_value(req.metric, margins, separation)
         met = value is not None and req.holds(value)
         out.append(RequirementResult(req.metric, req.op, req.limit, value, met, req.span.line,
-                                     req.span.file, note, METRICS[req.metric].unit))
+                                     req.span.file, note, METRICS[req.metric].unit, req.limit_text))
     return tuple(out)

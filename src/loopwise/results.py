@@ -16,7 +16,7 @@ from .errors import Finding
 __all__ = [
     "SCHEMA_VERSION", "GainCrossover", "PhaseCrossover", "DiskMargin", "Peak",
     "Margins", "RequirementResult", "LoopResponse", "HiddenMode", "BreakResult", "ModelResult",
-    "RunResult", "CAUTION",
+    "RunResult", "CAUTION", "error_to_dict",
 ]
 
 SCHEMA_VERSION = 2
@@ -28,10 +28,17 @@ CAUTION = (
 
 
 def _num(x: float | None) -> float | None:
+    """A number for JSON, which has no infinity: a non-finite one is written as null."""
     if x is None:
         return None
     x = float(x)
     return x if math.isfinite(x) else None
+
+
+def error_to_dict(e: Finding) -> dict:
+    """An error of a model that could not be read, as the JSON contracts write it."""
+    return {"file": e.span.file, "line": e.span.line, "col": e.span.col,
+            "code": e.code, "message": e.message, "hint": e.hint}
 
 
 @dataclass(frozen=True)
@@ -120,15 +127,12 @@ class RequirementResult:
     file: str = ""
     note: str | None = None
     unit: str = ""  # the metric's own unit, for display ("deg", "dB", "s", "rad/s", "")
+    limit_text: str = ""  # the limit as written in the model (`6dB`, `0.5Hz`); "" for an expression
 
     def to_dict(self) -> dict:
         return {"metric": self.metric, "op": self.op, "limit": _num(self.limit),
-                "value": _num(self.value), "met": bool(self.met), "line": self.line}
-
-    def describe(self) -> str:
-        u = f" {self.unit}" if self.unit else ""
-        v = "none" if self.value is None else f"{self.value:.4g}{u}"
-        return f"{self.metric} {self.op} {self.limit:.4g}{u} (value {v})"
+                "limit_text": self.limit_text, "value": _num(self.value), "met": bool(self.met),
+                "line": self.line}
 
 
 @dataclass(frozen=True, eq=False)
@@ -319,7 +323,6 @@ class RunResult:
             "schema": SCHEMA_VERSION, "tool": "loopwise", "version": self.version,
             "caution": CAUTION,
             "models": [m.to_dict() for m in self.models],
-            "errors": [{"file": e.span.file, "line": e.span.line, "col": e.span.col,
-                        "code": e.code, "message": e.message, "hint": e.hint} for e in self.errors],
+            "errors": [error_to_dict(e) for e in self.errors],
             "findings": [f.to_dict() for f in self.findings],
         }

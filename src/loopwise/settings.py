@@ -15,6 +15,12 @@ the file. Keys (all optional)::
     phase_margin_loss_deg = 5.0          # common practice, no source
     gain_margin_loss_db = 2.0            # common practice, no source
     delay_margin_loss_fraction = 0.20    # common practice, no source
+    near_requirement_deg = 5.0           # a loss matters within this of a requirement's limit (0 to 180)
+    near_requirement_db = 2.0            # (dB, 0 or more)
+    near_requirement_fraction = 0.20     # (delay margin: a fraction of the limit, 0 to 1)
+    relevant_phase_margin_deg = 60.0     # ... or below these levels (common practice, no source;
+    relevant_gain_margin_db = 12.0       #     0 switches a level off; deg 0 to 180, dB and s 0 or more)
+    relevant_delay_margin_s = 0.0
 
     [[tool.loopwise.waive]]              # accepted warnings, per file glob
     files = "models/tanks/*.loop"
@@ -46,7 +52,21 @@ _THRESHOLDS = {
     "phase_margin_loss_deg": (0.0, 180.0, "degrees of phase margin, 0 to 180"),
     "gain_margin_loss_db": (0.0, math.inf, "dB of gain margin, 0 or more"),
     "delay_margin_loss_fraction": (0.0, 1.0, "a fraction of the delay margin, 0 to 1 (0.2 is 20%)"),
+    # where a loss matters: a distance to a requirement's limit, and levels below which
+    # a margin matters on its own. A phase margin lies within 0 to 180 deg, so a wider
+    # distance or a higher level means nothing more; a fraction above 1 is most likely
+    # a percentage written as a number (20 for 20%); a negative level or distance
+    # would switch the check off without saying so (0 is the documented way)
+    "near_requirement_deg": (0.0, 180.0, "degrees of phase margin, 0 to 180"),
+    "near_requirement_db": (0.0, math.inf, "dB of gain margin, 0 or more"),
+    "near_requirement_fraction": (0.0, 1.0, "a fraction of the requirement's limit, 0 to 1 (0.2 is 20%)"),
+    "relevant_phase_margin_deg": (0.0, 180.0, "degrees of phase margin, 0 to 180 (0: off)"),
+    "relevant_gain_margin_db": (0.0, math.inf, "dB of gain margin, 0 or more (0: off)"),
+    "relevant_delay_margin_s": (0.0, math.inf, "seconds of delay margin, 0 or more (0: off)"),
 }
+
+#: the thresholds of a loss; the others say where a loss matters
+_LOSSES = ("phase_margin_loss_deg", "gain_margin_loss_db", "delay_margin_loss_fraction")
 
 
 def regression_problem(key: str, value) -> str | None:
@@ -59,6 +79,15 @@ def regression_problem(key: str, value) -> str | None:
     if not low <= value <= high:
         return f"must be {what}, not {value:g}"
     return None
+
+
+def _regression_hint(key: str) -> str:
+    if key in _LOSSES:
+        return "a threshold that no loss can exceed would switch that part of the diff gate off without saying so"
+    if key in _THRESHOLDS:
+        return ("a distance or level out of its range cannot say where a loss matters; "
+                "0 switches a level off")
+    return "write true or false (no quotes)"
 
 
 def glob_problem(pattern) -> str | None:
@@ -85,6 +114,15 @@ class Regression:
     delay_margin_loss_fraction: float = 0.20
     verdict_to_unstable: bool = True
     requirement_stops_being_met: bool = True
+    # a margin loss beyond its threshold is a regression only where it matters: it
+    # fails or comes this close to a requirement on that margin ...
+    near_requirement_deg: float = 5.0
+    near_requirement_db: float = 2.0
+    near_requirement_fraction: float = 0.20
+    # ... or it ends below these levels (common practice, no source; 0 switches one off)
+    relevant_phase_margin_deg: float = 60.0
+    relevant_gain_margin_db: float = 12.0
+    relevant_delay_margin_s: float = 0.0
 
     def __post_init__(self):
         for f in fields(self):
@@ -371,9 +409,7 @@ class _Reader:
             problem = regression_problem(key, value) if key in _THRESHOLDS else (
                 None if isinstance(value, bool) else "must be true or false")
             if problem:
-                self.fail("LW012", f"regression setting `{key}` {problem}", sub, key,
-                          "a threshold that no loss can exceed would switch that part of the diff gate off "
-                          "without saying so" if key in _THRESHOLDS else "write true or false (no quotes)")
+                self.fail("LW012", f"regression setting `{key}` {problem}", sub, key, _regression_hint(key))
         return Regression(**table)
 
     def waivers(self, entries) -> tuple[Waiver, ...]:

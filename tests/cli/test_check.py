@@ -55,7 +55,8 @@ def test_unmet_requirement_exits_1_and_names_its_line(tmp_path, cli):
     code, out, _ = cli("check", "m.loop")
     assert code == 1
     assert "FAIL  m.loop" in out
-    assert re.search(r"m\.loop:7: break b: phase_margin >= 70 deg \(value 55\.\d+ deg\)", out)
+    # the limit as the model wrote it, the value in the metric's unit
+    assert re.search(r"m\.loop:7: break b: phase_margin >= 70deg \(value 55\.\d+ deg\)", out)
 
 
 def test_instability_exits_1(tmp_path, cli):
@@ -138,7 +139,7 @@ def test_json_output_validates_and_carries_the_figures(tmp_path):
     assert (b["stable"], b["open_loop_rhp_poles"], b["encirclements"]) == (True, 0, 0)
     assert b["phase_margin_deg"] == pytest.approx(GOOD_PM_DEG, abs=0.05)
     assert b["requirements"] == [{"metric": "phase_margin", "op": ">=",
-                                  "limit": pytest.approx(30.0, rel=1e-12),
+                                  "limit": pytest.approx(30.0, rel=1e-12), "limit_text": "30deg",
                                   "value": pytest.approx(GOOD_PM_DEG, abs=0.05), "met": True,
                                   "line": 7}]
     assert tip["stable"] is False and tip["closed_loop_rhp_poles"] == 1

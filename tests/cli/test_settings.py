@@ -148,6 +148,44 @@ def test_nan_thresholds_no_longer_switch_the_diff_gate_off(tmp_path):
     assert "loopwise.toml:2:1: error LW012 regression setting `phase_margin_loss_deg`" in proc.stderr
 
 
+# --- where a diff's margin loss matters: distances and levels checked like the thresholds ----------
+
+RELEVANCE_CASES = [
+    # (the line under [regression], words in the message)
+    ("near_requirement_deg = nan", "finite"),
+    ("near_requirement_deg = 200", "0 to 180"),
+    ("near_requirement_db = -1", "0 or more"),
+    ("near_requirement_db = inf", "finite"),
+    ("near_requirement_fraction = 20", "0.2 is 20%"),
+    ("relevant_phase_margin_deg = -10", "0 to 180"),
+    ("relevant_phase_margin_deg = 181", "0 to 180"),
+    ("relevant_gain_margin_db = nan", "finite"),
+    ("relevant_delay_margin_s = -0.5", "0 or more"),
+    ('relevant_delay_margin_s = "1"', "not str"),
+    ("relevant_gain_margin_db = true", "not bool"),
+]
+
+
+@pytest.mark.parametrize("line, message", RELEVANCE_CASES, ids=[c[0].split()[0] + f"-{i}"
+                                                                for i, c in enumerate(RELEVANCE_CASES)])
+def test_a_bad_relevance_setting_is_a_located_error(tmp_path, line, message):
+    path = write(tmp_path, "loopwise.toml", f"[regression]\n{line}\n")
+    with pytest.raises(SettingsError) as info:
+        load_settings(tmp_path)
+    f = info.value.finding
+    assert (f.code, f.span.file, f.span.line, f.span.col) == ("LW012", str(path), 2, 1), str(info.value)
+    assert f"regression setting `{line.split()[0]}`" in f.message and message in f.message, f.message
+    assert "where a loss matters" in f.hint, f.hint
+    with pytest.raises(ValueError, match="regression setting"):  # the same rule for settings made in code
+        Regression(**tomllib.loads(f"{line}\n"))
+
+
+def test_relevance_settings_at_the_ends_of_their_ranges_are_taken():
+    ends = {"near_requirement_deg": 180, "near_requirement_db": 0, "near_requirement_fraction": 1,
+            "relevant_phase_margin_deg": 180, "relevant_gain_margin_db": 0, "relevant_delay_margin_s": 1e6}
+    assert {k: getattr(Regression(**ends), k) for k in ends} == ends
+
+
 # --- settings made in code are checked too ---------------------------------------------------------
 
 @pytest.mark.parametrize("kwargs", [{"phase_margin_loss_deg": math.nan}, {"gain_margin_loss_db": -1.0},

@@ -7,7 +7,7 @@ import xml.etree.ElementTree as ET
 import pytest
 
 from loopwise.cli import main
-from loopwise.report import BREAK_COLUMNS, break_row
+from loopwise.report.summary import BREAK_COLUMNS, break_row
 from loopwise.results import CAUTION
 from loopwise.run import check_paths
 

@@ -10,11 +10,10 @@ import argparse
 import os
 import sys
 
+from ..report import formats
 from .options import add_config, add_jobs, add_no_progress, add_output, load_settings_for
 
 __all__ = ["add_parser", "run"]
-
-_FORMATS = ("text", "json", "junit", "markdown")
 
 
 def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
@@ -26,7 +25,7 @@ def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
                "130 interrupted (Ctrl-C); 143 terminated (SIGTERM).",
     )
     p.add_argument("paths", nargs="+", metavar="PATH", help="model files or folders of models")
-    p.add_argument("-f", "--format", choices=_FORMATS, default="text",
+    p.add_argument("-f", "--format", choices=formats("check"), default="text",
                    help="report format (default: text)")
     add_output(p, "write the report to FILE; a text summary still goes to stdout unless --quiet")
     p.add_argument("-q", "--quiet", action="store_true",
@@ -80,7 +79,7 @@ def run(args) -> int:
     fail = settings.fail_on_warnings
     colour = _colour(args.color, sys.stdout)
     if args.output:
-        emit(render(result, args.format, fail_on_warnings=fail), args.output, protected)
+        emit(render(result, args.format, colour=False, fail_on_warnings=fail), args.output, protected)
         if not args.quiet:
             emit(render(result, "text", colour=colour, fail_on_warnings=fail))
             emit(f"{args.format} report written to {args.output}\n")

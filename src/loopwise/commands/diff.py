@@ -11,6 +11,7 @@ import argparse
 import dataclasses
 import sys
 
+from ..report import formats
 from .options import add_config, add_jobs, add_output
 
 __all__ = ["add_parser", "run"]
@@ -46,7 +47,7 @@ def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
                    help="OLD NEW (files or folders); with --rev: files or folders to limit the diff to")
     p.add_argument("--rev", action="append", default=[], metavar="REV",
                    help="a git revision (branch, tag, commit, HEAD~1); give twice for REV vs REV2")
-    p.add_argument("--format", choices=("text", "markdown", "json"), default="text",
+    p.add_argument("-f", "--format", choices=formats("diff"), default="text",
                    help="output format (default: text)")
     add_output(p, "write the report to FILE instead of stdout")
     add_config(p, "; with --rev, default: the base revision's own settings")
@@ -70,19 +71,10 @@ def _policy(args, settings):
     return dataclasses.replace(settings.regression, **overrides)
 
 
-def _render(result, fmt: str) -> str:
-    if fmt == "json":
-        from ..report import diff_json as reporter
-    elif fmt == "markdown":
-        from ..report import diff_markdown as reporter
-    else:
-        from ..report import diff_text as reporter
-    return reporter.render(result)
-
-
 def run(args) -> int:
     from ..compare import compare
     from ..output import emit, guard_output
+    from ..report import render
     from ..sides import from_paths, from_revisions
     from .options import load_settings_for
 
@@ -101,7 +93,7 @@ def run(args) -> int:
                            from_config=bool(args.config))
     result = compare(sides.old, sides.new, _policy(args, sides.settings), sides.old_label,
                      sides.new_label, sides.settings_note)
-    emit(_render(result, args.format), args.output, protected[0] if protected else None)
+    emit(render(result, args.format, kind="diff"), args.output, protected[0] if protected else None)
     if result.unreadable:
         files = ", ".join(m.file for m in result.unreadable)
         print(f"loopwise: cannot read on the new side: {files}", file=sys.stderr)

@@ -63,7 +63,7 @@ def output_paths(model: str, breaks: list[str], kinds: list[str], output: str | 
 
 
 def _model(path: str, settings):
-    from ..report import finding_text
+    from ..report.summary import finding_text
     from ..run import check_one
 
     if not Path(path).is_file():

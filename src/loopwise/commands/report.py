@@ -37,8 +37,8 @@ def add_parser(subparsers, help_text: str):
 
 def run(args) -> int:
     from ..output import emit, guard_output, protected_inputs
-    from ..report import finding_text
     from ..progress import progress_bar, wants_progress
+    from ..report.summary import finding_text
     from ..report.html import figure_count, render_html
     from ..run import check_files, discover, exit_status
 

@@ -49,6 +49,7 @@ class Requirement:
     span: Span
     target_span: Span
     text: str
+    limit_text: str = ""  # the limit as the model wrote it (`6dB`, `0.5Hz`); "" for an expression
 
     def holds(self, value: float | None) -> bool:
         """Whether a value meets the limit; None means unbounded (inf) or absent."""
@@ -89,5 +90,6 @@ def make_requirement(stmt: ast.RequireStmt, const) -> Requirement:
     limit = _to_metric_unit(metric, q.value, q.kind, stmt.value.span)
     # 30deg -> rad -> deg must read 30, not 29.999999999999996
     limit = float(f"{limit:.12g}")
+    written = stmt.value.text if isinstance(stmt.value, ast.Number) else ""
     return Requirement(stmt.target, stmt.metric, stmt.op, limit, stmt.span, stmt.target_span,
-                       f"{stmt.target} {stmt.metric} {stmt.op} {limit:g}{metric.unit}")
+                       f"{stmt.target} {stmt.metric} {stmt.op} {limit:g}{metric.unit}", written)

@@ -6,27 +6,26 @@ signed delta, and a regression under the policy says so at the end of its line.
 from __future__ import annotations
 
 from ..compare import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
+from ..language.requirements import METRICS
 from ..results import CAUTION
 from ..settings import Regression
+from ..errors import printable
+from .numbers import fmt_time
 
 __all__ = ["render", "fmt_value", "fmt_delta", "verdict_words", "requirement_words",
            "policy_words", "summary_words", "margin_words"]
 
-#: a requirement metric's unit (limits are stored in the metric's own unit)
-REQUIREMENT_UNITS = {
-    "phase_margin": "deg", "gain_margin": "dB", "gain_margin_up": "dB", "gain_margin_down": "dB",
-    "delay_margin": "s", "disk_gain": "dB", "disk_phase": "deg", "crossover": "rad/s",
-}
+def _s(text) -> str:
+    """A user-controlled string (file, model and break names) on one line, terminal-safe."""
+    return printable(str(text), keep="")
 
 
 def fmt_value(x: float | None, unit: str, none_words: str = "none") -> str:
-    """A value with its unit; delays in the most readable of s, ms, us."""
+    """A value with its unit; times in natural units (`fmt_time`)."""
     if x is None:
         return none_words
     if unit == "s":
-        for scale, name in ((1.0, "s"), (1e-3, "ms"), (1e-6, "us")):
-            if abs(x) >= scale or name == "us":
-                return f"{x / scale:.4g} {name}"
+        return fmt_time(x, 4)
     if unit in ("deg", "dB"):
         return f"{x:.2f} {unit}"
     if unit == "":
@@ -67,18 +66,25 @@ def verdict_words(v: VerdictChange) -> str:
             f"(Z {v.z_before} -> {v.z_after}, {v.direction})")
 
 
+def _limit(r: RequirementChange, side: str) -> str:
+    """A requirement's limit as the model wrote it (in the metric's unit for an expression)."""
+    text = r.limit_text_after if side == "after" else r.limit_text_before
+    value = r.limit_after if side == "after" else r.limit_before
+    return text or fmt_value(value, r.unit)
+
+
 def requirement_words(r: RequirementChange) -> str:
-    unit = REQUIREMENT_UNITS.get(r.metric, "")
-    limit = r.limit_after if r.limit_after is not None else r.limit_before
-    head = f"{r.metric} {r.op} {fmt_value(limit, unit)}"
-    if r.limit_before is not None and r.limit_after is not None and r.limit_before != r.limit_after:
-        head += f" (limit was {fmt_value(r.limit_before, unit)})"
+    side = "after" if r.limit_after is not None else "before"
+    head = f"{r.metric} {r.op} {_limit(r, side)}"
+    if r.limit_before is not None and r.limit_after is not None and (
+            r.limit_before != r.limit_after or r.limit_text_before != r.limit_text_after):
+        head += f" (limit was {_limit(r, 'before')})"
     met = {True: "met", False: "NOT MET", None: "absent"}
-    value = f"value {fmt_value(r.value_before, unit)} -> {fmt_value(r.value_after, unit)}"
+    value = f"value {fmt_value(r.value_before, r.unit)} -> {fmt_value(r.value_after, r.unit)}"
     if r.status == "added":
-        value = f"value {fmt_value(r.value_after, unit)}"
+        value = f"value {fmt_value(r.value_after, r.unit)}"
     elif r.status == "removed":
-        value = f"value {fmt_value(r.value_before, unit)}"
+        value = f"value {fmt_value(r.value_before, r.unit)}"
     return f"{head}: {met[r.met_before]} -> {met[r.met_after]} ({r.status}; {value})"
 
 
@@ -86,11 +92,18 @@ def policy_words(p: Regression) -> str:
     parts = [f"phase margin loss > {p.phase_margin_loss_deg:g} deg",
              f"gain margin loss > {p.gain_margin_loss_db:g} dB (up or down)",
              f"delay margin loss > {p.delay_margin_loss_fraction:.0%}"]
+    levels = [f"{name} {value:g} {unit}" for name, value, unit in (
+        ("PM", p.relevant_phase_margin_deg, "deg"), ("GM", p.relevant_gain_margin_db, "dB"),
+        ("delay margin", p.relevant_delay_margin_s, "s")) if value > 0]
+    where = (f"where the margin fails or comes within {p.near_requirement_deg:g} deg, "
+             f"{p.near_requirement_db:g} dB or {p.near_requirement_fraction:.0%} of a requirement"
+             + (f", or ends below {', '.join(levels)}" if levels else ""))
+    text = ", ".join(parts) + f" ({where})"
     if p.verdict_to_unstable:
-        parts.append("a loop that becomes unstable")
+        text += "; a loop that becomes unstable"
     if p.requirement_stops_being_met:
-        parts.append("a requirement that stops being met")
-    return ", ".join(parts)
+        text += "; a requirement that stops being met"
+    return text
 
 
 def summary_words(result: DiffResult) -> str:
@@ -123,13 +136,13 @@ def _break_lines(d: BreakDiff) -> list[str]:
     at = d.at_after or d.at_before
     if d.status == "added":
         state = "stable" if d.stable_after else "UNSTABLE"
-        lines = [f"  + break {d.name} (at {at}): added, {state}"]
+        lines = [f"  + break {_s(d.name)} (at {_s(at)}): added, {state}"]
     elif d.status == "removed":
-        return [f"  - break {d.name} (at {at}): removed"]
+        return [f"  - break {_s(d.name)} (at {_s(at)}): removed"]
     else:
-        lines = [f"  break {d.name} (at {at})"]
+        lines = [f"  break {_s(d.name)} (at {_s(at)})"]
         if d.at_before != d.at_after:
-            lines.append(f"    opened at {d.at_before} -> {d.at_after}")
+            lines.append(f"    opened at {_s(d.at_before)} -> {_s(d.at_after)}")
     if d.verdict is not None:
         lines.append(f"    verdict {verdict_words(d.verdict)}")
         if not (d.stable_before and d.stable_after):
@@ -141,12 +154,12 @@ def _break_lines(d: BreakDiff) -> list[str]:
 
 
 def _model_lines(m: ModelDiff) -> list[str]:
-    head = f"{m.file}: {m.status}"
+    head = f"{_s(m.file)}: {m.status}"
     if m.status in ("added", "errors disappeared"):
         head += f" ({'stable' if m.stable_after else 'UNSTABLE'}, {m.breaks_after} break(s))"
     lines = [head]
     if m.model_before and m.model_after and m.model_before != m.model_after:
-        lines.append(f"  model renamed {m.model_before} -> {m.model_after}")
+        lines.append(f"  model renamed {_s(m.model_before)} -> {_s(m.model_after)}")
     if m.verdict is not None and not any(d.verdict for d in m.breaks):
         lines.append(f"  model verdict {verdict_words(m.verdict)}")
     for d in m.breaks:
@@ -160,12 +173,12 @@ def _model_lines(m: ModelDiff) -> list[str]:
             lines += ["  " + ln for ln in block.splitlines()]
     for r in m.regressions:
         if r.startswith("model "):  # the break rows carry their own flags
-            lines.append(f"  REGRESSION: {r}")
+            lines.append(f"  REGRESSION: {_s(r)}")
     return lines
 
 
 def render(result: DiffResult) -> str:
-    out = [f"loopwise diff: {result.old_label} -> {result.new_label}",
+    out = [f"loopwise diff: {_s(result.old_label)} -> {_s(result.new_label)}",
            f"regression: {policy_words(result.policy)}"]
     if result.settings:
         out.append(f"settings: {result.settings}")
@@ -181,6 +194,7 @@ def render(result: DiffResult) -> str:
         out += [f"{unchanged} model{'s' if unchanged != 1 else ''} unchanged", ""]
     out.append(summary_words(result))
     for r in result.regressions:
-        out.append(f"  regression: {r}")
+        out.append(f"  regression: {_s(r)}")
     out += ["", CAUTION]
-    return "\n".join(out) + "\n"
+    # rendered errors and regressions quote names: nothing in them may drive a terminal
+    return printable("\n".join(out), keep="\n") + "\n"

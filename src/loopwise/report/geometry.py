@@ -12,6 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..results import BreakResult, LoopResponse
+from .summary import break_status as verdict_word  # the tables' word for a break's verdict
 
 __all__ = [
     "Ring", "choose_ring", "closed_curve", "winding_number", "Crossing",
@@ -197,12 +198,6 @@ def _crossings_from_samples(response: LoopResponse) -> tuple[Crossing, ...]:
             f = _interp(w[i], w[i + 1], im[i], im[i + 1])
             out.append(Crossing("phase", f, complex(re), -20.0 * math.log10(-re), None, False))
     return tuple(out)
-
-
-def verdict_word(result: BreakResult) -> str:
-    if result.marginal:
-        return "MARGINAL"
-    return "STABLE" if result.stable else "UNSTABLE"
 
 
 def bode_range(response: LoopResponse, marks: tuple[Crossing, ...]) -> np.ndarray:
