@@ -3,7 +3,7 @@
 This package module holds what the formats share: the status words, the table
 of per-break figures, the number formats, and the pass/fail tally. It imports
 only the standard library (the command line loads it at start-up); plots live
-in `report/plots.py`, loaded only by the commands that draw.
+in the `report/plots` package, loaded only by the commands that draw.
 """
 from __future__ import annotations
 

@@ -383,29 +383,29 @@ def simplify_mask(p: np.ndarray, tol: float, guard: np.ndarray | None = None) ->
     keep[:-1] |= ~finite[1:]
     keep[1:] |= ~finite[:-1]
     q = np.where(finite[:, None], p, 0.0)
-    while True:
+    g = None if guard is None else np.asarray(guard, float)[None]
+    open_ = np.flatnonzero(~keep)  # points whose segment is not settled yet
+    while open_.size:
         kept = np.flatnonzero(keep)
-        seg = np.searchsorted(kept, np.arange(n), side="right") - 1  # segment of each point
-        seg = np.minimum(seg, kept.size - 2) if kept.size > 1 else seg
-        inner = ~keep & finite
-        if not inner.any():
-            return keep
-        a, b = q[kept[seg]], q[kept[np.minimum(seg + 1, kept.size - 1)]]
-        d = np.where(inner, _segment_distance(q, a, b), -1.0)
+        seg = np.searchsorted(kept, open_) - 1  # the kept point before each open point
+        a, b = kept[seg], kept[seg + 1]
+        d = _segment_distance(q[open_], q[a], q[b])
         worst = np.full(kept.size, -1.0)
         np.maximum.at(worst, seg, d)
         split = worst > tol
-        if guard is not None:
-            g = np.asarray(guard, float)[None]
-            ga, gb = q[kept[:-1]], q[kept[1:]]
-            near = _segment_distance(np.repeat(g, kept.size - 1, axis=0), ga, gb) <= tol
-            split[:-1] |= near & (worst[:-1] >= 0)
+        if g is not None:
+            starts = np.unique(seg)
+            near = _segment_distance(np.repeat(g, starts.size, axis=0), q[kept[starts]],
+                                     q[kept[starts + 1]]) <= tol
+            split[starts[near]] = True
         if not split.any():
-            return keep
-        hit = inner & split[seg] & (d == worst[seg])
+            break
+        hit = split[seg] & (d == worst[seg])
         first = np.flatnonzero(hit)
         _, at = np.unique(seg[first], return_index=True)
-        keep[first[at]] = True
+        keep[open_[first[at]]] = True
+        open_ = open_[split[seg] & ~keep[open_]]  # settled segments drop out
+    return keep
 
 
 def _segment_distance(q: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:

@@ -20,7 +20,9 @@ BODE_KEY = (0.735, 0.075, 0.255, 0.86)
 SENS_SIZE = (8.6, 4.4)
 SENS_RECTS = {"main": (0.09, 0.105, 0.62, 0.8)}
 SENS_KEY = (0.735, 0.105, 0.255, 0.8)
-#: the phase axis covers the phase up to this factor above the highest marked crossover
+#: a phase curve spanning at most this many degrees is shown whole; a wider one
+#: (a delay's lag) up to PHASE_VIEW_ABOVE times the highest marked crossover
+WHOLE_PHASE_UP_TO = 540.0
 PHASE_VIEW_ABOVE = 2.0
 
 _MAG_TAG = [(0, 9), (0, -10), (11, 9), (-11, 9), (11, -10), (-11, -10), (0, 17), (0, -18),
@@ -39,12 +41,20 @@ def _axis_data(result: BreakResult, marks, hz: bool):
     return w[keep], w[keep] * scale, L[keep], phase[keep], scale
 
 
+#: minor ticks (at 2 and 5) only on frequency axes spanning at most this many decades
+MINOR_TICKS_UP_TO = 6.0
+
+
 def _log_frequency_axis(ax) -> None:
-    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+    from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter, NullLocator
 
     ax.xaxis.set_major_locator(LogLocator(base=10, numticks=12))
-    # two minor ticks a decade read as well as eight and cost a quarter of the drawing
-    ax.xaxis.set_minor_locator(LogLocator(base=10, subs=(2.0, 5.0), numticks=12))
+    # two minor ticks a decade read as well as eight; over a wide span the decade
+    # grid alone reads well, and every tick costs a few artists to draw
+    lo, hi = ax.get_xlim()
+    wide = lo > 0 and math.log10(hi / lo) > MINOR_TICKS_UP_TO
+    ax.xaxis.set_minor_locator(NullLocator() if wide else
+                               LogLocator(base=10, subs=(2.0, 5.0), numticks=12))
     ax.xaxis.set_major_formatter(FuncFormatter(decade_label))
     ax.xaxis.set_minor_formatter(NullFormatter())
 
@@ -110,16 +120,20 @@ def bode_figure(result: BreakResult, *, model: str | None = None, hz: bool = Fal
 
 
 def _phase_view(ph_ax, w, phase, focus, levels):
-    """Phase limits that keep the crossovers readable: from the lowest frequency to
-    PHASE_VIEW_ABOVE times the highest marked crossover, and the critical lines.
+    """Phase limits that keep the crossovers readable: the whole curve when it
+    spans at most WHOLE_PHASE_UP_TO, else from the lowest frequency to
+    PHASE_VIEW_ABOVE times the highest marked crossover; and the critical lines.
     Beyond, a delay's lag runs off the bottom; returns (lower limit, frequency
     where the curve leaves the view) then, else None."""
     from matplotlib.ticker import MultipleLocator
 
-    if phase.size == 0:
+    finite = phase[np.isfinite(phase)]
+    if finite.size == 0:
         return None
-    near = phase[w <= PHASE_VIEW_ABOVE * max(focus)] if focus else phase
-    near = near[np.isfinite(near)] if near.size else phase[np.isfinite(phase)]
+    near = finite
+    if focus and np.ptp(finite) > WHOLE_PHASE_UP_TO:
+        near = phase[(w <= PHASE_VIEW_ABOVE * max(focus)) & np.isfinite(phase)]
+        near = near if near.size else finite
     lo = min(float(near.min()), *levels) if levels else float(near.min())
     hi = max(float(near.max()), *levels) if levels else float(near.max())
     pad = max(0.08 * (hi - lo), 20.0)
