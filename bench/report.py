@@ -15,14 +15,17 @@ and the median of `--repeat` runs is printed, so both sides see the same load:
   warm-up (the check itself is the engine's business, see bench/check.py);
 - the page size and the largest inline figure.
 
-Ratios are this tree / reference (below 1: faster or smaller). Absolute times
-depend on the machine and its load and are printed only for context.
+Ratios are this tree / reference (below 1: faster or smaller). Wall times
+depend on the machine and its load; the CPU seconds beside them (the command
+with its worker processes, or the drawing process) are steadier on a shared
+machine. Absolute figures are printed only for context.
 """
 from __future__ import annotations
 
 import argparse
 import json
 import os
+import resource
 import statistics
 import subprocess
 import sys
@@ -41,11 +44,11 @@ from loopwise.run import check_paths
 from loopwise.report.html import figure_count, render_html
 run = check_paths(sys.argv[1:])
 render_html(run)  # warm-up: imports, font cache
-t = time.perf_counter()
+t, c = time.perf_counter(), time.process_time()
 page = render_html(run)
-draw = time.perf_counter() - t
+draw, cpu = time.perf_counter() - t, time.process_time() - c
 figures = re.findall(r"<svg.*?</svg>", page, flags=re.S)
-print(json.dumps({"draw": draw, "bytes": len(page.encode()), "figures": figure_count(run),
+print(json.dumps({"draw": draw, "cpu": cpu, "bytes": len(page.encode()), "figures": figure_count(run),
                   "largest": max((len(f.encode()) for f in figures), default=0),
                   "models": len(run.models), "breaks": sum(len(m.breaks) for m in run.models)}))
 """
@@ -68,12 +71,18 @@ def _env(src: Path) -> dict:
     return env
 
 
-def _command(src: Path, paths: list[str], jobs: int, out: Path) -> float:
-    t = time.perf_counter()
+def _cpu() -> float:
+    r = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return r.ru_utime + r.ru_stime
+
+
+def _command(src: Path, paths: list[str], jobs: int, out: Path) -> tuple[float, float]:
+    """(wall seconds, CPU seconds of the command and its worker processes)."""
+    t, c = time.perf_counter(), _cpu()
     subprocess.run([sys.executable, "-m", "loopwise", "report", *paths, "--output", str(out),
                     "--no-progress", "--jobs", str(jobs)], env=_env(src), check=False,
                    stdout=subprocess.DEVNULL)
-    return time.perf_counter() - t
+    return time.perf_counter() - t, _cpu() - c
 
 
 def _draw(src: Path, paths: list[str]) -> dict:
@@ -97,17 +106,19 @@ def main(argv: list[str]) -> int:
             for name, src in sides.items():  # the two sides take turns under the same load
                 r = results[name]
                 for jobs in (1, 2):
-                    r.setdefault(f"loopwise report --jobs {jobs}", []).append(
-                        _command(src, args.paths, jobs, tmp / f"{jobs}.html"))
+                    wall, cpu = _command(src, args.paths, jobs, tmp / f"{jobs}.html")
+                    r.setdefault(f"loopwise report --jobs {jobs}", []).append(wall)
+                    r.setdefault(f"  CPU time, --jobs {jobs}", []).append(cpu)
                 d = _draw(src, args.paths)
                 r.setdefault("drawing alone (1 process)", []).append(d["draw"])
+                r.setdefault("  CPU time, drawing alone", []).append(d["cpu"])
                 r["size"] = d
     ref, new = results["reference"]["size"], results["this tree"]["size"]
     print(f"{', '.join(args.paths)}: {new['models']} models, {new['breaks']} breaks, "
           f"{new['figures']} figures; reference {args.reference} in a temporary folder; "
           f"median of {args.repeat}; load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} CPUs")
     print(f"{'':32}{'reference':>12}{'this tree':>12}{'ratio':>8}")
-    for key in ("loopwise report --jobs 1", "loopwise report --jobs 2", "drawing alone (1 process)"):
+    for key in [k for k in results["this tree"] if k != "size"]:
         a = statistics.median(results["reference"][key])
         b = statistics.median(results["this tree"][key])
         print(f"{key:32}{a:10.2f} s{b:10.2f} s{b / a:8.2f}")

@@ -181,46 +181,83 @@ def _ink_inside(box, ink: np.ndarray) -> int:
     return int(np.count_nonzero((x > box[0]) & (x < box[2]) & (y > box[1]) & (y < box[3])))
 
 
+def _half_size(ax, renderer, text: str, style: dict) -> tuple[float, float]:
+    """Half the width and height (display units) of a label's box, padding included."""
+    probe = ax.annotate(text, (0, 0), xycoords="figure pixels", **style)
+    ext = probe.get_window_extent(renderer)
+    probe.remove()
+    pad = 1.5 * ax.figure.dpi / 72.0
+    return ext.width / 2 + pad, ext.height / 2 + pad
+
+
+def _box(ax, xy, off, half) -> tuple:
+    cx, cy = ax.transData.transform(xy) + np.asarray(off) * ax.figure.dpi / 72.0
+    return (cx - half[0], cy - half[1], cx + half[0], cy + half[1])
+
+
+def _clash(box, taken, frame) -> float:
+    outside = box[0] < frame.x0 or box[2] > frame.x1 or box[1] < frame.y0 or box[3] > frame.y1
+    return sum(_overlap(box, t) for t in taken) + (1e9 if outside else 0.0)
+
+
+def _annotate(ax, label: Label, xy, off) -> None:
+    arrow = None
+    if math.hypot(*off) > label.leader_beyond:
+        arrow = dict(arrowstyle="-", color=label.style.get("color", "#555555"), lw=0.6,
+                     shrinkA=0, shrinkB=3)
+    ax.annotate(label.text, xy, xytext=off, textcoords="offset points", arrowprops=arrow,
+                annotation_clip=False, gid=label.gid, **label.style).set_in_layout(False)
+
+
 def place_labels(ax, labels: list[Label], obstacles: list, ink: np.ndarray) -> list:
     """Put each label at its first spot that overlaps no obstacle and no label
     placed before it and stays inside the axes; among those, fewer curve points
     (`ink`, display coordinates) under the box win. Returns the boxes taken
     (display coordinates, x0 y0 x1 y1), so later labels can avoid them too."""
-    fig = ax.figure
-    renderer = renderer_of(fig)
-    px = fig.dpi / 72.0
+    renderer = renderer_of(ax.figure)
     frame = ax.get_window_extent(renderer)
     taken = [tuple(b) for b in obstacles]
     for label in labels:
-        probe = ax.annotate(label.text, (0, 0), xycoords="figure pixels", **label.style)
-        ext = probe.get_window_extent(renderer)
-        probe.remove()
-        pad = 1.5 * px
-        hw, hh = ext.width / 2 + pad, ext.height / 2 + pad
+        half = _half_size(ax, renderer, label.text, label.style)
         best = None
         reach = sorted({round(math.hypot(*off), 1) for _, off in label.spots})
         for rank, (xy, off) in enumerate(label.spots):
-            cx, cy = ax.transData.transform(xy) + np.asarray(off) * px
-            box = (cx - hw, cy - hh, cx + hw, cy + hh)
-            outside = (box[0] < frame.x0 or box[2] > frame.x1 or box[1] < frame.y0
-                       or box[3] > frame.y1)
-            clash = sum(_overlap(box, t) for t in taken) + (1e9 if outside else 0.0)
+            box = _box(ax, xy, off, half)
+            clash = _clash(box, taken, frame)
             # a few curve points under a near tag cost less than a long leader
             far = reach.index(round(math.hypot(*off), 1))
             score = (clash, min(_ink_inside(box, ink), 4) + 2 * far, rank)
             if best is None or score < best[0]:
                 best = (score, xy, off, box)
-            if clash == 0 and score[1] == 2 * far == 0:
+            if clash == 0 and score[1] == 0:
                 break
         _, xy, off, box = best
-        arrow = None
-        if math.hypot(*off) > label.leader_beyond:
-            arrow = dict(arrowstyle="-", color=label.style.get("color", "#555555"), lw=0.6,
-                         shrinkA=0, shrinkB=3)
-        ax.annotate(label.text, xy, xytext=off, textcoords="offset points", arrowprops=arrow,
-                    annotation_clip=False, gid=label.gid, **label.style).set_in_layout(False)
+        _annotate(ax, label, xy, off)
         taken.append(box)
     return taken
+
+
+def place_together(ax, labels: list[Label], obstacles: list, ink: np.ndarray) -> list:
+    """Put labels that belong together at the k-th spot of each (the same k for
+    all): the first k where none overlaps another, an obstacle or the frame, and
+    fewest curve points lie under them. Returns the boxes taken with the obstacles."""
+    renderer = renderer_of(ax.figure)
+    frame = ax.get_window_extent(renderer)
+    taken = [tuple(b) for b in obstacles]
+    halves = [_half_size(ax, renderer, label.text, label.style) for label in labels]
+    best = None
+    for k in range(min(len(label.spots) for label in labels)):
+        boxes = [_box(ax, *label.spots[k], half) for label, half in zip(labels, halves)]
+        clash = sum(_clash(b, taken + boxes[:i], frame) for i, b in enumerate(boxes))
+        score = (clash, sum(_ink_inside(b, ink) for b in boxes), k)
+        if best is None or score < best[0]:
+            best = (score, k, boxes)
+        if score[:2] == (0, 0):
+            break
+    _, k, boxes = best
+    for label in labels:
+        _annotate(ax, label, *label.spots[k])
+    return taken + boxes
 
 
 def ring_of_offsets(radii=(10, 15, 22, 32), start_deg: float = 90.0, count: int = 8):

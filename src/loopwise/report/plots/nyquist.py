@@ -10,9 +10,9 @@ import numpy as np
 from ...results import BreakResult
 from ..geometry import (Ring, choose_ring, closed_curve, densify_ring_arcs, select_crossings,
                         verdict_word, zoom_near_critical)
-from .common import (INK, KEY_SIZE, Label, Panel, display_points, freq_label, freq_symbol, marker_box,
-                     need_response, new_figure, place_labels, renderer_of, ring_of_offsets,
-                     style, thin_lines, title, unmarked_lines)
+from .common import (INK, KEY_SIZE, Label, Panel, display_points, freq_label, freq_symbol,
+                     marker_box, need_response, new_figure, place_labels, place_together,
+                     renderer_of, ring_of_offsets, style, thin_lines, title, unmarked_lines)
 
 #: page width and height (inches); the page is taller when an inset near -1 is
 #: drawn, so the inset finds room in the side panel instead of hiding the curve
@@ -78,7 +78,7 @@ def nyquist_figure(result: BreakResult, *, model: str | None = None, hz: bool = 
             obstacles.append(_inset(ax, response, zoom, ink, obstacles, free))
         taken = place_labels(ax, _tags(marks, points), obstacles, ink)
         if ring is not None:
-            place_labels(ax, _ring_labels(ring), taken, ink)
+            place_together(ax, _ring_labels(ring), taken, ink)
         thin_lines(fig)
     return fig
 
@@ -101,8 +101,9 @@ def _guides(ax, ring: Ring | None) -> None:
 
 
 def _ring_labels(ring: Ring) -> list[Label]:
-    """x10, x100, x1000 on their circles; each takes the first angle where it
-    clashes with nothing placed before (the circles lie 6-13 points apart)."""
+    """x10, x100, x1000 on their circles, as a staircase (each a step further round,
+    the circles lie 6-13 points apart), the whole staircase at the first angle
+    where it clashes with nothing placed before."""
     out = []
     for n, k in enumerate((10, 100, 1000)):
         rho = ring.radius_of(k * ring.inner)
