@@ -8,7 +8,8 @@ their `--format` choices from `formats(kind)` and write with `render`.
 Only the standard library is imported here (the commands read the choices for
 `--help`); a reporter's module loads when it is used. Shared helpers live in
 `report.summary` (the per-model summary every format renders), `report.numbers`
-(quantities and times) and `report.escape` (one sanitiser per format).
+(quantities and times) and `report.escape` (one sanitiser per format);
+plots live in the `report/plots` package, loaded only by the commands that draw.
 """
 from __future__ import annotations
 
