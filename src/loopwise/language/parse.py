@@ -8,14 +8,13 @@ from __future__ import annotations
 import functools
 import math
 import re
-from importlib import resources
-from pathlib import Path
 
 from lark import Lark, Token, Transformer, Tree, v_args
 from lark.exceptions import UnexpectedCharacters, UnexpectedInput, UnexpectedToken
 
 from ..errors import ModelError, Span
 from . import ast
+from .tables import grammar_text, load_parser
 from .units import to_si
 
 __all__ = ["parse_text", "grammar_text", "MAX_MODEL_BYTES", "MAX_NESTING", "RESERVED"]
@@ -38,23 +37,10 @@ _NUMBER = re.compile(
 )
 
 
-def grammar_text() -> str:
-    """The grammar, from the installed package or from the source tree."""
-    try:
-        return resources.files("loopwise").joinpath("grammar/loopwise.lark").read_text("utf-8")
-    except (FileNotFoundError, OSError, ModuleNotFoundError):
-        here = Path(__file__).resolve()
-        for parent in here.parents:
-            candidate = parent / "grammar" / "loopwise.lark"
-            if candidate.is_file():
-                return candidate.read_text("utf-8")
-        raise
-
-
 @functools.lru_cache(maxsize=1)
 def _parser() -> Lark:
-    # cache=True keeps the built LALR tables in the temp folder: later start-ups skip the build
-    return Lark(grammar_text(), parser="lalr", propagate_positions=True, maybe_placeholders=False, cache=True)
+    # the LALR tables ship in the package (tables.py): no cache file is read from a shared folder
+    return load_parser()
 
 
 class _ToAst(Transformer):
