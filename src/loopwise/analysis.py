@@ -60,9 +60,10 @@ def prepare_text(text: str, file: str = "<text>", settings=None) -> Prepared:
                                  getattr(settings, "source", None) or "<settings>"))
 
 
-def prepare_file(path, settings=None) -> Prepared:
+def prepare_file(path, settings=None, root=None) -> Prepared:
+    """`root`: the checked paths' common folder; outside git, includes must stay inside it."""
     return _prepare(resolve_file(path, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>"))
+                                 getattr(settings, "source", None) or "<settings>", root))
 
 
 def check_text(text: str, file: str = "<text>", settings=None, indent: str = "right") -> ModelResult:
@@ -70,9 +71,11 @@ def check_text(text: str, file: str = "<text>", settings=None, indent: str = "ri
     return check_prepared(prepare_text(text, file, settings), indent)
 
 
-def check_file(path, settings=None, indent: str = "right") -> ModelResult:
-    """Check one model file; raises ModelError(s) when it cannot be read."""
-    return check_prepared(prepare_file(path, settings), indent)
+def check_file(path, settings=None, indent: str = "right", root=None) -> ModelResult:
+    """Check one model file; raises ModelError(s) when it cannot be read. Includes must
+    stay in the git work tree holding the model, outside git in `root` (default: the
+    model's folder); see docs/language.md, `use`."""
+    return check_prepared(prepare_file(path, settings, root), indent)
 
 
 def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:

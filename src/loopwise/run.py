@@ -131,16 +131,17 @@ def _not_text(path: str, exc: UnicodeDecodeError) -> Finding:
                    "a model is plain UTF-8 text")
 
 
-def check_one(path: str, settings=None) -> tuple[object | None, tuple[Finding, ...]]:
+def check_one(path: str, settings=None, root=None) -> tuple[object | None, tuple[Finding, ...]]:
     """Check one model file: (ModelResult, ()) or (None, its errors as findings).
 
+    `root` is the checked paths' common folder (where includes must stay outside git).
     Exceptions do not cross the process boundary (ModelError does not pickle),
     so every failure is turned into findings here.
     """
     from .analysis import check_file  # the heavy stages load on first use
 
     try:
-        return check_file(path, settings=settings), ()
+        return check_file(path, settings=settings, root=root), ()
     except ModelErrors as exc:
         return None, tuple(e.as_finding() for e in exc.errors)
     except ModelError as exc:
@@ -177,10 +178,10 @@ def _progress_bar(total: int):
     return bar, (lambda: bar.advance(task))
 
 
-def _run_serial(files, settings, tick):
+def _run_serial(files, settings, tick, root=None):
     out = []
     for f in files:
-        out.append(check_one(str(f), settings))
+        out.append(check_one(str(f), settings, root))
         tick()
     return out
 
@@ -193,7 +194,7 @@ def _worker_start() -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
-def _run_parallel(files, settings, jobs, tick):
+def _run_parallel(files, settings, jobs, tick, root=None):
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
     from . import analysis  # noqa: F401  (loaded once here, forked workers inherit it)
@@ -203,7 +204,7 @@ def _run_parallel(files, settings, jobs, tick):
         # larger files first (a rough proxy for cost) so a big model does not start
         # last and leave the other workers idle; results keep discovery order
         order = sorted(range(len(files)), key=lambda i: -_size(files[i]))
-        futures = {pool.submit(check_one, str(files[i]), settings): i for i in order}
+        futures = {pool.submit(check_one, str(files[i]), settings, root): i for i in order}
         try:
             for fut in as_completed(futures):
                 i = futures[fut]
@@ -245,8 +246,11 @@ def check_paths(paths, settings=None, jobs: int = 1, progress: bool = False):
     from .results import RunResult
     from .settings import Settings
 
+    from .language.source import common_root
+
     settings = settings or Settings()
     files = discover(paths, settings)
+    root = common_root(paths)  # outside git, includes stay inside the checked paths' folder
     if jobs == 0:
         jobs = os.cpu_count() or 1
     jobs = max(1, min(jobs, len(files)))
@@ -256,9 +260,9 @@ def check_paths(paths, settings=None, jobs: int = 1, progress: bool = False):
         bar.start()
     try:
         if jobs == 1:
-            outcomes = _run_serial(files, settings, tick)
+            outcomes = _run_serial(files, settings, tick, root)
         else:
-            outcomes = _run_parallel(files, settings, jobs, tick)
+            outcomes = _run_parallel(files, settings, jobs, tick, root)
     finally:
         if bar is not None:
             bar.stop()

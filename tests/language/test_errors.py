@@ -12,6 +12,8 @@ import random
 
 import pytest
 
+import numpy as np
+
 from loopwise.errors import LoopwiseError, ModelError, ModelErrors
 from loopwise.language.parse import MAX_MODEL_BYTES, parse_text
 
@@ -347,6 +349,19 @@ def test_exp_of_something_else_is_refused():
     _model_error(text, line=3)
 
 
+@pytest.mark.parametrize("delay", ["param Td = 0", "param Td = 0ms", "param Td = 2 - 2"])
+def test_zero_delay_is_no_delay(delay):
+    # regression: `param Td = 0` with `exp(-Td*s)` was refused (LW232) although the
+    # docs allow T >= 0; T = 0 is the constant 1
+    text = BASE.replace("model m\n", f"model m\n{delay}\n").replace(
+        "block C = 2*(1 + 1/(0.5*s))", "block C = 2*(1 + 1/(0.5*s))*exp(-Td*s)")
+    prep = _prepare_text(text)
+    tf = prep.model.blocks["C"].transfer
+    assert tf.delay == 0.0
+    s = np.array([0.3j, 2j, 40j])
+    np.testing.assert_allclose(tf.evaluate(s), 2 * (1 + 1 / (0.5 * s)), rtol=1e-13)
+
+
 def test_unknown_signal_suggests_a_close_name():
     text = BASE.replace("e = r - y", "e = r - yy")
     err = _model_error(text, line=4)
@@ -487,3 +502,37 @@ def test_include_file_alone_is_a_library_not_a_model():
     result = check_file(MODELS / "common" / "conveyor_drive.loop")
     assert result.breaks == ()
     assert [f.code for f in result.findings] == ["LW491"]
+
+
+def test_latin1_byte_in_a_comment_is_refused_where_it_stands(tmp_path):
+    # regression: the file was decoded with errors="replace", so a Latin-1 byte in a
+    # comment passed although the docs say bytes that are not UTF-8 are refused
+    path = tmp_path / "m.loop"
+    path.write_bytes(BASE.replace("model m\n", "model m\n# r\xe9glage du gain\n").encode("latin-1"))
+    with pytest.raises(ModelError) as info:
+        _check_file(path)
+    err = info.value
+    assert (err.code, err.span.line, err.span.col) == ("LW104", 2, 4)
+    from loopwise.errors import render
+    assert render(err.as_finding()).split("\n") == [
+        f"{path}:2:4: error LW104 the file is not UTF-8 text here", "    hint: a model is plain UTF-8 text"]
+
+
+def test_a_file_name_that_is_not_utf8_renders(tmp_path):
+    # regression: the name's undecodable byte (a surrogate) broke every rendering of the error
+    import json
+    import os
+
+    from loopwise.errors import render
+    path = tmp_path / os.fsdecode(b"gain\xff.loop")
+    path.write_text("input r\ny = q\n")
+    with pytest.raises(ModelErrors) as info:
+        _check_file(path)
+    finding = info.value.errors[0].as_finding()
+    text = render(finding)
+    text.encode("utf-8")  # printable and writable as UTF-8
+    assert text.split("\n")[:3] == [f"{tmp_path}/gain\\xff.loop:2:5: error LW218 unknown signal or param `q`",
+                                    "    y = q", "        ^"]
+    data = finding.to_dict()
+    assert data["file"] == f"{tmp_path}/gain\\xff.loop"
+    json.dumps(data, ensure_ascii=False).encode("utf-8")

@@ -14,16 +14,20 @@ from lark.exceptions import UnexpectedCharacters, UnexpectedInput, UnexpectedTok
 
 from ..errors import ModelError, Span
 from . import ast
+from .source import MAX_MODEL_BYTES
 from .tables import grammar_text, load_parser
 from .units import to_si
 
-__all__ = ["parse_text", "grammar_text", "MAX_MODEL_BYTES", "MAX_NESTING", "RESERVED"]
-
-#: a model larger than this is refused before parsing (a clear refusal, never a hang)
-MAX_MODEL_BYTES = 4 * 1024 * 1024
+__all__ = ["parse_text", "grammar_text", "MAX_MODEL_BYTES", "MAX_NESTING", "MAX_TOKENS", "RESERVED",
+           "count_tokens"]
 
 #: deeper expressions are refused: the tree walks below recurse once per level
 MAX_NESTING = 200
+
+#: a model and the files it uses may hold at most this many tokens together (names,
+#: numbers, operators, quoted paths, comments and line ends; about 2,000 lines of a dense
+#: model), counted before parsing: it bounds the time and memory of reading any input
+MAX_TOKENS = 20_000
 
 #: words the grammar never accepts as a name (keep in step with NAME in the grammar)
 RESERVED = frozenset({"model", "use", "param", "input", "block", "break", "require", "at", "in"})
@@ -36,11 +40,24 @@ _NUMBER = re.compile(
     r"(?P<num>(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?)(?P<unit>kHz|Hz|min|ms|us|ns|h|deg|rad|dB|%)?$"
 )
 
+#: what the token budget counts: every lexeme the parser sees, comments and line ends too
+_LEXEME = re.compile(r'#[^\n]*|"[^"\n]*"?|(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?[\w%]*|\w+|->|>=|<=|\n|\S')
+
 
 @functools.lru_cache(maxsize=1)
 def _parser() -> Lark:
     # the LALR tables ship in the package (tables.py): no cache file is read from a shared folder
     return load_parser()
+
+
+def count_tokens(text: str, limit: int) -> tuple[int, int | None]:
+    """(tokens counted, offset of the first token past `limit` or None); stops there."""
+    n = 0
+    for m in _LEXEME.finditer(text):
+        if n == limit:
+            return n, m.start()
+        n += 1
+    return n, None
 
 
 class _ToAst(Transformer):
@@ -252,8 +269,12 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str) -> ModelError:
     return ModelError("LW101", "syntax error", Span(file, line, col), _GENERIC_HINT)
 
 
-def parse_text(text: str, file: str = "<text>") -> ast.ModelFile:
-    """Parse one model file's text into its syntax tree (includes unresolved)."""
+def parse_text(text: str, file: str = "<text>", tokens_left: int | None = None) -> ast.ModelFile:
+    """Parse one model file's text into its syntax tree (includes unresolved).
+
+    `tokens_left` is what remains of the token budget of a model that includes
+    this file (None: a file on its own, `MAX_TOKENS`).
+    """
     if len(text) > MAX_MODEL_BYTES:
         raise ModelError(
             "LW105", f"the model is too large ({len(text) // 1024} KiB; the limit is {MAX_MODEL_BYTES // 1024 // 1024} MiB)",
@@ -264,6 +285,9 @@ def parse_text(text: str, file: str = "<text>") -> ast.ModelFile:
         raise ModelError("LW104", "the file holds binary data, not model text", Span(file, line, 1),
                          "a model is plain UTF-8 text")
     text = text.removeprefix("\ufeff")  # a byte-order mark some editors write
+    tokens, over = count_tokens(text, MAX_TOKENS if tokens_left is None else max(tokens_left, 0))
+    if over is not None:
+        raise _too_many_tokens(text, over, file, tokens_left is not None)
     try:
         tree = _parser().parse(text + "\n")
     except UnexpectedInput as exc:
@@ -278,7 +302,17 @@ def parse_text(text: str, file: str = "<text>") -> ast.ModelFile:
         if not math.isfinite(stmt.value) or (stmt.value == 0.0 and re.match(r"[0.]*[1-9]", stmt.text)):
             raise ModelError("LW106", f"the number `{stmt.text}` is out of range", stmt.span,
                              "numbers must be finite and within about 1e-300 to 1e300")
-    return ast.ModelFile(file, statements)
+    return ast.ModelFile(file, statements, tokens)
+
+
+def _too_many_tokens(text: str, offset: int, file: str, included: bool) -> ModelError:
+    line = text.count("\n", 0, offset) + 1
+    col = offset - (text.rfind("\n", 0, offset) + 1) + 1
+    whose = "the model and the files it uses hold" if included else "the file holds"
+    return ModelError("LW108", f"too large to read: {whose} more than {MAX_TOKENS:,} tokens",
+                      Span(file, line, col),
+                      f"a model with its included files may hold {MAX_TOKENS:,} tokens (names, numbers, "
+                      "operators, comments and line ends); check its loops as separate models")
 
 
 def _too_deep(tree: Tree) -> Tree | None:

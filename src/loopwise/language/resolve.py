@@ -10,6 +10,7 @@ the closed-loop characteristic function ``prod(den_b) * det(I - A)`` right.
 from __future__ import annotations
 
 import math
+import os
 from pathlib import Path
 
 import numpy as np
@@ -17,19 +18,27 @@ import numpy as np
 from ..errors import Finding, ModelError, ModelErrors, Span
 from ..transfer import Transfer
 from . import ast
-from .parse import parse_text
 from .evaluate import Evaluator
 from .model import Application, Block, Model, Quantity, Term
+from .parse import MAX_TOKENS, parse_text
 from .requirements import make_requirement
+from .source import SourceError, include_root, is_within, read_source
 
-__all__ = ["Quantity", "Block", "Application", "Term", "Model", "resolve_text", "resolve_file"]
+__all__ = ["Quantity", "Block", "Application", "Term", "Model", "resolve_text", "resolve_file",
+           "MODEL_SUFFIX"]
 
 RESERVED = {"s", "exp", "model", "use", "param", "input", "block", "break", "require", "at", "in"}
 
+#: the only files a `use` may name (their lines may be shown under an error)
+MODEL_SUFFIX = ".loop"
+
 
 class _Resolver:
-    def __init__(self, file: str):
+    def __init__(self, file: str, root: Path):
         self.file = file
+        self.root = root  # every include must resolve inside it (resolved, links followed)
+        self.included: set[Path] = set()  # each file is read and collected once per model
+        self.tokens_left = MAX_TOKENS
         self.errors: list[ModelError] = []
         self.findings: list[Finding] = []
         self.params: dict[str, Quantity] = {}
@@ -64,7 +73,7 @@ class _Resolver:
         self.names[name] = (what, span)
         return True
 
-    def collect(self, mf: ast.ModelFile, include_stack: tuple[Path, ...], top: bool) -> None:
+    def collect(self, mf: ast.ModelFile, include_stack: tuple[tuple[Path, str], ...], top: bool) -> None:
         for i, stmt in enumerate(mf.statements):
             if isinstance(stmt, ast.ModelStmt):
                 if not top:
@@ -103,30 +112,60 @@ class _Resolver:
             elif isinstance(stmt, ast.RequireStmt):
                 self.requires.append(stmt)
 
-    def include(self, stmt: ast.UseStmt, stack: tuple[Path, ...]) -> None:
-        base = stack[-1].parent if stack else Path.cwd()
-        path = (base / stmt.path).resolve()
-        if path in stack:
-            chain = " -> ".join(p.name for p in (*stack[stack.index(path):], path))
-            self.errors.append(ModelError("LW205", f"include cycle: {chain}", stmt.span,
+    def include(self, stmt: ast.UseStmt, stack: tuple[tuple[Path, str], ...]) -> None:
+        """Read, parse and collect the file a `use` names: once per model, inside the root.
+
+        `stack` holds (real path, shown name) of the files being collected, the model first.
+        """
+        base, shown_base = (stack[-1][0].parent, os.path.dirname(stack[-1][1])) if stack \
+            else (Path.cwd(), "")
+        target = base / stmt.path
+        try:
+            real = target.resolve()
+        except (OSError, RuntimeError):  # a loop of links (RuntimeError before Python 3.13)
+            self.errors.append(ModelError("LW206", f"cannot read included file {stmt.path}: a loop of "
+                                          "symbolic links", stmt.span, "point the path at a real file"))
+            return
+        if not is_within(real, self.root):
+            self.errors.append(ModelError(
+                "LW207", f"included file {stmt.path} lies outside the repository", stmt.span,
+                f"a `use` must stay inside {self.root} (the repository or checked folder that holds "
+                "the model); links are followed before this check"))
+            return
+        if target.suffix != MODEL_SUFFIX or real.suffix != MODEL_SUFFIX:
+            self.errors.append(ModelError(
+                "LW207", f"included file {stmt.path} is not a `{MODEL_SUFFIX}` file", stmt.span,
+                f"a `use` names another model file ending in `{MODEL_SUFFIX}`; other files are never read"))
+            return
+        chain = [p for p, _ in stack]
+        if real in chain:
+            names = " -> ".join(p.name for p in (*chain[chain.index(real):], real))
+            self.errors.append(ModelError("LW205", f"include cycle: {names}", stmt.span,
                                           "a file may not use itself, directly or through others"))
             return
+        if real in self.included:
+            return  # the same library reached again (a diamond): its names are already in
+        self.included.add(real)
+        shown = _shown_path(shown_base, stmt.path, real)
         try:
-            text = path.read_text(encoding="utf-8", errors="replace")
-        except FileNotFoundError:
-            self.errors.append(ModelError("LW206", f"included file not found: {stmt.path}", stmt.span,
-                                          f"the path is relative to this file's folder ({base})"))
-            return
-        except OSError as exc:
-            self.errors.append(ModelError("LW206", f"cannot read included file {stmt.path}: {exc.strerror}",
-                                          stmt.span, None))
+            text = read_source(real)
+        except SourceError as exc:
+            if exc.code == "LW104":  # a .loop file inside the repository: its place may be shown
+                self.errors.append(ModelError("LW104", exc.reason, Span(shown, exc.line, exc.col),
+                                              "a model is plain UTF-8 text"))
+            else:
+                self.errors.append(ModelError("LW206", f"cannot read included file {stmt.path}: {exc.reason}",
+                                              stmt.span, f"the path is relative to the folder of the file "
+                                              f"that holds the `use` ({shown_base or '.'})"))
             return
         try:
-            mf = parse_text(text, str(path))
+            mf = parse_text(text, shown, self.tokens_left)
         except ModelError as exc:
             self.errors.append(exc)
+            self.tokens_left = 0 if exc.code == "LW108" else self.tokens_left
             return
-        self.collect(mf, (*stack, path), top=False)
+        self.tokens_left -= mf.tokens
+        self.collect(mf, (*stack, (real, shown)), top=False)
 
     # --- expressions --------------------------------------------------------------
     def const(self, expr: ast.Expr, what: str) -> Quantity:
@@ -188,7 +227,10 @@ class _Resolver:
     # --- the pass ---------------------------------------------------------------
     def resolve(self, mf: ast.ModelFile, path: Path | None, extra_requirements=()) -> Model:
         self.all_params = {st.name for st in mf.statements if isinstance(st, ast.ParamStmt)}
-        self.collect(mf, (path,) if path else (), top=True)
+        self.tokens_left = MAX_TOKENS - mf.tokens
+        if path is not None:
+            self.included.add(path)
+        self.collect(mf, ((path, self.file),) if path else (), top=True)
         for stmt in self.block_stmts.values():
             self.eval_block(stmt)
         for name, stmt in self.eq_stmts.items():
@@ -245,8 +287,24 @@ class _Resolver:
         return name
 
 
+def _shown_path(shown_base: str, relative: str, real: Path) -> str:
+    """An included file's name as errors show it: the including file's folder, as that
+    file is shown, joined with the `use` path (relative when the model's name was), or
+    the real path when links make that name lead elsewhere."""
+    shown = os.path.normpath(os.path.join(shown_base, relative))
+    try:
+        if Path(shown).resolve() == real:
+            return shown
+    except (OSError, RuntimeError):
+        pass
+    return str(real)
+
+
 def resolve_text(text: str, file: str = "<text>", extra_requirements: tuple[str, ...] = (),
-                 extra_source: str = "<settings>") -> Model:
+                 extra_source: str = "<settings>", root: str | os.PathLike | None = None) -> Model:
+    """Resolve a model given as text. Includes are relative to `file`'s folder (the working
+    directory for "<text>") and must stay inside `root`: by default the git work tree
+    holding that folder, else the folder itself (see `source.include_root`)."""
     mf = parse_text(text, file)
     path = Path(file).resolve() if not file.startswith("<") else None
     extra = []
@@ -259,15 +317,16 @@ def resolve_text(text: str, file: str = "<text>", extra_requirements: tuple[str,
                 raise ModelError("LW240", f"a default requirement must look like `* metric >= value`: {line!r}",
                                  Span(extra_source, i + 1, 1), "for example `* phase_margin >= 45deg`")
             extra.append(stmt)
-    return _Resolver(file).resolve(mf, path, tuple(extra))
+    model_root = include_root(None if path is None else file, root)
+    return _Resolver(file, model_root).resolve(mf, path, tuple(extra))
 
 
 def _settings_position(source: str, requirement: str, index: int) -> str:
     """`require <requirement>` placed at the line and column where the settings file
     holds it (found by its text), or on line index + 1 when it cannot be found."""
     try:
-        lines = Path(source).read_text(encoding="utf-8").split("\n")
-    except (OSError, ValueError):
+        lines = read_source(source).split("\n") if not source.startswith("<") else []
+    except SourceError:
         lines = []
     for n, text in enumerate(lines):
         col = text.find(requirement)
@@ -276,16 +335,30 @@ def _settings_position(source: str, requirement: str, index: int) -> str:
     return "\n" * index + "require " + requirement
 
 
-def resolve_file(path: str | Path, extra_requirements: tuple[str, ...] = (),
-                 extra_source: str = "<settings>") -> Model:
-    p = Path(path)
+def resolve_file(path: str | os.PathLike, extra_requirements: tuple[str, ...] = (),
+                 extra_source: str = "<settings>", root: str | os.PathLike | None = None) -> Model:
+    """Read and resolve one model file: a regular file, at most 4 MiB, UTF-8 text.
+
+    `root` is the folder tree of the checked paths (the command line passes their
+    common folder): used outside git, where includes must stay inside it; inside a
+    git work tree they must stay inside the work tree. The model itself, links
+    followed, must lie in that root too.
+    """
+    file = os.fspath(path)
+    model_root = include_root(file, root)
     try:
-        data = p.read_bytes()
-    except FileNotFoundError:
-        raise ModelError("LW001", "no such file", Span(str(path), 0, 0), None) from None
-    except IsADirectoryError:
-        raise ModelError("LW001", "is a folder, not a model file", Span(str(path), 0, 0), None) from None
-    except OSError as exc:
-        raise ModelError("LW001", f"cannot read the file: {exc.strerror}", Span(str(path), 0, 0), None) from None
-    text = data.decode("utf-8", errors="replace")
-    return resolve_text(text, str(path), extra_requirements, extra_source)
+        real = Path(file).resolve()
+    except (OSError, RuntimeError):
+        raise ModelError("LW001", "cannot read the file: a loop of symbolic links", Span(file, 0, 0), None) from None
+    if not is_within(real, model_root):
+        raise ModelError("LW001", "the model is a link to a file outside the repository", Span(file, 0, 0),
+                         f"check the file where it lies; links that lead out of {model_root} are not followed")
+    try:
+        text = read_source(file)
+    except SourceError as exc:
+        if exc.code == "LW104":
+            raise ModelError("LW104", exc.reason, Span(file, exc.line, exc.col), "a model is plain UTF-8 text") \
+                from None
+        raise ModelError(exc.code, exc.reason, Span(file, 0, 0),
+                         "split it into files joined with `use`" if exc.code == "LW105" else None) from None
+    return resolve_text(text, file, extra_requirements, extra_source, model_root)
