@@ -13,7 +13,6 @@ the smallest such A. Loops that only partly overlap are not nested.
 """
 from __future__ import annotations
 
-import difflib
 import itertools
 from dataclasses import dataclass
 
@@ -22,6 +21,7 @@ import numpy as np
 
 from ..errors import Finding, ModelError, ModelErrors, Span
 from ..language.ast import BreakStmt
+from ..language.hints import did_you_mean as _hint  # the one "did you mean" rule
 from ..language.resolve import Model, Term
 
 __all__ = ["Diagram", "BreakCut", "build_diagram", "MAX_CYCLES"]
@@ -53,11 +53,6 @@ class Diagram:
 
     def index(self) -> dict[str, int]:
         return {n: i for i, n in enumerate(self.signals)}
-
-
-def _hint(name: str, options) -> str | None:
-    m = difflib.get_close_matches(name, list(options), n=1, cutoff=0.6)
-    return f"did you mean `{m[0]}`?" if m else None
 
 
 def _feeds(term: Term) -> bool:

@@ -6,7 +6,7 @@ applications). It reads the resolver's tables and records its findings there.
 """
 from __future__ import annotations
 
-import difflib
+import itertools
 import math
 
 import numpy as np
@@ -16,7 +16,10 @@ from ..transfer import Transfer, TransferError
 from . import ast
 from .model import Application, Quantity, Term
 
-__all__ = ["Evaluator", "close_match", "MAX_ORDER"]
+__all__ = ["Evaluator", "BUILT_IN", "MAX_ORDER"]
+
+#: names the language gives a meaning (never declared): name -> what it is
+BUILT_IN = {"s": "the Laplace variable", "exp": "the delay function"}
 
 #: a constant beyond this is taken for an overflow (as for literals, LW106)
 _LARGEST = 1e300
@@ -25,11 +28,6 @@ _LARGEST = 1e300
 #: power of a transfer): its polynomial arithmetic costs up to order^3 per sum, and beyond
 #: a few dozen the coefficients carry no digits worth the name
 MAX_ORDER = 32
-
-
-def close_match(name: str, options) -> str | None:
-    match = difflib.get_close_matches(name, list(options), n=1, cutoff=0.6)
-    return f"did you mean `{match[0]}`?" if match else None
 
 
 def _finite(value: float, span: Span) -> float:
@@ -82,12 +80,21 @@ class Evaluator:
         if e.name in r.all_params:
             raise ModelError("LW217", f"param `{e.name}` is used before it is defined", e.span,
                              "params may only use params defined above them")
-        known = list(r.params) + (list(r.eq_stmts) + list(r.inputs) if self.mode == "wiring" else [])
-        what = "signal or param" if self.mode == "wiring" else "param"
+        wiring = self.mode == "wiring"
+        what = "signal or param" if wiring else "param"
         fallback = (f"define it: `{e.name} = ...` for a signal, `input {e.name}` for an input, "
-                    f"or `param {e.name} = ...`") if self.mode == "wiring" else \
+                    f"or `param {e.name} = ...`") if wiring else \
             f"define it above with `param {e.name} = ...`"
-        raise ModelError("LW218", f"unknown {what} `{e.name}`", e.span, close_match(e.name, known + ["s"]) or fallback)
+        known = (lambda: itertools.chain(r.params, r.eq_stmts, r.inputs, ["s"])) if wiring else \
+            (lambda: itertools.chain(r.params, ["s"]))
+        raise ModelError("LW218", f"unknown {what} `{e.name}`", e.span,
+                         r.hints.did_you_mean(e.name, known, self.mode) or fallback)
+
+    def known(self, name: str) -> bool:
+        """Whether a name means something here (so that `e` can be a user's param)."""
+        r = self.r
+        return name in r.params or name in r.all_params or name in r.param_spans or \
+            name in r.block_stmts or name in r.eq_stmts or name in r.inputs
 
     def binary(self, op: str, a, b, span: Span):
         if isinstance(a, Quantity) and isinstance(b, Quantity):
@@ -155,6 +162,8 @@ class Evaluator:
         return -v
 
     def ev_Power(self, e: ast.Power):
+        if isinstance(e.base, ast.Name) and e.base.name == "e" and not self.known("e"):
+            raise _euler_power(e, self.mode)
         base = self.ev(e.base)
         exp_value = self.ev(e.exponent)
         if not isinstance(exp_value, Quantity):
@@ -204,7 +213,8 @@ class Evaluator:
                              "the only function is exp(-T*s) for a pure delay")
         if e.func not in r.block_stmts:
             raise ModelError("LW227", f"unknown block `{e.func}`", e.func_span,
-                             close_match(e.func, r.block_stmts) or "define it with `block Name = ...`")
+                             r.hints.did_you_mean(e.func, lambda: r.block_stmts, "block")
+                             or "define it with `block Name = ...`")
         if e.func not in r.blocks:
             raise ModelError("LW228", f"block `{e.func}` could not be evaluated (see its error)",
                              e.func_span, "fix the error reported at the block's definition first")
@@ -258,6 +268,33 @@ def _scale(t: Term, k: float, span: Span | None = None) -> Term:
     if span is not None:
         _finite(gain, span)
     return Term(t.source, gain, t.app, t.span)
+
+
+def _euler_power(e: ast.Power, mode: str) -> ModelError:
+    """`e^(-Td*s)`: there is no constant `e`; a delay is written exp(-T*s)."""
+    shown = _delay_time(e.exponent)
+    if mode == "transfer" or shown is not None:
+        example = f"exp(-{shown}*s)" if shown else "exp(-T*s)"
+        return ModelError("LW218", "unknown param `e`: a delay is not written as a power of `e`", e.base.span,
+                          f"write a pure delay as `{example}` (T >= 0 in seconds)")
+    return ModelError("LW218", "unknown param `e`: the language has no constant `e`", e.base.span,
+                      "write the number (2.718281828459045) or define `param e = ...`; "
+                      "a pure delay is written `exp(-T*s)`")
+
+
+def _delay_time(x: ast.Expr) -> str | None:
+    """`Td` or `150us` when x reads -Td*s (that is (-Td)*s) or -(Td*s), else None."""
+    if isinstance(x, ast.BinOp) and x.op == "*" and isinstance(x.left, ast.Neg):
+        time, laplace = x.left.operand, x.right
+    elif isinstance(x, ast.Neg) and isinstance(x.operand, ast.BinOp) and x.operand.op == "*":
+        time, laplace = x.operand.left, x.operand.right
+    else:
+        return None
+    if not (isinstance(laplace, ast.Name) and laplace.name == "s"):
+        return None
+    if isinstance(time, ast.Name):
+        return time.name
+    return time.text if isinstance(time, ast.Number) else None
 
 
 def _delay(arg, e: ast.Call) -> Transfer:

@@ -18,7 +18,8 @@ import numpy as np
 from ..errors import Finding, ModelError, ModelErrors, Span
 from ..transfer import Transfer
 from . import ast
-from .evaluate import Evaluator
+from .evaluate import BUILT_IN, Evaluator
+from .hints import Hints
 from .model import Application, Block, Model, Quantity, Term
 from .parse import MAX_TOKENS, parse_text
 from .requirements import make_requirement
@@ -26,8 +27,6 @@ from .source import SourceError, include_root, is_within, read_source
 
 __all__ = ["Quantity", "Block", "Application", "Term", "Model", "resolve_text", "resolve_file",
            "MODEL_SUFFIX"]
-
-RESERVED = {"s", "exp", "model", "use", "param", "input", "block", "break", "require", "at", "in"}
 
 #: the only files a `use` may name (their lines may be shown under an error)
 MODEL_SUFFIX = ".loop"
@@ -39,6 +38,7 @@ class _Resolver:
         self.root = root  # every include must resolve inside it (resolved, links followed)
         self.included: set[Path] = set()  # each file is read and collected once per model
         self.tokens_left = MAX_TOKENS
+        self.hints = Hints()
         self.errors: list[ModelError] = []
         self.findings: list[Finding] = []
         self.params: dict[str, Quantity] = {}
@@ -60,9 +60,10 @@ class _Resolver:
 
     # --- collecting statements (includes first, in place) ----------------------
     def declare(self, name: str, what: str, span: Span) -> bool:
-        if name in RESERVED:
-            self.errors.append(ModelError("LW201", f"`{name}` is a reserved word and cannot name {'an' if what[0] in 'aeiou' else 'a'} {what}",
-                                          span, "choose another name"))
+        if name in BUILT_IN:
+            self.errors.append(ModelError(
+                "LW201", f"`{name}` is a reserved word ({BUILT_IN[name]}) and cannot name "
+                f"{'an' if what[0] in 'aeiou' else 'a'} {what}", span, "choose another name"))
             return False
         if name in self.names:
             prev_what, prev = self.names[name]
