@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import functools
 import os
+import re
 from dataclasses import dataclass
 
 __all__ = [
@@ -20,19 +21,15 @@ __all__ = [
 ]
 
 
+#: lone surrogates: the bytes of a file name that were not UTF-8 (PEP 383), or any other
+_UNPRINTABLE_NAME = re.compile("[\ud800-\udfff]")
+
+
 def display_name(file: str) -> str:
-    """A file name that can always be printed and encoded: bytes of the name that
-    were not UTF-8 (kept as surrogates by the file system layer) shown as `\\xff`."""
-    try:
-        file.encode("utf-8")
-        return file
-    except UnicodeEncodeError:
-        pass
-    try:
-        raw = file.encode("utf-8", errors="surrogateescape")
-    except UnicodeEncodeError:
-        return file.encode("utf-8", errors="backslashreplace").decode("utf-8")
-    return raw.decode("utf-8", errors="backslashreplace")
+    """A file name that can always be printed and written as UTF-8: bytes of the name
+    that were not UTF-8 (kept as lone surrogates) shown as U+FFFD, as the output
+    writer shows them (`loopwise.output.display_safe`)."""
+    return _UNPRINTABLE_NAME.sub("\ufffd", file)
 
 
 @dataclass(frozen=True)
@@ -56,7 +53,13 @@ class LoopwiseError(Exception):
 
 
 class ModelError(LoopwiseError):
-    """A mistake in a model, with a stable code, a location and a hint."""
+    """A model that cannot be read: the one type `check_text` / `check_file` raise
+    for every unreadable model, whether the mistake is in its syntax or its meaning.
+
+    `errors` lists every located error found (each a ModelError with `code`,
+    `message`, `span` and `hint`); a single mistake is its own one-item list.
+    `code`, `message`, `span` and `hint` are those of the first error.
+    """
 
     def __init__(self, code: str, message: str, span: Span, hint: str | None = None):
         super().__init__(message)
@@ -68,16 +71,47 @@ class ModelError(LoopwiseError):
     def __str__(self) -> str:
         return f"{self.span}: {self.code} {self.message}"
 
+    def __reduce__(self):  # pickles across process boundaries with all its fields
+        return (type(self), (self.code, self.message, self.span, self.hint))
+
+    @property
+    def errors(self) -> list["ModelError"]:
+        return [self]
+
+    @property
+    def findings(self) -> tuple["Finding", ...]:
+        """Every error as a located Finding (what the reporters render)."""
+        return tuple(e.as_finding() for e in self.errors)
+
     def as_finding(self) -> "Finding":
         return Finding("error", self.code, self.message, self.span, self.hint)
 
 
-class ModelErrors(LoopwiseError):
-    """Several model errors found in one pass (reported together)."""
+class ModelErrors(ModelError):
+    """Several model errors found in one pass (reported together).
+
+    A ModelError like any other (`except ModelError` catches it); the name is
+    kept for one release because earlier versions documented `except ModelErrors`.
+    """
 
     def __init__(self, errors: list[ModelError]):
-        super().__init__(f"{len(errors)} error(s)")
-        self.errors = list(errors)
+        flat = [leaf for e in errors for leaf in e.errors]
+        if not flat:
+            raise ValueError("ModelErrors needs at least one error")
+        first = flat[0]
+        super().__init__(first.code, first.message, first.span, first.hint)
+        self._errors = flat
+
+    @property
+    def errors(self) -> list[ModelError]:
+        return list(self._errors)
+
+    def __str__(self) -> str:
+        more = len(self._errors) - 1
+        return super().__str__() + (f" (and {more} more error{'s' if more > 1 else ''})" if more else "")
+
+    def __reduce__(self):
+        return (ModelErrors, (self._errors,))
 
 
 class UsageError(LoopwiseError):
@@ -86,13 +120,25 @@ class UsageError(LoopwiseError):
 
 @dataclass(frozen=True)
 class Finding:
-    """A located error, warning or note."""
+    """A located error, warning or note.
+
+    `about` names what the finding is about (breaks, signals, blocks), so that
+    `waive CODE at NAME` can accept it; `waiver` is the waiver that accepted it
+    (a `loopwise.waivers.Waiver`), None while it stands.
+    """
 
     severity: str  # "error" | "warning" | "note"
     code: str
     message: str
     span: Span = NOWHERE
     hint: str | None = None
+    about: tuple[str, ...] = ()
+    waiver: object | None = None
+
+    @property
+    def counts(self) -> bool:
+        """Whether this finding counts as a warning for `fail_on_warnings`: the one rule."""
+        return self.severity == "warning" and self.waiver is None
 
     def to_dict(self) -> dict:
         return {
@@ -103,6 +149,8 @@ class Finding:
             "col": self.span.col,
             "message": self.message,
             "hint": self.hint,
+            "about": list(self.about),
+            "waived": None if self.waiver is None else self.waiver.to_dict(),
         }
 
 

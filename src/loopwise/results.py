@@ -15,7 +15,7 @@ from .errors import Finding
 
 __all__ = [
     "SCHEMA_VERSION", "GainCrossover", "PhaseCrossover", "DiskMargin", "Peak",
-    "Margins", "RequirementResult", "LoopResponse", "BreakResult", "ModelResult",
+    "Margins", "RequirementResult", "LoopResponse", "HiddenMode", "BreakResult", "ModelResult",
     "RunResult", "CAUTION",
 ]
 
@@ -157,6 +157,43 @@ class LoopResponse:
         return self.L[self.on_axis]
 
 
+@dataclass(frozen=True)
+class HiddenMode:
+    """A closed-loop pole that an exact pole-zero cancellation hides from the loop transfers.
+
+    `code` is the finding that names it: LW281 (inside one block), LW487 (between blocks,
+    in the right half plane), LW488 (between blocks, on the imaginary axis), LW484 (a
+    block driven by an input only). One entry per pole of the upper half plane (a
+    conjugate pair is one entry with multiplicity counted per pole of the pair).
+    `counted` is False only where a waiver accepts the mode: then it is left out of Z
+    and of the marginal verdict.
+    """
+
+    pole: complex
+    multiplicity: int
+    code: str
+    pole_blocks: tuple[str, ...]
+    zero_blocks: tuple[str, ...] = ()
+    counted: bool = True
+
+    @property
+    def on_axis(self) -> bool:
+        return self.pole.real == 0.0
+
+    @property
+    def rhp_count(self) -> int:
+        """Closed-loop poles it adds in the open right half plane (both of a conjugate pair)."""
+        if self.pole.real <= 0.0:
+            return 0
+        return self.multiplicity * (2 if self.pole.imag > 0 else 1)
+
+    def to_dict(self) -> dict:
+        return {"real": _num(self.pole.real), "imag": _num(self.pole.imag), "freq": _num(abs(self.pole.imag)),
+                "on_axis": self.on_axis, "multiplicity": int(self.multiplicity), "code": self.code,
+                "pole_blocks": list(self.pole_blocks), "zero_blocks": list(self.zero_blocks),
+                "counted": bool(self.counted)}
+
+
 @dataclass(frozen=True, eq=False)
 class BreakResult:
     name: str
@@ -175,10 +212,18 @@ class BreakResult:
     enclosed_by: str | None = None
     separation: float | None = None
     response: LoopResponse | None = None
+    #: why the break is marginal: "loop" (1 + L touches 0 on the axis), "hidden" (a closed-loop
+    #: pole on the axis that a cancellation hides, see ModelResult.hidden_modes), or None
+    marginal_cause: str | None = None
 
     @property
     def requirements_met(self) -> bool:
         return all(r.met for r in self.requirements)
+
+    @property
+    def open_warnings(self) -> tuple[Finding, ...]:
+        """This break's warnings that count for fail_on_warnings (not waived)."""
+        return tuple(w for w in self.warnings if w.counts)
 
     def to_dict(self) -> dict:
         m = self.margins
@@ -189,6 +234,7 @@ class BreakResult:
             "closed_loop_rhp_poles": int(self.closed_loop_rhp_poles),
             "marginal": bool(self.marginal),
             "marginal_freq": _num(self.marginal_freq),
+            "marginal_cause": self.marginal_cause,
             "gain_crossovers": [g.to_dict() for g in m.gain_crossovers] if m else [],
             "phase_crossovers": [p.to_dict() for p in m.phase_crossovers] if m else [],
             "phase_margin_deg": _num(m.phase_margin_deg) if m else None,
@@ -216,6 +262,7 @@ class ModelResult:
     closed_loop_rhp_poles: int
     breaks: tuple[BreakResult, ...]
     findings: tuple[Finding, ...] = ()  # warnings and notes (errors make the model unreadable)
+    hidden_modes: tuple[HiddenMode, ...] = ()  # closed-loop poles in Re s >= 0 hidden by cancellations
 
     @property
     def requirements_met(self) -> bool:
@@ -225,22 +272,41 @@ class ModelResult:
     def ok(self) -> bool:
         return self.stable and self.requirements_met
 
+    @property
+    def every_finding(self) -> tuple[Finding, ...]:
+        """The model's findings, then each break's warnings."""
+        return self.findings + tuple(w for b in self.breaks for w in b.warnings)
+
+    @property
+    def open_warnings(self) -> tuple[Finding, ...]:
+        """The warnings that count for fail_on_warnings: every one not waived (`Finding.counts`)."""
+        return tuple(f for f in self.every_finding if f.counts)
+
     def to_dict(self) -> dict:
         return {
             "file": self.file, "model": self.model, "stable": bool(self.stable),
             "closed_loop_rhp_poles": int(self.closed_loop_rhp_poles),
             "breaks": [b.to_dict() for b in self.breaks],
+            "hidden_modes": [h.to_dict() for h in self.hidden_modes],
             "findings": [f.to_dict() for f in self.findings],
         }
 
 
 @dataclass(frozen=True, eq=False)
 class RunResult:
-    """All models of one run, in a stable order, and the errors of those not read."""
+    """All models of one run, in a stable order, the errors of those not read, and
+    warnings about the run itself (a settings waiver that matched nothing)."""
 
     models: tuple[ModelResult, ...]
     errors: tuple[Finding, ...]
     version: str = ""
+    findings: tuple[Finding, ...] = ()
+
+    @property
+    def open_warnings(self) -> tuple[Finding, ...]:
+        """Every warning of the run that counts for fail_on_warnings."""
+        return tuple(f for m in self.models for f in m.open_warnings) + tuple(
+            f for f in self.findings if f.counts)
 
     @property
     def exit_code(self) -> int:
@@ -255,4 +321,5 @@ class RunResult:
             "models": [m.to_dict() for m in self.models],
             "errors": [{"file": e.span.file, "line": e.span.line, "col": e.span.col,
                         "code": e.code, "message": e.message, "hint": e.hint} for e in self.errors],
+            "findings": [f.to_dict() for f in self.findings],
         }

@@ -9,7 +9,8 @@ exact: ``exp(-T s)``, never a Padé approximation.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+import math
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -47,6 +48,22 @@ def _clean_roots(roots) -> np.ndarray:
     return np.concatenate([np.sort(real.real).astype(complex), pairs])
 
 
+def _roots(coeffs: np.ndarray) -> np.ndarray:
+    """Roots of a polynomial (descending coefficients); TransferError when its coefficients
+    span more than double precision can hold (the companion matrix overflows)."""
+    coeffs = np.asarray(coeffs)
+    with np.errstate(all="ignore"):
+        coeffs = coeffs / np.max(np.abs(coeffs))
+        try:
+            roots = np.roots(coeffs)
+        except np.linalg.LinAlgError:
+            roots = np.array([np.nan])
+    if not np.all(np.isfinite(roots)):
+        raise TransferError("the coefficients span more than double precision can hold; rescale the "
+                            "transfer (e.g. time in ms)")
+    return roots
+
+
 def _poly(roots: np.ndarray) -> np.ndarray:
     """Monic polynomial (descending powers) with these roots, real when possible."""
     p = np.poly(roots) if roots.size else np.array([1.0])
@@ -64,7 +81,7 @@ def _remove_matches(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarra
     for x in b:
         best = None
         for i, y in enumerate(a):
-            if abs(x - y) <= _MATCH_TOL * max(1.0, abs(x), abs(y)):
+            if abs(x - y) <= _MATCH_TOL * max(abs(x), abs(y)):  # relative: tiny roots are roots too
                 best = i
                 break
         if best is None:
@@ -74,14 +91,24 @@ def _remove_matches(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarra
     return np.array(a, dtype=complex), np.array(rest_b, dtype=complex), np.array(common, dtype=complex)
 
 
+def _no_roots() -> np.ndarray:
+    return np.zeros(0, complex)
+
+
 @dataclass(frozen=True, eq=False)
 class Transfer:
-    """gain * prod(s - zeros) / prod(s - poles) * exp(-delay * s)."""
+    """gain * prod(s - zeros) / prod(s - poles) * exp(-delay * s).
+
+    `cancelled` holds the poles that `minimal()` removed together with a zero at the
+    same place: modes of the block as written that no input excites and no output
+    shows. An unstable one is still a mode of the system (docs/method.md, hidden modes).
+    """
 
     gain: float
     zeros: np.ndarray
     poles: np.ndarray
     delay: float = 0.0
+    cancelled: np.ndarray = field(default_factory=_no_roots)
 
     # --- construction ---------------------------------------------------------
     @staticmethod
@@ -108,12 +135,14 @@ class Transfer:
             raise TransferError("the denominator is zero")
         if num.size == 0:
             return Transfer.constant(0.0)
-        return Transfer(num[0] / den[0], _clean_roots(np.roots(num)), _clean_roots(np.roots(den)), float(delay))
+        return Transfer(num[0] / den[0], _clean_roots(_roots(num)), _clean_roots(_roots(den)), float(delay))
 
     # --- properties -----------------------------------------------------------
     @property
     def is_zero(self) -> bool:
-        return self.gain == 0.0
+        """The zero transfer (a gain that underflowed to 0 keeps its roots and is not zero:
+        the resolver refuses it as beyond double precision)."""
+        return self.gain == 0.0 and self.zeros.size == 0 and self.poles.size == 0
 
     @property
     def relative_degree(self) -> int:
@@ -125,12 +154,9 @@ class Transfer:
         return self.is_zero or self.relative_degree >= 0
 
     @property
-    def is_constant(self) -> bool:
-        return self.zeros.size == 0 and self.poles.size == 0 and self.delay == 0.0
-
-    @property
     def feedthrough(self) -> float:
-        """|G(s)| limit as |s| -> inf without the delay factor (0 if strictly proper)."""
+        """The limit of G(s) exp(T s) as |s| -> inf: signed (the gain of a biproper block),
+        0.0 if strictly proper, inf if improper."""
         if self.is_zero or self.relative_degree > 0:
             return 0.0
         if self.relative_degree < 0:
@@ -183,7 +209,8 @@ class Transfer:
     def reciprocal(self) -> "Transfer":
         if self.is_zero:
             raise TransferError("division by zero")
-        return Transfer(1.0 / self.gain, self.poles, self.zeros, -self.delay)
+        gain = 1.0 / self.gain if self.gain != 0.0 else math.inf  # an underflowed gain: refused later
+        return Transfer(gain, self.poles, self.zeros, -self.delay)
 
     def __truediv__(self, other: "Transfer | float") -> "Transfer":
         return self * _as_transfer(other).reciprocal()
@@ -201,7 +228,11 @@ class Transfer:
             return Transfer.constant(1.0)
         if self.is_zero:
             return Transfer.constant(0.0)
-        return Transfer(self.gain ** n, np.tile(self.zeros, n), np.tile(self.poles, n), self.delay * n)
+        try:
+            gain = self.gain ** n
+        except OverflowError:  # beyond double precision: the caller refuses it as not finite
+            gain = math.copysign(math.inf, self.gain) if n % 2 else math.inf
+        return Transfer(gain, np.tile(self.zeros, n), np.tile(self.poles, n), self.delay * n)
 
     def __add__(self, other: "Transfer | float") -> "Transfer":
         other = _as_transfer(other)
@@ -219,15 +250,16 @@ class Transfer:
         num_b = other.gain * np.polymul(_poly(other.zeros), _poly(only_a))
         num = np.polyadd(num_a, num_b)
         num = np.real_if_close(num, tol=1e6)
-        scale = np.abs(num).max() if num.size else 0.0
-        if scale == 0.0:
+        # the size of what each coefficient was summed from: a cancellation leaves rounding
+        # noise of about eps times that, while a small coefficient written as such is kept
+        gross = np.polyadd(np.abs(num_a), np.abs(num_b))
+        if not np.any(np.abs(num) > 1e-13 * gross):
             return Transfer.constant(0.0)
-        # leading terms that cancel exactly leave rounding noise: drop it
         lead = 0
-        while lead < num.size - 1 and abs(num[lead]) <= 1e-13 * scale:
+        while lead < num.size - 1 and abs(num[lead]) <= 1e-13 * gross[lead]:
             lead += 1
         num = num[lead:]
-        zeros = _clean_roots(np.roots(num)) if num.size > 1 else np.zeros(0, complex)
+        zeros = _clean_roots(_roots(num)) if num.size > 1 else np.zeros(0, complex)
         return Transfer(float(np.real(num[0])), zeros, _clean_roots(den), self.delay)
 
     __radd__ = __add__
@@ -240,11 +272,14 @@ class Transfer:
 
     # --- simplification -------------------------------------------------------
     def minimal(self) -> tuple["Transfer", np.ndarray]:
-        """Cancel coinciding zero/pole pairs; returns the result and the cancelled poles."""
+        """Cancel coinciding zero/pole pairs; returns the result (which keeps the cancelled
+        poles in `cancelled`) and the poles cancelled here."""
         zeros, poles, common = _remove_matches(self.zeros, self.poles)
         if common.size == 0:
             return self, common
-        return Transfer(self.gain, _clean_roots(zeros), _clean_roots(poles), self.delay), common
+        common = _clean_roots(common)
+        return Transfer(self.gain, _clean_roots(zeros), _clean_roots(poles), self.delay,
+                        np.concatenate([self.cancelled, common])), common
 
     def __repr__(self) -> str:
         return (f"Transfer(gain={self.gain:.6g}, zeros={np.round(self.zeros, 6).tolist()}, "

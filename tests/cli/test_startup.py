@@ -69,3 +69,13 @@ def test_library_api_is_lazy_and_works():
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert proc.returncode == 0, proc.stderr
     assert proc.stdout.split() == ["True", "b", "55.9"]
+
+
+@pytest.mark.parametrize("command", ["check", "graph", "diff", "plot", "report"])
+def test_every_command_takes_config_and_output(command, capsys):
+    from loopwise.cli import main
+
+    with pytest.raises(SystemExit):
+        main([command, "--help"])
+    text = capsys.readouterr().out
+    assert "--config FILE" in text and "--output" in text

@@ -42,10 +42,67 @@ def test_ill_posed_through_a_biproper_block_is_an_error():
     assert info.value.errors[0].code == "LW301"
 
 
-def test_improper_block_is_an_error():
-    with pytest.raises(ModelErrors) as info:
+def test_improper_loop_is_an_error():
+    # L = s^2/(s+1): the loop gain grows without bound (an ideal derivative that no lag tames)
+    with pytest.raises(ModelError) as info:
         check_text(loop("s^2/(s+1)"))
-    assert info.value.errors[0].code == "LW220"
+    assert info.value.code == "LW403" and info.value.span.line == 4
+
+
+def test_improper_loop_transfer_at_one_break_is_named_there():
+    # blocks all biproper; the closed loop is well-posed (det(I - A(inf)) = 1 + 1 - 1), but with
+    # the wire y -> e cut the loop e -> y -> w -> e has gain 1 at infinity: L at that break is
+    # s(s + 1)/(2s + 1) by hand, improper
+    text = ("input r\nblock D = s/(s+1)\nblock W = s/(s+1)\ne = r - y + w\ny = D(e)\nw = W(y)\n"
+            "break b at y -> e\n")
+    with pytest.raises(ModelError) as info:
+        check_text(text, "i.loop")
+    assert info.value.code == "LW404" and info.value.span.line == 7 and "`b`" in info.value.message
+
+
+def test_large_delay_free_gain_is_not_called_neutral():
+    # L = 1e16/(s + 1): closed loop s + 1 + 1e16, stable (analytic); no delay anywhere
+    res = check_text(loop("1e16/(s+1)"))
+    assert res.stable and res.breaks[0].closed_loop_rhp_poles == 0
+    # a constant loop gain of 1e16 is a well-posed algebraic loop (1 + 1e16 != 0)
+    res = check_text("input r\ne = r - y\ny = 1e16*e\nbreak b at y\n")
+    assert res.stable and any(f.code == "LW391" for f in res.findings)
+
+
+@pytest.mark.parametrize("body, code, line", [
+    ("[1/(s+1e-308)](e)", "LW406", 4),           # a pole far below the engine's range
+    ("[1/(1e200*s+1)^2](e)", "LW106", 4),        # the coefficients overflow
+    ("1e300*1e300*e", "LW106", 4),               # a wiring gain that overflows
+    ("[1e299/(s+1e-140)](e)", "LW406", 1),       # L(0) = 1e439: values beyond double precision
+])
+def test_numbers_beyond_double_precision_get_a_located_error(body, code, line):
+    with pytest.raises((ModelError, ModelErrors)) as info:
+        check_text(f"input r\ne = r - y\ny = {body}\nbreak b at y\n".replace("input r", "model x\ninput r"),
+                   "x.loop")
+    err = info.value.errors[0] if isinstance(info.value, ModelErrors) else info.value
+    assert err.code == code and err.span.line == line and err.span.file == "x.loop"
+
+
+def test_feedback_paths_that_cancel_are_named():
+    # y = G(e + y) with e = r - y: the argument of G is r, so L at `y` is 0 at every frequency
+    with pytest.raises(ModelError) as info:
+        check_text("input r\nblock G = 2/(s+1)\ne = r - y\ny = G(e + y)\nbreak b at y\n", "z.loop")
+    assert info.value.code == "LW405" and info.value.span.line == 5 and "sign" in info.value.hint
+
+
+def test_positive_feedback_gets_a_hint_to_check_the_sign():
+    # e = r + y around G = 2/(s+1): L = -2/(s+1), closed loop s + 1 - 2 = s - 1: Z = 1 (analytic)
+    res = check_text("input r\nblock G = 2/(s+1)\ne = r + y\ny = G(e)\nbreak b at y\n")
+    b = res.breaks[0]
+    assert (b.open_loop_rhp_poles, b.closed_loop_rhp_poles) == (0, 1)
+    w = next(w for w in b.warnings if w.code == "LW489")
+    assert "`e`" in w.message and "-2" in w.message
+    # with an integrator: L = -2/(s(s+1)), closed loop s^2 + s - 2 = (s + 2)(s - 1): Z = 1
+    b = check_text("input r\nblock G = 2/(s*(s+1))\ne = r + y\ny = G(e)\nbreak b at y\n").breaks[0]
+    assert b.closed_loop_rhp_poles == 1 and any(w.code == "LW489" for w in b.warnings)
+    # an open-loop unstable plant is not flagged: L = -2/(s-1)... P = 1 there
+    b = check_text("input r\nblock G = 2/(s-1)\ne = r + y\ny = G(e)\nbreak b at y\n").breaks[0]
+    assert not any(w.code == "LW489" for w in b.warnings)
 
 
 def test_poles_spread_over_24_decades_are_flagged():
@@ -93,3 +150,14 @@ def test_unstable_block_on_an_input_path_is_counted_and_named():
     assert res.closed_loop_rhp_poles == 1 and not res.stable
     w = [f for f in res.findings if f.code == "LW484"]
     assert len(w) == 1 and "`d`" in w[0].message and w[0].span.line == 4
+
+
+def test_a_refusal_says_what_could_not_be_sampled_and_why():
+    # a delay of 1e6 s against 1 s dynamics: the delay step rule (docs/method.md) needs some
+    # 2.5 million samples up to the certified radius, beyond the budget: refused, naming the
+    # break, the frequencies and the delay
+    with pytest.raises(ModelError) as info:
+        check_text(loop("0.5*exp(-1e6*s)/(s+1)"), "d.loop")
+    err = info.value
+    assert err.code == "LW402" and "break `b`" in err.message and "rad/s" in err.message
+    assert "delay" in err.hint

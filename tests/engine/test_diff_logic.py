@@ -1,4 +1,4 @@
-"""`loopwise.diff` on hand-built results: directions, deltas, the regression policy.
+"""`loopwise.compare` on hand-built results: directions, deltas, the regression policy.
 
 The margin values below are invented inputs, not claims about any loop; what is
 checked is the comparison (after - before, better/worse, thresholds).
@@ -9,7 +9,7 @@ import dataclasses
 
 import pytest
 
-from loopwise.diff import Unreadable, compare
+from loopwise.compare import Unreadable, compare
 from loopwise.errors import Finding, Span
 from loopwise.report import diff_text
 from loopwise.results import (CAUTION, BreakResult, DiskMargin, GainCrossover, Margins, ModelResult,

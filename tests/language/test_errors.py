@@ -548,8 +548,8 @@ def test_a_file_name_that_is_not_utf8_renders(tmp_path):
     finding = info.value.errors[0].as_finding()
     text = render(finding)
     text.encode("utf-8")  # printable and writable as UTF-8
-    assert text.split("\n")[:3] == [f"{tmp_path}/gain\\xff.loop:2:5: error LW218 unknown signal or param `q`",
+    assert text.split("\n")[:3] == [f"{tmp_path}/gain\ufffd.loop:2:5: error LW218 unknown signal or param `q`",
                                     "    y = q", "        ^"]
     data = finding.to_dict()
-    assert data["file"] == f"{tmp_path}/gain\\xff.loop"
+    assert data["file"] == f"{tmp_path}/gain\ufffd.loop"
     json.dumps(data, ensure_ascii=False).encode("utf-8")

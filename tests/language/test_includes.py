@@ -90,23 +90,40 @@ def test_loop_link_that_leads_outside_is_refused(tmp_path, capsys):
     assert "hunter2" not in every_format(capsys, m)
 
 
-def test_loop_link_to_a_file_that_is_not_a_model_is_refused(tmp_path, capsys):
+def test_loop_link_to_a_file_of_another_kind_never_shows_its_lines(tmp_path, capsys):
     root = repo(tmp_path)
     (root / ".env").write_text(SECRET + "\n")
     os.symlink(root / ".env", root / "models" / "env.loop")
     m = model(root, "env.loop")
     (err,) = [e for e in errors(m) if e.span.line == 1]
-    assert err.code == "LW207" and err.message == "included file env.loop is not a `.loop` file"
+    # `API_TOKEN=hunter2-...` reads as an equation: refused in an included file (LW204),
+    # reported without its text
+    assert (err.code, err.span.file, err.span.col) == ("LW208", str(m), 5)
+    assert err.message == ("included file env.loop has 1 error, not shown: only `.loop` files have "
+                           "their lines shown")
     assert "hunter2" not in every_format(capsys, m)
 
 
-def test_include_of_a_file_that_is_not_a_model_is_refused(tmp_path, capsys):
+def test_include_of_a_file_of_another_kind_never_shows_its_lines(tmp_path, capsys):
     root = repo(tmp_path)
-    (root / "notes.txt").write_text(SECRET + "\n")
+    (root / "notes.txt").write_text(f"{SECRET}\nparam = 3\n")
     m = model(root, "../notes.txt")
     (err,) = [e for e in errors(m) if e.span.line == 1]
-    assert err.code == "LW207" and "not a `.loop` file" in err.message
+    assert err.code == "LW208" and err.message.startswith("included file ../notes.txt has 1 error, not shown")
     assert "hunter2" not in every_format(capsys, m)
+
+
+def test_a_library_of_another_kind_is_read_and_its_warnings_point_at_the_use(tmp_path):
+    root = repo(tmp_path)
+    lib = root / "models" / "common"
+    (lib / "plant.inc").write_text('use "more.loop"\nparam k = 2\nblock C = k/(s+1)\nblock Spare = 1/(s+3)\n')
+    (lib / "more.loop").write_text("block Also = 1/(s+4)\n")
+    m = model(root, "common/plant.inc")
+    result = check_file(m)
+    assert result.stable
+    unused = sorted((f.message, f.span.file, f.span.line) for f in result.findings if f.code == "LW282")
+    # both unused blocks: the one in plant.inc, and the one in the file it uses
+    assert unused == [("block `Also` is never used", str(m), 1), ("block `Spare` is never used", str(m), 1)]
 
 
 def test_model_that_is_a_link_out_of_the_repository_is_not_read(tmp_path, capsys):
@@ -274,3 +291,16 @@ def test_included_files_are_named_relative_to_the_model_as_given(tmp_path, monke
     assert (err.code, err.span.file, err.span.line) == ("LW102", os.path.join("models", "common", "bad.loop"), 2)
     text = render(err.as_finding())
     assert text.splitlines()[1] == "    block C = k/(0.5 s + 1)"  # the shown name opens the file
+
+
+def test_errors_in_a_file_reached_through_one_of_another_kind_are_not_shown(tmp_path, capsys):
+    root = repo(tmp_path)
+    lib = root / "models" / "common"
+    (lib / "plant.inc").write_text('use "deep.txt"\nparam k = 2\nblock C = k/(s+1)\n')
+    (lib / "deep.txt").write_text(f"param x = {SECRET.split('=')[1].replace('-', '_')}\n")
+    m = model(root, "common/plant.inc")
+    (err,) = [e for e in errors(m) if e.span.line == 1]
+    assert (err.code, err.span.file) == ("LW208", str(m))
+    assert err.message.startswith("included file common/plant.inc uses ") and \
+        err.message.endswith("deep.txt, which has 1 error, not shown: only `.loop` files have their lines shown")
+    assert "hunter2" not in every_format(capsys, m)

@@ -344,7 +344,7 @@ def test_two_statements_on_one_line_are_refused():
 # The grammar never takes a statement word or `at`/`in` for a name; `s` and `exp` are
 # refused as declared names by the resolver (LW201, tests in test_errors.py).
 
-STATEMENT_WORDS = ["model", "use", "param", "input", "block", "break", "require"]
+STATEMENT_WORDS = ["model", "use", "param", "input", "block", "break", "require", "waive"]
 
 
 def test_the_reserved_words_are_read_from_the_grammar():

@@ -28,7 +28,7 @@ CHROMIUM = shutil.which("chromium")
 pytestmark = [
     pytest.mark.browser,
     pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed here "
-                       "(apt-get install -y chromium chromium-driver; CI installs it)"),
+                       "(apt-get install -y chromium; CI installs it)"),
 ]
 
 

@@ -6,14 +6,11 @@ application). Checks: unused inputs, algebraic loops (ill-posed or merely
 present), loops that no break opens, breaks that open nothing or name a wire
 that does not exist, and the cascade nesting of the breaks.
 
-Nesting rule: a break *opens* the simple cycles that contain one of its cut
-edges; its loop is the set of signals on those cycles. Break B is enclosed by
-break A when B's loop is a strict subset of A's loop; B's enclosing break is
-the smallest such A. Loops that only partly overlap are not nested.
+Which cycles each break opens, the nesting of the breaks and the cuts that open
+more than one loop (LW384) are worked out in `nesting.py`.
 """
 from __future__ import annotations
 
-import itertools
 from dataclasses import dataclass
 
 import networkx as nx
@@ -23,6 +20,8 @@ from ..errors import Finding, ModelError, ModelErrors, Span
 from ..language.ast import BreakStmt
 from ..language.hints import did_you_mean as _hint  # the one "did you mean" rule
 from ..language.resolve import Model, Term
+from .nesting import cycle_wires, enclosing, loop_text, opened_by, own_cycles, wide_cut_warning
+from .solve import nonsingular
 
 __all__ = ["Diagram", "BreakCut", "build_diagram", "MAX_CYCLES"]
 
@@ -32,13 +31,26 @@ MAX_CYCLES = 20000
 
 @dataclass(frozen=True, eq=False)
 class BreakCut:
-    """The wires one break cuts: (source signal, equation signal) pairs."""
+    """The wires one break cuts: (source signal, equation signal) pairs.
+
+    `loop` holds the signals on every cycle the break opens; `cycles` the
+    break's own cycles (those it is the most specific opener of, see
+    nesting.own_cycles), from which the nesting follows; `warnings` its
+    structural warnings as (code, message, hint).
+    """
 
     stmt: BreakStmt
     signal: str
     edges: tuple[tuple[str, str], ...]
     loop: frozenset[str]
     enclosed_by: str | None = None
+    cycles: tuple[tuple[str, ...], ...] = ()
+    warnings: tuple[tuple[str, str, str | None], ...] = ()
+
+    def findings(self) -> tuple[Finding, ...]:
+        """The structural warnings as findings located at the break statement."""
+        return tuple(Finding("warning", code, message, self.stmt.span, hint, (self.stmt.name,))
+                     for code, message, hint in self.warnings)
 
 
 @dataclass(frozen=True, eq=False)
@@ -74,11 +86,16 @@ def build_diagram(model: Model) -> Diagram:
             g.add_edge(term.source, target, term=term)
     errors: list[ModelError] = []
     findings: list[Finding] = list(model.findings)
+    for terms in model.equations.values():
+        for term in terms:
+            if not np.isfinite(term.gain):  # `1e300*1e300*x`
+                raise ModelError("LW106", "this term's gain is not a finite number (overflow in double "
+                                 "precision)", term.span, "rescale the model's gains")
     used = {u for u, _ in g.edges()}
     for name, span in model.inputs.items():
         if name not in used:
             findings.append(Finding("warning", "LW381", f"input `{name}` is never used", span,
-                                    "use it in a signal equation or remove it"))
+                                    "use it in a signal equation or remove it", (name,)))
     signals = tuple(n for n in model.signals)  # defined order: equations, then hidden ones
     findings.extend(_algebraic_loops(model, g, signals, errors))
     cycles, complete = _cycles(g, model)
@@ -91,7 +108,7 @@ def build_diagram(model: Model) -> Diagram:
                                      ("breaks: " + ", ".join(sorted(names)) if names else "the model has no breaks")))
     if errors:
         raise ModelErrors(errors)
-    cuts = _loops_and_nesting(cuts, cycles)
+    cuts = _loops_and_nesting(cuts, cycles, model, g)
     findings.extend(_unbroken(cycles, cuts, model))
     for cut in cuts:
         if not cut.loop:
@@ -125,19 +142,26 @@ def _algebraic_loops(model: Model, g, signals, errors) -> list[Finding]:
         names = sorted({_display(n, model) for n in comp})
         # well-posedness: I - A(inf) restricted to the loop must be invertible
         idx = {n: i for i, n in enumerate(sorted(comp))}
+        inner = [data["term"] for u, v, data in g.edges(data=True) if u in idx and v in idx and _feeds(data["term"])]
+        if any(t.app is not None and not t.app.transfer.is_proper for t in inner):
+            continue  # an ideal derivative on a loop: the engine's high-frequency check names it (LW403)
         m = np.eye(len(idx))
+        gross = np.eye(len(idx))
         for u, v, data in g.edges(data=True):
             if u in idx and v in idx and _feeds(data["term"]):
                 t = data["term"]
-                m[idx[v], idx[u]] -= t.gain * (1.0 if t.app is None else t.app.transfer.feedthrough)
+                a = t.gain * (1.0 if t.app is None else t.app.transfer.feedthrough)
+                m[idx[v], idx[u]] -= a
+                gross[idx[v], idx[u]] += abs(a)
         span = model.signals[sorted(comp)[0]]
-        if abs(np.linalg.det(m)) < 1e-12 * max(1.0, np.abs(m).max()) ** len(idx):
+        if not nonsingular(m, gross):
             errors.append(ModelError("LW301", "ill-posed algebraic loop through " + ", ".join(f"`{n}`" for n in names),
                                      span, "the loop has no dynamics and its direct gain is exactly 1: "
                                      "the signals are not determined; add dynamics or change a gain"))
         else:
             out.append(Finding("note", "LW391", "algebraic loop (no dynamics) through "
-                               + ", ".join(f"`{n}`" for n in names) + "; it is well-posed", span, None))
+                               + ", ".join(f"`{n}`" for n in names) + "; it is well-posed", span, None,
+                               tuple(names)))
     return out
 
 
@@ -200,22 +224,18 @@ def _breaks(model: Model, g, errors) -> list[BreakCut]:
     return cuts
 
 
-def _loops_and_nesting(cuts: list[BreakCut], cycles) -> list[BreakCut]:
-    loops = []
-    for cut in cuts:
-        edges = set(cut.edges)
-        nodes: set[str] = set()
-        for cyc in cycles:
-            pairs = zip(cyc, (*cyc[1:], cyc[0]))
-            if any(p in edges for p in pairs):
-                nodes.update(cyc)
-        loops.append(frozenset(nodes))
+def _loops_and_nesting(cuts: list[BreakCut], cycles, model: Model, g) -> list[BreakCut]:
+    wires = cycle_wires(cycles)
+    opened = {c.stmt.name: opened_by(c.edges, wires) for c in cuts}
+    own = own_cycles(opened)
+    outer = enclosing(g, cycles, own)
     out = []
-    for cut, loop in zip(cuts, loops):
-        parents = [(len(other), c.stmt.name) for c, other in zip(cuts, loops)
-                   if c is not cut and loop and loop < other]
-        enclosed_by = min(parents)[1] if parents else None
-        out.append(BreakCut(cut.stmt, cut.signal, cut.edges, loop, enclosed_by))
+    for cut in cuts:
+        name = cut.stmt.name
+        loop = frozenset(n for i in opened[name] for n in cycles[i])
+        warning = wide_cut_warning(cut, own, cycles, wires, model, g)
+        out.append(BreakCut(cut.stmt, cut.signal, cut.edges, loop, outer[name] if loop else None,
+                            tuple(cycles[i] for i in own[name]), (warning,) if warning else ()))
     return out
 
 
@@ -231,10 +251,9 @@ def _unbroken(cycles, cuts: list[BreakCut], model: Model) -> list[Finding]:
         if key in reported:
             continue
         reported.add(key)
-        names = [_display(n, model) for n in cyc]
-        names = [n for n, _ in itertools.groupby(names)]
         first = next((n for n in cyc if n not in model.hidden), cyc[0])
-        out.append(Finding("warning", "LW382", "loop " + " -> ".join(names + [names[0]])
-                           + " is not opened by any break", model.signals[first],
-                           f"add e.g. `break <name> at {first}` to check its stability margins"))
+        about = tuple(dict.fromkeys(_display(n, model) for n in cyc))
+        out.append(Finding("warning", "LW382", f"loop {loop_text(cyc, model, first)} is not opened by any break",
+                           model.signals[first], f"add e.g. `break <name> at {first}` to check its stability margins",
+                           about))
     return out

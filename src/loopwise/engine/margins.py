@@ -205,7 +205,7 @@ def _negative_axis_crossings(curve: _Curve) -> list[_Crossing]:
         out.append(_Crossing(0.0 if abs(x) < _HORIZON or _rolls_off(curve) else x, up, None))
     # closing chord at the bottom: the real axis at s = 0 (or the start of an indentation)
     for _, x, up, _ in _segment_crossings(np.conj(L[:1]), L[:1]):
-        out.append(_Crossing(-math.inf if curve.at_pole[0] else x, up, None))
+        out.append(_Crossing(-math.inf if curve.at_pole[0] else (0.0 if abs(x) < _HORIZON else x), up, None))
     return out
 
 
@@ -233,8 +233,10 @@ def _limit(curve: _Curve, k: int, x: float) -> float:
     """Position of a crossing on upper segment k, with the limits made explicit."""
     if curve.at_pole[k] or curve.at_pole[k + 1]:
         return -math.inf  # round a pole: |L| grows without bound as the radius shrinks
-    if not (curve.engine[k] and curve.engine[k + 1]) and abs(x) < _HORIZON:
-        return 0.0  # far out in the tail: the limit at the origin
+    if abs(x) < _HORIZON:
+        # closer to the origin than a 160 dB gain change: the limit at the origin (far out
+        # in the tail, or where |L| is at the level of rounding noise)
+        return 0.0
     return x
 
 
@@ -281,7 +283,7 @@ def _refine_all(crossings: list[_Crossing], evaluate: Evaluate | None) -> None:
     if good_idx:
         vals = evaluate(1j * x[good_idx])
         for i, v in zip(good_idx, vals):
-            todo[i].x = float(v.real)
+            todo[i].x = float(v.real) if abs(v.real) >= _HORIZON else 0.0
 
 
 def _refine(c: _Crossing, evaluate: Evaluate | None) -> None:
@@ -445,7 +447,7 @@ def _balanced(L: np.ndarray) -> np.ndarray:
 
 def _disk_margin(peak: Peak) -> DiskMargin:
     """Seiler, Packard & Gahinet (2020): the disk of skew 0 with alpha = 2 / peak."""
-    alpha = 2.0 / peak.value
+    alpha = 2.0 / peak.value if peak.value > 0 else math.inf  # L = 1 at every frequency: no peak
     if alpha >= 2.0:
         gain = (-math.inf, math.inf)  # the disk holds every gain in (0, inf)
     else:

@@ -13,13 +13,16 @@ modes hidden by cancellations, and by the reference tests.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
 from .diagram import Diagram
 from ..language.resolve import Term
+from ..transfer import Transfer
+from .solve import nonsingular
 
-__all__ = ["Instance", "Reduction", "reduce_diagram", "LoopEvaluation"]
+__all__ = ["Instance", "Reduction", "reduce_diagram", "LoopEvaluation", "ImproperLoop", "Uncertified"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -33,6 +36,30 @@ class Instance:
     @property
     def transfer(self):
         return None if self.term.app is None else self.term.app.transfer
+
+
+class ImproperLoop(Exception):
+    """A loop of the wiring whose gain grows without bound at high frequency (the instances on it)."""
+
+    def __init__(self, instances: tuple[Instance, ...]):
+        super().__init__(instances)
+        self.instances = instances
+
+
+class Uncertified(Exception):
+    """No radius certifies the count: `reason` is "neutral" (high-frequency gain through
+    delays >= 1; `rho` holds it), "ill-posed" (I - A(inf) singular) or "range" (the gains
+    need a radius beyond double precision)."""
+
+    def __init__(self, reason: str, rho: float = float("nan")):
+        super().__init__(reason, rho)
+        self.reason = reason
+        self.rho = rho
+
+
+def _relative_degree(inst: Instance) -> int:
+    tf = inst.transfer
+    return 0 if tf is None or tf.is_zero else tf.relative_degree
 
 
 @dataclass(frozen=True, eq=False)
@@ -180,26 +207,84 @@ class Reduction:
         return np.abs(sb - sa) * rate <= np.pi / 4
 
     # --- high-frequency certificate ----------------------------------------------------------
+    @cached_property
+    def scaling(self) -> np.ndarray:
+        """Integer exponents d (one per signal) that make every entry of the similar matrix
+        D(s)^-1 A(s) D(s), D = diag(s^d), proper; all zero without improper blocks.
+
+        Entry (i, j) becomes A_ij s^(d_j - d_i), proper when d_j - d_i <= r_ij (its
+        relative degree): a system of difference constraints, solved by Bellman-Ford.
+        It has a solution iff no loop of the wiring has a negative total relative
+        degree, i.e. iff no loop gain grows without bound (ImproperLoop otherwise).
+        det(I - A) and every L_k are unchanged by the similarity (docs/method.md).
+        """
+        edges = [(inst.row, inst.col, _relative_degree(inst), k) for k, inst in enumerate(self.instances)]
+        d = np.zeros(self.n, dtype=int)
+        if all(r >= 0 for _, _, r, _ in edges):
+            return d
+        pred: dict[int, int] = {}
+        for _ in range(self.n + 1):
+            changed = None
+            for i, j, r, k in edges:
+                if d[i] + r < d[j]:
+                    d[j] = d[i] + r
+                    pred[j] = k
+                    changed = j
+            if changed is None:
+                return d
+        # still relaxing after n rounds: walk back to a negative cycle
+        node = changed
+        for _ in range(self.n):
+            node = self.instances[pred[node]].row
+        cycle, at = [], node
+        while True:
+            k = pred[at]
+            cycle.append(k)
+            at = self.instances[k].row
+            if at == node:
+                break
+        raise ImproperLoop(tuple(self.instances[k] for k in reversed(cycle)))
+
+    def scaled_transfer(self, k: int):
+        """Instance k's term in the scaled matrix: gain * transfer * s^(d_col - d_row) (a Transfer)."""
+        inst = self.instances[k]
+        tf = inst.transfer if inst.transfer is not None else Transfer.constant(1.0)
+        e = int(self.scaling[inst.col] - self.scaling[inst.row])
+        if e:
+            tf = tf * (Transfer.laplace() ** e)
+        return tf
+
+    def scaled_matrix(self, s: np.ndarray, cut: frozenset[int] = frozenset()) -> np.ndarray:
+        """D^-1 A D (or A_k) at the points s: the same determinant, entries bounded at infinity."""
+        A = self.matrix(s, cut)
+        d = self.scaling
+        if np.any(d):
+            s = np.asarray(s, dtype=complex).reshape(-1, 1, 1)
+            A = A * s ** (d[None, None, :] - d[None, :, None])
+        return A
+
     def feedthrough_split(self, cut: frozenset[int] = frozenset()):
-        """A0 (delay-free feedthrough), |delayed feedthrough|, and per-instance remainders."""
+        """For the scaled matrix: A0 (delay-free limit at infinity), |limit of the delayed
+        terms|, per-instance data (row, col, |gain|, scaled transfer) for the remainders, and
+        the magnitudes I - A0 is summed from (for `solve.nonsingular`)."""
         A0 = np.zeros((self.n, self.n))
         Dd = np.zeros((self.n, self.n))
+        gross = np.eye(self.n)
         rest = []
         for k, inst in enumerate(self.instances):
             if k in cut:
                 continue
-            tf = inst.transfer
+            tf = self.scaled_transfer(k)
             g = inst.term.gain
-            if tf is None:
-                A0[inst.row, inst.col] += g
-                continue
             d = g * tf.feedthrough
             if tf.delay > 0:
                 Dd[inst.row, inst.col] += abs(d)
             else:
                 A0[inst.row, inst.col] += d
-            rest.append((inst.row, inst.col, abs(g), tf))
-        return A0, Dd, rest
+                gross[inst.row, inst.col] += abs(d)
+            if tf.poles.size or tf.zeros.size:
+                rest.append((inst.row, inst.col, abs(g), tf))
+        return A0, Dd, rest, gross
 
 
 def _chunk(n: int) -> int:
@@ -256,27 +341,30 @@ def _remainder_bound(gain: float, tf, r: float) -> float:
     return prod * paired * tail
 
 
-def certificate_radius(red: Reduction, cut: frozenset[int] = frozenset()) -> tuple[float | None, float]:
+def certificate_radius(red: Reduction, cut: frozenset[int] = frozenset()) -> tuple[float, float]:
     """The smallest tried radius R beyond which det(I - A(s)) (or A_k) has no zeros in Re s >= 0.
 
-    Sufficient condition (Perron-Frobenius bound on a structured perturbation):
+    Sufficient condition (Perron-Frobenius bound on a structured perturbation), on the
+    scaled matrix (Reduction.scaling; the same determinant):
     rho(|(I - A0)^-1| (|D_delay| + B(R))) < 1, where B bounds the strictly proper
-    remainders entrywise. Returns (R, rho_at_infinity); R is None when the
-    condition fails even at infinity (neutral type: high-frequency loop gain
-    through delays of magnitude >= 1) or the matrix I - A0 is singular (ill-posed).
+    remainders entrywise. Returns (R, rho_at_infinity). Raises Uncertified when the
+    condition fails even at infinity (neutral type: high-frequency loop gain through
+    delays of magnitude >= 1), when I - A0 is singular (ill-posed at high frequency), or
+    when the radius it needs lies beyond 1e250 (gains beyond double precision).
     """
-    A0, Dd, rest = red.feedthrough_split(cut)
+    A0, Dd, rest, gross = red.feedthrough_split(cut)
     M = np.eye(red.n) - A0
-    try:
-        Minv = np.abs(np.linalg.inv(M))
-    except np.linalg.LinAlgError:
-        return None, np.inf
+    if red.n and not nonsingular(M, gross):
+        raise Uncertified("ill-posed")
+    Minv = np.abs(np.linalg.inv(M)) if red.n else M
+    if not np.all(np.isfinite(Minv)):
+        raise Uncertified("range")
     rho_inf = float(np.max(np.abs(np.linalg.eigvals(Minv @ Dd)))) if red.n else 0.0
     if rho_inf >= 1.0:
-        return None, rho_inf
+        raise Uncertified("neutral", rho_inf)
     roots = np.concatenate([red.block_poles(), red.block_zeros(), [1.0]])
     r = 2.0 * float(np.max(np.abs(roots)))
-    for _ in range(200):
+    while r < 1e250:
         B = Dd.copy()
         for row, col, g, tf in rest:
             B[row, col] += _remainder_bound(g, tf, r)
@@ -284,24 +372,23 @@ def certificate_radius(red: Reduction, cut: frozenset[int] = frozenset()) -> tup
             rho = float(np.max(np.abs(np.linalg.eigvals(Minv @ B))))
             if rho < 0.9:
                 return r, rho_inf
-        r *= 1.6
-        if r > 1e16:
-            break
-    return None, rho_inf
+        r *= 1.6 if r < 1e16 else 10.0
+    raise Uncertified("range")
 
 
 def closing_phase(red: Reduction, cut: frozenset[int], R: float) -> float:
     """Continuous change of arg det(I - A_k) from s = jR to s = R along |s| >= R.
 
-    With X(s) = (I - A0)^-1 (A(s) - A0) and rho(X) < 1 there, arg det(I - A) =
-    arg det(I - A0) + sum Arg(1 - lambda_i(X)) is a continuous branch (each term
-    stays within (-pi/2, pi/2)), so no sampling of the arc is needed.
+    With X(s) = (I - A0)^-1 (A(s) - A0) and rho(X) < 1 there (A the scaled matrix,
+    whose determinant is the same), arg det(I - A) = arg det(I - A0) + sum Arg(1 - lambda_i(X))
+    is a continuous branch (each term stays within (-pi/2, pi/2)), so no sampling of the
+    arc is needed.
     """
-    A0, _, _ = red.feedthrough_split(cut)
+    A0 = red.feedthrough_split(cut)[0]
     Minv = np.linalg.inv(np.eye(red.n) - A0)
 
     def branch(s: complex) -> float:
-        A = red.matrix(np.array([s]), cut)[0]
+        A = red.scaled_matrix(np.array([s]), cut)[0]
         lam = np.linalg.eigvals(Minv @ (A - A0))
         return float(np.sum(np.angle(1.0 - lam)))
 

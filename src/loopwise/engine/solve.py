@@ -6,7 +6,7 @@ from typing import Callable
 
 import numpy as np
 
-__all__ = ["illinois", "zoom_max"]
+__all__ = ["illinois", "zoom_max", "nonsingular"]
 
 
 def illinois(h: Callable[[np.ndarray], np.ndarray], a, b, xtol_rel: float = 1e-14,
@@ -67,3 +67,28 @@ def zoom_max(f: Callable[[np.ndarray], np.ndarray], lo: float, hi: float, log: b
         if u_hi - u_lo <= 1e-13 * max(abs(u_hi), 1.0):
             break
     return best_x, best_v
+
+
+def nonsingular(M: np.ndarray, gross: np.ndarray, rel: float = 1e-12) -> bool:
+    """Whether the real matrix M is invertible, telling an exact cancellation from a small value.
+
+    `gross` holds, entry by entry, the sum of the magnitudes M was added up from (|I| plus
+    |each wiring term|). Gaussian elimination with partial pivoting carries the same sums
+    through every update; a pivot below `rel` times its own sum is what is left of a
+    cancellation (rounding noise), so M is singular. Scale-free: a loop gain of 1e16 is
+    invertible, a direct gain of exactly 1 round a loop is not.
+    """
+    A = np.array(M, dtype=float)
+    G = np.array(gross, dtype=float)
+    n = A.shape[0]
+    with np.errstate(all="ignore"):
+        for k in range(n):
+            p = k + int(np.argmax(np.abs(A[k:, k])))
+            if not abs(A[p, k]) > rel * G[p, k]:
+                return False
+            if p != k:
+                A[[k, p]], G[[k, p]] = A[[p, k]], G[[p, k]]
+            f = A[k + 1:, k] / A[k, k]
+            A[k + 1:, k:] -= f[:, None] * A[k, k:]
+            G[k + 1:, k:] += np.abs(f)[:, None] * G[k, k:]
+    return bool(np.all(np.isfinite(A)))

@@ -15,12 +15,12 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..errors import ModelError, Span
-from .reduce import Reduction, certificate_radius, closing_phase
+from .hidden import applications
+from .reduce import ImproperLoop, Reduction, Uncertified, certificate_radius, closing_phase
 from ..results import LoopResponse
 from .winding import Piece, build_contour, encirclements, phase_change, trace
 
-__all__ = ["Setup", "NyquistCount", "NeutralLoop", "prepare_contour", "count_model", "count_break",
-           "count_all"]
+__all__ = ["Setup", "NyquistCount", "prepare_contour", "count_model", "count_break", "count_all"]
 
 #: a closed-loop pole this close to the axis (|1 + L| relative to 1 + |L|) is called marginal
 MARGINAL = 1e-8
@@ -28,6 +28,10 @@ MARGINAL = 1e-8
 REACH_LEVEL = 1e-3
 #: sample budget of the margins' extension (the count itself has the engine's own budget)
 EXTENSION_SAMPLES = 60_000
+#: poles and zeros (rad/s, nonzero) must lie in this range (LW406 otherwise)
+ROOT_RANGE = (1e-150, 1e150)
+#: a wiring term larger than this on the axis overflows the engine's solves (LW406)
+VALUE_LIMIT = 1e200
 
 
 @dataclass(frozen=True, eq=False)
@@ -61,14 +65,6 @@ class NyquistCount:
     response: LoopResponse | None = None
 
 
-class NeutralLoop(Exception):
-    """No finite radius certifies the count: high-frequency gain through a delay >= 1."""
-
-    def __init__(self, rho: float):
-        super().__init__(rho)
-        self.rho = rho
-
-
 def _features(roots: np.ndarray) -> np.ndarray:
     out = []
     for r in roots:
@@ -84,20 +80,108 @@ def _features(roots: np.ndarray) -> np.ndarray:
 
 
 def prepare_contour(red: Reduction, indent: str = "right", for_margins: bool = True) -> Setup:
+    """The contour shared by every count of the model; ModelError (located) where no
+    radius certifies a count: a neutral loop (LW401), an improper loop or closed loop
+    (LW403), an improper loop transfer at a break (LW404), gains beyond double
+    precision (LW406)."""
+    _check_range(red)
     poles = red.block_poles()
     roots = np.concatenate([poles, red.block_zeros()])
     R = 0.0
-    for cut in [frozenset(), *red.cut_sets.values()]:
-        r, rho = certificate_radius(red, cut)
-        if r is None:
-            raise NeutralLoop(rho)
+    try:
+        red.scaling
+    except ImproperLoop as exc:
+        raise _improper_loop(red, exc) from None
+    cuts = [(None, frozenset())] + [(c, red.cut_sets[c.stmt.name]) for c in red.diagram.breaks]
+    for brk, cut in cuts:
+        try:
+            r, _ = certificate_radius(red, cut)
+        except Uncertified as exc:
+            raise _uncertified_radius(red, brk, exc) from None
         R = max(R, r)
+    _check_values(red, roots, R)
     axis = poles[poles.real == 0]
     P0 = int(np.sum(poles.real > 0)) + (axis.size if indent == "left" else 0)
     pieces = build_contour(axis, roots, R, indent)
     reach = _margin_reach(red, R) if for_margins else R
     return Setup(tuple(pieces), R, reach, P0, _features(roots),
                  tuple(sorted({abs(p.imag) for p in axis})), indent, roots, axis)
+
+
+def _check_range(red: Reduction) -> None:
+    """LW406 for a pole or zero outside ROOT_RANGE: the contour would span more decades
+    than double precision can sample and evaluate."""
+    lo, hi = ROOT_RANGE
+    for term in applications(red):
+        tf = term.app.transfer
+        for roots, what in ((tf.poles, "pole"), (tf.zeros, "zero")):
+            mags = np.abs(roots[roots != 0])
+            bad = mags[(mags < lo) | (mags > hi)]
+            if bad.size:
+                raise ModelError("LW406", f"`{term.app.label}` has a {what} at {bad[0]:.3g} rad/s, beyond the "
+                                 f"engine's range ({lo:g} to {hi:g} rad/s)", term.app.span,
+                                 "rescale the model's time unit or drop modes far outside the loops' bandwidth")
+
+
+def _check_values(red: Reduction, roots: np.ndarray, R: float) -> None:
+    """LW406 where the wiring's values overflow double precision on the axis below R."""
+    mags = np.abs(roots[roots != 0])
+    low = float(np.min(mags)) * 1e-3 if mags.size else 1e-3
+    w = np.geomspace(min(low, R / 10), R, 301)
+    axis = np.abs(roots[roots.real == 0].imag)
+    if axis.size:
+        w = w[np.min(np.abs(w[:, None] - axis[None, :]), axis=1) > 1e-6 * w]
+    with np.errstate(all="ignore"):
+        big = ~(np.abs(red.matrix(1j * w)) < VALUE_LIMIT)
+    if np.any(big):
+        i = int(np.nonzero(big.any(axis=(1, 2)))[0][0])
+        raise ModelError("LW406", f"the model's transfer values overflow double precision near {w[i]:.3g} rad/s "
+                         f"(beyond {VALUE_LIMIT:g})", Span(red.diagram.model.file, 1, 1),
+                         "rescale the model's gains or time unit")
+
+
+def _improper_blocks(red: Reduction, instances=None) -> list[str]:
+    insts = red.instances if instances is None else instances
+    return list(dict.fromkeys(i.term.app.label for i in insts
+                              if i.transfer is not None and not i.transfer.is_proper))
+
+
+def _improper_loop(red: Reduction, exc: ImproperLoop) -> ModelError:
+    model = red.diagram.model
+    names = list(dict.fromkeys(model.hidden_owner.get(red.signals[i.row], red.signals[i.row])
+                               for i in exc.instances))
+    blocks = _improper_blocks(red, exc.instances)
+    first = next(i for i in exc.instances if i.transfer is not None and not i.transfer.is_proper)
+    return ModelError(
+        "LW403", "the closed loop is improper: the loop through " + ", ".join(f"`{n}`" for n in names)
+        + " has more zeros than poles all the way round (ideal derivative in "
+        + ", ".join(f"`{b}`" for b in blocks) + "), so its gain grows without bound at high frequency",
+        first.term.app.span, "give the derivative a filter pole, e.g. Kd*s/(Tf*s + 1), or add a lag on the loop")
+
+
+def _uncertified_radius(red: Reduction, brk, exc: Uncertified) -> ModelError:
+    model = red.diagram.model
+    span = brk.stmt.span if brk is not None else Span(model.file, 1, 1)
+    where = f"at break `{brk.stmt.name}`" if brk is not None else "of the model"
+    if exc.reason == "neutral":
+        return ModelError(
+            "LW401", f"the model is of neutral type: the high-frequency loop gain {where} through delays is "
+            f"{exc.rho:.3g} (>= 1), so no finite frequency range certifies its stability", span,
+            "a loop with direct feedthrough and a delay must have a high-frequency gain below 1; "
+            "add a filter pole")
+    if exc.reason == "ill-posed":
+        blocks = _improper_blocks(red)
+        with_blocks = (" (ideal derivative in " + ", ".join(f"`{b}`" for b in blocks) + ")") if blocks else ""
+        if brk is None:
+            return ModelError("LW403", "the closed loop is improper: at high frequency its loops cancel the "
+                              f"direct path exactly{with_blocks}, so the signals are not determined", span,
+                              "give the derivative a filter pole, e.g. Kd*s/(Tf*s + 1)")
+        return ModelError("LW404", f"the loop transfer {where} is improper{with_blocks}: with the other "
+                          "loops closed, the wiring is singular at high frequency", span,
+                          "give the derivative a filter pole, e.g. Kd*s/(Tf*s + 1), or break the loop elsewhere")
+    return ModelError("LW406", f"the gains {where} need a frequency range beyond double precision "
+                      "(above 1e250 rad/s) to certify the count", span,
+                      "rescale the model's gains or time unit (e.g. work in ms)")
 
 
 def _margin_reach(red: Reduction, R: float) -> float:
@@ -134,7 +218,7 @@ def count_model(red: Reduction, setup: Setup) -> tuple[int, tuple[tuple[str, str
     w, err = encirclements(total)
     warnings = []
     if not tr.complete:
-        raise _uncertified(red, "the whole model", tr.s.size)
+        raise _uncertified(red, tr, ["the characteristic function det(I - A) of the whole model"])
     if err > 1e-3:
         warnings.append(("LW482", "the whole-model count did not settle cleanly "
                          f"(residual {err:.2g}); treat the verdict with care"))
@@ -145,10 +229,24 @@ def _step_rule(red: Reduction):
     return red.delay_step_ok if red.has_delay else None
 
 
-def _uncertified(red: Reduction, what: str, n: int) -> ModelError:
-    return ModelError("LW402", f"the Nyquist count of {what} could not be certified within {n} samples",
-                      Span(red.diagram.model.file, 1, 1),
-                      "the loop is extremely wide-band or lightly damped; check the model's numbers")
+def _uncertified(red: Reduction, tr, columns: list[str]) -> ModelError:
+    """LW402, saying which curve could not be resolved where, and why that may be."""
+    stuck = tr.stuck
+    if stuck is None:
+        what, where, why = ["the contour"], "", "check the model's numbers"
+    else:
+        (lo, hi), cols, by_delay = stuck
+        what = list(dict.fromkeys(columns[c] for c in cols if c < len(columns))) or ["the contour"]
+        where = f" near {lo:.4g} rad/s" if hi <= lo * 1.01 else f" between {lo:.4g} and {hi:.4g} rad/s"
+        if by_delay:
+            why = ("the delays turn the curve faster than the sample budget can follow there; a delay that "
+                   "long at that frequency is beyond the certificate: check the delay's value and unit")
+        else:
+            why = ("a resonance too lightly damped, or values that differ by rounding only; check the "
+                   "damping and the numbers of the blocks that act there")
+    return ModelError("LW402", f"the Nyquist count could not be certified within {tr.s.size} samples: "
+                      f"{', '.join(what)} still {'changes' if len(what) == 1 else 'change'} too fast to "
+                      f"sample{where}", Span(red.diagram.model.file, 1, 1), why)
 
 
 def count_all(red: Reduction, setup: Setup) -> tuple[int, tuple[tuple[str, str], ...], dict[str, NyquistCount]]:
@@ -181,7 +279,9 @@ def count_all(red: Reduction, setup: Setup) -> tuple[int, tuple[tuple[str, str],
     floors = (None,) * (1 + K) + (1e-2,) * K
     tr = trace(list(setup.pieces), evaluate, setup.features, floors, step_ok=_step_rule(red))
     if not tr.complete:
-        raise _uncertified(red, "the model", tr.s.size)
+        raise _uncertified(red, tr, ["the characteristic function det(I - A) of the whole model"]
+                           + [f"the loop opened at break `{n}` (det(I - A_k))" for n in names]
+                           + [f"the loop transfer L at break `{n}`" for n in names])
     steps = phase_change(tr.values)
     close_full = closing_phase(red, frozenset(), setup.R)
     wz, err_z = encirclements(steps[0] + close_full)
@@ -257,7 +357,8 @@ def _count_break(red: Reduction, name: str, setup: Setup) -> NyquistCount:
 
     tr = trace(list(setup.pieces), evaluate, setup.features, (None, None, 1e-2), step_ok=_step_rule(red))
     if not tr.complete:
-        raise _uncertified(red, f"break `{name}`", tr.s.size)
+        raise _uncertified(red, tr, [f"the loop opened at break `{name}` (det(I - A_k))",
+                                     f"1 + L at break `{name}`", f"the loop transfer L at break `{name}`"])
     steps = phase_change(tr.values)
     close_k = closing_phase(red, cut, setup.R)
     close_full = closing_phase(red, frozenset(), setup.R)
@@ -301,7 +402,8 @@ def _marginal(red: Reduction, name: str, resp: LoopResponse) -> float | None:
     L = resp.axis_L
     if w.size < 3:
         return None
-    rel = np.abs(1.0 + L) / (1.0 + np.abs(L))
+    with np.errstate(invalid="ignore"):  # inf / inf at a sample on a pole of L: not marginal
+        rel = np.nan_to_num(np.abs(1.0 + L) / (1.0 + np.abs(L)), nan=1.0)
     if rel.min() < MARGINAL:
         return float(w[np.argmin(rel)])
     cand = np.nonzero((rel[1:-1] <= rel[:-2]) & (rel[1:-1] <= rel[2:]) & (rel[1:-1] < 1e-3))[0] + 1

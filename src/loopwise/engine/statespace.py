@@ -2,8 +2,9 @@
 
 Each block application is realised on its own (a cascade of first- and
 second-order sections, which keeps high-order blocks well conditioned), and
-the wiring closes them up. Used to find unstable modes that a cancellation
-hides inside a loop, and by the reference tests.
+the wiring closes them up; an improper block (an ideal derivative) is realised
+together with the block it feeds. Used by the reference tests and tools (the
+check itself needs no state-space form).
 """
 from __future__ import annotations
 
@@ -13,7 +14,7 @@ import numpy as np
 
 from .reduce import Reduction
 
-__all__ = ["StateSpace", "loop_state_space", "closed_loop_poles", "hidden_modes"]
+__all__ = ["StateSpace", "loop_state_space", "closed_loop_poles"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -83,17 +84,56 @@ def _realise(tf) -> tuple[np.ndarray, np.ndarray, np.ndarray, float]:
     return A, B, C, D
 
 
+@dataclass(frozen=True)
+class _Item:
+    """One wiring term to realise: gain * transfer (None: a plain gain) from col into row."""
+
+    row: int
+    col: int
+    gain: float
+    transfer: object
+    cut: bool
+    label: str
+
+
+def _items(red: Reduction, cut: frozenset[int], measured: int | None) -> list[_Item]:
+    """The wiring terms, with every improper block merged into the one block its output
+    feeds (a series chain: `G(C(e))` with an ideal derivative C realises as G*C).
+
+    A chain can be merged when the improper block's output signal has no other term,
+    feeds exactly one block application (not a cut wire) and nothing else, and is not
+    the signal a break measures. Otherwise there is no state-space form (ValueError).
+    """
+    items = [_Item(i.row, i.col, i.term.gain, i.transfer, k in cut,
+                   i.term.app.label if i.term.app is not None else "")
+             for k, i in enumerate(red.instances)]
+    while True:
+        improper = next((x for x in items if x.transfer is not None and not x.transfer.is_proper), None)
+        if improper is None:
+            return items
+        out = improper.row
+        producers = [x for x in items if x.row == out]
+        users = [x for x in items if x.col == out]
+        if not (len(producers) == 1 and len(users) == 1 and users[0].transfer is not None
+                and not users[0].cut and out != measured):
+            raise ValueError(f"no state-space form: the improper block `{improper.label}` does not feed "
+                             "exactly one block in a series chain")
+        (user,) = users
+        merged = _Item(user.row, improper.col, improper.gain * user.gain, user.transfer * improper.transfer,
+                       improper.cut, f"{improper.label}*{user.label}")
+        items = [x for x in items if x is not improper and x is not user] + [merged]
+
+
 def loop_state_space(red: Reduction, name: str | None = None) -> StateSpace:
     """(A, B, C, D) of L_k = -y/v at break `name`; with name None, the whole closed loop (B, C empty)."""
     if red.has_delay:
         raise ValueError("a state-space form exists only for delay-free models")
     n = red.n
     cut = red.cut_sets[name] if name is not None else frozenset()
-    blocks = []
-    for k, inst in enumerate(red.instances):
-        if inst.transfer is not None:
-            blocks.append((k, inst, *_realise(inst.transfer)))
-    ns = sum(b[2].shape[0] for b in blocks)
+    sig = red.signals.index(red._cut_signal(name)) if name is not None else None
+    items = _items(red, cut, sig)
+    blocks = [(x, *_realise(x.transfer)) for x in items if x.transfer is not None]
+    ns = sum(b[1].shape[0] for b in blocks)
     Ablk = np.zeros((ns, ns))
     Bx = np.zeros((ns, n))  # state input from signals
     Bv = np.zeros((ns, 1))  # state input from the injected test signal
@@ -102,30 +142,28 @@ def loop_state_space(red: Reduction, name: str | None = None) -> StateSpace:
     bv = np.zeros((n, 1))
     owners: list[str] = []
     off = 0
-    for k, inst, A, B, C, D in blocks:
+    for x, A, B, C, D in blocks:
         m = A.shape[0]
-        g = inst.term.gain
         Ablk[off:off + m, off:off + m] = A
-        Cx[inst.row, off:off + m] += g * C[0]
-        if k in cut:
+        Cx[x.row, off:off + m] += x.gain * C[0]
+        if x.cut:
             Bv[off:off + m, 0] += B[:, 0]
-            bv[inst.row, 0] += g * D
+            bv[x.row, 0] += x.gain * D
         else:
-            Bx[off:off + m, inst.col] += B[:, 0]
-            M[inst.row, inst.col] -= g * D
-        owners.extend([inst.term.app.label] * m)
+            Bx[off:off + m, x.col] += B[:, 0]
+            M[x.row, x.col] -= x.gain * D
+        owners.extend([x.label] * m)
         off += m
-    for k, inst in enumerate(red.instances):
-        if inst.transfer is None:
-            if k in cut:
-                bv[inst.row, 0] += inst.term.gain
+    for x in items:
+        if x.transfer is None:
+            if x.cut:
+                bv[x.row, 0] += x.gain
             else:
-                M[inst.row, inst.col] -= inst.term.gain
+                M[x.row, x.col] -= x.gain
     Minv = np.linalg.inv(M)
     Acl = Ablk + Bx @ Minv @ Cx
     if name is None:
         return StateSpace(Acl, np.zeros((ns, 0)), np.zeros((0, ns)), np.zeros((0, 0)), tuple(owners))
-    sig = red.signals.index(red._cut_signal(name))
     Bcl = Bx @ Minv @ bv + Bv
     Ccl = -(Minv @ Cx)[sig:sig + 1, :]
     Dcl = -(Minv @ bv)[sig:sig + 1, :]
@@ -134,27 +172,3 @@ def loop_state_space(red: Reduction, name: str | None = None) -> StateSpace:
 
 def closed_loop_poles(red: Reduction) -> np.ndarray:
     return np.linalg.eigvals(loop_state_space(red, None).A)
-
-
-def hidden_modes(red: Reduction, name: str) -> list[tuple[complex, tuple[str, ...]]]:
-    """Open-loop RHP modes at break `name` that L_k cannot see (uncontrollable or unobservable)."""
-    ss = loop_state_space(red, name)
-    if ss.A.size == 0:
-        return []
-    lam, vecs = np.linalg.eig(ss.A)
-    out = []
-    scale = max(1.0, np.abs(ss.A).max())
-    for i, l in enumerate(lam):
-        if l.real <= 1e-9 * max(1.0, abs(l)):
-            continue
-        n = ss.A.shape[0]
-        ctrl = np.linalg.svd(np.hstack([l * np.eye(n) - ss.A, ss.B]), compute_uv=False)[-1]
-        obs = np.linalg.svd(np.vstack([l * np.eye(n) - ss.A, ss.C]), compute_uv=False)[-1]
-        if min(ctrl, obs) < 1e-8 * scale:
-            v = np.abs(vecs[:, i])
-            owners = [ss.owners[j] for j in np.argsort(v)[::-1][:3] if v[j] > 0.1 * v.max()]
-            # and the blocks whose zeros cancel it
-            owners += [inst.term.app.label for inst in red.instances if inst.transfer is not None
-                       and np.any(np.abs(inst.transfer.zeros - l) <= 1e-6 * max(1.0, abs(l)))]
-            out.append((complex(l), tuple(dict.fromkeys(owners))))
-    return out

@@ -22,13 +22,13 @@ from typing import Callable
 
 import numpy as np
 
-__all__ = ["Piece", "Trace", "build_contour", "trace", "phase_change", "encirclements"]
+__all__ = ["Piece", "Trace", "build_contour", "indentation_radius", "trace", "phase_change", "encirclements"]
 
 CHORD = 0.35
 MIDPOINT = 0.2
 MAX_ROUNDS = 70
-MAX_SAMPLES = 400_000
-TOUCH = 1e-10
+#: sample budget of one trace (the models of the test suite need under 10,000)
+MAX_SAMPLES = 100_000
 
 
 @dataclass(frozen=True)
@@ -81,9 +81,16 @@ class Piece:
 def _indent_radius(w0: float, roots: np.ndarray) -> float:
     """Small enough that a closed-loop pole off the axis by more than 1e-9 of the
     scale is never inside the indentation, large enough for double precision."""
-    others = roots[np.abs(roots - 1j * w0) > 1e-12 * max(1.0, w0)]
+    others = roots[np.abs(roots - 1j * w0) > 1e-12 * np.maximum(np.abs(roots), w0)]
     d = float(np.min(np.abs(others - 1j * w0))) if others.size else max(1.0, w0)
     return 1e-9 * min(d, max(1.0, w0))
+
+
+def indentation_radius(w0: float, axis_poles: np.ndarray, roots: np.ndarray) -> float:
+    """The radius of the indentation round the axis pole(s) at j w0."""
+    # m poles at one point make values of about eps^-m there: keep them below 1e250
+    m = int(np.sum(np.abs(axis_poles - 1j * w0) <= 1e-12 * np.maximum(np.abs(axis_poles), w0)))
+    return max(_indent_radius(w0, roots), 10.0 ** (-250.0 / max(m, 1)) * max(1.0, w0))
 
 
 def build_contour(axis_poles: np.ndarray, roots: np.ndarray, R: float, indent: str = "right",
@@ -97,10 +104,7 @@ def build_contour(axis_poles: np.ndarray, roots: np.ndarray, R: float, indent: s
     marks: dict[float, tuple[float, bool]] = {}
     for p in axis_poles:
         w0 = float(abs(p.imag))
-        # m poles at one point make values of about eps^-m there: keep them below 1e250
-        m = int(np.sum(np.abs(axis_poles - 1j * w0) <= 1e-12 * max(1.0, w0)))
-        eps = max(_indent_radius(w0, roots), 10.0 ** (-250.0 / max(m, 1)) * max(1.0, w0))
-        marks[w0] = (eps, indent == "right")
+        marks[w0] = (indentation_radius(w0, axis_poles, roots), indent == "right")
     for w0 in touching:
         w0 = float(abs(w0))
         if any(abs(w0 - m) <= 1e-6 * max(1.0, m) for m in marks):
@@ -157,6 +161,9 @@ class Trace:
     on_axis: np.ndarray
     unresolved: tuple[float, ...]  # frequencies where sampling could not settle
     complete: bool
+    #: when the budget ran out: (frequency range still being refined, the traced functions that
+    #: were not settled there (column indices), whether the delay step rule held intervals back)
+    stuck: tuple[tuple[float, float], tuple[int, ...], bool] | None = None
 
 
 def _seed(piece: Piece, features: np.ndarray) -> np.ndarray:
@@ -175,7 +182,12 @@ def _seed(piece: Piece, features: np.ndarray) -> np.ndarray:
 
 
 def _accept(la, lb, lm, floors) -> np.ndarray:
-    """Whether each interval (rows) is resolved for every function (columns)."""
+    """Whether each interval (rows) is resolved for every function."""
+    return np.all(_accept_columns(la, lb, lm, floors), axis=1)
+
+
+def _accept_columns(la, lb, lm, floors) -> np.ndarray:
+    """Whether each interval (rows) is resolved for each function (columns)."""
     with np.errstate(all="ignore"):
         rb = np.exp(lb - la)
         rm = np.exp(lm - la)
@@ -190,7 +202,14 @@ def _accept(la, lb, lm, floors) -> np.ndarray:
             scale = np.maximum(np.minimum(np.abs(fa), np.abs(fb)), floor)
             ok_k = (np.abs(fb - fa) <= CHORD * scale) & (np.abs(fm - 0.5 * (fa + fb)) <= MIDPOINT * scale)
             ok[:, k] = ok_k
-    return np.all(ok | ~np.isfinite(rb), axis=1) & np.all(np.isfinite(lm.real), axis=1)
+        # a value that is NaN (a pole hit) or infinite settles nothing; an exact zero of a
+        # function with a floor (the loop transfer, cancelled to 0.0 by rounding far below
+        # its floor) is as settled as any other value below the floor
+        settled = np.isfinite(lm.real)
+        for k, floor in enumerate(floors):
+            if floor is not None:
+                settled[:, k] |= np.isneginf(lm[:, k].real)
+    return (ok | ~np.isfinite(rb)) & settled
 
 
 def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], features: np.ndarray,
@@ -222,6 +241,7 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
     unresolved: list[float] = []
     total = s.size
     complete = True
+    stuck = None
     for _ in range(MAX_ROUNDS):
         if ua.size == 0:
             break
@@ -251,6 +271,13 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
         redo = ~ok & ~tiny
         if total > max_samples:
             complete = not np.any(redo)
+            if not complete:
+                cols = ~_accept_columns(la[redo], lb[redo], lm[redo], floors)
+                by_delay = step_ok is not None and not np.all(step_ok(sa[redo], sb[redo])) \
+                    if sa.shape == um.shape else False
+                w = np.abs(sm[redo].imag)
+                stuck = ((float(w.min()), float(w.max())), tuple(int(c) for c in np.nonzero(cols.any(axis=0))[0]),
+                         bool(by_delay))
             break
         ua = np.concatenate([ua[redo], um[redo]])
         ub = np.concatenate([um[redo], ub[redo]])
@@ -267,12 +294,13 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
     order = np.lexsort((u, pid))
     s, vals, pid = s[order], vals[order], pid[order]
     on_axis = np.array([pieces[i].kind == "axis" for i in pid], dtype=bool)
-    return Trace(s, vals, on_axis, tuple(sorted(set(unresolved))), complete)
+    return Trace(s, vals, on_axis, tuple(sorted(set(unresolved))), complete, stuck)
 
 
 def phase_change(values: np.ndarray) -> np.ndarray:
     """Sum of the principal phase steps between consecutive samples, per function."""
-    steps = np.diff(values, axis=0).imag
+    with np.errstate(invalid="ignore"):  # -inf - -inf (a loop transfer at exactly 0.0): no step
+        steps = np.diff(values, axis=0).imag
     steps = (steps + np.pi) % (2 * np.pi) - np.pi
     steps = np.where(np.isfinite(steps), steps, 0.0)
     return steps.sum(axis=0)

@@ -8,7 +8,7 @@ from ..errors import Span
 __all__ = [
     "Expr", "Number", "Name", "Laplace", "BinOp", "Neg", "Power", "Call", "Inline",
     "Statement", "ModelStmt", "UseStmt", "ParamStmt", "InputStmt", "BlockStmt",
-    "EquationStmt", "BreakStmt", "RequireStmt", "ModelFile",
+    "EquationStmt", "BreakStmt", "RequireStmt", "WaiveStmt", "ModelFile",
 ]
 
 
@@ -142,6 +142,18 @@ class RequireStmt(Statement):
     metric_span: Span
     op: str
     value: Expr
+
+
+@dataclass(frozen=True)
+class WaiveStmt(Statement):
+    """`waive <code> [at <name>] "<reason>"`: an accepted warning or note."""
+
+    code: str
+    code_span: Span
+    at: str | None
+    at_span: Span | None
+    reason: str | None  # None: not written (reported by the resolver)
+    reason_span: Span | None
 
 
 @dataclass(frozen=True)

@@ -130,7 +130,7 @@ class Evaluator:
                 const = a if isinstance(a, Quantity) else b
                 self.r.findings.append(Finding("note", "LW291", f"a constant offset ({const.value:g}) in a "
                                                "signal sum does not affect linear stability and is ignored",
-                                               span, None))
+                                               span, None, about=(self.r.owner,)))
                 terms = a if isinstance(a, list) else []
                 others = b if isinstance(b, list) else []
                 sign = -1.0 if op == "-" else 1.0
@@ -229,7 +229,7 @@ class Evaluator:
         value = Evaluator(self.r, "transfer").ev(e.transfer)
         tf = value if isinstance(value, Transfer) else Transfer.constant(value.value)
         label = f"[..]@{e.span.line}:{e.span.col}"
-        tf = self.r.checked_transfer(tf, f"the bracketed transfer at {e.span}", e.transfer.span)
+        tf = self.r.checked_transfer(tf, f"the bracketed transfer at {e.span}", e.transfer.span, (self.r.owner,))
         return self.apply(Application(label, tf, e.span), self.ev(e.arg), e.arg.span)
 
     def apply(self, app: Application, arg, span: Span) -> list[Term]:

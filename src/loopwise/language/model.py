@@ -6,6 +6,7 @@ from dataclasses import dataclass, field
 from ..errors import Finding, Span
 from ..transfer import Transfer
 from . import ast
+from ..waivers import Waivers
 from .requirements import Requirement
 
 __all__ = ["Quantity", "Block", "Application", "Term", "Model"]
@@ -60,3 +61,4 @@ class Model:
     findings: tuple[Finding, ...]
     block_uses: dict[str, int] = field(default_factory=dict)
     hidden_owner: dict[str, str] = field(default_factory=dict)  # hidden signal -> its equation
+    waivers: Waivers = field(default_factory=Waivers)  # `waive` statements, then the settings'

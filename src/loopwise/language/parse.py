@@ -180,6 +180,17 @@ class _ToAst(Transformer):
             self._span(metric), str(op), value,
         )
 
+    @v_args(meta=True)
+    def waive_stmt(self, meta, children):
+        code, rest = children[0], list(children[1:])
+        reason = rest.pop() if rest and rest[-1].type == "STRING" else None
+        at = rest[0] if rest else None
+        return ast.WaiveStmt(
+            self._span(meta), str(code), self._span(code),
+            None if at is None else str(at), None if at is None else self._span(at),
+            None if reason is None else str(reason)[1:-1], None if reason is None else self._span(reason),
+        )
+
     def start(self, children):
         return tuple(children)
 

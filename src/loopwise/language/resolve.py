@@ -9,6 +9,7 @@ the closed-loop characteristic function ``prod(den_b) * det(I - A)`` right.
 """
 from __future__ import annotations
 
+import dataclasses
 import math
 import os
 from pathlib import Path
@@ -24,11 +25,14 @@ from .model import Application, Block, Model, Quantity, Term
 from .parse import MAX_TOKENS, parse_text
 from .requirements import make_requirement
 from .source import SourceError, include_root, is_within, read_source
+from ..waivers import Waivers, make_waiver
 
 __all__ = ["Quantity", "Block", "Application", "Term", "Model", "resolve_text", "resolve_file",
            "MODEL_SUFFIX"]
 
-#: the only files a `use` may name (their lines may be shown under an error)
+#: only files with this suffix (as named and where links lead) have their lines shown
+#: under an error; any other included file is read, but its errors are one LW208 at the
+#: `use` that brought it in, and its findings point there
 MODEL_SUFFIX = ".loop"
 
 
@@ -38,6 +42,9 @@ class _Resolver:
         self.root = root  # every include must resolve inside it (resolved, links followed)
         self.included: set[Path] = set()  # each file is read and collected once per model
         self.tokens_left = MAX_TOKENS
+        #: included files whose lines are never shown (not `.loop`), by shown name -> the
+        #: `use` in a `.loop` file that led to them (its span and its path)
+        self.unshown: dict[str, tuple[Span, str]] = {}
         self.hints = Hints()
         self.errors: list[ModelError] = []
         self.findings: list[Finding] = []
@@ -49,6 +56,7 @@ class _Resolver:
         self.eq_stmts: dict[str, ast.EquationStmt] = {}
         self.breaks: list[ast.BreakStmt] = []
         self.requires: list[ast.RequireStmt] = []
+        self.waives: list[ast.WaiveStmt] = []
         self.model_name: str | None = None
         self.names: dict[str, tuple[str, Span]] = {}  # name -> (what, where)
         self.equations: dict[str, tuple[Term, ...]] = {}
@@ -112,6 +120,8 @@ class _Resolver:
                 self.breaks.append(stmt)
             elif isinstance(stmt, ast.RequireStmt):
                 self.requires.append(stmt)
+            elif isinstance(stmt, ast.WaiveStmt):
+                self.waives.append(stmt)
 
     def include(self, stmt: ast.UseStmt, stack: tuple[tuple[Path, str], ...]) -> None:
         """Read, parse and collect the file a `use` names: once per model, inside the root.
@@ -133,11 +143,6 @@ class _Resolver:
                 f"a `use` must stay inside {self.root} (the repository or checked folder that holds "
                 "the model); links are followed before this check"))
             return
-        if target.suffix != MODEL_SUFFIX or real.suffix != MODEL_SUFFIX:
-            self.errors.append(ModelError(
-                "LW207", f"included file {stmt.path} is not a `{MODEL_SUFFIX}` file", stmt.span,
-                f"a `use` names another model file ending in `{MODEL_SUFFIX}`; other files are never read"))
-            return
         chain = [p for p, _ in stack]
         if real in chain:
             names = " -> ".join(p.name for p in (*chain[chain.index(real):], real))
@@ -148,6 +153,8 @@ class _Resolver:
             return  # the same library reached again (a diamond): its names are already in
         self.included.add(real)
         shown = _shown_path(shown_base, stmt.path, real)
+        if stmt.span.file in self.unshown or target.suffix != MODEL_SUFFIX or real.suffix != MODEL_SUFFIX:
+            self.unshown[shown] = self.unshown.get(stmt.span.file, (stmt.span, stmt.path))
         try:
             text = read_source(real)
         except SourceError as exc:
@@ -201,28 +208,35 @@ class _Resolver:
         try:
             value = self.evaluate(stmt.transfer, "transfer")
             tf = value if isinstance(value, Transfer) else Transfer.constant(value.value)
+            span = self.unshown.get(stmt.span.file, (stmt.span,))[0]  # what later stages point at
             self.blocks[stmt.name] = Block(stmt.name, self.checked_transfer(tf, f"block `{stmt.name}`",
-                                                                            stmt.transfer.span), stmt.span)
+                                                                            stmt.transfer.span, (stmt.name,)),
+                                           span)
         except ModelError as exc:
             self.errors.append(exc)
 
-    def checked_transfer(self, tf: Transfer, what: str, span: Span) -> Transfer:
+    def checked_transfer(self, tf: Transfer, what: str, span: Span, about: tuple[str, ...] = ()) -> Transfer:
+        if not (math.isfinite(tf.gain) and np.all(np.isfinite(tf.poles)) and np.all(np.isfinite(tf.zeros))) \
+                or (tf.gain == 0.0 and (tf.zeros.size or tf.poles.size)):
+            raise ModelError("LW106", f"{what} has coefficients beyond double precision (overflow, "
+                             "underflow or a division by zero)", span,
+                             "rescale its parameters (e.g. time in ms) or check them")
         tf, cancelled = tf.minimal()
         for p in cancelled:
-            if p.real >= 0:
+            if p.real >= 0 and p.imag >= 0:
+                where = "on the imaginary axis" if p.real == 0 else "in the right half plane"
                 self.findings.append(Finding(
-                    "warning", "LW281", f"{what} cancels a pole at {p:.4g} with a zero: the unstable "
-                    "mode is dropped from the block", span,
-                    "an exact cancellation of an unstable pole hides that mode; model it explicitly"))
-        if tf.is_zero:
-            return tf
+                    "warning", "LW281", f"{what} cancels its pole at {p:.4g} ({where}) with a zero: the "
+                    "mode stays in the system, unseen by any loop, and counts against stability", span,
+                    "an exact cancellation does not remove a mode; model it explicitly (or waive "
+                    "this with a reason if the mode is known not to exist)", about))
         if not tf.is_proper:
-            raise ModelError("LW220", f"{what} is improper ({tf.zeros.size} zeros, {tf.poles.size} poles): "
-                             "its gain grows without bound at high frequency", span,
-                             "add filter poles, e.g. Kd*s/(Tf*s + 1) instead of Kd*s")
-        if not (math.isfinite(tf.gain) and np.all(np.isfinite(tf.poles)) and np.all(np.isfinite(tf.zeros))):
-            raise ModelError("LW106", f"{what} has non-finite coefficients", span,
-                             "check for overflow or division by zero in its parameters")
+            # an ideal derivative is accepted where every loop around it stays proper
+            # (the engine refuses the loops that are not, naming the break and the blocks)
+            self.findings.append(Finding(
+                "warning", "LW283", f"{what} is improper ({tf.zeros.size} zeros, {tf.poles.size} poles): an "
+                "ideal derivative, analysed as written", span,
+                "a real implementation needs a derivative filter, e.g. Kd*s/(Tf*s + 1) instead of Kd*s", about))
         return tf
 
     # --- the pass ---------------------------------------------------------------
@@ -244,7 +258,8 @@ class _Resolver:
         for name in self.block_stmts:
             if self.eq_stmts and name in self.blocks and self.block_uses.get(name, 0) == 0:
                 self.findings.append(Finding("warning", "LW282", f"block `{name}` is never used",
-                                             self.block_stmts[name].span, "apply it in a signal equation or remove it"))
+                                             self.block_stmts[name].span, "apply it in a signal equation or remove it",
+                                             (name,)))
         if not self.eq_stmts and not self.errors and not (self.block_stmts or self.param_spans):
             self.errors.append(ModelError("LW230", "the model has no signal equations",
                                           Span(self.file, 1, 1), "wire blocks with lines like `y = G(e)`"))
@@ -257,6 +272,8 @@ class _Resolver:
                 requirements.append(make_requirement(stmt, self.const))
             except ModelError as exc:
                 self.errors.append(exc)
+        waivers = self.waivers()
+        self.keep_unshown_lines_unshown()
         if self.errors:
             raise ModelErrors(list(self.errors))  # in the order found: causes before follow-ups
         signals = {n: s.span for n, s in self.eq_stmts.items()}
@@ -266,8 +283,45 @@ class _Resolver:
             blocks=dict(self.blocks), inputs=dict(self.inputs), signals=signals,
             hidden=frozenset(self.hidden), equations=dict(self.equations), breaks=tuple(self.breaks),
             requirements=tuple(requirements), findings=tuple(self.findings),
-            block_uses=dict(self.block_uses), hidden_owner=dict(self.hidden_owner),
+            block_uses=dict(self.block_uses), hidden_owner=dict(self.hidden_owner), waivers=waivers,
         )
+
+    def keep_unshown_lines_unshown(self) -> None:
+        """Errors in an included file that is not a `.loop` file become one LW208 at the `use`
+        that led to it (their messages quote its text); its findings point at that `use`."""
+        errors, hidden = [], {}
+        for err in self.errors:
+            file = err.span.file
+            if file not in self.unshown:
+                errors.append(err)
+                continue
+            if file not in hidden:  # one error in the place of the first
+                hidden[file] = len(errors)
+                errors.append(None)
+        for file, at in hidden.items():
+            count = sum(1 for e in self.errors if e.span.file == file)
+            span, path = self.unshown[file]
+            whose = f"included file {path} has" if _same_file(span, path, file) else \
+                f"included file {path} uses {file}, which has"
+            errors[at] = ModelError(
+                "LW208", f"{whose} {count} error{'s' if count > 1 else ''}, not shown: only "
+                f"`{MODEL_SUFFIX}` files have their lines shown", span,
+                f"rename it to end in `{MODEL_SUFFIX}` to see them (or check it on its own)")
+        self.errors = errors
+        self.findings = [dataclasses.replace(f, span=self.unshown[f.span.file][0]) if f.span.file in self.unshown
+                         else f for f in self.findings]
+
+    def waivers(self) -> Waivers:
+        """The model's `waive` statements, checked against its names (after they are all known)."""
+        names = {name: what for name, (what, _) in self.names.items()}
+        names.update({stmt.name: "break" for stmt in self.breaks})
+        out = []
+        for stmt in self.waives:
+            try:
+                out.append(make_waiver(stmt, names))
+            except ModelError as exc:
+                self.errors.append(exc)
+        return Waivers(tuple(out))
 
     def as_terms(self, value, span: Span) -> list[Term]:
         if isinstance(value, list):
@@ -286,6 +340,14 @@ class _Resolver:
         self.hidden_owner[name] = self.owner
         self.equations[name] = tuple(terms)
         return name
+
+
+def _same_file(use_span: Span, path: str, shown: str) -> bool:
+    """Whether `shown` is the file that the `use` of `path` at `use_span` names."""
+    try:
+        return (Path(use_span.file).parent / path).resolve() == Path(shown).resolve()
+    except (OSError, RuntimeError):
+        return False
 
 
 def _shown_path(shown_base: str, relative: str, real: Path) -> str:

@@ -16,7 +16,7 @@ from typing import Callable
 __all__ = [
     "FORMATS", "render", "is_library", "LIBRARY_NOTE", "break_status", "model_status", "model_passes", "Tally", "tally",
     "BREAK_COLUMNS", "break_row", "unmet_requirements", "requirement_place", "finding_text",
-    "fmt_time", "count_met", "printable",
+    "fmt_time", "count_met", "printable", "waiver_note", "break_warning_text",
 ]
 
 #: --format name -> module under loopwise.report
@@ -58,13 +58,10 @@ def model_status(m) -> str:
     return "MARGINAL" if any(b.marginal for b in m.breaks) else "UNSTABLE"
 
 
-def _has_warnings(m) -> bool:
-    return any(b.warnings for b in m.breaks) or any(f.severity == "warning" for f in m.findings)
-
-
 def model_passes(m, fail_on_warnings: bool = False) -> bool:
-    """The same rule as the exit status (`loopwise.run.exit_status`), per model."""
-    return m.ok and not (fail_on_warnings and _has_warnings(m))
+    """The same rule as the exit status (`loopwise.run.exit_status`), per model: a
+    waived warning does not count (`ModelResult.open_warnings`)."""
+    return m.ok and not (fail_on_warnings and m.open_warnings)
 
 
 @dataclass(frozen=True)
@@ -74,6 +71,8 @@ class Tally:
     failed: int
     unreadable: int
     libraries: int = 0
+    waived: int = 0          # warnings and notes accepted by a waiver (shown, not counted)
+    run_warnings: int = 0    # warnings about the run itself (a settings waiver that matched nothing)
 
     def sentence(self) -> str:
         parts = [f"{self.models} model{'s' if self.models != 1 else ''} checked",
@@ -83,6 +82,10 @@ class Tally:
         if self.libraries:
             parts.append(f"{self.libraries} librar{'ies' if self.libraries != 1 else 'y'} "
                          f"for `use` not checked on {'their' if self.libraries != 1 else 'its'} own")
+        if self.waived:
+            parts.append(f"{self.waived} finding{'s' if self.waived != 1 else ''} waived")
+        if self.run_warnings:
+            parts.append(f"{self.run_warnings} settings warning{'s' if self.run_warnings != 1 else ''}")
         return ", ".join(parts)
 
 
@@ -90,8 +93,9 @@ def tally(run, fail_on_warnings: bool = False) -> Tally:
     models = [m for m in run.models if not is_library(m)]
     passed = sum(model_passes(m, fail_on_warnings) for m in models)
     unreadable = len({e.span.file for e in run.errors})
+    waived = sum(f.waiver is not None for m in run.models for f in m.every_finding)
     return Tally(len(models), passed, len(models) - passed, unreadable,
-                 len(run.models) - len(models))
+                 len(run.models) - len(models), waived, sum(f.counts for f in run.findings))
 
 
 def count_met(b) -> tuple[int, int]:
@@ -117,14 +121,29 @@ def printable(text: str) -> str:
     return _CONTROL.sub("\ufffd", text)
 
 
+def waiver_note(f) -> str | None:
+    """`waived: <reason> (<where the waiver is written>)`, or None for a finding that stands."""
+    w = f.waiver
+    return None if w is None else f"waived: {w.reason} ({w.span.file}:{w.span.line})"
+
+
+def break_warning_text(b, w) -> str:
+    """A break's warning on one line (it is located at the break's line), marked when waived."""
+    note = waiver_note(w)
+    return f"break {b.name}: {w.code} {w.message}" + (f" [{note}]" if note else "")
+
+
 def finding_text(f) -> str:
-    """A finding with its line and caret, or a single line when it has no location."""
+    """A finding with its line and caret, or a single line when it has no location;
+    a waived one ends with its waiver's reason and place."""
     from ..errors import render as render_finding
 
     if f.span.line > 0:
-        return printable(render_finding(f))
-    text = f"{f.span.file}: {f.severity} {f.code} {f.message}"
-    return printable(text + (f"\n    hint: {f.hint}" if f.hint else ""))
+        text = render_finding(f)
+    else:
+        text = f"{f.span.file}: {f.severity} {f.code} {f.message}" + (f"\n    hint: {f.hint}" if f.hint else "")
+    note = waiver_note(f)
+    return printable(text + (f"\n    {note}" if note else ""))
 
 
 # --- the per-break table ---------------------------------------------------------------

@@ -9,7 +9,7 @@ import json
 import math
 
 from .. import __version__
-from ..diff import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
+from ..compare import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
 from ..errors import Finding
 from ..results import CAUTION
 
@@ -81,6 +81,7 @@ def to_dict(result: DiffResult) -> dict:
                    "delay_margin_loss_fraction": p.delay_margin_loss_fraction,
                    "verdict_to_unstable": p.verdict_to_unstable,
                    "requirement_stops_being_met": p.requirement_stops_being_met},
+        "settings": result.settings,
         "summary": {"models": len(result.models),
                     **{s.replace(" ", "_"): result.count(s) for s in statuses},
                     "regressions": len(result.regressions), "exit_code": result.exit_code},

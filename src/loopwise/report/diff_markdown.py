@@ -5,7 +5,7 @@ listed. Direction is in words so the comment reads the same without colour.
 """
 from __future__ import annotations
 
-from ..diff import BreakDiff, DiffResult, ModelDiff
+from ..compare import BreakDiff, DiffResult, ModelDiff
 from ..results import CAUTION
 from .diff_text import margin_words, policy_words, requirement_words, summary_words, verdict_words
 
@@ -79,5 +79,6 @@ def render(result: DiffResult) -> str:
             out += _model_section(m)
     if unchanged:
         out += [f"{unchanged} model{'s' if unchanged != 1 else ''} unchanged.", ""]
-    out += [f"<sub>Regression: {policy_words(result.policy)}.</sub>", "", f"> {CAUTION}"]
+    settings = f" Settings: {_cell(result.settings)}." if result.settings else ""
+    out += [f"<sub>Regression: {policy_words(result.policy)}.{settings}</sub>", "", f"> {CAUTION}"]
     return "\n".join(out) + "\n"

@@ -5,7 +5,7 @@ signed delta, and a regression under the policy says so at the end of its line.
 """
 from __future__ import annotations
 
-from ..diff import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
+from ..compare import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
 from ..results import CAUTION
 from ..settings import Regression
 
@@ -166,7 +166,10 @@ def _model_lines(m: ModelDiff) -> list[str]:
 
 def render(result: DiffResult) -> str:
     out = [f"loopwise diff: {result.old_label} -> {result.new_label}",
-           f"regression: {policy_words(result.policy)}", ""]
+           f"regression: {policy_words(result.policy)}"]
+    if result.settings:
+        out.append(f"settings: {result.settings}")
+    out.append("")
     unchanged = 0
     for m in result.models:
         if m.status == "unchanged":

@@ -13,7 +13,7 @@ from html import escape
 from typing import Callable
 
 from ..results import CAUTION
-from . import (BREAK_COLUMNS, break_row, break_status, count_met, finding_text, model_passes,
+from . import (BREAK_COLUMNS, break_row, break_status, break_warning_text, count_met, finding_text, model_passes,
                model_status, requirement_place, tally)
 
 __all__ = ["render_html", "figure_count", "draw_svg", "CSS"]
@@ -121,9 +121,16 @@ def draw_svg(job) -> str:
     return _unique_ids(svg, prefix)
 
 
+def _samples(job) -> int:
+    return len(job[0].response.s)
+
+
 def _draw_all(run, hz: bool, jobs: int, tick: Callable[[], None]) -> dict:
     """Every figure of the run, keyed (model index, break index, kind); in `jobs`
-    processes when more than one. The pages are the same either way."""
+    processes when more than one (`loopwise.pool`, the most densely sampled
+    first). The pages are the same either way."""
+    from ..pool import run_pool
+
     keys, work = [], []
     for n, m in enumerate(run.models):
         for k, b in enumerate(m.breaks):
@@ -131,21 +138,7 @@ def _draw_all(run, hz: bool, jobs: int, tick: Callable[[], None]) -> dict:
                 for kind in VIEWS:
                     keys.append((n, k, kind))
                     work.append((b, kind, m.model, hz, f"m{n}b{k}{kind[0]}-"))
-    if jobs <= 1 or len(work) < 2:
-        out = {}
-        for key, job in zip(keys, work):
-            out[key] = draw_svg(job)
-            tick()
-        return out
-    from concurrent.futures import ProcessPoolExecutor, as_completed
-
-    with ProcessPoolExecutor(max_workers=min(jobs, len(work))) as pool:
-        futures = {pool.submit(draw_svg, job): key for key, job in zip(keys, work)}
-        out = {}
-        for future in as_completed(futures):
-            out[futures[future]] = future.result()
-            tick()
-    return out
+    return dict(zip(keys, run_pool(draw_svg, work, jobs, cost=_samples, tick=tick)))
 
 
 def _break_figures(b, index: str, svgs: dict, key) -> list[str]:
@@ -190,7 +183,7 @@ def _requirements(m) -> list[str]:
 
 
 def _warnings(m) -> list[str]:
-    items = [f"<li>{_word('WARNING')} break {_e(b.name)}: {_e(w.code)} {_e(w.message)}</li>"
+    items = [f"<li>{_word('WARNING' if w.waiver is None else 'WAIVED')} {_e(break_warning_text(b, w))}</li>"
              for b in m.breaks for w in b.warnings]
     for b in m.breaks:
         if not b.stable and b.stabilising_gains:
@@ -222,6 +215,13 @@ def _model_section(m, n: int, fail: bool, svgs: dict) -> list[str]:
         out += _break_figures(b, f"m{n}b{k}", svgs, (n, k))
     out.append("</section>")
     return out
+
+
+def _settings(run) -> list[str]:
+    if not run.findings:
+        return []
+    return ['<section id="settings">', f"<h2>{_word('WARNING')} settings</h2>",
+            *[f"<pre>{_e(finding_text(f))}</pre>" for f in run.findings], "</section>"]
 
 
 def _errors(run) -> list[str]:
@@ -263,6 +263,6 @@ def render_html(run, *, hz: bool = False, fail_on_warnings: bool = False, jobs: 
             for n, m in enumerate(run.models)) + "</ul></nav>")
     for n, m in enumerate(run.models):
         out += _model_section(m, n, fail_on_warnings, svgs)
-    out += _errors(run)
+    out += _settings(run) + _errors(run)
     out += ["</main>", f"<footer><p>{_e(CAUTION)}</p></footer>", "</body>", "</html>"]
     return "\n".join(out) + "\n"

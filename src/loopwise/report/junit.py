@@ -12,7 +12,7 @@ import re
 import xml.etree.ElementTree as ET
 
 from ..results import CAUTION
-from . import break_status, finding_text, is_library, model_status, requirement_place
+from . import break_status, break_warning_text, finding_text, is_library, model_status, requirement_place
 
 __all__ = ["render"]
 
@@ -49,8 +49,8 @@ def _break_problems(m, b, fail_on_warnings: bool) -> tuple[str, str, list[str]] 
     if unmet:
         return "requirement", f"{len(unmet)} requirement(s) not met: " + "; ".join(
             r.describe() for r in unmet), details
-    if fail_on_warnings and b.warnings:
-        texts = [f"{w.code} {w.message}" for w in b.warnings]
+    if fail_on_warnings and b.open_warnings:
+        texts = [f"{w.code} {w.message}" for w in b.open_warnings]
         return "warning", texts[0], texts
     return None
 
@@ -70,7 +70,7 @@ def _model_suite(root, m, fail_on_warnings: bool) -> None:
         return
     case = _case(suite, m.model, "closed loop", m.file)
     status = model_status(m)
-    model_warnings = [f for f in m.findings if f.severity == "warning"]
+    model_warnings = [f for f in m.findings if f.counts]  # a waived warning does not fail
     if status != "STABLE":
         _fail(case, "instability", f"{status}: {m.closed_loop_rhp_poles} closed-loop pole(s) in "
                                    "the right half plane", [])
@@ -84,7 +84,7 @@ def _model_suite(root, m, fail_on_warnings: bool) -> None:
         if problem:
             _fail(case, *problem)
             failures += 1
-    notes = [f"break {b.name}: warning: {w.code} {w.message}" for b in m.breaks for w in b.warnings]
+    notes = [f"warning: {break_warning_text(b, w)}" for b in m.breaks for w in b.warnings]
     notes += [finding_text(f) for f in m.findings]
     if notes:
         ET.SubElement(suite, "system-out").text = _clean("\n".join(notes))
@@ -103,10 +103,26 @@ def _error_suite(root, file: str, errors) -> None:
     el.text = _clean("\n".join(finding_text(e) for e in errors))
 
 
+def _settings_suite(root, findings, fail_on_warnings: bool) -> None:
+    """Warnings about the run itself (a settings waiver that matched nothing): one case each."""
+    suite = ET.SubElement(root, "testsuite", {"name": _clean(findings[0].span.file)})
+    failures = 0
+    for f in findings:
+        case = _case(suite, "settings", f"{f.code} {f.message}", f.span.file, f.span.line or None)
+        if fail_on_warnings and f.counts:
+            _fail(case, "warning", f"{f.code} {f.message}", [finding_text(f)])
+            failures += 1
+    ET.SubElement(suite, "system-out").text = _clean("\n".join(finding_text(f) for f in findings))
+    for key, value in (("tests", len(findings)), ("failures", failures), ("errors", 0), ("skipped", 0)):
+        suite.set(key, str(value))
+
+
 def render(run, fail_on_warnings: bool = False) -> str:
     root = ET.Element("testsuites", {"name": "loopwise check"})
     for m in run.models:
         _model_suite(root, m, fail_on_warnings)
+    if run.findings:
+        _settings_suite(root, run.findings, fail_on_warnings)
     by_file: dict[str, list] = {}
     for e in run.errors:
         by_file.setdefault(e.span.file, []).append(e)

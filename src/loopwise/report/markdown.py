@@ -5,8 +5,8 @@ from __future__ import annotations
 import re
 
 from ..results import CAUTION
-from . import (BREAK_COLUMNS, is_library, break_row, count_met, finding_text, model_passes, model_status,
-               requirement_place, tally, unmet_requirements)
+from . import (BREAK_COLUMNS, is_library, break_row, break_warning_text, count_met, finding_text, model_passes,
+               model_status, requirement_place, tally, unmet_requirements)
 
 __all__ = ["render"]
 
@@ -68,7 +68,7 @@ def _details(m, fail_on_warnings: bool) -> list[str]:
         out += [f"- {_code(requirement_place(m, r))} break {_code(b.name)}: {_code(r.describe())}"
                 for b, r in unmet]
         out.append("")
-    notes = [f"break {b.name}: {w.code} {w.message}" for b in m.breaks for w in b.warnings]
+    notes = [break_warning_text(b, w) for b in m.breaks for w in b.warnings]
     notes += [finding_text(f) for f in m.findings]
     if notes:
         out += ["Warnings:", "", *_fenced(notes), ""]
@@ -85,6 +85,10 @@ def render(run, fail_on_warnings: bool = False) -> str:
     for m in run.models:
         if not is_library(m):
             out += _details(m, fail_on_warnings)
+    if run.findings:
+        out += ["#### Settings", ""]
+        out += _fenced([line for f in run.findings for line in finding_text(f).splitlines()])
+        out.append("")
     if run.errors:
         out += ["#### Models that could not be read", ""]
         out += _fenced([line for e in run.errors for line in finding_text(e).splitlines()])

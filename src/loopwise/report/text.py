@@ -7,8 +7,8 @@ signal. Columns are padded on the plain text, so colour codes never shift them.
 from __future__ import annotations
 
 from ..results import CAUTION
-from . import (BREAK_COLUMNS, LIBRARY_NOTE, is_library, break_row, count_met, finding_text, model_passes, model_status,
-               requirement_place, tally, unmet_requirements)
+from . import (BREAK_COLUMNS, LIBRARY_NOTE, is_library, break_row, break_warning_text, count_met, finding_text,
+               model_passes, model_status, requirement_place, tally, unmet_requirements)
 
 __all__ = ["render"]
 
@@ -77,9 +77,9 @@ def _model_block(m, colour: bool, fail_on_warnings: bool) -> list[str]:
             ranges = ", ".join(f"[{lo:.3g}, {hi:.3g}]" for lo, hi in b.stabilising_gains)
             out.append(f"  break {b.name}: the closed loop would be stable with L scaled by a "
                        f"factor in {ranges}")
-    warn = _paint("warning", "warning", colour)
     for b in m.breaks:
-        out += [f"  {warn}: break {b.name}: {w.code} {w.message}" for w in b.warnings]
+        out += [f"  {_paint('warning', 'warning' if w.counts else 'dim', colour)}: {break_warning_text(b, w)}"
+                for w in b.warnings]
     for f in m.findings:
         if f.code != LIBRARY_NOTE:   # already said on the verdict line
             out += ["  " + line for line in finding_text(f).splitlines()]
@@ -91,6 +91,8 @@ def render(run, colour: bool = False, fail_on_warnings: bool = False) -> str:
     for m in run.models:
         out += _model_block(m, colour, fail_on_warnings)
         out.append("")
+    for f in run.findings:  # about the run itself: a settings waiver that matched nothing
+        out += [*finding_text(f).splitlines(), ""]
     if run.errors:
         files = sorted({e.span.file for e in run.errors}, key=[e.span.file for e in run.errors].index)
         for name in files:

@@ -2,7 +2,8 @@
 
 Pure: takes the results of both sides (already checked, keyed by the model's
 path relative to its root) and returns frozen records; reading files, git and
-printing live in `loopwise.commands.diff` and the `report.diff_*` modules.
+printing live in `loopwise.sides` (the two sides: files, folders, git revisions),
+`loopwise.commands.diff` and the `report.diff_*` modules.
 
 ``None`` in a margin means "unbounded / no crossover" (see `loopwise.results`);
 here it is ordered as the best possible value of that margin, so a change from
@@ -163,6 +164,7 @@ class DiffResult:
     new_label: str
     models: tuple[ModelDiff, ...]
     policy: Regression
+    settings: str = ""  # which settings judged both sides and set the policy, in words
 
     @property
     def regressions(self) -> tuple[str, ...]:
@@ -416,9 +418,11 @@ def compare_models(file: str, before: Side, after: Side, policy: Regression) -> 
 
 
 def compare(old: Mapping[str, Side], new: Mapping[str, Side], policy: Regression | None = None,
-            old_label: str = "old", new_label: str = "new") -> DiffResult:
-    """Compare two sets of results keyed by the model's relative path (sorted output)."""
+            old_label: str = "old", new_label: str = "new", settings: str = "") -> DiffResult:
+    """Compare two sets of results keyed by the model's relative path (sorted output).
+
+    `settings` says in words where the settings (and so the policy) came from."""
     policy = policy or Regression()
     files = sorted(set(old) | set(new))
     models = tuple(compare_models(f, old.get(f), new.get(f), policy) for f in files)
-    return DiffResult(old_label, new_label, models, policy)
+    return DiffResult(old_label, new_label, models, policy, settings)

@@ -1,0 +1,125 @@
+"""Closed-loop poles that exact pole-zero cancellations hide (part of the wind stage).
+
+A cancellation removes a mode from a transfer function, not from the system: the
+states of every block application stay, and the closed loop's characteristic
+function is chi(s) = prod_b den_b(s) det(I - A(s)) (docs/method.md). Two places
+hide such a mode from the Nyquist count:
+
+* inside one block (`(s - 1)/((s - 1)(s + 2))`): the resolver keeps the block
+  minimal and records the cancelled poles (`Transfer.cancelled`); a cancelled
+  pole in Re s >= 0 is a closed-loop pole wherever the block is applied;
+* between blocks (a PI integrator against a plant zero at s = 0, a notch against
+  an undamped plant pair): chi vanishes at a block pole p. On the imaginary axis
+  the contour indents round p, so the count cannot see it; in the right half plane
+  the count does (Z), but no loop transfer shows it.
+
+The second kind is looked for at every block pole p in Re s >= 0 that a zero of
+another block (or of the same block's other application) cancels, or that only a
+block on an input path has: on a small circle round p, det(I - A) ~ c (s - p)^k,
+so its winding number is k, and chi has a zero of order m + k at p, m being the
+number of block poles at p. An exact cancellation puts the closed-loop pole at p
+itself, so the circle can be small: 1e-12 of the distance to the nearest other
+block root. At an axis pole that nothing cancels the circle is the contour's own
+indentation: a closed-loop pole inside it is excluded from the count whichever
+side of the axis it lies, so it is reported as on the axis (marginal) rather than
+taken for stable. Delays do not matter here: exp(-sT) has neither zeros nor poles.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..results import HiddenMode
+from .reduce import Reduction
+from .winding import indentation_radius
+
+__all__ = ["cancelled_modes", "structural_modes", "applications"]
+
+#: two roots closer than this (relative) are the same root
+_SAME = 1e-9
+#: radius of the circle round a block pole, relative to the distance to the nearest other root
+_RADIUS = 1e-12
+
+
+def applications(red: Reduction) -> list:
+    """Every block application of the model, in the loops or on input paths (its wiring Term)."""
+    return [inst.term for inst in red.instances if inst.transfer is not None] + list(red.exogenous)
+
+
+def _label(term) -> str:
+    """The block's name, or `[..]@line:col` for a bracketed transfer (its place)."""
+    return term.app.label
+
+
+def _same(a: complex, b: np.ndarray) -> np.ndarray:
+    return np.abs(b - a) <= _SAME * np.maximum(abs(a), np.abs(b))
+
+
+def _upper(roots: np.ndarray) -> list[complex]:
+    """Distinct roots with Re >= 0 and Im >= 0 (one of each conjugate pair)."""
+    out: list[complex] = []
+    for r in roots:
+        if r.real >= 0 and r.imag >= 0 and not any(abs(r - q) <= _SAME * max(abs(r), abs(q)) for q in out):
+            out.append(complex(r))
+    return out
+
+
+def cancelled_modes(red: Reduction) -> list[HiddenMode]:
+    """Poles in Re s >= 0 that a block cancels with its own zeros (LW281), per block."""
+    found: dict[tuple[str, complex], int] = {}
+    for term in applications(red):
+        cancelled = term.app.transfer.cancelled
+        for p in _upper(cancelled):
+            key = (_label(term), p)
+            found[key] = found.get(key, 0) + int(np.sum(_same(p, cancelled)))
+    return [HiddenMode(p, m, "LW281", (label,), (label,)) for (label, p), m in found.items()]
+
+
+def _winding(red: Reduction, p: complex, radius: float) -> tuple[int, float]:
+    """Winding number of det(I - A) round the circle |s - p| = radius, and its rounding error."""
+    n = 64
+    while True:
+        theta = np.linspace(0.0, 2 * math.pi, n + 1)
+        phase, logabs = red.characteristic(p + radius * np.exp(1j * theta))
+        steps = np.diff(phase)
+        steps = (steps + math.pi) % (2 * math.pi) - math.pi
+        if np.all(np.isfinite(steps)) and (np.max(np.abs(steps)) < math.pi / 4 or n >= 4096):
+            total = float(np.sum(steps)) / (2 * math.pi)
+            return int(round(total)), abs(total - round(total))
+        if n >= 4096:
+            return 0, math.inf
+        n *= 4
+
+
+def structural_modes(red: Reduction) -> list[HiddenMode]:
+    """Closed-loop poles at block poles in Re s >= 0 (cancellations between blocks,
+    LW487 / LW488; a block on an input path only, LW484)."""
+    terms = applications(red)
+    poles = red.block_poles()
+    roots = np.concatenate([poles, red.block_zeros()])
+    out = []
+    for p in _upper(poles):
+        pole_terms = [t for t in terms if np.any(_same(p, t.app.transfer.poles))]
+        zero_blocks = tuple(dict.fromkeys(
+            _label(inst.term) for inst in red.instances
+            if inst.transfer is not None and np.any(_same(p, inst.transfer.zeros))))
+        exogenous_only = all(any(t is e for e in red.exogenous) for t in pole_terms)
+        m = int(np.sum(_same(p, poles)))
+        if zero_blocks or exogenous_only:
+            others = roots[~_same(p, roots)]
+            d = float(np.min(np.abs(others - p))) if others.size else max(1.0, abs(p))
+            radius = max(_RADIUS * min(d, max(1.0, abs(p))), 10.0 ** (-250.0 / m) * max(1.0, abs(p)))
+        elif p.real == 0:
+            # nothing cancels it, but a closed-loop pole inside the contour's indentation is
+            # excluded from the count whichever side it lies: say so rather than call it stable
+            axis = poles[poles.real == 0]
+            radius = indentation_radius(abs(p.imag), axis, roots)
+        else:
+            continue  # in the right half plane and not cancelled: the count sees it
+        k, err = _winding(red, p, radius)
+        if err > 0.1 or m + k <= 0:
+            continue
+        code = "LW484" if exogenous_only else ("LW488" if p.real == 0 else "LW487")
+        out.append(HiddenMode(p, m + k, code, tuple(dict.fromkeys(_label(t) for t in pole_terms)), zero_blocks))
+    return out
