@@ -231,16 +231,23 @@ def _worker_stopped(path: str):
                            Span(path, 0, 0), "try --jobs 1; the model may need more memory"),))
 
 
-def check_outcomes(files, settings=None, jobs: int = 1, tick=None, root=None) -> list[tuple]:
+def check_outcomes(files, settings=None, jobs: int = 1, tick=None, root=None, roots=None) -> list[tuple]:
     """`check_one` for every file, in `jobs` processes (`loopwise.pool.run_pool`:
-    largest file first, results in the order of `files`). `root`: see `check_files`."""
+    largest file first, results in the order of `files`). `root`: see `check_files`;
+    `roots`, one per file, when the files come from different trees (a diff's sides)."""
     from .pool import run_pool
 
     paths = [str(f) for f in files]
     if len(paths) > 1 and jobs != 1:
         from . import analysis  # noqa: F401  (loaded once here, forked workers inherit it)
-    return run_pool(partial(check_one, settings=settings, root=root), paths, jobs, cost=_size, tick=tick,
-                    on_broken=_worker_stopped)
+    items = list(zip(paths, roots if roots is not None else [root] * len(paths)))
+    return run_pool(partial(_check_in_root, settings=settings), items, jobs, cost=lambda item: _size(item[0]),
+                    tick=tick, on_broken=lambda item: _worker_stopped(item[0]))
+
+
+def _check_in_root(item: tuple[str, object], settings=None):
+    path, root = item
+    return check_one(path, settings, root)
 
 
 def check_files(files, settings=None, jobs: int = 1, progress: bool = False, root=None):

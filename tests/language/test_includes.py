@@ -304,3 +304,24 @@ def test_errors_in_a_file_reached_through_one_of_another_kind_are_not_shown(tmp_
     assert err.message.startswith("included file common/plant.inc uses ") and \
         err.message.endswith("deep.txt, which has 1 error, not shown: only `.loop` files have their lines shown")
     assert "hunter2" not in every_format(capsys, m)
+
+
+def test_each_side_of_a_folder_diff_keeps_its_own_include_root(tmp_path, capsys):
+    # outside git, a side's includes may reach anywhere in that side's folder (and no further)
+    if repository_root(tmp_path) is not None:
+        pytest.skip("the temporary folder lies inside a git work tree")
+    for side, k in (("old", 2), ("new", 3)):
+        (tmp_path / side / "models").mkdir(parents=True)
+        (tmp_path / side / "lib").mkdir()
+        (tmp_path / side / "lib" / "ctl.loop").write_text(f"param k = {k}\nblock C = k/(s+1)\n")
+        (tmp_path / side / "models" / "m.loop").write_text('use "../lib/ctl.loop"\n' + LOOP)
+    code = main(["diff", str(tmp_path / "old"), str(tmp_path / "new"), "--format", "json"])
+    out = capsys.readouterr().out
+    import json
+    data = json.loads(out)
+    assert "LW207" not in out
+    # L = k/(s+1): |L| = 1 at w = sqrt(k^2 - 1), PM = 180 - atan(w) deg (by hand); k 2 -> 3 loses
+    # 10.5 deg of phase margin, a regression (exit 1): both sides were read through ../lib
+    assert code == 1
+    m = next(x for x in data["models"] if x["file"] == "models/m.loop")
+    assert m["status"] == "changed"
