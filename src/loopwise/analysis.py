@@ -66,10 +66,12 @@ def prepare_text(text: str, file: str = "<text>", settings=None) -> Prepared:
                                  getattr(settings, "source", None) or "<settings>"), settings)
 
 
-def prepare_file(path, settings=None) -> Prepared:
+def prepare_file(path, settings=None, root=None) -> Prepared:
+    """`root`: the checked models' common folder; outside git, includes must stay inside it."""
     path, settings = arg.model_path(path), arg.settings_or_none(settings)
+    root = None if root is None else arg.model_path(root, "root")
     return _prepare(resolve_file(path, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>"), settings)
+                                 getattr(settings, "source", None) or "<settings>", root), settings)
 
 
 @contextmanager
@@ -92,11 +94,13 @@ def check_text(text: str, file: str = "<text>", settings=None, indent: str = "ri
         return apply_waivers(check_prepared(prep, indent), prep.model.waivers)
 
 
-def check_file(path, settings=None, indent: str = "right") -> ModelResult:
-    """Check one model file; raises loopwise.ModelError when it cannot be read."""
+def check_file(path, settings=None, indent: str = "right", root=None) -> ModelResult:
+    """Check one model file; raises loopwise.ModelError when it cannot be read. Includes
+    must stay in the git work tree holding the model, outside git in `root` (default: the
+    model's folder); see docs/language.md, `use`."""
     indent = arg.check_indent(indent)
     with _unreadable():
-        prep = prepare_file(path, settings)
+        prep = prepare_file(path, settings, root)
         return apply_waivers(check_prepared(prep, indent), prep.model.waivers)
 
 

@@ -5,9 +5,10 @@ these objects, and the reporters (or :func:`render`) turn them into text.
 """
 from __future__ import annotations
 
+import functools
+import os
 import re
 from dataclasses import dataclass
-from pathlib import Path
 
 __all__ = [
     "Span",
@@ -17,7 +18,19 @@ __all__ = [
     "Finding",
     "render",
     "printable",
+    "display_name",
 ]
+
+
+#: lone surrogates: the bytes of a file name that were not UTF-8 (PEP 383), or any other
+_UNPRINTABLE_NAME = re.compile("[\ud800-\udfff]")
+
+
+def display_name(file: str) -> str:
+    """A file name that can always be printed and written as UTF-8: bytes of the name
+    that were not UTF-8 (kept as lone surrogates) shown as U+FFFD, as the output
+    writer shows them (`loopwise.output.display_safe`)."""
+    return _UNPRINTABLE_NAME.sub("\ufffd", file)
 
 
 @dataclass(frozen=True)
@@ -30,7 +43,7 @@ class Span:
     end_col: int | None = None
 
     def __str__(self) -> str:
-        return f"{self.file}:{self.line}:{self.col}"
+        return f"{display_name(self.file)}:{self.line}:{self.col}"
 
 
 NOWHERE = Span("<unknown>", 0, 0)
@@ -132,7 +145,7 @@ class Finding:
         return {
             "severity": self.severity,
             "code": self.code,
-            "file": self.span.file,
+            "file": display_name(self.span.file),
             "line": self.span.line,
             "col": self.span.col,
             "message": self.message,
@@ -146,19 +159,37 @@ def source_line(span: Span, text: str | None = None) -> str | None:
     """The source line a span points into, read from `text` or the file.
 
     Lines are split on "\n" only, as the parser counts them (str.splitlines
-    would also split on form feeds and other separators).
+    would also split on form feeds and other separators). A file is read with
+    the language's bounded reader (regular files only, the size limit, UTF-8),
+    once for all the findings that point into it.
     """
     if span.line <= 0:
         return None
     if text is None:
-        try:
-            text = Path(span.file).read_text(encoding="utf-8", errors="replace")
-        except OSError:
-            return None
-    lines = text.split("\n")
-    if span.line > len(lines):
+        lines = _file_lines(span.file)
+    else:
+        lines = text.split("\n")
+    if lines is None or span.line > len(lines):
         return None
     return lines[span.line - 1].rstrip("\r")
+
+
+def _file_lines(file: str) -> tuple[str, ...] | None:
+    try:
+        info = os.stat(file)
+    except (OSError, ValueError):
+        return None
+    return _read_lines(file, info.st_mtime_ns, info.st_size)
+
+
+@functools.lru_cache(maxsize=8)
+def _read_lines(file: str, mtime_ns: int, size: int) -> tuple[str, ...] | None:
+    from .language.source import SourceError, read_source  # the one bounded reader
+
+    try:
+        return tuple(read_source(file).split("\n"))
+    except SourceError:
+        return None
 
 
 #: long lines are shown as a window around the column

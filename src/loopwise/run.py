@@ -150,16 +150,17 @@ def _not_text(path: str, exc: UnicodeDecodeError) -> Finding:
                    "a model is plain UTF-8 text")
 
 
-def check_one(path: str, settings=None) -> tuple[object | None, tuple[Finding, ...]]:
+def check_one(path: str, settings=None, root=None) -> tuple[object | None, tuple[Finding, ...]]:
     """Check one model file: (ModelResult, ()) or (None, its errors as findings).
 
+    `root` is the checked paths' common folder (where includes must stay outside git).
     Exceptions do not cross the process boundary (ModelError does not pickle),
     so every failure is turned into findings here.
     """
     from .analysis import check_file  # the heavy stages load on first use
 
     try:
-        return check_file(path, settings=settings), ()
+        return check_file(path, settings=settings, root=root), ()
     except ModelError as exc:  # every unreadable model, with all its located errors
         return None, _name_the_model(path, exc.findings)
     except UnicodeDecodeError as exc:
@@ -230,20 +231,30 @@ def _worker_stopped(path: str):
                            Span(path, 0, 0), "try --jobs 1; the model may need more memory"),))
 
 
-def check_outcomes(files, settings=None, jobs: int = 1, tick=None) -> list[tuple]:
+def check_outcomes(files, settings=None, jobs: int = 1, tick=None, root=None, roots=None) -> list[tuple]:
     """`check_one` for every file, in `jobs` processes (`loopwise.pool.run_pool`:
-    largest file first, results in the order of `files`)."""
+    largest file first, results in the order of `files`). `root`: see `check_files`;
+    `roots`, one per file, when the files come from different trees (a diff's sides)."""
     from .pool import run_pool
 
     paths = [str(f) for f in files]
     if len(paths) > 1 and jobs != 1:
         from . import analysis  # noqa: F401  (loaded once here, forked workers inherit it)
-    return run_pool(partial(check_one, settings=settings), paths, jobs, cost=_size, tick=tick,
-                    on_broken=_worker_stopped)
+    items = list(zip(paths, roots if roots is not None else [root] * len(paths)))
+    return run_pool(partial(_check_in_root, settings=settings), items, jobs, cost=lambda item: _size(item[0]),
+                    tick=tick, on_broken=lambda item: _worker_stopped(item[0]))
 
 
-def check_files(files, settings=None, jobs: int = 1, progress: bool = False):
+def _check_in_root(item: tuple[str, object], settings=None):
+    path, root = item
+    return check_one(path, settings, root)
+
+
+def check_files(files, settings=None, jobs: int = 1, progress: bool = False, root=None):
     """Check these model files (from `discover`); a RunResult in their order.
+
+    `root` is the folder tree of the checked paths, where includes must stay when
+    a model is not in a git work tree (default: the common folder of `files`).
 
     `jobs` > 1 checks models in that many processes (0: one per CPU; capped at
     the CPUs), the order of the results does not depend on it. `progress`
@@ -256,10 +267,13 @@ def check_files(files, settings=None, jobs: int = 1, progress: bool = False):
     from .settings import Settings
     from .waivers import unmatched_settings_waivers
 
+    from .language.source import common_root
+
     jobs = arg.jobs_count(jobs)
     settings, progress = arg.settings_or_none(settings) or Settings(), arg.flag(progress, "progress")
+    root = common_root(files) if root is None and files else root
     with progress_bar("checking", len(files), enabled=progress) as tick:
-        outcomes = check_outcomes(files, settings, jobs, tick)
+        outcomes = check_outcomes(files, settings, jobs, tick, root)
     models = tuple(m for m, _ in outcomes if m is not None)
     # an error outside the model itself (a shared `use` file, a settings requirement)
     # comes back from every model that meets it: report it once
@@ -276,7 +290,10 @@ def check_paths(paths, settings=None, jobs: int = 1, progress: bool = False):
 
     paths, settings = arg.model_paths(paths), arg.settings_or_none(settings) or Settings()
     jobs, progress = arg.jobs_count(jobs), arg.flag(progress, "progress")  # before any work
-    return check_files(discover(paths, settings), settings, jobs, progress)
+    from .language.source import common_root
+
+    # outside git, includes stay inside the folder tree of the checked paths
+    return check_files(discover(paths, settings), settings, jobs, progress, common_root(paths))
 
 
 # --- the exit policy ---------------------------------------------------------------

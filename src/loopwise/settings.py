@@ -33,7 +33,6 @@ Every value is checked when the file is read; a mistake is a located error
 """
 from __future__ import annotations
 
-import difflib
 import math
 import re
 import tomllib
@@ -41,6 +40,7 @@ from dataclasses import dataclass, field, fields
 from pathlib import Path
 
 from .errors import Finding, ModelError, Span, UsageError, render
+from .language.hints import did_you_mean
 from .waivers import Waiver, check_code, check_reason
 
 __all__ = ["Settings", "Regression", "SettingsError", "load_settings", "load_settings_file", "find_config",
@@ -364,9 +364,8 @@ class _Reader:
     def unknown(self, table: dict, known: tuple[str, ...], sub: tuple[str, ...] = (), index=None) -> None:
         for key in table:
             if key not in known:
-                match = difflib.get_close_matches(key, known, n=1, cutoff=0.6)
                 self.fail("LW011", f"unknown setting `{key}`", sub, key,
-                          f"did you mean `{match[0]}`?" if match else "settings: " + ", ".join(known), index)
+                          did_you_mean(key, known) or "settings: " + ", ".join(known), index)
 
     def strings(self, table: dict, key: str, sub=(), index=None, globs=False) -> tuple[str, ...]:
         value = table.get(key, [])

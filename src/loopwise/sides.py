@@ -90,7 +90,9 @@ class ModelChecker:
         for key, item in zip(keys, items):
             if key not in self.cache:
                 todo.setdefault(key, item)
-        outcomes = check_outcomes([path for path, _, _ in todo.values()], self.settings, self.jobs)
+        # each side's includes stay inside that side's tree (a revision's copy has no .git)
+        outcomes = check_outcomes([path for path, _, _ in todo.values()], self.settings, self.jobs,
+                                  roots=[root for _, _, root in todo.values()])
         for key, (_, label, root), outcome in zip(todo, todo.values(), outcomes):
             self.cache[key] = self._side(outcome, label, root.resolve())
         self.checked += len(todo)

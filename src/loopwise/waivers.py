@@ -20,12 +20,12 @@ The rules (docs/language.md, "waive"):
 """
 from __future__ import annotations
 
-import difflib
 from dataclasses import dataclass, replace
 from pathlib import Path
 
 from .diagnostics import CODES
 from .errors import Finding, ModelError, Span
+from .language.hints import closest, did_you_mean
 
 __all__ = ["Waiver", "Waivers", "UNMATCHED", "check_code", "check_reason", "make_waiver",
            "apply_waivers", "settings_waivers_for", "unmatched_settings_waivers"]
@@ -93,9 +93,9 @@ def _code_hint(code: str) -> str:
     old = {c.old: c.code for c in CODES.values() if c.old}
     if upper in old:
         return f"`{code}` is the old spelling of `{old[upper]}`"
-    match = difflib.get_close_matches(upper, list(CODES), n=1, cutoff=0.6)
+    match = closest(upper, CODES)
     if match:
-        return f"did you mean `{match[0]}` ({CODES[match[0]].summary})?"
+        return f"did you mean `{match}` ({CODES[match].summary})?"
     return "codes are `LW` and three digits; see the table in docs/language.md#diagnostics"
 
 
@@ -129,9 +129,8 @@ def make_waiver(stmt, names: dict[str, str]) -> Waiver:
         kind = names.get(stmt.at)
         if kind not in SUBJECT_KINDS:
             subjects = [n for n, k in names.items() if k in SUBJECT_KINDS]
-            match = difflib.get_close_matches(stmt.at, subjects, n=1, cutoff=0.6)
             what = "a param, not" if kind else "not"
-            hint = (f"did you mean `{match[0]}`?" if match else
+            hint = (did_you_mean(stmt.at, subjects) or
                     "a finding is about a break, a signal or a block: name one of them, or drop `at`")
             raise ModelError("LW253", f"`{stmt.at}` is {what} a break, signal or block of this model",
                              stmt.at_span, hint)

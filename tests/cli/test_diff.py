@@ -167,9 +167,9 @@ def test_unchanged_models_are_checked_once(repo, capsys, monkeypatch):
     calls = []
     real = analysis.check_file
 
-    def counting(path, settings=None):
+    def counting(path, settings=None, **options):
         calls.append(Path(path).name)
-        return real(path, settings=settings)
+        return real(path, settings=settings, **options)
     monkeypatch.setattr(analysis, "check_file", counting)
     commit(repo, model_set(K=10), "K = 10")
     commit(repo, model_set(K=20), "K = 20")

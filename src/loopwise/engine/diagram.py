@@ -11,7 +11,6 @@ more than one loop (LW384) are worked out in `nesting.py`.
 """
 from __future__ import annotations
 
-import difflib
 from dataclasses import dataclass
 
 import networkx as nx
@@ -19,6 +18,7 @@ import numpy as np
 
 from ..errors import Finding, ModelError, ModelErrors, Span
 from ..language.ast import BreakStmt
+from ..language.hints import did_you_mean as _hint  # the one "did you mean" rule
 from ..language.resolve import Model, Term
 from .nesting import cycle_wires, enclosing, loop_text, opened_by, own_cycles, wide_cut_warning
 from .solve import nonsingular
@@ -65,11 +65,6 @@ class Diagram:
 
     def index(self) -> dict[str, int]:
         return {n: i for i, n in enumerate(self.signals)}
-
-
-def _hint(name: str, options) -> str | None:
-    m = difflib.get_close_matches(name, list(options), n=1, cutoff=0.6)
-    return f"did you mean `{m[0]}`?" if m else None
 
 
 def _feeds(term: Term) -> bool:

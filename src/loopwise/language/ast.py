@@ -162,3 +162,4 @@ class ModelFile:
 
     path: str
     statements: tuple[Statement, ...]
+    tokens: int = 0  # what the file spent of the model's token budget

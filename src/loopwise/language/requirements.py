@@ -12,6 +12,7 @@ from dataclasses import dataclass
 
 from ..errors import ModelError, Span
 from . import ast
+from .hints import did_you_mean
 
 __all__ = ["Metric", "METRICS", "Requirement", "make_requirement"]
 
@@ -82,9 +83,7 @@ def _to_metric_unit(metric: Metric, value: float, kind: str | None, span: Span) 
 def make_requirement(stmt: ast.RequireStmt, const) -> Requirement:
     metric = METRICS.get(stmt.metric)
     if metric is None:
-        import difflib
-        match = difflib.get_close_matches(stmt.metric, list(METRICS), n=1, cutoff=0.5)
-        hint = f"did you mean `{match[0]}`?" if match else "metrics: " + ", ".join(METRICS)
+        hint = did_you_mean(stmt.metric, METRICS) or "metrics: " + ", ".join(METRICS)
         raise ModelError("LW243", f"unknown metric `{stmt.metric}`", stmt.metric_span, hint)
     q = const(stmt.value, f"the limit of `{stmt.metric}`")
     limit = _to_metric_unit(metric, q.value, q.kind, stmt.value.span)

@@ -9,7 +9,9 @@ the closed-loop characteristic function ``prod(den_b) * det(I - A)`` right.
 """
 from __future__ import annotations
 
+import dataclasses
 import math
+import os
 from pathlib import Path
 
 import numpy as np
@@ -17,20 +19,33 @@ import numpy as np
 from ..errors import Finding, ModelError, ModelErrors, Span
 from ..transfer import Transfer
 from . import ast
-from .parse import parse_text
-from .evaluate import Evaluator
+from .evaluate import BUILT_IN, Evaluator
+from .hints import Hints
 from .model import Application, Block, Model, Quantity, Term
+from .parse import MAX_TOKENS, parse_text
 from .requirements import make_requirement
+from .source import SourceError, include_root, is_within, read_source
 from ..waivers import Waivers, make_waiver
 
-__all__ = ["Quantity", "Block", "Application", "Term", "Model", "resolve_text", "resolve_file"]
+__all__ = ["Quantity", "Block", "Application", "Term", "Model", "resolve_text", "resolve_file",
+           "MODEL_SUFFIX"]
 
-RESERVED = {"s", "exp", "model", "use", "param", "input", "block", "break", "require", "waive", "at", "in"}
+#: only files with this suffix (as named and where links lead) have their lines shown
+#: under an error; any other included file is read, but its errors are one LW208 at the
+#: `use` that brought it in, and its findings point there
+MODEL_SUFFIX = ".loop"
 
 
 class _Resolver:
-    def __init__(self, file: str):
+    def __init__(self, file: str, root: Path):
         self.file = file
+        self.root = root  # every include must resolve inside it (resolved, links followed)
+        self.included: set[Path] = set()  # each file is read and collected once per model
+        self.tokens_left = MAX_TOKENS
+        #: included files whose lines are never shown (not `.loop`), by shown name -> the
+        #: `use` in a `.loop` file that led to them (its span and its path)
+        self.unshown: dict[str, tuple[Span, str]] = {}
+        self.hints = Hints()
         self.errors: list[ModelError] = []
         self.findings: list[Finding] = []
         self.params: dict[str, Quantity] = {}
@@ -53,9 +68,10 @@ class _Resolver:
 
     # --- collecting statements (includes first, in place) ----------------------
     def declare(self, name: str, what: str, span: Span) -> bool:
-        if name in RESERVED:
-            self.errors.append(ModelError("LW201", f"`{name}` is a reserved word and cannot name {'an' if what[0] in 'aeiou' else 'a'} {what}",
-                                          span, "choose another name"))
+        if name in BUILT_IN:
+            self.errors.append(ModelError(
+                "LW201", f"`{name}` is a reserved word ({BUILT_IN[name]}) and cannot name "
+                f"{'an' if what[0] in 'aeiou' else 'a'} {what}", span, "choose another name"))
             return False
         if name in self.names:
             prev_what, prev = self.names[name]
@@ -66,7 +82,7 @@ class _Resolver:
         self.names[name] = (what, span)
         return True
 
-    def collect(self, mf: ast.ModelFile, include_stack: tuple[Path, ...], top: bool) -> None:
+    def collect(self, mf: ast.ModelFile, include_stack: tuple[tuple[Path, str], ...], top: bool) -> None:
         for i, stmt in enumerate(mf.statements):
             if isinstance(stmt, ast.ModelStmt):
                 if not top:
@@ -107,30 +123,57 @@ class _Resolver:
             elif isinstance(stmt, ast.WaiveStmt):
                 self.waives.append(stmt)
 
-    def include(self, stmt: ast.UseStmt, stack: tuple[Path, ...]) -> None:
-        base = stack[-1].parent if stack else Path.cwd()
-        path = (base / stmt.path).resolve()
-        if path in stack:
-            chain = " -> ".join(p.name for p in (*stack[stack.index(path):], path))
-            self.errors.append(ModelError("LW205", f"include cycle: {chain}", stmt.span,
+    def include(self, stmt: ast.UseStmt, stack: tuple[tuple[Path, str], ...]) -> None:
+        """Read, parse and collect the file a `use` names: once per model, inside the root.
+
+        `stack` holds (real path, shown name) of the files being collected, the model first.
+        """
+        base, shown_base = (stack[-1][0].parent, os.path.dirname(stack[-1][1])) if stack \
+            else (Path.cwd(), "")
+        target = base / stmt.path
+        try:
+            real = target.resolve()
+        except (OSError, RuntimeError):  # a loop of links (RuntimeError before Python 3.13)
+            self.errors.append(ModelError("LW206", f"cannot read included file {stmt.path}: a loop of "
+                                          "symbolic links", stmt.span, "point the path at a real file"))
+            return
+        if not is_within(real, self.root):
+            self.errors.append(ModelError(
+                "LW207", f"included file {stmt.path} lies outside the repository", stmt.span,
+                f"a `use` must stay inside {self.root} (the repository or checked folder that holds "
+                "the model); links are followed before this check"))
+            return
+        chain = [p for p, _ in stack]
+        if real in chain:
+            names = " -> ".join(p.name for p in (*chain[chain.index(real):], real))
+            self.errors.append(ModelError("LW205", f"include cycle: {names}", stmt.span,
                                           "a file may not use itself, directly or through others"))
             return
+        if real in self.included:
+            return  # the same library reached again (a diamond): its names are already in
+        self.included.add(real)
+        shown = _shown_path(shown_base, stmt.path, real)
+        if stmt.span.file in self.unshown or target.suffix != MODEL_SUFFIX or real.suffix != MODEL_SUFFIX:
+            self.unshown[shown] = self.unshown.get(stmt.span.file, (stmt.span, stmt.path))
         try:
-            text = path.read_text(encoding="utf-8", errors="replace")
-        except FileNotFoundError:
-            self.errors.append(ModelError("LW206", f"included file not found: {stmt.path}", stmt.span,
-                                          f"the path is relative to this file's folder ({base})"))
-            return
-        except OSError as exc:
-            self.errors.append(ModelError("LW206", f"cannot read included file {stmt.path}: {exc.strerror}",
-                                          stmt.span, None))
+            text = read_source(real)
+        except SourceError as exc:
+            if exc.code == "LW104":  # a .loop file inside the repository: its place may be shown
+                self.errors.append(ModelError("LW104", exc.reason, Span(shown, exc.line, exc.col),
+                                              "a model is plain UTF-8 text"))
+            else:
+                self.errors.append(ModelError("LW206", f"cannot read included file {stmt.path}: {exc.reason}",
+                                              stmt.span, f"the path is relative to the folder of the file "
+                                              f"that holds the `use` ({shown_base or '.'})"))
             return
         try:
-            mf = parse_text(text, str(path))
+            mf = parse_text(text, shown, self.tokens_left)
         except ModelError as exc:
             self.errors.append(exc)
+            self.tokens_left = 0 if exc.code == "LW108" else self.tokens_left
             return
-        self.collect(mf, (*stack, path), top=False)
+        self.tokens_left -= mf.tokens
+        self.collect(mf, (*stack, (real, shown)), top=False)
 
     # --- expressions --------------------------------------------------------------
     def const(self, expr: ast.Expr, what: str) -> Quantity:
@@ -165,9 +208,10 @@ class _Resolver:
         try:
             value = self.evaluate(stmt.transfer, "transfer")
             tf = value if isinstance(value, Transfer) else Transfer.constant(value.value)
+            span = self.unshown.get(stmt.span.file, (stmt.span,))[0]  # what later stages point at
             self.blocks[stmt.name] = Block(stmt.name, self.checked_transfer(tf, f"block `{stmt.name}`",
                                                                             stmt.transfer.span, (stmt.name,)),
-                                           stmt.span)
+                                           span)
         except ModelError as exc:
             self.errors.append(exc)
 
@@ -198,7 +242,10 @@ class _Resolver:
     # --- the pass ---------------------------------------------------------------
     def resolve(self, mf: ast.ModelFile, path: Path | None, extra_requirements=()) -> Model:
         self.all_params = {st.name for st in mf.statements if isinstance(st, ast.ParamStmt)}
-        self.collect(mf, (path,) if path else (), top=True)
+        self.tokens_left = MAX_TOKENS - mf.tokens
+        if path is not None:
+            self.included.add(path)
+        self.collect(mf, ((path, self.file),) if path else (), top=True)
         for stmt in self.block_stmts.values():
             self.eval_block(stmt)
         for name, stmt in self.eq_stmts.items():
@@ -226,6 +273,7 @@ class _Resolver:
             except ModelError as exc:
                 self.errors.append(exc)
         waivers = self.waivers()
+        self.keep_unshown_lines_unshown()
         if self.errors:
             raise ModelErrors(list(self.errors))  # in the order found: causes before follow-ups
         signals = {n: s.span for n, s in self.eq_stmts.items()}
@@ -237,6 +285,31 @@ class _Resolver:
             requirements=tuple(requirements), findings=tuple(self.findings),
             block_uses=dict(self.block_uses), hidden_owner=dict(self.hidden_owner), waivers=waivers,
         )
+
+    def keep_unshown_lines_unshown(self) -> None:
+        """Errors in an included file that is not a `.loop` file become one LW208 at the `use`
+        that led to it (their messages quote its text); its findings point at that `use`."""
+        errors, hidden = [], {}
+        for err in self.errors:
+            file = err.span.file
+            if file not in self.unshown:
+                errors.append(err)
+                continue
+            if file not in hidden:  # one error in the place of the first
+                hidden[file] = len(errors)
+                errors.append(None)
+        for file, at in hidden.items():
+            count = sum(1 for e in self.errors if e.span.file == file)
+            span, path = self.unshown[file]
+            whose = f"included file {path} has" if _same_file(span, path, file) else \
+                f"included file {path} uses {file}, which has"
+            errors[at] = ModelError(
+                "LW208", f"{whose} {count} error{'s' if count > 1 else ''}, not shown: only "
+                f"`{MODEL_SUFFIX}` files have their lines shown", span,
+                f"rename it to end in `{MODEL_SUFFIX}` to see them (or check it on its own)")
+        self.errors = errors
+        self.findings = [dataclasses.replace(f, span=self.unshown[f.span.file][0]) if f.span.file in self.unshown
+                         else f for f in self.findings]
 
     def waivers(self) -> Waivers:
         """The model's `waive` statements, checked against its names (after they are all known)."""
@@ -269,8 +342,32 @@ class _Resolver:
         return name
 
 
+def _same_file(use_span: Span, path: str, shown: str) -> bool:
+    """Whether `shown` is the file that the `use` of `path` at `use_span` names."""
+    try:
+        return (Path(use_span.file).parent / path).resolve() == Path(shown).resolve()
+    except (OSError, RuntimeError):
+        return False
+
+
+def _shown_path(shown_base: str, relative: str, real: Path) -> str:
+    """An included file's name as errors show it: the including file's folder, as that
+    file is shown, joined with the `use` path (relative when the model's name was), or
+    the real path when links make that name lead elsewhere."""
+    shown = os.path.normpath(os.path.join(shown_base, relative))
+    try:
+        if Path(shown).resolve() == real:
+            return shown
+    except (OSError, RuntimeError):
+        pass
+    return str(real)
+
+
 def resolve_text(text: str, file: str = "<text>", extra_requirements: tuple[str, ...] = (),
-                 extra_source: str = "<settings>") -> Model:
+                 extra_source: str = "<settings>", root: str | os.PathLike | None = None) -> Model:
+    """Resolve a model given as text. Includes are relative to `file`'s folder (the working
+    directory for "<text>") and must stay inside `root`: by default the git work tree
+    holding that folder, else the folder itself (see `source.include_root`)."""
     mf = parse_text(text, file)
     path = Path(file).resolve() if not file.startswith("<") else None
     extra = []
@@ -283,15 +380,16 @@ def resolve_text(text: str, file: str = "<text>", extra_requirements: tuple[str,
                 raise ModelError("LW240", f"a default requirement must look like `* metric >= value`: {line!r}",
                                  Span(extra_source, i + 1, 1), "for example `* phase_margin >= 45deg`")
             extra.append(stmt)
-    return _Resolver(file).resolve(mf, path, tuple(extra))
+    model_root = include_root(None if path is None else file, root)
+    return _Resolver(file, model_root).resolve(mf, path, tuple(extra))
 
 
 def _settings_position(source: str, requirement: str, index: int) -> str:
     """`require <requirement>` placed at the line and column where the settings file
     holds it (found by its text), or on line index + 1 when it cannot be found."""
     try:
-        lines = Path(source).read_text(encoding="utf-8").split("\n")
-    except (OSError, ValueError):
+        lines = read_source(source).split("\n") if not source.startswith("<") else []
+    except SourceError:
         lines = []
     for n, text in enumerate(lines):
         col = text.find(requirement)
@@ -300,16 +398,30 @@ def _settings_position(source: str, requirement: str, index: int) -> str:
     return "\n" * index + "require " + requirement
 
 
-def resolve_file(path: str | Path, extra_requirements: tuple[str, ...] = (),
-                 extra_source: str = "<settings>") -> Model:
-    p = Path(path)
+def resolve_file(path: str | os.PathLike, extra_requirements: tuple[str, ...] = (),
+                 extra_source: str = "<settings>", root: str | os.PathLike | None = None) -> Model:
+    """Read and resolve one model file: a regular file, at most 4 MiB, UTF-8 text.
+
+    `root` is the folder tree of the checked paths (the command line passes their
+    common folder): used outside git, where includes must stay inside it; inside a
+    git work tree they must stay inside the work tree. The model itself, links
+    followed, must lie in that root too.
+    """
+    file = os.fspath(path)
+    model_root = include_root(file, root)
     try:
-        data = p.read_bytes()
-    except FileNotFoundError:
-        raise ModelError("LW001", "no such file", Span(str(path), 0, 0), None) from None
-    except IsADirectoryError:
-        raise ModelError("LW001", "is a folder, not a model file", Span(str(path), 0, 0), None) from None
-    except OSError as exc:
-        raise ModelError("LW001", f"cannot read the file: {exc.strerror}", Span(str(path), 0, 0), None) from None
-    text = data.decode("utf-8", errors="replace")
-    return resolve_text(text, str(path), extra_requirements, extra_source)
+        real = Path(file).resolve()
+    except (OSError, RuntimeError):
+        raise ModelError("LW001", "cannot read the file: a loop of symbolic links", Span(file, 0, 0), None) from None
+    if not is_within(real, model_root):
+        raise ModelError("LW001", "the model is a link to a file outside the repository", Span(file, 0, 0),
+                         f"check the file where it lies; links that lead out of {model_root} are not followed")
+    try:
+        text = read_source(file)
+    except SourceError as exc:
+        if exc.code == "LW104":
+            raise ModelError("LW104", exc.reason, Span(file, exc.line, exc.col), "a model is plain UTF-8 text") \
+                from None
+        raise ModelError(exc.code, exc.reason, Span(file, 0, 0),
+                         "split it into files joined with `use`" if exc.code == "LW105" else None) from None
+    return resolve_text(text, file, extra_requirements, extra_source, model_root)
