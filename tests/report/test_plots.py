@@ -320,3 +320,19 @@ SVG_BOUND = 45_000
 @pytest.mark.parametrize("kind", plots.KINDS)
 def test_svg_size_per_figure_is_bounded(loops, name, kind):
     assert len(plots.svg_text(plots.make_figure(loops[name], kind, model=name)).encode()) < SVG_BOUND
+
+
+def test_a_file_name_with_dollar_signs_is_printed_as_written(tmp_path, capsys):
+    """A model without a `model` line is named after its file: `e$\\q{$f` must reach every
+    figure as written (matplotlib would otherwise parse `$...$` as math text, and this one
+    stops the drawing with a parse error)."""
+    text = "input r\nblock G = 2/((s+1)*(s+2))\ne = r - y\ny = G(e)\nbreak b at y\n"
+    model = tmp_path / "e$\\q{$f.loop"
+    model.write_text(text)
+    out = tmp_path / "o.svg"
+    assert main(["plot", str(model), "--kind", "all", "--output", str(out)]) == 0
+    for kind in ("nyquist", "bode", "sensitivity"):
+        assert "e$\\q{$f" in (tmp_path / f"o-{kind}.svg").read_text(encoding="utf-8")
+    page = tmp_path / "r.html"
+    assert main(["report", str(model), "--output", str(page)]) == 0
+    assert "e$\\q{$f" in page.read_text(encoding="utf-8")

@@ -63,6 +63,9 @@ def style(salt: str = "loopwise"):
         "legend.frameon": False, "legend.fontsize": 8,
         "svg.fonttype": "none", "svg.hashsalt": salt,  # real text; ids unique per figure
         "path.simplify": False,  # lines are thinned by `thin_lines`, which keeps the winding
+        # every label is plain text (ours use Unicode, never TeX): a model or file name with
+        # `$` must print as written, not be parsed as math (`$\q{$` would stop the drawing)
+        "text.parse_math": False,
     }
     with mpl.rc_context(rc):
         yield mpl
