@@ -19,7 +19,7 @@ from .results import BreakResult, Margins, ModelResult
 from .engine.stability import NeutralLoop, count_all, count_model, prepare_contour
 from .judge import SEPARATION_WARNING, judge
 
-__all__ = ["Prepared", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop",
+__all__ = ["Prepared", "prepare_model", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop",
            "nyquist_verdict"]
 
 
@@ -50,19 +50,27 @@ def _settings_requirements(settings) -> tuple[str, ...]:
     return tuple(getattr(settings, "requirements", ()) or ()) if settings is not None else ()
 
 
-def _prepare(model: Model) -> Prepared:
+def _overrides(settings) -> dict[str, float]:
+    return dict(getattr(settings, "overrides", ()) or ()) if settings is not None else {}
+
+
+def prepare_model(model: Model) -> Prepared:
+    """The loop graph and the reduction of a resolved model."""
     diagram = build_diagram(model)
     return Prepared(model, diagram, reduce_diagram(diagram))
 
 
+_prepare = prepare_model
+
+
 def prepare_text(text: str, file: str = "<text>", settings=None) -> Prepared:
     return _prepare(resolve_text(text, file, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>"))
+                                 getattr(settings, "source", None) or "<settings>", _overrides(settings)))
 
 
 def prepare_file(path, settings=None) -> Prepared:
     return _prepare(resolve_file(path, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>"))
+                                 getattr(settings, "source", None) or "<settings>", _overrides(settings)))
 
 
 def check_text(text: str, file: str = "<text>", settings=None, indent: str = "right") -> ModelResult:

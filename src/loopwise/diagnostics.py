@@ -80,9 +80,11 @@ _TABLE: tuple[tuple[str, str, str, str | None], ...] = (
     ("LW241", "a limit's unit does not fit the metric", "requirements", "E241"),
     ("LW242", "a dB limit from a negative ratio", "requirements", "E242"),
     ("LW243", "an unknown requirement metric", "requirements", "E243"),
+    ("LW250", "`--set` names no param of the model", "values", None),
     ("LW281", "a block cancels an unstable pole with a zero", "values", "W201"),
     ("LW282", "a block that is never used", "names", "W202"),
     ("LW291", "a constant offset in a signal sum (ignored)", "values", "N201"),
+    ("LW292", "a param set (`--set`) outside its declared range: used as set", "values", None),
     ("LW301", "an ill-posed algebraic loop", "structure", "E301"),
     ("LW302", "a break that opens no loop", "structure", "E302"),
     ("LW303", "a break target that does not use the broken signal", "structure", "E303"),
@@ -109,6 +111,9 @@ _TABLE: tuple[tuple[str, str, str, str | None], ...] = (
      "margins", None),
     ("LW582", "the gain-margin stretches disagree with the count", "margins", None),
     ("LW491", "a library of params and blocks: nothing to check on its own", "engine", "N401"),
+    ("LW601", "a sweep met a plant in the box that could not be analysed", "sweeps", None),
+    ("LW691", "a sweep of a model without ranged params: its nominal point only", "sweeps", None),
+    ("LW692", "a sweep's local search stopped at its budget", "sweeps", None),
     ("LW900", "an internal error: no verdict was given", "files", "E999"),
 )
 

@@ -16,7 +16,7 @@ from pathlib import Path
 from .errors import Finding, ModelError, ModelErrors, Span, UsageError
 
 __all__ = [
-    "MODEL_SUFFIX", "discover", "check_paths", "check_one", "exit_status", "has_warnings",
+    "MODEL_SUFFIX", "discover", "check_paths", "check_one", "guarded", "exit_status", "has_warnings",
     "matches_glob",
 ]
 
@@ -139,8 +139,14 @@ def check_one(path: str, settings=None) -> tuple[object | None, tuple[Finding, .
     """
     from .analysis import check_file  # the heavy stages load on first use
 
+    return guarded(path, lambda: check_file(path, settings=settings))
+
+
+def guarded(path: str, work):
+    """(work(), ()) or (None, the errors as findings): every failure of reading and
+    checking the model at `path` becomes located findings (also used by `sweep`)."""
     try:
-        return check_file(path, settings=settings), ()
+        return work(), ()
     except ModelErrors as exc:
         return None, tuple(e.as_finding() for e in exc.errors)
     except ModelError as exc:

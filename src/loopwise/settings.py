@@ -45,6 +45,7 @@ class Settings:
     fail_on_warnings: bool = False
     regression: Regression = field(default_factory=Regression)
     source: str | None = None  # the file the settings came from
+    overrides: tuple[tuple[str, float], ...] = ()  # `--set NAME=VALUE` from the command line
     raw: dict = field(default_factory=dict)
 
 

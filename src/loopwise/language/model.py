@@ -60,3 +60,5 @@ class Model:
     findings: tuple[Finding, ...]
     block_uses: dict[str, int] = field(default_factory=dict)
     hidden_owner: dict[str, str] = field(default_factory=dict)  # hidden signal -> its equation
+    ranges: dict[str, tuple[float, float]] = field(default_factory=dict)  # param -> [lo, hi]
+    sources: dict = field(default_factory=dict)  # `use` statement -> (path, parsed file)
