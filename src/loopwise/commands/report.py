@@ -39,7 +39,32 @@ def add_parser(subparsers, help_text: str):
     p.add_argument("--fail-on-warnings", action="store_true",
                    help="count a model with warnings as failed (also in the exit code)")
     p.add_argument("--no-progress", action="store_true", help="never draw a progress bar")
+    p.add_argument("--sweep", action="store_true",
+                   help="also sweep every model with ranged params (as `loopwise sweep`) and add a sweep "
+                        "section: the Nyquist band of sampled plants, each worst margin against each param")
+    p.add_argument("--samples", type=int, default=None, metavar="N",
+                   help="with --sweep: size of the space-filling set (default as `loopwise sweep`)")
+    p.add_argument("--seed", type=int, default=0, metavar="N", help="with --sweep: the design's seed")
     return p
+
+
+def _sweep_sections(args, settings, result, jobs: int) -> tuple[dict, object | None]:
+    """HTML lines of each swept model's section, keyed by file, and the sweep's run."""
+    if not args.sweep:
+        return {}, None
+    from ..report.sweep_html import sweep_section
+    from ..sweep import DEFAULT_SAMPLES, SweepOptions, sweep_paths
+    from ..sweep.band import band_results
+
+    options = SweepOptions(DEFAULT_SAMPLES if args.samples is None else args.samples, args.seed)
+    swept = sweep_paths(args.paths, settings, options, jobs=jobs)
+    checked = {m.file: (n, m) for n, m in enumerate(result.models)}
+    extra = {}
+    for s in swept.models:
+        if s.file in checked and s.params:
+            n, m = checked[s.file]
+            extra[s.file] = sweep_section(m, s, band_results(s.file, settings, s), n)
+    return extra, swept
 
 
 def _progress(total: int):
@@ -72,8 +97,9 @@ def run(args) -> int:
     if progress and figure_count(result) >= PROGRESS_MIN_FIGURES:
         bar, tick = _progress(figure_count(result))
         bar.start()
+    extra, swept = _sweep_sections(args, settings, result, jobs)
     try:
-        page = render_html(result, hz=args.hz, fail_on_warnings=fail, jobs=jobs, tick=tick)
+        page = render_html(result, hz=args.hz, fail_on_warnings=fail, jobs=jobs, tick=tick, extra=extra)
     finally:
         if bar is not None:
             bar.stop()
@@ -81,10 +107,18 @@ def run(args) -> int:
         out.write_text(page, encoding="utf-8")
     except OSError as exc:
         raise UsageError(f"cannot write {out}: {exc.strerror or exc}") from None
-    for e in result.errors:
-        from ..report import finding_text
+    from ..report import finding_text
 
+    for e in result.errors:
         print(finding_text(e), file=sys.stderr)
     print(f"report written to {out} ({len(result.models)} model(s), "
           f"{figure_count(result)} figure(s), {len(result.errors)} error(s))")
+    if swept is not None:
+        from ..report.sweep_text import sweep_passes
+
+        for e in swept.errors:
+            if e not in result.errors:
+                print(finding_text(e), file=sys.stderr)
+        sweep_code = 2 if swept.errors else (0 if all(sweep_passes(m, fail) for m in swept.models) else 1)
+        return max(exit_status(result, fail), sweep_code)
     return exit_status(result, fail)

@@ -15,10 +15,10 @@ from ..language.requirements import METRICS
 from ..results import RequirementResult
 from .design import to_values
 from .evaluate import SampleOutcome
-from .results import WORST_KEYS, Boundary, BreakSweep, SweepRequirement, Worst, format_at
+from .results import WORST_KEYS, Boundary, BreakSweep, PlantTable, SweepRequirement, Worst, format_at
 from .search import WORST, Evidence, Target, worst_index
 
-__all__ = ["Box", "break_results", "sample_errors", "sample_warnings"]
+__all__ = ["Box", "break_results", "sample_errors", "sample_warnings", "plant_table"]
 
 _SENSE = dict(WORST)
 
@@ -132,3 +132,21 @@ def sample_warnings(file: str, evidence: Evidence) -> tuple[Finding, ...]:
     return tuple(Finding("warning", code, f"at {n} of {len(evidence)} sampled plants: "
                          f"{CODES[code].summary if code in CODES else code}", Span(file, 0, 0))
                  for code, n in sorted(counts.items()))
+
+
+def plant_table(evidence: Evidence, box: Box, n_breaks: int) -> PlantTable:
+    """Every plant in numbers: param values, verdicts and margins per break."""
+    n = len(evidence)
+    stable = np.zeros((n, n_breaks), bool)
+    margins = np.full((n, n_breaks, len(WORST_KEYS)), np.nan)
+    for i, o in enumerate(evidence.outcomes):
+        if o.error is not None:
+            continue
+        for k, b in enumerate(o.breaks[:n_breaks]):
+            stable[i, k] = b.stable
+            if b.stable:
+                for j, (_, metric) in enumerate(WORST_KEYS):
+                    v = _reported(metric, b.value(metric))
+                    margins[i, k, j] = np.nan if v is None else v
+    values = box.values(np.array(evidence.points)) if box.names else np.zeros((n, 0))
+    return PlantTable(box.names, values, tuple(evidence.phases), stable, margins)

@@ -10,7 +10,7 @@ import numpy as np
 
 from ..errors import Finding, Span
 from . import DEFAULT_SAMPLES
-from .aggregate import Box, break_results, sample_errors, sample_warnings
+from .aggregate import Box, break_results, plant_table, sample_errors, sample_warnings
 from .design import corners, describe, space_filling, spacing
 from .evaluate import outcome_of
 from .results import SampleCounts, SweepModelResult, SweepParam, SweepRun
@@ -83,7 +83,7 @@ def sweep_model(parsed, model, nominal, fixed: dict, options: SweepOptions, run_
         density=describe(options.samples, dim) if dim else "the nominal point only",
         breaks=break_results(nominal, model, evidence, box, brackets),
         findings=tuple(findings) + sample_warnings(model.file, evidence),
-        search_stopped=stopped, failed_samples=failed,
+        search_stopped=stopped, failed_samples=failed, plants=plant_table(evidence, box, len(nominal.breaks)),
     )
     return result, errors
 

@@ -7,11 +7,13 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numpy as np
+
 from ..errors import Finding
 from ..results import CAUTION, RequirementResult, _num
 
 __all__ = ["SWEEP_SCHEMA", "SweepParam", "Worst", "Boundary", "SweepRequirement", "BreakSweep",
-           "SampleCounts", "SweepModelResult", "SweepRun", "WORST_KEYS", "format_at"]
+           "SampleCounts", "PlantTable", "SweepModelResult", "SweepRun", "WORST_KEYS", "format_at"]
 
 SWEEP_SCHEMA = 1
 
@@ -142,6 +144,22 @@ class SampleCounts:
 
 
 @dataclass(frozen=True, eq=False)
+class PlantTable:
+    """Every analysed plant in numbers, for pictures (not part of the JSON contract).
+
+    `values[i]` the swept params' values of plant i; `phases[i]` the step that chose it;
+    `stable[i, k]` its verdict at break k (False where it could not be analysed);
+    `margins[i, k, j]` the margin WORST_KEYS[j] as reported (NaN where not claimed,
+    +-inf where unbounded)."""
+
+    names: tuple[str, ...]
+    values: np.ndarray
+    phases: tuple[str, ...]
+    stable: np.ndarray
+    margins: np.ndarray
+
+
+@dataclass(frozen=True, eq=False)
 class SweepModelResult:
     file: str
     model: str
@@ -154,6 +172,7 @@ class SweepModelResult:
     findings: tuple[Finding, ...] = ()      # the nominal model's notes and warnings, and the sweep's
     search_stopped: bool = False            # the local search ran out of its budget
     failed_samples: int = 0                 # plants that could not be analysed (see the run's errors)
+    plants: PlantTable | None = None        # every plant in numbers (for pictures)
 
     @property
     def samples(self) -> int:
