@@ -56,10 +56,15 @@ def main() -> int:
 
     run, sweep_wall, sweep_cpu = timed(lambda: sweep_paths([MODEL], options=SweepOptions(n, args.seed), jobs=jobs))
     (model,) = run.models
+    plants, c = model.samples, model.counts
     names = [p.name for p in model.params]
-    lo = [p.lo for p in model.params]
-    hi = [p.hi for p in model.params]
-    points = to_values(space_filling(n, len(names), args.seed), lo, hi)
+    print(f"model {MODEL.relative_to(ROOT)}: params {', '.join(names)}; {os.cpu_count()} CPU(s)")
+    print(f"sweep --samples {n} --jobs {jobs}: {plants} plants ({c.corners} corners, {c.space_filling} "
+          f"space-filling, {c.local_search} local search, {c.boundary} boundary)")
+    print(f"  wall {sweep_wall:8.2f} s   cpu {sweep_cpu:8.2f} s   {1e3 * sweep_wall / plants:7.1f} ms wall per plant",
+          flush=True)
+    points = to_values(space_filling(n, len(names), args.seed), [p.lo for p in model.params],
+                       [p.hi for p in model.params])
     text = MODEL.read_text()
     m = min(args.checks or n, n)
 
@@ -69,12 +74,6 @@ def main() -> int:
 
     _, check_wall, check_cpu = timed(checks)
     check_wall, check_cpu = check_wall * n / m, check_cpu * n / m
-    plants = model.samples
-    c = model.counts
-    print(f"model {MODEL.relative_to(ROOT)}: params {', '.join(names)}; {os.cpu_count()} CPU(s)")
-    print(f"sweep --samples {n} --jobs {jobs}: {plants} plants ({c.corners} corners, {c.space_filling} "
-          f"space-filling, {c.local_search} local search, {c.boundary} boundary)")
-    print(f"  wall {sweep_wall:8.2f} s   cpu {sweep_cpu:8.2f} s   {1e3 * sweep_wall / plants:7.1f} ms wall per plant")
     scaled = f" ({m} timed, scaled to {n})" if m < n else ""
     print(f"{n} separate check_text calls{scaled}:")
     print(f"  wall {check_wall:8.2f} s   cpu {check_cpu:8.2f} s   {1e3 * check_wall / n:7.1f} ms wall per call")

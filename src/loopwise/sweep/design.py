@@ -84,7 +84,8 @@ def corners(dim: int, seed: int) -> np.ndarray:
 
 def to_values(unit: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
     """Unit-cube points onto the box [lo, hi] (clipped, so that rounding never leaves it)."""
-    return np.clip(lo + np.asarray(unit) * (hi - lo), lo, hi)
+    lo, hi = np.asarray(lo, float), np.asarray(hi, float)
+    return np.clip(lo + np.asarray(unit, float) * (hi - lo), lo, hi)
 
 
 def spacing(count: int, dim: int) -> float:
