@@ -27,7 +27,7 @@ break loop at y
 require loop phase_margin >= 15deg
 """
 INSIDE = DELAYED.format(k_hi=1.2)      # worst K T = 1.2: stable everywhere, PM >= 21.2 deg
-CROSSING = DELAYED.format(k_hi=2.0)    # K T up to 2 > pi/2: unstable in a corner
+CROSSING = DELAYED.format(k_hi=1.7)    # K T up to 1.7 > pi/2: unstable in a corner
 NO_RANGES = "model plain\ninput r\ne = r - y\ny = [2/(s*(s + 3))](e)\nbreak loop at y\n"
 #: at the corner a = 0 the block's gain divides by zero: that plant cannot be analysed
 DIVIDES = "model divides\nparam a = 1 in [0, 2]\ninput r\ne = r - y\ny = [1/(s + 1)/a](e)\nbreak loop at y\n"
