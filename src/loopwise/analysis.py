@@ -23,7 +23,7 @@ from .engine.stability import count_all, count_model, prepare_contour
 from .judge import SEPARATION_WARNING, judge
 from .waivers import apply_waivers, settings_waivers_for
 
-__all__ = ["Prepared", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop",
+__all__ = ["Prepared", "prepare_model", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop",
            "nyquist_verdict"]
 
 
@@ -54,22 +54,29 @@ def _settings_requirements(settings) -> tuple[str, ...]:
     return tuple(getattr(settings, "requirements", ()) or ()) if settings is not None else ()
 
 
-def _prepare(model: Model, settings=None) -> Prepared:
+def _overrides(settings) -> dict[str, float]:
+    return dict(getattr(settings, "overrides", ()) or ()) if settings is not None else {}
+
+
+def prepare_model(model: Model, settings=None) -> Prepared:
+    """The loop graph and the reduction of a resolved model, with the settings' waivers
+    for its file added to the model's own."""
     model = replace(model, waivers=model.waivers.plus(settings_waivers_for(settings, model.file)))
     diagram = build_diagram(model)
     return Prepared(model, diagram, reduce_diagram(diagram))
 
 
+
 def prepare_text(text: str, file: str = "<text>", settings=None) -> Prepared:
     text, file, settings = arg.model_text(text), arg.file_label(file), arg.settings_or_none(settings)
-    return _prepare(resolve_text(text, file, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>"), settings)
+    return prepare_model(resolve_text(text, file, _settings_requirements(settings),
+                                 getattr(settings, "source", None) or "<settings>", _overrides(settings)), settings)
 
 
 def prepare_file(path, settings=None) -> Prepared:
     path, settings = arg.model_path(path), arg.settings_or_none(settings)
-    return _prepare(resolve_file(path, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>"), settings)
+    return prepare_model(resolve_file(path, _settings_requirements(settings),
+                                 getattr(settings, "source", None) or "<settings>", _overrides(settings)), settings)
 
 
 @contextmanager
@@ -341,4 +348,4 @@ def _single_loop(L, name: str) -> Prepared:
         equations={"e": (Term("r", 1.0, None, span), Term("y", -1.0, None, span)), "y": (Term("e", 1.0, app, span),)},
         breaks=(ast.BreakStmt(span, name, "y", span),), requirements=(), findings=(),
     )
-    return _prepare(model)
+    return prepare_model(model)

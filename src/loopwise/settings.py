@@ -142,6 +142,7 @@ class Settings:
     regression: Regression = field(default_factory=Regression)
     source: str | None = None  # the file the settings came from
     waivers: tuple[Waiver, ...] = ()
+    overrides: tuple[tuple[str, float], ...] = ()  # `--set NAME=VALUE` from the command line
 
     def __post_init__(self):
         for key in ("requirements", "include", "exclude"):

@@ -16,6 +16,34 @@ from .options import add_config, add_jobs, add_no_progress, add_output, load_set
 __all__ = ["add_parser", "run"]
 
 
+def _set_value(text: str) -> tuple[str, float]:
+    """`NAME=VALUE` of --set: a param name and a number, with a unit if wanted (200us, 3dB)."""
+    name, sep, value = text.partition("=")
+    name, value = name.strip(), value.strip()
+    if not sep or not name.isidentifier() or not value:
+        raise argparse.ArgumentTypeError(f"expected NAME=VALUE (e.g. J=2.4e-4 or Td=200us), got {text!r}")
+    from ..errors import LoopwiseError
+    from ..language import ast
+    from ..language.parse import parse_text
+
+    try:  # the model language's own number literals (units convert to SI)
+        (stmt,) = parse_text(f"param x = {value}\n", "<--set>").statements
+        number, sign = (stmt.value.operand, -1.0) if isinstance(stmt.value, ast.Neg) else (stmt.value, 1.0)
+        if isinstance(number, ast.Number):
+            return name, sign * number.value
+    except (LoopwiseError, ValueError):
+        pass
+    raise argparse.ArgumentTypeError(f"{text!r}: the value must be a number, with a unit if wanted "
+                                     "(e.g. 2.4e-4, 200us, -3dB)")
+
+
+def add_set_option(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--set", dest="set", type=_set_value, action="append", default=[], metavar="NAME=VALUE",
+                   help="fix a param at a value for this run (repeatable; a unit may follow the number, "
+                        "e.g. --set Td=200us); an unknown name is an error, a value outside the "
+                        "param's range a note")
+
+
 def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
     p = subparsers.add_parser(
         "check", help=help_text, description=help_text + " Folders are searched for *.loop files.",
@@ -38,6 +66,7 @@ def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
                    default="auto",
                    help="colour the text report: auto (a terminal without NO_COLOR), always, never")
     add_no_progress(p)
+    add_set_option(p)
     return p
 
 
@@ -47,6 +76,8 @@ def _settings(args):
     settings = load_settings_for(args)
     if args.fail_on_warnings is not None:
         settings = replace(settings, fail_on_warnings=args.fail_on_warnings)
+    if getattr(args, "set", None):
+        settings = replace(settings, overrides=tuple(dict(args.set).items()))  # the last of a name wins
     return settings
 
 

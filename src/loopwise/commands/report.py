@@ -32,7 +32,32 @@ def add_parser(subparsers, help_text: str):
     p.add_argument("--fail-on-warnings", action="store_true",
                    help="count a model with warnings as failed (also in the exit code)")
     add_no_progress(p)
+    p.add_argument("--sweep", action="store_true",
+                   help="also sweep every model with ranged params (as `loopwise sweep`) and add a sweep "
+                        "section: the Nyquist band of sampled plants, each worst margin against each param")
+    p.add_argument("--samples", type=int, default=None, metavar="N",
+                   help="with --sweep: size of the space-filling set (default as `loopwise sweep`)")
+    p.add_argument("--seed", type=int, default=0, metavar="N", help="with --sweep: the design's seed")
     return p
+
+
+def _sweep_sections(args, settings, result, jobs: int) -> tuple[dict, object | None]:
+    """HTML lines of each swept model's section, keyed by file, and the sweep's run."""
+    if not args.sweep:
+        return {}, None
+    from ..report.sweep_html import sweep_section
+    from ..sweep import DEFAULT_SAMPLES, SweepOptions, sweep_paths
+    from ..sweep.band import band_results
+
+    options = SweepOptions(DEFAULT_SAMPLES if args.samples is None else args.samples, args.seed)
+    swept = sweep_paths(args.paths, settings, options, jobs=jobs)
+    checked = {m.file: (n, m) for n, m in enumerate(result.models)}
+    extra = {}
+    for s in swept.models:
+        if s.file in checked and s.params:
+            n, m = checked[s.file]
+            extra[s.file] = sweep_section(m, s, band_results(s.file, settings, s), n)
+    return extra, swept
 
 
 def run(args) -> int:
@@ -52,11 +77,20 @@ def run(args) -> int:
     guard_output(args.output, protected)  # before the long run, not after it
     progress = not args.no_progress and wants_progress(sys.stderr)
     result = check_files(files, settings, jobs=args.jobs, progress=progress)
+    extra, swept = _sweep_sections(args, settings, result, args.jobs)
     with progress_bar("drawing", figure_count(result), enabled=progress) as tick:
-        page = render_html(result, hz=args.hz, fail_on_warnings=fail, jobs=args.jobs, tick=tick)
+        page = render_html(result, hz=args.hz, fail_on_warnings=fail, jobs=args.jobs, tick=tick, extra=extra)
     emit(page, args.output, protected)
     for e in result.errors:
         print(finding_text(e), file=sys.stderr)
     emit(f"report written to {args.output} ({len(result.models)} model(s), "
          f"{figure_count(result)} figure(s), {len(result.errors)} error(s))\n")
+    if swept is not None:
+        from ..report.sweep_text import sweep_passes
+
+        for e in swept.errors:
+            if e not in result.errors:
+                print(finding_text(e), file=sys.stderr)
+        sweep_code = 2 if swept.errors else (0 if all(sweep_passes(m, fail) for m in swept.models) else 1)
+        return max(exit_status(result, fail), sweep_code)
     return exit_status(result, fail)

@@ -10,6 +10,8 @@ the closed-loop characteristic function ``prod(den_b) * det(I - A)`` right.
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -18,19 +20,23 @@ from ..errors import Finding, ModelError, ModelErrors, Span
 from ..transfer import Transfer
 from . import ast
 from .parse import parse_text
-from .evaluate import Evaluator
+from .evaluate import Evaluator, close_match
 from .model import Application, Block, Model, Quantity, Term
 from .requirements import make_requirement
 from ..waivers import Waivers, make_waiver
 
-__all__ = ["Quantity", "Block", "Application", "Term", "Model", "resolve_text", "resolve_file"]
+__all__ = ["Quantity", "Block", "Application", "Term", "Model", "resolve_text", "resolve_file",
+           "Parsed", "parse_model", "parse_file", "resolve_parsed"]
 
 RESERVED = {"s", "exp", "model", "use", "param", "input", "block", "break", "require", "waive", "at", "in"}
 
 
 class _Resolver:
-    def __init__(self, file: str):
+    def __init__(self, file: str, overrides: Mapping[str, float] | None = None, sources=None):
         self.file = file
+        self.overrides = dict(overrides or {})  # param name -> value (sweeps and --set)
+        self.sources = dict(sources or {})      # `use` statement -> (path, its parsed file)
+        self.ranges: dict[str, tuple[float, float]] = {}
         self.errors: list[ModelError] = []
         self.findings: list[Finding] = []
         self.params: dict[str, Quantity] = {}
@@ -108,6 +114,10 @@ class _Resolver:
                 self.waives.append(stmt)
 
     def include(self, stmt: ast.UseStmt, stack: tuple[Path, ...]) -> None:
+        if stmt in self.sources:  # parsed before: a sweep resolves once per sample, without the disk
+            known_path, known = self.sources[stmt]
+            self.collect(known, (*stack, known_path), top=False)
+            return
         base = stack[-1].parent if stack else Path.cwd()
         path = (base / stmt.path).resolve()
         if path in stack:
@@ -130,6 +140,7 @@ class _Resolver:
         except ModelError as exc:
             self.errors.append(exc)
             return
+        self.sources[stmt] = (path, mf)
         self.collect(mf, (*stack, path), top=False)
 
     # --- expressions --------------------------------------------------------------
@@ -157,7 +168,8 @@ class _Resolver:
                     raise ModelError("LW211", f"param `{stmt.name}` = {q.value:g} lies outside its range "
                                      f"[{lo:g}, {hi:g}]", stmt.value.span,
                                      "the nominal value must lie within its uncertainty range")
-            self.params[stmt.name] = q
+                self.ranges[stmt.name] = (lo, hi)
+            self.params[stmt.name] = self.overridden(stmt, q)
         except ModelError as exc:
             self.errors.append(exc)
 
@@ -195,10 +207,36 @@ class _Resolver:
                 "a real implementation needs a derivative filter, e.g. Kd*s/(Tf*s + 1) instead of Kd*s", about))
         return tf
 
+    # --- overrides: `--set NAME=VALUE` and a sweep's samples -------------------------
+    def overridden(self, stmt: ast.ParamStmt, q: Quantity) -> Quantity:
+        """The param's value as set from outside (its declared value and range are still checked)."""
+        if stmt.name not in self.overrides:
+            return q
+        value = float(self.overrides[stmt.name])
+        lo, hi = self.ranges.get(stmt.name, (value, value))
+        if stmt.name in self.ranges and not lo <= value <= hi:
+            self.findings.append(Finding(
+                "note", "LW292", f"param `{stmt.name}` is set to {value:g}, outside its declared range "
+                f"[{lo:g}, {hi:g}]", stmt.value.span,
+                "the results hold for the value set; the range says where the model is meant to hold"))
+        return Quantity(value, q.kind)
+
+    def check_overrides(self) -> None:
+        for name in self.overrides:
+            if name in self.param_spans:
+                continue
+            what = self.names.get(name, ("", None))[0]
+            message = (f"`{name}` is a {what}, not a param: only params can be set" if what
+                       else f"no param `{name}` to set in this model")
+            self.errors.append(ModelError("LW254", message, Span(self.file, 0, 0),
+                                          close_match(name, self.param_spans)
+                                          or f"the model's params: {', '.join(self.param_spans) or 'none'}"))
+
     # --- the pass ---------------------------------------------------------------
     def resolve(self, mf: ast.ModelFile, path: Path | None, extra_requirements=()) -> Model:
         self.all_params = {st.name for st in mf.statements if isinstance(st, ast.ParamStmt)}
         self.collect(mf, (path,) if path else (), top=True)
+        self.check_overrides()
         for stmt in self.block_stmts.values():
             self.eval_block(stmt)
         for name, stmt in self.eq_stmts.items():
@@ -236,6 +274,7 @@ class _Resolver:
             hidden=frozenset(self.hidden), equations=dict(self.equations), breaks=tuple(self.breaks),
             requirements=tuple(requirements), findings=tuple(self.findings),
             block_uses=dict(self.block_uses), hidden_owner=dict(self.hidden_owner), waivers=waivers,
+            ranges=dict(self.ranges), sources=dict(self.sources),
         )
 
     def waivers(self) -> Waivers:
@@ -270,9 +309,41 @@ class _Resolver:
 
 
 def resolve_text(text: str, file: str = "<text>", extra_requirements: tuple[str, ...] = (),
-                 extra_source: str = "<settings>") -> Model:
-    mf = parse_text(text, file)
+                 extra_source: str = "<settings>", overrides: Mapping[str, float] | None = None) -> Model:
+    """Parse and resolve a model; `overrides` sets params (by name) to other values."""
+    return resolve_parsed(parse_model(text, file, extra_requirements, extra_source), overrides)
+
+
+@dataclass(frozen=True, eq=False)
+class Parsed:
+    """A model's syntax trees, parsed once; `sources` holds the included files' trees once a
+    resolution has read them, so that later resolutions (one per sweep sample, possibly on
+    another machine) need neither the disk nor the parser."""
+
+    file: str
+    path: Path | None
+    tree: ast.ModelFile
+    extra: tuple[ast.RequireStmt, ...] = ()
+    sources: Mapping = field(default_factory=dict)  # `use` statement -> (path, tree)
+
+    def with_sources(self, model: Model) -> "Parsed":
+        return Parsed(self.file, self.path, self.tree, self.extra, dict(model.sources))
+
+
+def parse_model(text: str, file: str = "<text>", extra_requirements: tuple[str, ...] = (),
+                extra_source: str = "<settings>") -> Parsed:
     path = Path(file).resolve() if not file.startswith("<") else None
+    return Parsed(file, path, parse_text(text, file), _extra_requirements(extra_requirements, extra_source))
+
+
+def resolve_parsed(parsed: Parsed, overrides: Mapping[str, float] | None = None) -> Model:
+    """Resolve a parsed model, with params set by `overrides` (param name -> value in SI):
+    each is checked against the model's params (LW254) and its declared range (LW292, a note)."""
+    resolver = _Resolver(parsed.file, overrides, parsed.sources)
+    return resolver.resolve(parsed.tree, parsed.path, parsed.extra)
+
+
+def _extra_requirements(extra_requirements: tuple[str, ...], extra_source: str) -> tuple[ast.RequireStmt, ...]:
     extra = []
     for i, line in enumerate(extra_requirements):
         where = _settings_position(extra_source, line, i)
@@ -283,7 +354,7 @@ def resolve_text(text: str, file: str = "<text>", extra_requirements: tuple[str,
                 raise ModelError("LW240", f"a default requirement must look like `* metric >= value`: {line!r}",
                                  Span(extra_source, i + 1, 1), "for example `* phase_margin >= 45deg`")
             extra.append(stmt)
-    return _Resolver(file).resolve(mf, path, tuple(extra))
+    return tuple(extra)
 
 
 def _settings_position(source: str, requirement: str, index: int) -> str:
@@ -301,7 +372,12 @@ def _settings_position(source: str, requirement: str, index: int) -> str:
 
 
 def resolve_file(path: str | Path, extra_requirements: tuple[str, ...] = (),
-                 extra_source: str = "<settings>") -> Model:
+                 extra_source: str = "<settings>", overrides: Mapping[str, float] | None = None) -> Model:
+    return resolve_parsed(parse_file(path, extra_requirements, extra_source), overrides)
+
+
+def parse_file(path: str | Path, extra_requirements: tuple[str, ...] = (),
+               extra_source: str = "<settings>") -> Parsed:
     p = Path(path)
     try:
         data = p.read_bytes()
@@ -312,4 +388,4 @@ def resolve_file(path: str | Path, extra_requirements: tuple[str, ...] = (),
     except OSError as exc:
         raise ModelError("LW001", f"cannot read the file: {exc.strerror}", Span(str(path), 0, 0), None) from None
     text = data.decode("utf-8", errors="replace")
-    return resolve_text(text, str(path), extra_requirements, extra_source)
+    return parse_model(text, str(path), extra_requirements, extra_source)

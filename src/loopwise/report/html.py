@@ -16,7 +16,7 @@ from ..results import CAUTION
 from .escape import html_text, xml_text
 from .summary import BREAK_COLUMNS, ModelSummary, finding_text, summarise, tally
 
-__all__ = ["render_html", "figure_count", "draw_svg", "CSS"]
+__all__ = ["render_html", "figure_count", "draw_svg", "inline_svg", "CSS"]
 
 VIEWS = ("nyquist", "bode", "sensitivity")
 _CAPTIONS = {
@@ -113,10 +113,17 @@ def _unique_ids(svg: str, prefix: str) -> str:
 def draw_svg(job) -> str:
     """One figure as inline SVG: job = (BreakResult, kind, model name, hz, id prefix).
     A top-level function so a process pool can run it."""
-    from .plots import make_figure, svg_text
+    from .plots import make_figure
 
     result, kind, model, hz, prefix = job
-    svg = svg_text(make_figure(result, kind, model=model, hz=hz), salt=prefix)
+    return inline_svg(make_figure(result, kind, model=model, hz=hz), prefix)
+
+
+def inline_svg(fig, prefix: str) -> str:
+    """A figure as inline SVG for this page: no metadata, ids unique to `prefix`."""
+    from .plots import svg_text
+
+    svg = svg_text(fig, salt=prefix)
     svg = re.sub(r"<metadata>.*?</metadata>\s*", "", svg, flags=re.S)  # no URLs, no dates
     return _unique_ids(svg, prefix)
 
@@ -184,7 +191,7 @@ def _warnings(s: ModelSummary) -> list[str]:
     return out
 
 
-def _model_section(s: ModelSummary, n: int, svgs: dict) -> list[str]:
+def _model_section(s: ModelSummary, n: int, svgs: dict, extra: list[str] = ()) -> list[str]:
     out = [f'<section id="model-{n}">',
            f"<h2>{_word(s.verdict)} model {_e(s.model)} {_word(s.status)}</h2>",
            f'<p class="lede">{_e(s.file)}: {s.result.closed_loop_rhp_poles} closed-loop pole(s) in '
@@ -199,6 +206,7 @@ def _model_section(s: ModelSummary, n: int, svgs: dict) -> list[str]:
         out.append(f'<h3 id="model-{n}-break-{k}">break {_e(b.name)} at {_e(b.at)} '
                    f"{_word(b.status)}</h3>")
         out += _break_figures(b.result, f"m{n}b{k}", svgs, (n, k))
+    out += extra  # e.g. the sweep section (report/sweep_html.py)
     out.append("</section>")
     return out
 
@@ -229,9 +237,10 @@ def _summary(run, fail: bool) -> list[str]:
 
 
 def render_html(run, *, hz: bool = False, fail_on_warnings: bool = False, jobs: int = 1,
-                tick: Callable[[], None] = lambda: None) -> str:
+                tick: Callable[[], None] = lambda: None, extra: dict | None = None) -> str:
     """The whole report as one string; figures drawn in `jobs` processes, and
-    `tick` called once per figure drawn."""
+    `tick` called once per figure drawn. `extra` maps a model's file to more of its
+    section (HTML lines), such as its sweep."""
     svgs = _draw_all(run, hz, jobs, tick)
     version = f" {run.version}" if run.version else ""
     out = ['<!DOCTYPE html>', '<html lang="en">', "<head>",
@@ -249,7 +258,7 @@ def render_html(run, *, hz: bool = False, fail_on_warnings: bool = False, jobs: 
             f'<li><a href="#model-{n}">{_e(s.model)}</a> ({_e(s.file)}) {_word(s.status)}</li>'
             for n, s in enumerate(summaries)) + "</ul></nav>")
     for n, s in enumerate(summaries):
-        out += _model_section(s, n, svgs)
+        out += _model_section(s, n, svgs, (extra or {}).get(s.file, []))
     out += _settings(run) + _errors(run)
     out += ["</main>", f"<footer><p>{_e(CAUTION)}</p></footer>", "</body>", "</html>"]
     return "\n".join(out) + "\n"
