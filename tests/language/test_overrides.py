@@ -2,6 +2,7 @@
 resolver re-evaluates everything that depends on them from the parsed tree."""
 from __future__ import annotations
 
+import dataclasses
 import pickle
 
 import numpy as np
@@ -83,3 +84,43 @@ def test_parse_once_resolve_many_without_the_included_files(tmp_path):
     np.testing.assert_allclose(term.app.transfer.poles, [-1.0 / 3.0])
     with pytest.raises(ModelErrors):  # without the trees it would need the deleted file
         resolve_parsed(parsed, {"J": 3.0})
+
+
+def test_a_cycle_is_still_refused_when_the_included_trees_travel_with_the_model(tmp_path):
+    # the trees kept for later resolutions go through the same checks as a first reading
+    (tmp_path / "a.loop").write_text('use "b.loop"\nparam J = 2\n')
+    (tmp_path / "b.loop").write_text("param K = 1\n")
+    top = tmp_path / "top.loop"
+    top.write_text('use "a.loop"\ninput r\ne = r - y\ny = [J*K/(s + 1)](e)\nbreak b at y\n')
+    parsed = parse_model(top.read_text(), str(top))
+    shipped = parsed.with_sources(resolve_parsed(parsed))
+    # b.loop's tree replaced by one that uses a.loop again: a cycle through the kept trees
+    a_stmt, b_stmt = sorted(shipped.sources, key=lambda st: st.path)
+    cyclic = parse_model('use "a.loop"\nparam K = 1\n', str(tmp_path / "b.loop")).tree
+    sources = {a_stmt: shipped.sources[a_stmt], b_stmt: (shipped.sources[b_stmt][0], cyclic)}
+    sources.update({st: shipped.sources[a_stmt] for st in cyclic.statements if hasattr(st, "path")})
+    with pytest.raises(ModelErrors) as info:
+        resolve_parsed(dataclasses.replace(shipped, sources=sources))
+    assert [e.code for e in info.value.errors] == ["LW205"]
+
+
+def test_the_settings_waivers_travel_with_the_parsed_model(tmp_path):
+    from loopwise.analysis import check_model, parse_for_check
+    from loopwise.settings import Settings
+    from loopwise.waivers import Waiver
+    from loopwise.errors import Span
+
+    path = tmp_path / "m.loop"
+    path.write_text(MODEL.replace("block G", "block H = 1/(s + 5)\nblock G"))  # H is never used: LW282
+    waiver = Waiver("LW282", "kept for later", Span("loopwise.toml", 3, 1), "H", ("*.loop",))
+    settings = Settings(source=str(tmp_path / "loopwise.toml"), waivers=(waiver,))
+    parsed = parse_for_check(path, settings)
+    assert parsed.waivers == (waiver,)
+    shipped = pickle.loads(pickle.dumps(parsed))
+    result = check_model(resolve_parsed(shipped, {"K": 2.5}))
+    (unused,) = [f for f in result.findings if f.code == "LW282"]
+    assert unused.waiver == waiver and not unused.counts
+    # without the settings it counts
+    (bare,) = [f for f in check_model(resolve_parsed(parse_for_check(path), {"K": 2.5})).findings
+               if f.code == "LW282"]
+    assert bare.counts

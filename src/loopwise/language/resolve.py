@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -23,7 +23,7 @@ from .parse import parse_text
 from .evaluate import Evaluator, close_match
 from .model import Application, Block, Model, Quantity, Term
 from .requirements import make_requirement
-from ..waivers import Waivers, make_waiver
+from ..waivers import Waiver, Waivers, make_waiver
 
 __all__ = ["Quantity", "Block", "Application", "Term", "Model", "resolve_text", "resolve_file",
            "Parsed", "parse_model", "parse_file", "resolve_parsed"]
@@ -114,16 +114,16 @@ class _Resolver:
                 self.waives.append(stmt)
 
     def include(self, stmt: ast.UseStmt, stack: tuple[Path, ...]) -> None:
-        if stmt in self.sources:  # parsed before: a sweep resolves once per sample, without the disk
-            known_path, known = self.sources[stmt]
-            self.collect(known, (*stack, known_path), top=False)
-            return
+        known = self.sources.get(stmt)  # parsed before: a sweep resolves once per plant, without the disk
         base = stack[-1].parent if stack else Path.cwd()
-        path = (base / stmt.path).resolve()
+        path = known[0] if known else (base / stmt.path).resolve()
         if path in stack:
             chain = " -> ".join(p.name for p in (*stack[stack.index(path):], path))
             self.errors.append(ModelError("LW205", f"include cycle: {chain}", stmt.span,
                                           "a file may not use itself, directly or through others"))
+            return
+        if known:  # the same checks as a first reading: cycles above, an included file's statements in collect
+            self.collect(known[1], (*stack, path), top=False)
             return
         try:
             text = path.read_text(encoding="utf-8", errors="replace")
@@ -325,9 +325,10 @@ class Parsed:
     tree: ast.ModelFile
     extra: tuple[ast.RequireStmt, ...] = ()
     sources: Mapping = field(default_factory=dict)  # `use` statement -> (path, tree)
+    waivers: tuple[Waiver, ...] = ()  # the settings' waivers for this file (after the model's own)
 
     def with_sources(self, model: Model) -> "Parsed":
-        return Parsed(self.file, self.path, self.tree, self.extra, dict(model.sources))
+        return replace(self, sources=dict(model.sources))
 
 
 def parse_model(text: str, file: str = "<text>", extra_requirements: tuple[str, ...] = (),
@@ -340,7 +341,8 @@ def resolve_parsed(parsed: Parsed, overrides: Mapping[str, float] | None = None)
     """Resolve a parsed model, with params set by `overrides` (param name -> value in SI):
     each is checked against the model's params (LW254) and its declared range (LW292, a note)."""
     resolver = _Resolver(parsed.file, overrides, parsed.sources)
-    return resolver.resolve(parsed.tree, parsed.path, parsed.extra)
+    model = resolver.resolve(parsed.tree, parsed.path, parsed.extra)
+    return replace(model, waivers=model.waivers.plus(parsed.waivers)) if parsed.waivers else model
 
 
 def _extra_requirements(extra_requirements: tuple[str, ...], extra_source: str) -> tuple[ast.RequireStmt, ...]:

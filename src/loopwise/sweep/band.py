@@ -38,7 +38,7 @@ def band_points(result: SweepModelResult, limit: int = BAND_PLANTS) -> np.ndarra
 def band_results(path: str, settings, result: SweepModelResult, limit: int = BAND_PLANTS) -> list:
     """Full `ModelResult`s (with responses) of the band's plants; plants that cannot be
     analysed are left out."""
-    from ..analysis import check_prepared, prepare_model
+    from ..analysis import check_model
     from ..errors import LoopwiseError
     from ..language.resolve import resolve_parsed
     from .driver import prepare_sweep
@@ -49,7 +49,7 @@ def band_results(path: str, settings, result: SweepModelResult, limit: int = BAN
     for row in band_points(result, limit):
         overrides = {**fixed, **dict(zip(result.plants.names, map(float, row)))}
         try:
-            out.append(check_prepared(prepare_model(resolve_parsed(parsed, overrides))))
+            out.append(check_model(resolve_parsed(parsed, overrides)))
         except LoopwiseError:
             continue
     return out

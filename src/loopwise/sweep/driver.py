@@ -27,13 +27,14 @@ class SweepOptions:
 
 
 def prepare_sweep(path: str, settings):
-    """The model parsed once, resolved at its nominal point (with --set) and checked in full."""
-    from ..analysis import check_prepared, prepare_model
-    from ..language.resolve import parse_file, resolve_parsed
+    """The model parsed once (with the settings' requirements and waivers), resolved at its
+    nominal point (with --set) and checked in full, as `check` would."""
+    from ..analysis import check_model, parse_for_check
+    from ..language.resolve import resolve_parsed
 
-    parsed = parse_file(path, tuple(settings.requirements), settings.source or "<settings>")
+    parsed = parse_for_check(path, settings)
     model = resolve_parsed(parsed, dict(settings.overrides))
-    return parsed.with_sources(model), model, check_prepared(prepare_model(model))
+    return parsed.with_sources(model), model, check_model(model)
 
 
 def sweep_model(parsed, model, nominal, fixed: dict, options: SweepOptions, run_batch,

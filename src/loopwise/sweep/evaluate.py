@@ -7,14 +7,14 @@ margin figures of every break, never the heavy response arrays, so that records
 cross process and machine boundaries cheaply.
 
 Today each point is resolved from the parsed syntax tree with the sample's param
-values (`language.resolve.resolve_parsed`) and checked (`analysis.check_prepared`).
+values (`language.resolve.resolve_parsed`) and checked (`analysis.check_model`, with
+the waivers the parsed model carries, exactly as `check` judges it).
 A batched engine that computes L_k and the count's inputs for many parameter
 vectors at once replaces the body of `evaluate_points` only; its signature and
 records stay.
 """
 from __future__ import annotations
 
-import math
 import os
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -45,7 +45,7 @@ class BreakSample:
     Z: int
     values: tuple[float | None, ...]
     notes: tuple[str | None, ...]
-    warnings: tuple[str, ...] = ()  # codes of the break's warnings at this plant
+    warnings: tuple[str, ...] = ()  # codes of the break's warnings that count (not waived) at this plant
 
     def value(self, metric: str) -> float | None:
         return self.values[METRIC_NAMES.index(metric)]
@@ -60,7 +60,7 @@ class SampleOutcome:
 
     breaks: tuple[BreakSample, ...] = ()
     error: tuple[str, str] | None = None  # (code, message)
-    warnings: tuple[str, ...] = ()        # codes of model-level warnings at this plant
+    warnings: tuple[str, ...] = ()        # codes of model-level warnings that count at this plant
 
     @property
     def stable(self) -> bool:
@@ -81,9 +81,9 @@ def outcome_of(result) -> SampleOutcome:
             notes = tuple(n for _, n in pairs)
         breaks.append(BreakSample(bool(b.stable), bool(b.marginal), int(b.open_loop_rhp_poles),
                                   int(b.encirclements), int(b.closed_loop_rhp_poles), values, notes,
-                                  tuple(w.code for w in b.warnings)))
-    return SampleOutcome(tuple(breaks), None,
-                         tuple(f.code for f in result.findings if f.severity == "warning"))
+                                  tuple(w.code for w in b.open_warnings)))
+    # a waived warning does not count, as in `check` (`Finding.counts`)
+    return SampleOutcome(tuple(breaks), None, tuple(f.code for f in result.findings if f.counts))
 
 
 def evaluate_points(model, names: Sequence[str], points, fixed: Mapping[str, float] | None = None
@@ -95,7 +95,7 @@ def evaluate_points(model, names: Sequence[str], points, fixed: Mapping[str, flo
     per row, in order. Never raises for a model error at one point: that point's
     outcome carries the error instead.
     """
-    from ..analysis import check_prepared, prepare_model
+    from ..analysis import check_model
     from ..errors import ModelError, ModelErrors
     from ..language.resolve import resolve_parsed
 
@@ -104,7 +104,7 @@ def evaluate_points(model, names: Sequence[str], points, fixed: Mapping[str, flo
     for row in np.atleast_2d(np.asarray(points, float)):
         overrides = {**fixed, **{n: float(v) for n, v in zip(names, row)}}
         try:
-            out.append(outcome_of(check_prepared(prepare_model(resolve_parsed(model, overrides)))))
+            out.append(outcome_of(check_model(resolve_parsed(model, overrides))))
         except ModelErrors as exc:
             first = exc.errors[0]
             out.append(SampleOutcome(error=(first.code, first.message)))
@@ -115,7 +115,3 @@ def evaluate_points(model, names: Sequence[str], points, fixed: Mapping[str, flo
                 raise
             out.append(SampleOutcome(error=("LW900", f"internal error: {type(exc).__name__}: {exc}")))
     return out
-
-
-def finite(value: float | None) -> bool:
-    return value is not None and math.isfinite(value)
