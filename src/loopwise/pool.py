@@ -36,8 +36,8 @@ __all__ = ["Terminated", "cpu_limit", "worker_count", "run_pool", "sigterm_raise
 T = TypeVar("T")
 R = TypeVar("R")
 
-#: the words every command's --jobs help uses
-JOBS_HELP = ("in N processes (0: one per CPU; default 1; capped at the number of CPUs "
+#: the words every command's --jobs help uses (`{default}`: the command's default)
+JOBS_HELP = ("in N processes (0: one per CPU; default {default}; capped at the number of CPUs "
              "this process may use)")
 
 _STOP_SIGNALS = (signal.SIGINT, signal.SIGTERM)

@@ -11,37 +11,10 @@ import os
 import sys
 
 from ..report import formats
-from .options import add_config, add_jobs, add_no_progress, add_output, load_settings_for
+from .options import (add_config, add_fail_on_warnings, add_jobs, add_no_progress, add_output, add_set,
+                      load_settings_for)
 
 __all__ = ["add_parser", "run"]
-
-
-def _set_value(text: str) -> tuple[str, float]:
-    """`NAME=VALUE` of --set: a param name and a number, with a unit if wanted (200us, 3dB)."""
-    name, sep, value = text.partition("=")
-    name, value = name.strip(), value.strip()
-    if not sep or not name.isidentifier() or not value:
-        raise argparse.ArgumentTypeError(f"expected NAME=VALUE (e.g. J=2.4e-4 or Td=200us), got {text!r}")
-    from ..errors import LoopwiseError
-    from ..language import ast
-    from ..language.parse import parse_text
-
-    try:  # the model language's own number literals (units convert to SI)
-        (stmt,) = parse_text(f"param x = {value}\n", "<--set>").statements
-        number, sign = (stmt.value.operand, -1.0) if isinstance(stmt.value, ast.Neg) else (stmt.value, 1.0)
-        if isinstance(number, ast.Number):
-            return name, sign * number.value
-    except (LoopwiseError, ValueError):
-        pass
-    raise argparse.ArgumentTypeError(f"{text!r}: the value must be a number, with a unit if wanted "
-                                     "(e.g. 2.4e-4, 200us, -3dB)")
-
-
-def add_set_option(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--set", dest="set", type=_set_value, action="append", default=[], metavar="NAME=VALUE",
-                   help="fix a param at a value for this run (repeatable; a unit may follow the number, "
-                        "e.g. --set Td=200us); an unknown name is an error, a value outside the "
-                        "param's range a note")
 
 
 def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
@@ -60,25 +33,13 @@ def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
                    help="with --output, print nothing to stdout")
     add_config(p)
     add_jobs(p)
-    p.add_argument("--fail-on-warnings", action=argparse.BooleanOptionalAction, default=None,
-                   help="exit 1 when a model has warnings (overrides the settings file)")
+    add_fail_on_warnings(p)
     p.add_argument("--color", "--colour", dest="color", choices=("auto", "always", "never"),
                    default="auto",
                    help="colour the text report: auto (a terminal without NO_COLOR), always, never")
     add_no_progress(p)
-    add_set_option(p)
+    add_set(p)
     return p
-
-
-def _settings(args):
-    from dataclasses import replace
-
-    settings = load_settings_for(args)
-    if args.fail_on_warnings is not None:
-        settings = replace(settings, fail_on_warnings=args.fail_on_warnings)
-    if getattr(args, "set", None):
-        settings = replace(settings, overrides=tuple(dict(args.set).items()))  # the last of a name wins
-    return settings
 
 
 def _colour(choice: str, stream) -> bool:
@@ -98,7 +59,7 @@ def run(args) -> int:
     from ..report import render
     from ..run import check_files, discover, exit_status
 
-    settings = _settings(args)
+    settings = load_settings_for(args)  # with --fail-on-warnings and --set
     files = discover(args.paths, settings)
     protected = None
     if args.output:

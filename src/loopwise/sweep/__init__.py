@@ -12,13 +12,13 @@ from __future__ import annotations
 
 import importlib
 
-__all__ = ["DEFAULT_SAMPLES", "SweepOptions", "sweep_file", "sweep_model", "sweep_paths", "BreakSample",
+__all__ = ["DEFAULT_SAMPLES", "SweepOptions", "sweep_file", "sweep_files", "sweep_model", "sweep_paths", "BreakSample",
            "SampleOutcome", "evaluate_points", "SweepModelResult", "SweepRun"]
 
 #: the space-filling set's default size (`--samples`)
 DEFAULT_SAMPLES = 300
 
-_WHERE = {"SweepOptions": "driver", "sweep_file": "driver", "sweep_model": "driver", "sweep_paths": "driver",
+_WHERE = {"SweepOptions": "driver", "sweep_file": "driver", "sweep_model": "driver", "sweep_paths": "driver", "sweep_files": "driver",
           "BreakSample": "evaluate", "SampleOutcome": "evaluate", "evaluate_points": "evaluate",
           "SweepModelResult": "results", "SweepRun": "results"}
 

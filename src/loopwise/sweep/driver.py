@@ -16,8 +16,8 @@ from .evaluate import outcome_of
 from .results import SampleCounts, SweepModelResult, SweepParam, SweepRun
 from .search import WORST, Evidence, Target, boundaries, local_search, search_budget
 
-__all__ = ["DEFAULT_SAMPLES", "SweepOptions", "prepare_sweep", "sweep_model", "sweep_file", "sweep_paths"]
-
+__all__ = ["DEFAULT_SAMPLES", "SweepOptions", "prepare_sweep", "sweep_model", "sweep_file", "sweep_files",
+           "sweep_paths"]
 
 
 @dataclass(frozen=True)
@@ -102,19 +102,17 @@ def sweep_file(path: str, settings, options: SweepOptions, run_batch, tick=lambd
     return (None, errors) if swept is None else swept
 
 
-def sweep_paths(paths, settings=None, options: SweepOptions = SweepOptions(), *, jobs: int = 1,
+def sweep_files(files, settings=None, options: SweepOptions = SweepOptions(), *, jobs: int = 1,
                 cluster: str | None = None, progress: bool = False) -> SweepRun:
-    """Sweep every model named by `paths`, one after another, each over `jobs` local
-    processes (0: one per CPU) or the Dask scheduler at `cluster`."""
+    """Sweep these model files (from `run.discover`), one after another, each over `jobs`
+    local processes (0: one per CPU) or the Dask scheduler at `cluster`."""
     import os
 
     from .. import __version__
-    from ..run import discover
     from ..settings import Settings
     from .execute import cluster_batches, local_batches
 
     settings = settings or Settings()
-    files = discover(paths, settings)
     cpus = os.cpu_count() or 1
     jobs = cpus if jobs == 0 else min(jobs, cpus)
     runner = cluster_batches(cluster) if cluster else local_batches(jobs)
@@ -131,6 +129,17 @@ def sweep_paths(paths, settings=None, options: SweepOptions = SweepOptions(), *,
         if bar is not None:
             bar.stop()
     return SweepRun(tuple(models), tuple(dict.fromkeys(errors)), __version__)
+
+
+def sweep_paths(paths, settings=None, options: SweepOptions = SweepOptions(), *, jobs: int = 1,
+                cluster: str | None = None, progress: bool = False) -> SweepRun:
+    """Sweep every model named by `paths` (files or folders, `run.discover`); see `sweep_files`."""
+    from ..run import discover
+    from ..settings import Settings
+
+    settings = settings or Settings()
+    return sweep_files(discover(paths, settings), settings, options, jobs=jobs, cluster=cluster,
+                       progress=progress)
 
 
 def _progress(wanted: bool):
