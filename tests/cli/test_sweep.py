@@ -246,3 +246,19 @@ def test_the_sweep_judges_every_plant_with_the_waivers_check_uses(cli, tmp_path)
     write(tmp_path, "c.loop", CANCELS + 'waive LW281 at C "known not to exist"\n')
     code, out, _ = cli("sweep", "c.loop", *FAST, "--fail-on-warnings")
     assert code == 0, out
+
+
+def test_the_progress_count_reaches_every_plant_and_changes_nothing(tmp_path, monkeypatch):
+    from rich.progress import Progress
+
+    from loopwise.sweep import SweepOptions, sweep_paths
+
+    write(tmp_path, "inside.loop", INSIDE)
+    added = []
+    original = Progress.advance
+    monkeypatch.setattr(Progress, "advance", lambda self, task, n=1: (added.append(n), original(self, task, n)))
+    options = SweepOptions(samples=6)
+    with_count = sweep_paths([tmp_path / "inside.loop"], options=options, jobs=2, progress=True)
+    assert sum(added) == with_count.models[0].samples and len(added) > 3  # one step per batch
+    without = sweep_paths([tmp_path / "inside.loop"], options=options, jobs=1, progress=False)
+    assert with_count.to_dict() == without.to_dict()

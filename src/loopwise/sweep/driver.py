@@ -57,6 +57,7 @@ def sweep_model(parsed, model, nominal, fixed: dict, options: SweepOptions, run_
     nominal_values = np.array([model.params[n].value for n in box.names])
     evidence.add((nominal_values - box.lo) / (box.hi - box.lo) if dim else np.zeros(0),
                  outcome_of(nominal), "nominal")
+    tick(1)
     findings = list(nominal.findings)
     stopped = False
     if dim:
@@ -105,29 +106,23 @@ def sweep_file(path: str, settings, options: SweepOptions, run_batch, tick=lambd
 def sweep_files(files, settings=None, options: SweepOptions = SweepOptions(), *, jobs: int = 1,
                 cluster: str | None = None, progress: bool = False) -> SweepRun:
     """Sweep these model files (from `run.discover`), one after another, each over `jobs`
-    local processes (0: one per CPU) or the Dask scheduler at `cluster`."""
-    import os
-
+    local processes (the shared pool: 0 one per CPU, capped at the CPUs) or the Dask
+    scheduler at `cluster`. `progress` allows a count of analysed plants on stderr."""
     from .. import __version__
+    from ..progress import progress_bar
     from ..settings import Settings
     from .execute import cluster_batches, local_batches
 
     settings = settings or Settings()
-    cpus = os.cpu_count() or 1
-    jobs = cpus if jobs == 0 else min(jobs, cpus)
     runner = cluster_batches(cluster) if cluster else local_batches(jobs)
-    bar, tick = _progress(progress)
     models, errors = [], []
-    try:
-        with runner as run_batch:
-            for f in files:
-                result, errs = sweep_file(str(f), settings, options, run_batch, tick)
-                if result is not None:
-                    models.append(result)
-                errors.extend(errs)
-    finally:
-        if bar is not None:
-            bar.stop()
+    # the number of plants is known only as the local search goes: a count without an end
+    with progress_bar("sweeping: plants analysed", None, enabled=progress) as tick, runner as run_batch:
+        for f in files:
+            result, errs = sweep_file(str(f), settings, options, run_batch, tick)
+            if result is not None:
+                models.append(result)
+            errors.extend(errs)
     return SweepRun(tuple(models), tuple(dict.fromkeys(errors)), __version__)
 
 
@@ -141,16 +136,3 @@ def sweep_paths(paths, settings=None, options: SweepOptions = SweepOptions(), *,
     return sweep_files(discover(paths, settings), settings, options, jobs=jobs, cluster=cluster,
                        progress=progress)
 
-
-def _progress(wanted: bool):
-    """A transient count of plants on stderr (the shared progress helper replaces it)."""
-    if not wanted:
-        return None, (lambda n: None)
-    from rich.console import Console
-    from rich.progress import MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
-
-    bar = Progress(TextColumn("sweeping: plants analysed"), MofNCompleteColumn(), TimeElapsedColumn(),
-                   console=Console(stderr=True), transient=True)
-    task = bar.add_task("plants", total=None)
-    bar.start()
-    return bar, (lambda n: bar.advance(task, n))

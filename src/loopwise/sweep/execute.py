@@ -14,7 +14,7 @@ from contextlib import contextmanager
 import numpy as np
 
 from ..errors import UsageError
-from .evaluate import evaluate_points
+from .evaluate import SampleOutcome, evaluate_points
 
 __all__ = ["local_batches", "cluster_batches", "CLUSTER_INSTALL"]
 
@@ -27,35 +27,30 @@ def _chunks(values: np.ndarray, workers: int) -> list[np.ndarray]:
     return [c for c in np.array_split(values, min(len(values), workers * CHUNKS_PER_WORKER)) if len(c)]
 
 
-def _serial(model, names, values, fixed):
-    return evaluate_points(model, names, values, fixed)
+def _lost(chunk: np.ndarray) -> list[SampleOutcome]:
+    """The outcomes of a chunk whose worker process died (out of memory, killed)."""
+    return [SampleOutcome(error=("LW900", "the worker process analysing this plant stopped "
+                                          "(try --jobs 1; the model may need more memory)"))] * len(chunk)
 
 
 @contextmanager
 def local_batches(jobs: int):
-    """Local processes. This is the one place a sweep starts a pool (to be replaced by
-    the commands' shared pool helper): workers ignore Ctrl-C, which the parent handles
-    by cancelling what has not started."""
-    if jobs <= 1:
-        yield _serial
-        return
-    from concurrent.futures import ProcessPoolExecutor
+    """Local processes: the shared pool (`loopwise.pool.open_pool`), kept for every batch
+    of the sweep; Ctrl-C and SIGTERM end its workers (the command exits 130 / 143)."""
+    from functools import partial
 
-    from .. import analysis  # noqa: F401  (loaded once here; forked workers inherit it)
-    from ..pool import _worker_start
+    from ..pool import open_pool
 
-    pool = ProcessPoolExecutor(max_workers=jobs, initializer=_worker_start, initargs=(None,))
+    if jobs != 1:
+        from .. import analysis  # noqa: F401  (loaded once here; forked workers inherit it)
+    with open_pool(jobs) as pool:
 
-    def run(model, names, values, fixed):
-        futures = [pool.submit(evaluate_points, model, names, c, fixed) for c in _chunks(values, jobs)]
-        return [o for f in futures for o in f.result()]
+        def run(model, names, values, fixed):
+            chunks = _chunks(values, pool.workers)
+            parts = pool.run(partial(evaluate_points, model, names, fixed=fixed), chunks, on_broken=_lost)
+            return [o for part in parts for o in part]
 
-    try:
         yield run
-    except BaseException:
-        pool.shutdown(wait=True, cancel_futures=True)
-        raise
-    pool.shutdown(wait=True)
 
 
 @contextmanager
