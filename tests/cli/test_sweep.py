@@ -262,3 +262,15 @@ def test_the_progress_count_reaches_every_plant_and_changes_nothing(tmp_path, mo
     assert sum(added) == with_count.models[0].samples and len(added) > 3  # one step per batch
     without = sweep_paths([tmp_path / "inside.loop"], options=options, jobs=1, progress=False)
     assert with_count.to_dict() == without.to_dict()
+
+
+def test_a_settings_waiver_that_matches_nothing_is_reported_for_the_run(cli, tmp_path):
+    write(tmp_path, "inside.loop", INSIDE)
+    write(tmp_path, "loopwise.toml", WAIVER)  # LW281 at C: inside.loop has no such finding
+    code, out, _ = cli("sweep", "inside.loop", *FAST, "--format", "json")
+    doc = validate(out)
+    (unmatched,) = doc["findings"]
+    assert unmatched["code"] == "LW284" and unmatched["file"].endswith("loopwise.toml") and code == 0
+    assert cli("check", "inside.loop", "--fail-on-warnings")[0] == 1  # as check says
+    code, out, _ = cli("sweep", "inside.loop", *FAST, "--fail-on-warnings")
+    assert code == 1 and "warning LW284 the waiver of LW281 at C matches no finding" in out

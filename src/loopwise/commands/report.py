@@ -53,7 +53,7 @@ def _sweep_sections(args, files, settings, result) -> tuple[dict, object | None]
     for s in swept.models:
         if s.file in checked and s.params:
             n, m = checked[s.file]
-            extra[s.file] = sweep_section(m, s, band_results(s.file, settings, s), n)
+            extra[s.file] = sweep_section(m, s, band_results(s.file, settings, s), n, settings.fail_on_warnings)
     return extra, swept
 
 
@@ -83,11 +83,8 @@ def run(args) -> int:
     emit(f"report written to {args.output} ({len(result.models)} model(s), "
          f"{figure_count(result)} figure(s), {len(result.errors)} error(s))\n")
     if swept is not None:
-        from ..report.sweep_text import sweep_passes
-
         for e in swept.errors:
             if e not in result.errors:
                 print(finding_text(e), file=sys.stderr)
-        sweep_code = 2 if swept.errors else (0 if all(sweep_passes(m, fail) for m in swept.models) else 1)
-        return max(exit_status(result, fail), sweep_code)
+        return max(exit_status(result, fail), swept.exit_status(fail))
     return exit_status(result, fail)

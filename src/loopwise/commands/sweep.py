@@ -11,13 +11,11 @@ import argparse
 import sys
 
 from ..errors import UsageError
+from ..report import formats
 from .options import (add_config, add_design, add_fail_on_warnings, add_jobs, add_no_progress, add_output,
                       add_set, load_settings_for)
 
 __all__ = ["add_parser", "run"]
-
-_FORMATS = ("text", "json", "junit", "markdown")
-
 
 def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
     p = subparsers.add_parser(
@@ -35,7 +33,7 @@ def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
                    help="send the plants to the Dask scheduler at ADDRESS (e.g. tcp://10.0.0.5:8786) "
                         "instead; needs pip install \"loopwise[cluster]\"; same results as a local run")
     add_set(p)
-    p.add_argument("-f", "--format", choices=_FORMATS, default="text", help="report format (default: text)")
+    p.add_argument("-f", "--format", choices=formats("sweep"), default="text", help="report format (default: text)")
     add_output(p, "write the report to FILE; a text summary still goes to stdout unless --quiet")
     p.add_argument("-q", "--quiet", action="store_true", help="with --output, print nothing to stdout")
     add_config(p)
@@ -44,18 +42,10 @@ def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
     return p
 
 
-def render(run, fmt: str, fail_on_warnings: bool) -> str:
-    if fmt == "json":
-        from ..report import json_report
-        return json_report.render(run)
-    module = {"text": "sweep_text", "junit": "sweep_junit", "markdown": "sweep_markdown"}[fmt]
-    import importlib
-    return importlib.import_module(f"loopwise.report.{module}").render(run, fail_on_warnings=fail_on_warnings)
-
-
 def run(args) -> int:
     from ..output import emit, guard_output, protected_inputs
     from ..progress import wants_progress
+    from ..report import render
     from ..run import discover
     from ..sweep import SweepOptions, sweep_files
 
@@ -73,18 +63,11 @@ def run(args) -> int:
                          cluster=args.cluster, progress=progress)
     fail = settings.fail_on_warnings
     if args.output:
-        emit(render(result, args.format, fail), args.output, protected)
+        emit(render(result, args.format, kind="sweep", fail_on_warnings=fail), args.output, protected)
         if not args.quiet:
-            emit(render(result, "text", fail))
+            emit(render(result, "text", kind="sweep", fail_on_warnings=fail))
             emit(f"{args.format} report written to {args.output}\n")
     else:
-        emit(render(result, args.format, fail))
-    return _exit_status(result, fail)
+        emit(render(result, args.format, kind="sweep", fail_on_warnings=fail))
+    return result.exit_status(fail)
 
-
-def _exit_status(run, fail_on_warnings: bool) -> int:
-    from ..report.sweep_text import sweep_passes
-
-    if run.errors:
-        return 2
-    return 0 if all(sweep_passes(m, fail_on_warnings) for m in run.models) else 1

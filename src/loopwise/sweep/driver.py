@@ -86,6 +86,7 @@ def sweep_model(parsed, model, nominal, fixed: dict, options: SweepOptions, run_
         breaks=break_results(nominal, model, evidence, box, brackets),
         findings=tuple(findings) + sample_warnings(model.file, evidence),
         search_stopped=stopped, failed_samples=failed, plants=plant_table(evidence, box, len(nominal.breaks)),
+        nominal=nominal,
     )
     return result, errors
 
@@ -111,6 +112,7 @@ def sweep_files(files, settings=None, options: SweepOptions = SweepOptions(), *,
     from .. import __version__
     from ..progress import progress_bar
     from ..settings import Settings
+    from ..waivers import unmatched_settings_waivers
     from .execute import cluster_batches, local_batches
 
     settings = settings or Settings()
@@ -123,7 +125,9 @@ def sweep_files(files, settings=None, options: SweepOptions = SweepOptions(), *,
             if result is not None:
                 models.append(result)
             errors.extend(errs)
-    return SweepRun(tuple(models), tuple(dict.fromkeys(errors)), __version__)
+    # a settings waiver that covers swept models but matches nothing at their nominal points
+    findings = unmatched_settings_waivers(settings, [m.nominal for m in models])
+    return SweepRun(tuple(models), tuple(dict.fromkeys(errors)), __version__, findings)
 
 
 def sweep_paths(paths, settings=None, options: SweepOptions = SweepOptions(), *, jobs: int = 1,

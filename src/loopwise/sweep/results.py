@@ -10,7 +10,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import Finding
-from ..results import CAUTION, RequirementResult, _num
+from ..results import CAUTION, RequirementResult, error_to_dict, json_number
 
 __all__ = ["SWEEP_SCHEMA", "SweepParam", "Worst", "Boundary", "SweepRequirement", "BreakSweep",
            "SampleCounts", "PlantTable", "SweepModelResult", "SweepRun", "WORST_KEYS", "format_at"]
@@ -34,7 +34,7 @@ def format_at(at) -> str:
 
 
 def _at(at: tuple[tuple[str, float], ...] | None) -> dict | None:
-    return None if at is None else {name: _num(v) for name, v in at}
+    return None if at is None else {name: json_number(v) for name, v in at}
 
 
 @dataclass(frozen=True)
@@ -45,7 +45,7 @@ class SweepParam:
     hi: float
 
     def to_dict(self) -> dict:
-        return {"name": self.name, "nominal": _num(self.nominal), "lo": _num(self.lo), "hi": _num(self.hi)}
+        return {"name": self.name, "nominal": json_number(self.nominal), "lo": json_number(self.lo), "hi": json_number(self.hi)}
 
 
 @dataclass(frozen=True)
@@ -61,7 +61,7 @@ class Worst:
     nominal: float | None
 
     def to_dict(self) -> dict:
-        return {"value": _num(self.value), "at": _at(self.at), "nominal": _num(self.nominal)}
+        return {"value": json_number(self.value), "at": _at(self.at), "nominal": json_number(self.nominal)}
 
 
 @dataclass(frozen=True)
@@ -173,6 +173,7 @@ class SweepModelResult:
     search_stopped: bool = False            # the local search ran out of its budget
     failed_samples: int = 0                 # plants that could not be analysed (see the run's errors)
     plants: PlantTable | None = None        # every plant in numbers (for pictures)
+    nominal: object | None = None           # the nominal plant's full ModelResult (not in the JSON contract)
 
     @property
     def samples(self) -> int:
@@ -189,6 +190,17 @@ class SweepModelResult:
     @property
     def ok(self) -> bool:
         return self.stable_everywhere and self.requirements_met
+
+    @property
+    def open_warnings(self) -> bool:
+        """Whether a warning counts against the sweep: one of the model's that is not waived
+        (`Finding.counts`), or a break warning at some plant (the plants record only those
+        that count)."""
+        return any(f.counts for f in self.findings) or any(b.warnings for b in self.breaks)
+
+    def passes(self, fail_on_warnings: bool = False) -> bool:
+        """The exit rule per model (`SweepRun.exit_status`)."""
+        return self.ok and not (fail_on_warnings and self.open_warnings)
 
     def to_dict(self) -> dict:
         return {
@@ -212,18 +224,26 @@ class SweepRun:
     models: tuple[SweepModelResult, ...]
     errors: tuple[Finding, ...]
     version: str = ""
+    findings: tuple[Finding, ...] = ()  # about the run itself: a settings waiver that matched nothing (LW284)
 
     @property
     def exit_code(self) -> int:
+        return self.exit_status()
+
+    def exit_status(self, fail_on_warnings: bool = False) -> int:
+        """The whole exit policy of `loopwise sweep`: 2 a model or a plant could not be
+        read; 1 a plant unstable somewhere, a requirement not met at the worst plant
+        found, or (with fail_on_warnings) a warning that counts; 0 otherwise."""
         if self.errors:
             return 2
-        return 0 if all(m.ok for m in self.models) else 1
+        run_warned = fail_on_warnings and any(f.counts for f in self.findings)
+        return 0 if all(m.passes(fail_on_warnings) for m in self.models) and not run_warned else 1
 
     def to_dict(self) -> dict:
         return {
             "sweep_schema": SWEEP_SCHEMA, "tool": "loopwise", "command": "sweep", "version": self.version,
             "caution": CAUTION,
             "models": [m.to_dict() for m in self.models],
-            "errors": [{"file": e.span.file, "line": e.span.line, "col": e.span.col,
-                        "code": e.code, "message": e.message, "hint": e.hint} for e in self.errors],
+            "findings": [f.to_dict() for f in self.findings],
+            "errors": [error_to_dict(e) for e in self.errors],
         }
