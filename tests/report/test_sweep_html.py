@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from loopwise.cli import main
-from loopwise.report.sweep_plots import PROFILE_BINS, worst_profile
+from loopwise.report.plots.sweep import PROFILE_BINS, worst_profile
 from loopwise.sweep.results import WORST_KEYS, PlantTable
 
 SVG = "{http://www.w3.org/2000/svg}"

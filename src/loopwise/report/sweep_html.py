@@ -25,7 +25,7 @@ def _worst_table(b) -> list[str]:
 
 def _figures(nominal_break, brk: int, result, band: list, prefix: str) -> list[str]:
     from .html import inline_svg
-    from .sweep_plots import band_figure, worst_figure
+    from .plots.sweep import band_figure, worst_figure
 
     out = ['<div class="plots">']
     if nominal_break.response is not None:

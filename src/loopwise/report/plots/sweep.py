@@ -1,24 +1,20 @@
 """Pictures of a sweep: the Nyquist band of sampled plants around the nominal curve, and
 each worst margin against each ranged param.
 
-matplotlib comes only through `plots.py` (its headless set-up, style and SVG writer);
-this module adds two figure kinds in the same look: the nominal curve in the deep ink
-blue, the sampled plants thin and light in the same hue, so the band reads in grey print.
+Drawn with the package's own parts, in the same look: the Nyquist view's curve,
+guides and limits (`nyquist.drawn_curve`, `draw_guides`, `set_limits`), the
+style, fixed axes rectangles and line thinning of `common`. The nominal curve is in
+the deep ink blue, the sampled plants thin and light in the same hue, so the band
+reads in grey print.
 """
 from __future__ import annotations
 
 import numpy as np
 
-from ..sweep.results import WORST_KEYS
-from .geometry import choose_ring, closed_curve
-from .plots.common import INK, style as _style
-from .plots.nyquist import _guides, _limits
-
-
-def _new_figure(size):
-    from matplotlib.figure import Figure
-
-    return Figure(figsize=size, layout="constrained")
+from ...sweep.results import WORST_KEYS
+from ..geometry import choose_ring
+from .common import INK, new_figure, style, thin_lines
+from .nyquist import draw_guides, drawn_curve, set_limits
 
 __all__ = ["band_figure", "worst_figure", "worst_profile", "PROFILE_BINS"]
 
@@ -26,7 +22,7 @@ __all__ = ["band_figure", "worst_figure", "worst_profile", "PROFILE_BINS"]
 PROFILE_BINS = 10
 
 _LABELS = {"phase_margin_deg": "phase margin [deg]", "gain_margin_up_db": "gain margin up [dB]",
-           "gain_margin_down_db": "gain margin down [dB]", "delay_margin_s": "delay margin [s]",
+           "gain_margin_down_db": "gain margin down [dB] (<0)", "delay_margin_s": "delay margin [s]",
            "disk_margin_alpha": "disk margin alpha", "sensitivity_peak": "Ms",
            "complementary_peak": "Mt"}
 _WORST_IS_LARGEST = {"gain_margin_down_db", "sensitivity_peak", "complementary_peak"}
@@ -34,41 +30,46 @@ _MARKERS = ("o", "s", "^", "D", "v", "P", "X", "*")
 #: one colour per param, from the report's own inks (lightness differs as well as hue)
 _PARAM_INKS = (INK["curve"], INK["gain"], INK["phase"], "#2f7d4f", INK["t"], "#555555", INK["mirror"], "#8c2d46")
 
+#: the band's page (inches) and its one axes rectangle (figure fractions)
+BAND_SIZE = (7.4, 6.0)
+BAND_AXES = (0.1, 0.08, 0.86, 0.84)
+#: the profile's page: width, height of a row of two axes, and the margins (inches)
+PROFILE_WIDTH, PROFILE_ROW = 8.6, 2.1
+PROFILE_MARGINS = dict(left=0.75, right=0.2, top=0.55, bottom=0.5, gap_x=0.85, gap_y=0.45)
+
 
 def band_figure(nominal, plants, *, model: str = "", title_note: str = ""):
     """`nominal`: the nominal BreakResult; `plants`: BreakResults of sampled plants at the
     same break. The nominal curve bold, every plant's thin around it, on one ring."""
     response = nominal.response
-    with _style(f"{model}-{nominal.name}-band"):
-        fig = _new_figure((7.4, 6.0))
-        ax = fig.subplots()
+    with style(f"{model}-{nominal.name}-band"):
+        fig, axes = new_figure(BAND_SIZE, {"main": BAND_AXES})
+        ax = axes["main"]
         ax.set_aspect("equal")
         ring = choose_ring(response)
-        _guides(ax, ring)
+        draw_guides(ax, ring)
         seen = [np.zeros(0, complex)]
-        for n, p in enumerate(q for q in plants if q.response is not None and len(q.response.L)):
-            upper, mirror = closed_curve(p.response)
-            if ring is not None:
-                upper, mirror = ring.compress(upper), ring.compress(mirror)
+        drawn = [q for q in plants if q.response is not None and len(q.response.L)]
+        for n, p in enumerate(drawn):
+            upper, mirror = drawn_curve(p.response, ring)
             for half in (upper, mirror):
                 ax.plot(half.real, half.imag, color=INK["mirror"], lw=0.7, alpha=0.8, zorder=2,
                         label=None if n or half is mirror else "sampled plants", gid="band-plant")
             seen += [upper, mirror]
-        upper, mirror = closed_curve(response)
-        if ring is not None:
-            upper, mirror = ring.compress(upper), ring.compress(mirror)
+        upper, mirror = drawn_curve(response, ring)
         ax.plot(upper.real, upper.imag, color=INK["curve"], lw=1.9, zorder=4, label="nominal plant",
                 gid="band-nominal")
         ax.plot(mirror.real, mirror.imag, color=INK["curve"], lw=1.1, ls=(0, (5, 3)), zorder=4)
         ax.plot([-1], [0], ls="none", marker="P", ms=9, color=INK["critical"], zorder=8,
                 label="critical point \u22121")
-        _limits(ax, np.concatenate([upper, *seen]), mirror, ring)
+        set_limits(ax, np.concatenate([upper, *seen]), mirror, ring)
         ax.set_xlabel("Re L")
         ax.set_ylabel("Im L")
         head = f"{model} \u00b7 " if model else ""
-        ax.set_title(f"{head}break {nominal.name}: nominal and {len(plants)} sampled plants{title_note}",
+        ax.set_title(f"{head}break {nominal.name}: nominal and {len(drawn)} sampled plants{title_note}",
                      loc="left")
         ax.legend(loc="lower right")
+        thin_lines(fig)
     return fig
 
 
@@ -92,6 +93,21 @@ def worst_profile(table, brk: int, key: str, bins: int = PROFILE_BINS):
     return (np.arange(bins) + 0.5) / bins, worst
 
 
+def _grid(rows: int) -> tuple[tuple[float, float], dict[str, tuple[float, float, float, float]]]:
+    """The profile page and its axes rectangles, two per row, named by their order."""
+    m = PROFILE_MARGINS
+    height = PROFILE_ROW * rows + m["top"] + m["bottom"]
+    width = (PROFILE_WIDTH - m["left"] - m["right"] - m["gap_x"]) / 2
+    tall = (height - m["top"] - m["bottom"] - m["gap_y"] * (rows - 1)) / rows
+    rects = {}
+    for k in range(2 * rows):
+        row, col = divmod(k, 2)
+        left = m["left"] + col * (width + m["gap_x"])
+        bottom = height - m["top"] - (row + 1) * tall - row * m["gap_y"]
+        rects[str(k)] = (left / PROFILE_WIDTH, bottom / height, width / PROFILE_WIDTH, tall / height)
+    return (PROFILE_WIDTH, height), rects
+
+
 def worst_figure(result, brk: int, *, model: str = ""):
     """Each worst margin of a break against each ranged param (its range from low to high),
     with the nominal value as a dashed line."""
@@ -99,9 +115,10 @@ def worst_figure(result, brk: int, *, model: str = ""):
     b = result.breaks[brk]
     keys = [k for k, w in b.worst if w.value is not None and np.isfinite(w.value)]
     rows = max(1, (len(keys) + 1) // 2)
-    with _style(f"{model}-{b.name}-worst"):
-        fig = _new_figure((8.6, 2.1 * rows + 0.6))
-        axes = np.atleast_1d(fig.subplots(rows, 2, squeeze=False)).ravel()
+    with style(f"{model}-{b.name}-worst"):
+        size, rects = _grid(rows)
+        fig, named = new_figure(size, rects)
+        axes = [named[str(k)] for k in range(2 * rows)]
         for ax, key in zip(axes, keys):
             x, worst = worst_profile(table, brk, key)
             for p, name in enumerate(table.names):
