@@ -17,12 +17,12 @@ independent and alike; the default checks all N).
 from __future__ import annotations
 
 import argparse
-import os
 import resource
 import time
 from pathlib import Path
 
 from loopwise import check_text
+from loopwise.pool import cpu_limit, worker_count
 from loopwise.settings import Settings
 from loopwise.sweep import SweepOptions, sweep_paths
 from loopwise.sweep.design import space_filling, to_values
@@ -52,13 +52,13 @@ def main() -> int:
     ap.add_argument("--seed", type=int, default=0)
     args = ap.parse_args()
     n = args.samples
-    jobs = args.jobs or os.cpu_count() or 1
+    jobs = worker_count(args.jobs, n)  # what the sweep's pool will use (capped at the CPUs)
 
     run, sweep_wall, sweep_cpu = timed(lambda: sweep_paths([MODEL], options=SweepOptions(n, args.seed), jobs=jobs))
     (model,) = run.models
     plants, c = model.samples, model.counts
     names = [p.name for p in model.params]
-    print(f"model {MODEL.relative_to(ROOT)}: params {', '.join(names)}; {os.cpu_count()} CPU(s)")
+    print(f"model {MODEL.relative_to(ROOT)}: params {', '.join(names)}; {cpu_limit()} CPU(s)")
     print(f"sweep --samples {n} --jobs {jobs}: {plants} plants ({c.corners} corners, {c.space_filling} "
           f"space-filling, {c.local_search} local search, {c.boundary} boundary)")
     print(f"  wall {sweep_wall:8.2f} s   cpu {sweep_cpu:8.2f} s   {1e3 * sweep_wall / plants:7.1f} ms wall per plant",
