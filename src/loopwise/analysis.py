@@ -15,7 +15,7 @@ import numpy as np
 from . import arguments as arg
 from .engine.diagram import Diagram, build_diagram
 from .errors import Finding, ModelError, ModelErrors, Span
-from .language.resolve import Model, resolve_file, resolve_text
+from .language.resolve import Model, Parsed, parse_file, parse_model, resolve_parsed
 from .engine.reduce import Reduction, reduce_diagram
 from .results import BreakResult, HiddenMode, ModelResult
 from .engine.hidden import applications, cancelled_modes, structural_modes
@@ -23,8 +23,8 @@ from .engine.stability import count_all, count_model, prepare_contour
 from .judge import SEPARATION_WARNING, judge
 from .waivers import apply_waivers, settings_waivers_for
 
-__all__ = ["Prepared", "prepare_text", "prepare_file", "check_text", "check_file", "analyse_loop",
-           "nyquist_verdict"]
+__all__ = ["Prepared", "parse_for_check", "prepare_model", "prepare_text", "prepare_file", "check_model",
+           "check_text", "check_file", "check_prepared", "analyse_loop", "nyquist_verdict"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -54,24 +54,54 @@ def _settings_requirements(settings) -> tuple[str, ...]:
     return tuple(getattr(settings, "requirements", ()) or ()) if settings is not None else ()
 
 
-def _prepare(model: Model, settings=None) -> Prepared:
-    model = replace(model, waivers=model.waivers.plus(settings_waivers_for(settings, model.file)))
+def _overrides(settings) -> dict[str, float]:
+    return dict(getattr(settings, "overrides", ()) or ()) if settings is not None else {}
+
+
+def _with_settings(parsed: Parsed, settings) -> Parsed:
+    """The settings' waivers for this file go with the parsed model, so that it resolves
+    alike anywhere (a sweep's worker on another machine has neither the settings file
+    nor the working directory that the waivers' globs are relative to)."""
+    return replace(parsed, waivers=settings_waivers_for(settings, parsed.file))
+
+
+def parse_for_check(path, settings=None, root=None) -> Parsed:
+    """A model file parsed once with what the settings add to it (default requirements,
+    waivers for this file); `resolve_parsed(parsed, overrides)` then gives the model at
+    any param values, as `check_file` would resolve it. `root`: see `prepare_file`."""
+    return _with_settings(parse_file(path, _settings_requirements(settings),
+                                     getattr(settings, "source", None) or "<settings>", root), settings)
+
+
+def prepare_model(model: Model) -> Prepared:
+    """The loop graph and the reduction of a resolved model."""
     diagram = build_diagram(model)
     return Prepared(model, diagram, reduce_diagram(diagram))
 
 
 def prepare_text(text: str, file: str = "<text>", settings=None) -> Prepared:
     text, file, settings = arg.model_text(text), arg.file_label(file), arg.settings_or_none(settings)
-    return _prepare(resolve_text(text, file, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>"), settings)
+    parsed = parse_model(text, file, _settings_requirements(settings),
+                         getattr(settings, "source", None) or "<settings>")
+    return prepare_model(resolve_parsed(_with_settings(parsed, settings), _overrides(settings)))
 
 
 def prepare_file(path, settings=None, root=None) -> Prepared:
     """`root`: the checked models' common folder; outside git, includes must stay inside it."""
     path, settings = arg.model_path(path), arg.settings_or_none(settings)
     root = None if root is None else arg.model_path(root, "root")
-    return _prepare(resolve_file(path, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>", root), settings)
+    return prepare_model(resolve_parsed(parse_for_check(path, settings, root), _overrides(settings)))
+
+
+def check_model(model: Model, indent: str = "right") -> ModelResult:
+    """The verdict of a resolved model, its findings marked by the waivers that accept
+    them (the model's own and the settings' it carries). `check_file` and every plant
+    of a sweep go through here."""
+    return _waived_verdict(prepare_model(model), indent)
+
+
+def _waived_verdict(prep: Prepared, indent: str) -> ModelResult:
+    return apply_waivers(check_prepared(prep, indent), prep.model.waivers)
 
 
 @contextmanager
@@ -90,8 +120,7 @@ def check_text(text: str, file: str = "<text>", settings=None, indent: str = "ri
     """Check one model given as text; raises loopwise.ModelError when it cannot be read."""
     indent = arg.check_indent(indent)
     with _unreadable():
-        prep = prepare_text(text, file, settings)
-        return apply_waivers(check_prepared(prep, indent), prep.model.waivers)
+        return _waived_verdict(prepare_text(text, file, settings), indent)
 
 
 def check_file(path, settings=None, indent: str = "right", root=None) -> ModelResult:
@@ -100,8 +129,7 @@ def check_file(path, settings=None, indent: str = "right", root=None) -> ModelRe
     model's folder); see docs/language.md, `use`."""
     indent = arg.check_indent(indent)
     with _unreadable():
-        prep = prepare_file(path, settings, root)
-        return apply_waivers(check_prepared(prep, indent), prep.model.waivers)
+        return _waived_verdict(prepare_file(path, settings, root), indent)
 
 
 def check_prepared(prep: Prepared, indent: str = "right") -> ModelResult:
@@ -345,4 +373,4 @@ def _single_loop(L, name: str) -> Prepared:
         equations={"e": (Term("r", 1.0, None, span), Term("y", -1.0, None, span)), "y": (Term("e", 1.0, app, span),)},
         breaks=(ast.BreakStmt(span, name, "y", span),), requirements=(), findings=(),
     )
-    return _prepare(model)
+    return prepare_model(model)

@@ -29,6 +29,7 @@ __all__ = ["main", "entry", "COMMANDS"]
 #: subcommand name -> module under loopwise.commands (imported only when used)
 COMMANDS = {
     "check": "Check the stability and margins of every break in models.",
+    "sweep": "Find the worst verdict and margins over the params' ranges.",
     "graph": "Print a model's structure: signals, loops, breaks, nesting.",
     "diff": "Compare stability between two revisions of models.",
     "plot": "Draw Nyquist, Bode and sensitivity views of a break.",

@@ -19,7 +19,9 @@ order of `items` whatever the number of processes, and keeps these promises:
 
 `work` and the items must pickle (a top-level function, or a `functools.partial`
 of one, and plain data). With one worker everything runs in this process, with
-the same ordering of results and the same `tick` calls.
+the same ordering of results and the same `tick` calls. Work that comes in
+rounds (a sweep's batches) keeps its workers with `open_pool(jobs)` and calls
+`pool.run(...)` once per round, under the same promises.
 
 Only the standard library is imported here; `concurrent.futures` loads when a
 pool is really started.
@@ -29,15 +31,17 @@ from __future__ import annotations
 import os
 import signal
 import threading
-from typing import Callable, Iterable, Sequence, TypeVar
+from contextlib import contextmanager
+from typing import Callable, Iterable, Iterator, Sequence, TypeVar
 
-__all__ = ["Terminated", "cpu_limit", "worker_count", "run_pool", "sigterm_raises", "JOBS_HELP"]
+__all__ = ["Terminated", "cpu_limit", "worker_count", "run_pool", "Pool", "open_pool", "sigterm_raises",
+           "JOBS_HELP"]
 
 T = TypeVar("T")
 R = TypeVar("R")
 
-#: the words every command's --jobs help uses
-JOBS_HELP = ("in N processes (0: one per CPU; default 1; capped at the number of CPUs "
+#: the words every command's --jobs help uses (`{default}`: the command's default)
+JOBS_HELP = ("in N processes (0: one per CPU; default {default}; capped at the number of CPUs "
              "this process may use)")
 
 _STOP_SIGNALS = (signal.SIGINT, signal.SIGTERM)
@@ -77,55 +81,101 @@ def run_pool(work: Callable[[T], R], items: Sequence[T], jobs: int = 1, *,
     `on_broken(item)` gives the result for an item whose worker process died
     (out of memory, killed); without it that failure is raised.
     """
-    tick = tick or (lambda: None)
-    workers = worker_count(jobs, len(items))
-    if workers <= 1:
-        out = []
-        for item in items:
-            out.append(work(item))
+    with open_pool(worker_count(jobs, len(items))) as pool:
+        return pool.run(work, items, cost=cost, tick=tick, on_broken=on_broken)
+
+
+class Pool:
+    """Worker processes kept for several rounds of work (`open_pool`), such as a
+    sweep's batches of plants, so that each round does not start its workers anew.
+    `run` keeps every promise of `run_pool`; with one worker it runs in this process."""
+
+    def __init__(self, workers: int):
+        self.workers = workers
+        self._executor = None
+
+    def run(self, work: Callable[[T], R], items: Sequence[T], *,
+            cost: Callable[[T], float] | None = None,
+            tick: Callable[[], None] | None = None,
+            on_broken: Callable[[T], R] | None = None) -> list[R]:
+        """`[work(item) for item in items]` on this pool's workers (see `run_pool`)."""
+        tick = tick or (lambda: None)
+        if self.workers <= 1 or len(items) <= 1:
+            out = []
+            for item in items:
+                out.append(work(item))
+                tick()
+            return out
+        order = list(range(len(items)))
+        if cost is not None:
+            order.sort(key=lambda i: -cost(items[i]))
+        return self._parallel(work, items, order, tick, on_broken)
+
+    def _start(self):
+        if self._executor is None:
+            import multiprocessing
+            from concurrent.futures import ProcessPoolExecutor
+
+            # forked workers are this process's children; other start methods fork them
+            # from a server process, so there is no parent to watch for
+            forked = multiprocessing.get_start_method() == "fork"
+            self._executor = ProcessPoolExecutor(max_workers=self.workers, initializer=_worker_start,
+                                                 initargs=(os.getpid() if forked else None,))
+        return self._executor
+
+    def _parallel(self, work, items, order, tick, on_broken) -> list:
+        from concurrent.futures import as_completed
+        from concurrent.futures.process import BrokenProcessPool
+
+        out: list = [None] * len(items)
+        pool = self._start()
+        broken = False
+        # the workers are forked while SIGINT and SIGTERM are blocked, so none
+        # can catch one before `_worker_start` has set its own handling
+        with _blocked(_STOP_SIGNALS):
+            futures = {pool.submit(work, items[i]): i for i in order}
+        for fut in as_completed(futures):
+            i = futures[fut]
+            try:
+                out[i] = fut.result()
+            except BrokenProcessPool:
+                if on_broken is None:
+                    raise
+                broken = True
+                out[i] = on_broken(items[i])
             tick()
+        if broken:  # a broken executor takes no more work: the next round starts new workers
+            self.close()
         return out
-    order = list(range(len(items)))
-    if cost is not None:
-        order.sort(key=lambda i: -cost(items[i]))
-    return _parallel(work, items, order, workers, tick, on_broken)
+
+    def close(self) -> None:
+        if self._executor is not None:
+            self._executor.shutdown(wait=True)
+            self._executor = None
+
+    def stop(self) -> None:
+        """End every worker now (Ctrl-C, SIGTERM, an error)."""
+        if self._executor is not None:
+            _stop(self._executor)
+            self._executor = None
+
+
+@contextmanager
+def open_pool(jobs: int) -> Iterator[Pool]:
+    """A `Pool` of `jobs` workers (0: one per CPU; capped at the CPUs) for several rounds
+    of `pool.run(...)`; SIGTERM raises `Terminated` inside, and on any exception (Ctrl-C
+    and SIGTERM included) every worker is ended before it leaves the block."""
+    pool = Pool(worker_count(jobs, cpu_limit()))
+    with sigterm_raises():
+        try:
+            yield pool
+        except BaseException:
+            pool.stop()
+            raise
+        pool.close()
 
 
 # --- the parallel run ---------------------------------------------------------------
-
-def _parallel(work, items, order, workers, tick, on_broken) -> list:
-    from concurrent.futures import ProcessPoolExecutor, as_completed
-    from concurrent.futures.process import BrokenProcessPool
-
-    out: list = [None] * len(items)
-    with sigterm_raises():
-        import multiprocessing
-
-        # forked workers are this process's children; other start methods fork them
-        # from a server process, so there is no parent to watch for
-        forked = multiprocessing.get_start_method() == "fork"
-        pool = ProcessPoolExecutor(max_workers=workers, initializer=_worker_start,
-                                   initargs=(os.getpid() if forked else None,))
-        try:
-            # the workers are forked while SIGINT and SIGTERM are blocked, so none
-            # can catch one before `_worker_start` has set its own handling
-            with _blocked(_STOP_SIGNALS):
-                futures = {pool.submit(work, items[i]): i for i in order}
-            for fut in as_completed(futures):
-                i = futures[fut]
-                try:
-                    out[i] = fut.result()
-                except BrokenProcessPool:
-                    if on_broken is None:
-                        raise
-                    out[i] = on_broken(items[i])
-                tick()
-        except BaseException:
-            _stop(pool)
-            raise
-        pool.shutdown(wait=True)
-    return out
-
 
 def _stop(pool) -> None:
     """End every worker now: cancel what has not started, terminate what runs."""

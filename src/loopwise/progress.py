@@ -8,7 +8,9 @@ plot, sweep).
 
 The bar is transient (it disappears when done), goes to stderr, and is drawn
 only when asked, on an interactive terminal (`wants_progress`), and for at
-least `PROGRESS_MIN_ITEMS` items; otherwise `tick` does nothing. rich is
+least `PROGRESS_MIN_ITEMS` items; otherwise `tick` does nothing. Work whose
+size is found as it goes (a sweep's local search) passes `total=None`: the bar
+then counts without an end, and `tick(n)` adds n finished items at once. rich is
 imported only when a bar is really drawn.
 """
 from __future__ import annotations
@@ -36,15 +38,16 @@ def wants_progress(stream=None) -> bool:
 
 
 @contextmanager
-def progress_bar(label: str, total: int, enabled: bool = True,
-                 min_items: int = PROGRESS_MIN_ITEMS) -> Iterator[Callable[[], None]]:
-    """A context giving `tick()`, to call once per finished item.
+def progress_bar(label: str, total: int | None, enabled: bool = True,
+                 min_items: int = PROGRESS_MIN_ITEMS) -> Iterator[Callable[..., None]]:
+    """A context giving `tick(n=1)`, to call as items finish.
 
-    `label` is the word shown before the bar ("checking", "drawing"); `enabled`
-    is the caller's decision (usually `not args.no_progress and wants_progress()`).
+    `label` is the word shown before the bar ("checking", "drawing"); `total` the
+    number of items, or None when it is not known beforehand; `enabled` is the
+    caller's decision (usually `not args.no_progress and wants_progress()`).
     """
-    if not enabled or total < min_items:
-        yield lambda: None
+    if not enabled or (total is not None and total < min_items):
+        yield lambda n=1: None
         return
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, \
@@ -55,6 +58,6 @@ def progress_bar(label: str, total: int, enabled: bool = True,
     task = bar.add_task(label, total=total)
     bar.start()
     try:
-        yield lambda: bar.advance(task)
+        yield lambda n=1: bar.advance(task, n)
     finally:
         bar.stop()

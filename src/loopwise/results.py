@@ -16,7 +16,7 @@ from .errors import Finding
 __all__ = [
     "SCHEMA_VERSION", "GainCrossover", "PhaseCrossover", "DiskMargin", "Peak",
     "Margins", "RequirementResult", "LoopResponse", "HiddenMode", "BreakResult", "ModelResult",
-    "RunResult", "CAUTION", "error_to_dict",
+    "RunResult", "CAUTION", "error_to_dict", "json_number",
 ]
 
 SCHEMA_VERSION = 2
@@ -27,7 +27,7 @@ CAUTION = (
 )
 
 
-def _num(x: float | None) -> float | None:
+def json_number(x: float | None) -> float | None:
     """A number for JSON, which has no infinity: a non-finite one is written as null."""
     if x is None:
         return None
@@ -50,8 +50,8 @@ class GainCrossover:
     phase_margin_deg: float
 
     def to_dict(self) -> dict:
-        return {"freq": _num(self.freq), "lag_deg": _num(self.lag_deg),
-                "phase_margin_deg": _num(self.phase_margin_deg)}
+        return {"freq": json_number(self.freq), "lag_deg": json_number(self.lag_deg),
+                "phase_margin_deg": json_number(self.phase_margin_deg)}
 
 
 @dataclass(frozen=True)
@@ -62,7 +62,7 @@ class PhaseCrossover:
     gain_margin_db: float
 
     def to_dict(self) -> dict:
-        return {"freq": _num(self.freq), "gain_margin_db": _num(self.gain_margin_db)}
+        return {"freq": json_number(self.freq), "gain_margin_db": json_number(self.gain_margin_db)}
 
 
 @dataclass(frozen=True)
@@ -75,8 +75,8 @@ class DiskMargin:
     freq: float
 
     def to_dict(self) -> dict:
-        return {"alpha": _num(self.alpha), "gain_db": [_num(self.gain_db[0]), _num(self.gain_db[1])],
-                "phase_deg": _num(self.phase_deg), "freq": _num(self.freq)}
+        return {"alpha": json_number(self.alpha), "gain_db": [json_number(self.gain_db[0]), json_number(self.gain_db[1])],
+                "phase_deg": json_number(self.phase_deg), "freq": json_number(self.freq)}
 
 
 @dataclass(frozen=True)
@@ -89,7 +89,7 @@ class Peak:
         return 20.0 * math.log10(self.value) if self.value > 0 else -math.inf
 
     def to_dict(self) -> dict:
-        return {"value": _num(self.value), "db": _num(self.db), "freq": _num(self.freq)}
+        return {"value": json_number(self.value), "db": json_number(self.db), "freq": json_number(self.freq)}
 
 
 @dataclass(frozen=True)
@@ -130,8 +130,8 @@ class RequirementResult:
     limit_text: str = ""  # the limit as written in the model (`6dB`, `0.5Hz`); "" for an expression
 
     def to_dict(self) -> dict:
-        return {"metric": self.metric, "op": self.op, "limit": _num(self.limit),
-                "limit_text": self.limit_text, "value": _num(self.value), "met": bool(self.met),
+        return {"metric": self.metric, "op": self.op, "limit": json_number(self.limit),
+                "limit_text": self.limit_text, "value": json_number(self.value), "met": bool(self.met),
                 "line": self.line}
 
 
@@ -192,7 +192,7 @@ class HiddenMode:
         return self.multiplicity * (2 if self.pole.imag > 0 else 1)
 
     def to_dict(self) -> dict:
-        return {"real": _num(self.pole.real), "imag": _num(self.pole.imag), "freq": _num(abs(self.pole.imag)),
+        return {"real": json_number(self.pole.real), "imag": json_number(self.pole.imag), "freq": json_number(abs(self.pole.imag)),
                 "on_axis": self.on_axis, "multiplicity": int(self.multiplicity), "code": self.code,
                 "pole_blocks": list(self.pole_blocks), "zero_blocks": list(self.zero_blocks),
                 "counted": bool(self.counted)}
@@ -237,21 +237,21 @@ class BreakResult:
             "encirclements": int(self.encirclements),
             "closed_loop_rhp_poles": int(self.closed_loop_rhp_poles),
             "marginal": bool(self.marginal),
-            "marginal_freq": _num(self.marginal_freq),
+            "marginal_freq": json_number(self.marginal_freq),
             "marginal_cause": self.marginal_cause,
             "gain_crossovers": [g.to_dict() for g in m.gain_crossovers] if m else [],
             "phase_crossovers": [p.to_dict() for p in m.phase_crossovers] if m else [],
-            "phase_margin_deg": _num(m.phase_margin_deg) if m else None,
-            "gain_margin_up_db": _num(m.gain_margin_up_db) if m else None,
-            "gain_margin_down_db": _num(m.gain_margin_down_db) if m else None,
-            "delay_margin_s": _num(m.delay_margin_s) if m else None,
+            "phase_margin_deg": json_number(m.phase_margin_deg) if m else None,
+            "gain_margin_up_db": json_number(m.gain_margin_up_db) if m else None,
+            "gain_margin_down_db": json_number(m.gain_margin_down_db) if m else None,
+            "delay_margin_s": json_number(m.delay_margin_s) if m else None,
             "disk_margin": m.disk_margin.to_dict() if m and m.disk_margin else None,
             "sensitivity_peak": m.sensitivity_peak.to_dict() if m and m.sensitivity_peak else None,
             "complementary_peak": m.complementary_peak.to_dict() if m and m.complementary_peak else None,
-            "crossover_freq": _num(m.crossover_freq) if m else None,
+            "crossover_freq": json_number(m.crossover_freq) if m else None,
             "enclosed_by": self.enclosed_by,
-            "separation": _num(self.separation),
-            "stabilising_gains": [[_num(a), _num(b)] for a, b in self.stabilising_gains],
+            "separation": json_number(self.separation),
+            "stabilising_gains": [[json_number(a), json_number(b)] for a, b in self.stabilising_gains],
             "requirements": [r.to_dict() for r in self.requirements],
             "warnings": [w.to_dict() for w in self.warnings],
         }

@@ -19,7 +19,7 @@ from .progress import PROGRESS_MIN_ITEMS, progress_bar, wants_progress
 
 __all__ = [
     "MODEL_SUFFIX", "models_in", "discover", "check_files", "check_paths", "check_outcomes",
-    "check_one",
+    "check_one", "guarded",
     "exit_status", "has_warnings", "matches_glob", "wants_progress",
 ]
 
@@ -159,8 +159,14 @@ def check_one(path: str, settings=None, root=None) -> tuple[object | None, tuple
     """
     from .analysis import check_file  # the heavy stages load on first use
 
+    return guarded(path, lambda: check_file(path, settings=settings, root=root))
+
+
+def guarded(path: str, work):
+    """(work(), ()) or (None, the errors as findings): every failure of reading and
+    checking the model at `path` becomes located findings (also used by `sweep`)."""
     try:
-        return check_file(path, settings=settings, root=root), ()
+        return work(), ()
     except ModelError as exc:  # every unreadable model, with all its located errors
         return None, _name_the_model(path, exc.findings)
     except UnicodeDecodeError as exc:

@@ -30,6 +30,8 @@ the file. Keys (all optional)::
 
 Every value is checked when the file is read; a mistake is a located error
 (`file:line:col`, the line, a caret, a hint; exit 2), never a silent default.
+Params set with `--set NAME=VALUE` (`Settings.overrides`) come from the command
+line only; settings made in code are checked alike (TypeError / ValueError).
 """
 from __future__ import annotations
 
@@ -44,7 +46,7 @@ from .language.hints import did_you_mean
 from .waivers import Waiver, check_code, check_reason
 
 __all__ = ["Settings", "Regression", "SettingsError", "load_settings", "load_settings_file", "find_config",
-           "regression_problem", "glob_problem"]
+           "regression_problem", "glob_problem", "overrides_problem"]
 
 #: the range of each regression threshold; a value beyond it could never be exceeded,
 #: so it would switch that part of the diff gate off without saying so
@@ -133,6 +135,27 @@ class Regression:
                 raise ValueError(f"regression setting `{f.name}` {problem}")
 
 
+def overrides_problem(overrides) -> tuple[str, str] | None:
+    """What is wrong with params set from outside (`--set NAME=VALUE`): ("type", words)
+    for a wrong type, ("value", words) for a wrong value, None when they are fine. They
+    come from the command line only, never from a settings file."""
+    if not isinstance(overrides, tuple) or not all(
+            isinstance(o, tuple) and len(o) == 2 and isinstance(o[0], str) for o in overrides):
+        return "type", "must be a tuple of (param name, number) pairs"
+    for name, value in overrides:
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            return "type", f"`{name}`: the value must be a number, not {type(value).__name__}"
+        if not name.isidentifier():
+            return "value", f"`{name}` is not a param name"
+        if not math.isfinite(value):
+            return "value", f"`{name}` must be a finite number, not {value}"
+    names = [name for name, _ in overrides]
+    twice = sorted({n for n in names if names.count(n) > 1})
+    if twice:
+        return "value", f"set `{twice[0]}` more than once"
+    return None
+
+
 @dataclass(frozen=True)
 class Settings:
     requirements: tuple[str, ...] = ()
@@ -142,6 +165,7 @@ class Settings:
     regression: Regression = field(default_factory=Regression)
     source: str | None = None  # the file the settings came from
     waivers: tuple[Waiver, ...] = ()
+    overrides: tuple[tuple[str, float], ...] = ()  # `--set NAME=VALUE` from the command line
 
     def __post_init__(self):
         for key in ("requirements", "include", "exclude"):
@@ -157,6 +181,9 @@ class Settings:
             raise TypeError("Settings.regression must be a loopwise.settings.Regression")
         if not all(isinstance(w, Waiver) and w.files for w in self.waivers):
             raise TypeError("Settings.waivers must be loopwise.waivers.Waiver entries with `files` globs")
+        problem = overrides_problem(self.overrides)
+        if problem:
+            raise (TypeError if problem[0] == "type" else ValueError)(f"Settings.overrides {problem[1]}")
 
 
 class SettingsError(UsageError):

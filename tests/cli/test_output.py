@@ -58,6 +58,9 @@ def _snapshot(folder: Path) -> dict[str, bytes]:
     (["diff", "other.loop", "m.loop", "-o", "lib/plant.loop"], "it is a file included by"),
     (["plot", "m.loop", "--output", "figure.svg"], "it is a file included by m.loop"),
     (["report", "m.loop", "--output", "page.html"], "it is an input model"),
+    (["sweep", "m.loop", "--samples", "4", "--format", "json", "--output", "m.loop"], "it is an input model"),
+    (["sweep", "m.loop", "--samples", "4", "-o", "lib/plant.loop"], "it is a file included by m.loop"),
+    (["sweep", "m.loop", "--samples", "4", "--format", "junit", "-o", "pyproject.toml"], "it is the settings file"),
 ])
 def test_an_output_over_an_input_is_refused_and_nothing_changes(project, cli, argv, what):
     # links: the refusal goes by file identity, not by name
@@ -103,6 +106,7 @@ def _limited(limit: int):
     (["diff", "other.loop", "m.loop", "--format", "markdown", "--output", "out.md"], "out.md"),
     (["plot", "m.loop", "--output", "out.svg"], "out.svg"),
     (["report", "m.loop", "--output", "out.html"], "out.html"),
+    (["sweep", "m.loop", "--jobs", "1", "--format", "json", "--output", "out.json"], "out.json"),
 ])
 def test_a_write_cut_short_by_a_size_limit_leaves_the_previous_file(project, argv, target):
     previous = b"the previous report\n"

@@ -63,6 +63,23 @@ def test_a_dead_worker_gives_the_fallback_result_or_raises(tmp_path):
         run_pool(_die_on_three, [1, 2, 3, 4], jobs=2)
 
 
+def _pid(_):
+    time.sleep(0.1)  # long enough that both workers take items
+    return os.getpid()
+
+
+@needs_two_cpus
+def test_an_open_pool_keeps_its_workers_for_every_round():
+    from loopwise.pool import open_pool
+
+    with open_pool(2) as pool:
+        first = set(pool.run(_pid, list(range(6))))
+        second = set(pool.run(_pid, list(range(6))))
+        assert pool.workers == 2
+    # the same two workers in both rounds (a pool per round would show four processes)
+    assert len(first) == 2 and len(first | second) == 2 and os.getpid() not in first
+
+
 def test_serial_run_in_this_process_ticks_once_per_item():
     ticks = []
     assert run_pool(str, [1, 2, 3], jobs=1, tick=lambda: ticks.append(1)) == ["1", "2", "3"]
@@ -77,7 +94,7 @@ def test_jobs_are_capped_at_the_cpus_and_the_items():
     assert worker_count(8, 1) == 1 and worker_count(1, 1000) == 1
 
 
-@pytest.mark.parametrize("command", ["check", "diff", "report"])
+@pytest.mark.parametrize("command", ["check", "diff", "report", "sweep"])
 def test_help_says_jobs_are_capped(command, capsys):
     from loopwise.cli import main
 
@@ -195,13 +212,36 @@ def test_sigterm_to_check_ends_every_worker_and_exits_143(slow_folder, tmp_path)
     assert "loopwise: terminated" in err and "Traceback" not in err, err
 
 
+def _ranged_cascade(n: int) -> str:
+    """The invented cascade with its first controller's gain uncertain: a box to sweep."""
+    return _cascade(n, 0).replace("input r", "param k = 2 in [1.5, 2.5]\ninput r").replace(
+        "block C0 = 2*", "block C0 = k*")
+
+
+@needs_two_cpus
+def test_sigterm_to_sweep_ends_every_worker_and_exits_143(tmp_path):
+    (tmp_path / "box.loop").write_text(_ranged_cascade(8))
+    proc = _start(["sweep", "--jobs", "2", "--samples", "2000", "box.loop", "--format", "json",
+                   "--output", "out.json"], tmp_path)
+    workers = _wait_for_workers(proc, 2)
+    assert len(workers) == 2
+    os.kill(proc.pid, signal.SIGTERM)  # to the command only
+    code, err = _finish(proc, workers)
+    assert code == 143, err
+    assert _all_gone(workers) == set()
+    assert "loopwise: terminated" in err and "Traceback" not in err, err
+    assert list(tmp_path.glob("*out.json*")) == []
+
+
 @needs_two_cpus
 @pytest.mark.parametrize("command", [["check", "--jobs", "2", "slow"],
+                                     ["sweep", "--jobs", "2", "--samples", "2000", "box.loop"],
                                      # one model is checked in this process; its 36 figures
                                      # are drawn by the pool
                                      ["report", "--jobs", "2", "--output", "r.html", "slow/m00.loop"]])
 def test_ctrl_c_to_the_process_group_ends_workers_without_a_traceback(command, slow_folder,
                                                                       tmp_path):
+    (tmp_path / "box.loop").write_text(_ranged_cascade(8))
     proc = _start(command, tmp_path)
     workers = _wait_for_workers(proc, 2)
     for _ in range(3):  # what a terminal does on Ctrl-C (the whole group); users press it again

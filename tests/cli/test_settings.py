@@ -205,6 +205,22 @@ def test_settings_made_in_code_are_checked():
     assert "raw" not in {f.name for f in fields(Settings)}  # dead since nothing read it (issue 14)
 
 
+@pytest.mark.parametrize("overrides, error, words", [
+    ({"J": 1.0}, TypeError, "tuple of (param name, number) pairs"),
+    ((("J", "2.4e-4"),), TypeError, "`J`: the value must be a number, not str"),
+    ((("J", True),), TypeError, "not bool"),
+    ((("J", 1.0, 2.0),), TypeError, "pairs"),
+    ((("2J", 1.0),), ValueError, "`2J` is not a param name"),
+    ((("J", math.inf),), ValueError, "`J` must be a finite number, not inf"),
+    ((("J", 1.0), ("J", 2.0)), ValueError, "set `J` more than once"),
+])
+def test_params_set_in_code_are_checked_like_every_other_setting(overrides, error, words):
+    with pytest.raises(error) as info:
+        Settings(overrides=overrides)
+    assert words in str(info.value) and "Settings.overrides" in str(info.value)
+    assert Settings(overrides=(("J", 2.4e-4), ("Td", 150e-6))).overrides[1] == ("Td", 150e-6)
+
+
 def test_the_toml_reader_is_in_the_standard_library_of_every_python_allowed():
     # settings.py imports tomllib, which the standard library has from Python 3.11 on
     requires = tomllib.loads((ROOT / "pyproject.toml").read_text())["project"]["requires-python"]

@@ -34,7 +34,7 @@ def probe(argv: list[str]) -> tuple[dict, str]:
     return json.loads(proc.stderr.strip().splitlines()[-1]), proc.stdout
 
 
-@pytest.mark.parametrize("argv", [["--help"], ["check", "--help"]])
+@pytest.mark.parametrize("argv", [["--help"], ["check", "--help"], ["sweep", "--help"]])
 def test_help_does_not_import_the_numerical_stack(argv):
     result, out = probe(argv)
     assert result["code"] == 0

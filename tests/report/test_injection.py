@@ -156,3 +156,84 @@ def test_html_report_is_well_formed_with_no_markup_from_a_name(folder, capsys, t
     text = " ".join(tree.itertext())
     assert "<img src=x onerror=alert(1)>" in text  # shown as text
     assert "broken?[31m<b>`|?x.loop" in text       # the unreadable one too, with its error
+
+
+# --- the sweep's formats: the same names, over a box ----------------------------------------
+
+SWEPT = LOOP.replace("input r", "param k = 2 in [1.5, 2.5]\ninput r").replace("[2/(s+1)]", "[k/(s+1)]")
+
+
+@pytest.fixture(scope="module")
+def swept_folder(tmp_path_factory) -> Path:
+    root = tmp_path_factory.mktemp("hostile-sweep")
+    for name in HOSTILE:
+        (root / f"{name}.loop").write_text(SWEPT)
+    (root / "broken\x1b[31m<b>`|\nx.loop").write_text(BROKEN)
+    return root
+
+
+def sweep(folder: Path, capsys, *args) -> str:
+    code = main(["sweep", str(folder), "--no-progress", "--samples", "2", "--jobs", "1", *args])
+    assert code == 2  # one model cannot be read; the others are swept (and fail a requirement)
+    return capsys.readouterr().out
+
+
+def test_sweep_text_holds_no_control_character(swept_folder, capsys):
+    out = sweep(swept_folder, capsys)
+    assert "\x1b" not in out and not CONTROL.search(out), repr(CONTROL.search(out))
+    assert "?[2J?]0;pwned?title" in out and "x?# Fake heading?![img](http:evil.example.png)" in out
+    assert out.count("FAIL  ") == len(HOSTILE)
+
+
+def test_sweep_markdown_makes_no_heading_image_link_or_html_from_a_name(swept_folder, capsys, tmp_path):
+    out_file = tmp_path / "sweep.md"
+    sweep(swept_folder, capsys, "--format", "markdown", "--output", str(out_file), "--quiet")
+    text = out_file.read_text(encoding="utf-8")
+    tokens = list(_walk(_markdown_tokens(text)))
+    assert not {t.type for t in tokens} & {"image", "link_open", "html_inline", "html_block"}
+    headings = [tokens[i + 1].content for i, t in enumerate(tokens) if t.type == "heading_open"]
+    assert headings[0].startswith("loopwise sweep:") and len(headings) == 1 + len(HOSTILE) + 1
+    code = " ".join(t.content for t in tokens if t.type == "code_inline")
+    assert "tick`s``here`.loop" in code and "<img src=x onerror=alert(1)>" in code and "pipe|in|name" in code
+    rows = []
+    for t in tokens:
+        if t.type in ("thead_open", "tbody_open"):
+            rows.append([])
+        if t.type == "tr_open":
+            rows[-1].append(0)
+        if t.type in ("th_open", "td_open"):
+            rows[-1][-1] += 1
+    assert rows and all(len(set(r)) == 1 for r in rows if r)
+
+
+def test_sweep_junit_sarif_and_json_are_well_formed(swept_folder, capsys, tmp_path):
+    out_file = tmp_path / "sweep.xml"
+    sweep(swept_folder, capsys, "--format", "junit", "--output", str(out_file), "--quiet")
+    raw = out_file.read_text(encoding="utf-8")
+    root = ET.fromstring(raw)
+    assert not CONTROL.search(raw)
+    assert any(s.get("name").endswith("<img src=x onerror=alert(1)>.loop") for s in root.iter("testsuite"))
+    for fmt in ("sarif", "json"):
+        out_file = tmp_path / f"sweep.{fmt}"
+        sweep(swept_folder, capsys, "--format", fmt, "--output", str(out_file), "--quiet")
+        raw = out_file.read_text(encoding="utf-8")
+        assert not CONTROL.search(raw.replace("\n", "")), fmt
+        doc = json.loads(raw)
+        if fmt == "sarif":
+            jsonschema.Draft4Validator(SARIF_SCHEMA).validate(doc)
+        assert "\\u001b" in raw and "\\u009b" in raw
+
+
+def test_html_sweep_section_is_well_formed_with_no_markup_from_a_name(swept_folder, capsys, tmp_path):
+    out_file = tmp_path / "report.html"
+    code = main(["report", str(swept_folder / "<img src=x onerror=alert(1)>.loop"),
+                 str(swept_folder / "x\n# Fake heading\n![img](http:evil.example.png).loop"),
+                 "--sweep", "--samples", "2", "--output", str(out_file), "--no-progress"])
+    capsys.readouterr()
+    assert code == 1  # the requirement fails; every model is read
+    page = out_file.read_text(encoding="utf-8")
+    tree = ET.fromstring(page[page.index("<html"):])
+    tags = {e.tag.rsplit("}", 1)[-1] for e in tree.iter()}
+    assert "img" not in tags and "h4" in tags  # the sweep sections are there
+    assert not CONTROL.search(page.replace("\t", ""))
+    assert "<img src=x onerror=alert(1)>" in " ".join(tree.itertext())

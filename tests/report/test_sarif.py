@@ -229,3 +229,69 @@ def test_waivers_in_a_check_become_suppressions_and_an_unmatched_settings_waiver
     assert unmatched["level"] == "warning" and "suppressions" not in unmatched
     assert unmatched["locations"][0]["physicalLocation"]["region"]["startLine"] == 10
     assert code == 1 and doc["runs"][0]["invocations"][0]["exitCode"] == 1
+
+
+# --- sweep ---------------------------------------------------------------------------------
+
+#: L = K exp(-sT)/s is stable exactly when K T < pi/2 and then has PM = 90 deg - K T (in
+#: degrees; analytic, tests/reference/test_sweep_analytic.py). Over K in [0.5, 1.7] and T in
+#: [0.2, 1] the corner K T = 1.7 is unstable; PM >= 15 deg fails there (no margins claimed).
+SWEPT = """model delayed
+param K = 1 in [0.5, 1.7]
+param T = 0.5 in [0.2, 1]
+input r
+e = r - y
+y = [K*exp(-T*s)/s](e)
+break loop at y
+require loop phase_margin >= 15deg
+"""
+#: stable over the whole box (K T <= 0.6), but PM >= 70 deg fails where K T is largest:
+#: 90 - 0.6 rad = 55.6 deg at K = 1.2, T = 0.5
+STABLE_UNMET = SWEPT.replace("[0.5, 1.7]", "[0.5, 1.2]").replace("[0.2, 1]", "[0.2, 0.5]").replace(
+    "15deg", "70deg")
+
+
+def test_sweep_sarif_places_unstable_plants_and_worst_point_requirements(repo, capsys):
+    (repo / "models" / "swept.loop").write_text(SWEPT)
+    (repo / "models" / "unmet_box.loop").write_text(STABLE_UNMET)
+    code = main(["sweep", "swept.loop", "unmet_box.loop", "broken.loop", "--format", "sarif",
+                 "--samples", "6", "--jobs", "1", "--no-progress"])
+    text = capsys.readouterr().out
+    assert code == 2  # broken.loop cannot be read
+    doc = json.loads(text)
+    validate(doc)
+    log = read_back(text)
+    found = results(log)
+    # not stable at some plants: at the break line (7); the requirement at its line (8)
+    assert ("LW602", "error", "models/swept.loop", 7) in found
+    assert ("LW603", "error", "models/swept.loop", 8) in found
+    assert ("LW603", "error", "models/unmet_box.loop", 8) in found
+    assert not [f for f in found if f[0] == "LW602" and f[2] == "models/unmet_box.loop"]
+    assert ("LW218", "error", "models/broken.loop", 4) in found
+    by_file = {(r["ruleId"], r["locations"][0]["physicalLocation"]["artifactLocation"]["uri"]): r["message"]["text"]
+               for r in doc["runs"][0]["results"]}
+    # the worst point's param values in the message: K T = 0.6 there, PM = 90 - 34.38 deg
+    assert by_file[("LW603", "models/unmet_box.loop")].endswith(
+        "break loop: phase_margin >= 70deg (value 55.62 deg) at K=1.2, T=0.5")
+    unstable = by_file[("LW602", "models/swept.loop")]
+    first = dict(kv.split("=") for kv in unstable.split("first at ")[1].split(";")[0].split(", "))
+    assert float(first["K"]) * float(first["T"]) > 1.5707963  # an unstable plant indeed (K T > pi/2)
+    assert "stability lost between: stable at K=" in unstable
+    rules = log.runs[0].tool.driver.rules
+    for r in doc["runs"][0]["results"]:
+        assert rules[r["ruleIndex"]].id == r["ruleId"]
+    assert doc["runs"][0]["invocations"][0]["exitCode"] == 2
+    assert doc["runs"][0]["properties"]["evidence"].startswith("sampled evidence, not a proof")
+
+
+def test_sweep_format_choices_come_from_the_registry(capsys):
+    from loopwise.report import formats, register, REPORTERS
+
+    assert formats("sweep") == ("text", "json", "junit", "markdown", "sarif")
+    register("sweep", "extra", "loopwise.report.sweep_text")
+    try:
+        with pytest.raises(SystemExit):
+            main(["sweep", "--help"])
+        assert "{text,json,junit,markdown,sarif,extra}" in capsys.readouterr().out
+    finally:
+        del REPORTERS[("sweep", "extra")]

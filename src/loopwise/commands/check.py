@@ -11,7 +11,8 @@ import os
 import sys
 
 from ..report import formats
-from .options import add_config, add_jobs, add_no_progress, add_output, load_settings_for
+from .options import (add_config, add_fail_on_warnings, add_jobs, add_no_progress, add_output, add_set,
+                      load_settings_for)
 
 __all__ = ["add_parser", "run"]
 
@@ -32,22 +33,13 @@ def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
                    help="with --output, print nothing to stdout")
     add_config(p)
     add_jobs(p)
-    p.add_argument("--fail-on-warnings", action=argparse.BooleanOptionalAction, default=None,
-                   help="exit 1 when a model has warnings (overrides the settings file)")
+    add_fail_on_warnings(p)
     p.add_argument("--color", "--colour", dest="color", choices=("auto", "always", "never"),
                    default="auto",
                    help="colour the text report: auto (a terminal without NO_COLOR), always, never")
     add_no_progress(p)
+    add_set(p)
     return p
-
-
-def _settings(args):
-    from dataclasses import replace
-
-    settings = load_settings_for(args)
-    if args.fail_on_warnings is not None:
-        settings = replace(settings, fail_on_warnings=args.fail_on_warnings)
-    return settings
 
 
 def _colour(choice: str, stream) -> bool:
@@ -67,7 +59,7 @@ def run(args) -> int:
     from ..report import render
     from ..run import check_files, discover, exit_status
 
-    settings = _settings(args)
+    settings = load_settings_for(args)  # with --fail-on-warnings and --set
     files = discover(args.paths, settings)
     protected = None
     if args.output:

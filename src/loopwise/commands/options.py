@@ -1,5 +1,6 @@
 """The options every command shares, defined once: `--config` (and the settings it
-loads), `--jobs`, `--output`, `--no-progress`.
+loads, with `--set` and `--fail-on-warnings` applied), `--jobs`, `--output`,
+`--no-progress`, and the sweep design's `--samples` and `--seed`.
 
 Imported for `--help`, so only the standard library and light modules here.
 """
@@ -10,8 +11,8 @@ from pathlib import Path
 
 from ..pool import JOBS_HELP
 
-__all__ = ["jobs_count", "add_config", "add_jobs", "add_output", "add_no_progress",
-           "load_settings_for"]
+__all__ = ["jobs_count", "count", "set_value", "add_config", "add_jobs", "add_output", "add_no_progress",
+           "add_set", "add_fail_on_warnings", "add_design", "load_settings_for"]
 
 
 def jobs_count(text: str) -> int:
@@ -25,15 +26,47 @@ def jobs_count(text: str) -> int:
     return value
 
 
+def count(text: str) -> int:
+    """A whole number, 0 or more (`--samples N`, `--seed N`)."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError("must be 0 or more")
+    return value
+
+
+def set_value(text: str) -> tuple[str, float]:
+    """`--set NAME=VALUE`: a param name and a number, with a unit if wanted (200us, 3dB)."""
+    name, sep, value = text.partition("=")
+    name, value = name.strip(), value.strip()
+    if not sep or not name.isidentifier() or not value:
+        raise argparse.ArgumentTypeError(f"expected NAME=VALUE (e.g. J=2.4e-4 or Td=200us), got {text!r}")
+    from ..errors import LoopwiseError
+    from ..language import ast
+    from ..language.parse import parse_text
+
+    try:  # the model language's own number literals (units convert to SI)
+        (stmt,) = parse_text(f"param x = {value}\n", "<--set>").statements
+        number, sign = (stmt.value.operand, -1.0) if isinstance(stmt.value, ast.Neg) else (stmt.value, 1.0)
+        if isinstance(number, ast.Number):
+            return name, sign * number.value
+    except (LoopwiseError, ValueError):
+        pass
+    raise argparse.ArgumentTypeError(f"{text!r}: the value must be a number, with a unit if wanted "
+                                     "(e.g. 2.4e-4, 200us, -3dB)")
+
+
 def add_config(p: argparse.ArgumentParser, extra: str = "") -> None:
     p.add_argument("--config", metavar="FILE",
                    help="settings file (loopwise.toml or pyproject.toml); default: the nearest "
                         "one from the working directory up to the repository root" + extra)
 
 
-def add_jobs(p: argparse.ArgumentParser, what: str = "check models") -> None:
-    p.add_argument("-j", "--jobs", type=jobs_count, default=1, metavar="N",
-                   help=f"{what} {JOBS_HELP}")
+def add_jobs(p: argparse.ArgumentParser, what: str = "check models", default: int = 1) -> None:
+    p.add_argument("-j", "--jobs", type=jobs_count, default=default, metavar="N",
+                   help=f"{what} {JOBS_HELP.format(default=default)}")
 
 
 def add_output(p: argparse.ArgumentParser, help_text: str, default: str | None = None,
@@ -48,10 +81,42 @@ def add_no_progress(p: argparse.ArgumentParser) -> None:
                    help="never draw a progress bar (it is drawn only on a terminal anyway)")
 
 
+def add_set(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--set", dest="set", type=set_value, action="append", default=[], metavar="NAME=VALUE",
+                   help="fix a param at a value for this run (repeatable; a unit may follow the number, "
+                        "e.g. --set Td=200us); an unknown name is an error, a value outside the "
+                        "param's range a note")
+
+
+def add_fail_on_warnings(p: argparse.ArgumentParser, what: str = "a model has warnings") -> None:
+    p.add_argument("--fail-on-warnings", action=argparse.BooleanOptionalAction, default=None,
+                   help=f"exit 1 when {what} (overrides the settings file)")
+
+
+def add_design(p: argparse.ArgumentParser, within: str = "") -> None:
+    """`--samples N` and `--seed N` of a sweep's design (`loopwise sweep`, `report --sweep`)."""
+    from ..sweep import DEFAULT_SAMPLES
+
+    p.add_argument("--samples", type=count, default=DEFAULT_SAMPLES, metavar="N",
+                   help=f"{within}size of the space-filling set (default {DEFAULT_SAMPLES}); corners, "
+                        "local search and boundaries come on top")
+    p.add_argument("--seed", type=count, default=0, metavar="N",
+                   help=f"{within}seed of the design (default 0): the same seed gives the same plants "
+                        "and results")
+
+
 def load_settings_for(args, start: Path | None = None):
     """The settings a command runs with: the file named by `--config`, or the
-    nearest one from `start` (default: the working directory)."""
+    nearest one from `start` (default: the working directory), with what the command
+    line adds: `--set` (the last of a name wins) and `--fail-on-warnings` when given."""
+    from dataclasses import replace
+
     from ..settings import load_settings, load_settings_file
 
     config = getattr(args, "config", None)
-    return load_settings_file(config) if config else load_settings(start)
+    settings = load_settings_file(config) if config else load_settings(start)
+    if getattr(args, "fail_on_warnings", None) is not None:
+        settings = replace(settings, fail_on_warnings=args.fail_on_warnings)
+    if getattr(args, "set", None):
+        settings = replace(settings, overrides=tuple(dict(args.set).items()))
+    return settings

@@ -62,3 +62,5 @@ class Model:
     block_uses: dict[str, int] = field(default_factory=dict)
     hidden_owner: dict[str, str] = field(default_factory=dict)  # hidden signal -> its equation
     waivers: Waivers = field(default_factory=Waivers)  # `waive` statements, then the settings'
+    ranges: dict[str, tuple[float, float]] = field(default_factory=dict)  # param -> [lo, hi]
+    sources: dict = field(default_factory=dict)  # `use` statement -> (path, parsed file)

@@ -12,7 +12,9 @@ from __future__ import annotations
 import dataclasses
 import math
 import os
-from pathlib import Path
+from collections.abc import Mapping
+from dataclasses import dataclass, field, replace
+from pathlib import Path, PurePath
 
 import numpy as np
 
@@ -25,10 +27,10 @@ from .model import Application, Block, Model, Quantity, Term
 from .parse import MAX_TOKENS, parse_text
 from .requirements import make_requirement
 from .source import SourceError, include_root, is_within, read_source
-from ..waivers import Waivers, make_waiver
+from ..waivers import Waiver, Waivers, make_waiver
 
 __all__ = ["Quantity", "Block", "Application", "Term", "Model", "resolve_text", "resolve_file",
-           "MODEL_SUFFIX"]
+           "MODEL_SUFFIX", "Parsed", "parse_model", "parse_file", "resolve_parsed"]
 
 #: only files with this suffix (as named and where links lead) have their lines shown
 #: under an error; any other included file is read, but its errors are one LW208 at the
@@ -37,14 +39,21 @@ MODEL_SUFFIX = ".loop"
 
 
 class _Resolver:
-    def __init__(self, file: str, root: Path):
+    def __init__(self, file: str, root: Path, overrides: Mapping[str, float] | None = None, sources=None):
         self.file = file
         self.root = root  # every include must resolve inside it (resolved, links followed)
+        self.overrides = dict(overrides or {})  # param name -> value (sweeps and --set)
+        #: `use` statement -> (real path, its parsed file): read by an earlier resolution of
+        #: the same parsed model (a sweep's plants), or by this one
+        self.sources = dict(sources or {})
+        self.read: dict[Path, ast.ModelFile] = {}  # real path -> parsed file, read by this resolution
+        self.ranges: dict[str, tuple[float, float]] = {}
         self.included: set[Path] = set()  # each file is read and collected once per model
         self.tokens_left = MAX_TOKENS
         #: included files whose lines are never shown (not `.loop`), by shown name -> the
         #: `use` in a `.loop` file that led to them (its span and its path)
         self.unshown: dict[str, tuple[Span, str]] = {}
+        self.reached_through: set[str] = set()  # unshown files used by another unshown file
         self.hints = Hints()
         self.errors: list[ModelError] = []
         self.findings: list[Finding] = []
@@ -127,16 +136,18 @@ class _Resolver:
         """Read, parse and collect the file a `use` names: once per model, inside the root.
 
         `stack` holds (real path, shown name) of the files being collected, the model first.
+        A `use` that an earlier resolution of the same parsed model has read (`sources`) takes
+        its tree from there, without the disk: the reading checks (regular file, size, UTF-8,
+        token budget) passed then; the root, cycle, once-per-model and statement rules apply
+        again here.
         """
-        base, shown_base = (stack[-1][0].parent, os.path.dirname(stack[-1][1])) if stack \
-            else (Path.cwd(), "")
-        target = base / stmt.path
-        try:
-            real = target.resolve()
-        except (OSError, RuntimeError):  # a loop of links (RuntimeError before Python 3.13)
-            self.errors.append(ModelError("LW206", f"cannot read included file {stmt.path}: a loop of "
-                                          "symbolic links", stmt.span, "point the path at a real file"))
-            return
+        known = self.sources.get(stmt)
+        if known is None:
+            real = self.locate(stmt, stack)
+            if real is None:
+                return
+        else:
+            real = known[0]
         if not is_within(real, self.root):
             self.errors.append(ModelError(
                 "LW207", f"included file {stmt.path} lies outside the repository", stmt.span,
@@ -150,11 +161,46 @@ class _Resolver:
                                           "a file may not use itself, directly or through others"))
             return
         if real in self.included:
+            if real in self.read:  # kept, so that a later resolution needs no disk for it either
+                self.sources.setdefault(stmt, (real, self.read[real]))
             return  # the same library reached again (a diamond): its names are already in
         self.included.add(real)
+        mf = known[1] if known is not None else self.read_include(stmt, stack, real)
+        if mf is None:
+            return
+        if known is not None:
+            self.mark_unshown(stmt, mf.path, real)
+            self.tokens_left -= mf.tokens
+        self.read[real] = mf
+        self.sources[stmt] = (real, mf)
+        self.collect(mf, (*stack, (real, mf.path)), top=False)
+
+    def locate(self, stmt: ast.UseStmt, stack: tuple[tuple[Path, str], ...]) -> Path | None:
+        """The real path (links followed) of the file a `use` names, or None (LW206)."""
+        base = stack[-1][0].parent if stack else Path.cwd()
+        try:
+            return (base / stmt.path).resolve()
+        except (OSError, RuntimeError):  # a loop of links (RuntimeError before Python 3.13)
+            self.errors.append(ModelError("LW206", f"cannot read included file {stmt.path}: a loop of "
+                                          "symbolic links", stmt.span, "point the path at a real file"))
+            return None
+
+    def mark_unshown(self, stmt: ast.UseStmt, shown: str, real: Path) -> None:
+        """An included file that is not `.loop` (as named, or where links lead), or that is
+        reached through one, never has its lines shown (decided from names alone: a
+        sweep's plant resolves without the disk)."""
+        if stmt.span.file in self.unshown:
+            self.unshown[shown] = self.unshown[stmt.span.file]
+            self.reached_through.add(shown)
+        elif PurePath(stmt.path).suffix != MODEL_SUFFIX or real.suffix != MODEL_SUFFIX:
+            self.unshown[shown] = (stmt.span, stmt.path)
+
+    def read_include(self, stmt: ast.UseStmt, stack: tuple[tuple[Path, str], ...],
+                     real: Path) -> ast.ModelFile | None:
+        """Read (the bounded reader) and parse (within the token budget) an included file."""
+        shown_base = os.path.dirname(stack[-1][1]) if stack else ""
         shown = _shown_path(shown_base, stmt.path, real)
-        if stmt.span.file in self.unshown or target.suffix != MODEL_SUFFIX or real.suffix != MODEL_SUFFIX:
-            self.unshown[shown] = self.unshown.get(stmt.span.file, (stmt.span, stmt.path))
+        self.mark_unshown(stmt, shown, real)
         try:
             text = read_source(real)
         except SourceError as exc:
@@ -165,15 +211,15 @@ class _Resolver:
                 self.errors.append(ModelError("LW206", f"cannot read included file {stmt.path}: {exc.reason}",
                                               stmt.span, f"the path is relative to the folder of the file "
                                               f"that holds the `use` ({shown_base or '.'})"))
-            return
+            return None
         try:
             mf = parse_text(text, shown, self.tokens_left)
         except ModelError as exc:
             self.errors.append(exc)
             self.tokens_left = 0 if exc.code == "LW108" else self.tokens_left
-            return
+            return None
         self.tokens_left -= mf.tokens
-        self.collect(mf, (*stack, (real, shown)), top=False)
+        return mf
 
     # --- expressions --------------------------------------------------------------
     def const(self, expr: ast.Expr, what: str) -> Quantity:
@@ -200,7 +246,8 @@ class _Resolver:
                     raise ModelError("LW211", f"param `{stmt.name}` = {q.value:g} lies outside its range "
                                      f"[{lo:g}, {hi:g}]", stmt.value.span,
                                      "the nominal value must lie within its uncertainty range")
-            self.params[stmt.name] = q
+                self.ranges[stmt.name] = (lo, hi)
+            self.params[stmt.name] = self.overridden(stmt, q)
         except ModelError as exc:
             self.errors.append(exc)
 
@@ -239,6 +286,31 @@ class _Resolver:
                 "a real implementation needs a derivative filter, e.g. Kd*s/(Tf*s + 1) instead of Kd*s", about))
         return tf
 
+    # --- overrides: `--set NAME=VALUE` and a sweep's samples -------------------------
+    def overridden(self, stmt: ast.ParamStmt, q: Quantity) -> Quantity:
+        """The param's value as set from outside (its declared value and range are still checked)."""
+        if stmt.name not in self.overrides:
+            return q
+        value = float(self.overrides[stmt.name])
+        lo, hi = self.ranges.get(stmt.name, (value, value))
+        if stmt.name in self.ranges and not lo <= value <= hi:
+            self.findings.append(Finding(  # (one in an unshown file is moved to its `use` at the end)
+                "note", "LW292", f"param `{stmt.name}` is set to {value:g}, outside its declared range "
+                f"[{lo:g}, {hi:g}]", stmt.value.span,
+                "the results hold for the value set; the range says where the model is meant to hold"))
+        return Quantity(value, q.kind)
+
+    def check_overrides(self) -> None:
+        for name in self.overrides:
+            if name in self.param_spans:
+                continue
+            what = self.names.get(name, ("", None))[0]
+            message = (f"`{name}` is a {what}, not a param: only params can be set" if what
+                       else f"no param `{name}` to set in this model")
+            self.errors.append(ModelError("LW254", message, Span(self.file, 0, 0),
+                                          self.hints.did_you_mean(name, lambda: self.param_spans, "param")
+                                          or f"the model's params: {', '.join(self.param_spans) or 'none'}"))
+
     # --- the pass ---------------------------------------------------------------
     def resolve(self, mf: ast.ModelFile, path: Path | None, extra_requirements=()) -> Model:
         self.all_params = {st.name for st in mf.statements if isinstance(st, ast.ParamStmt)}
@@ -246,6 +318,7 @@ class _Resolver:
         if path is not None:
             self.included.add(path)
         self.collect(mf, ((path, self.file),) if path else (), top=True)
+        self.check_overrides()
         for stmt in self.block_stmts.values():
             self.eval_block(stmt)
         for name, stmt in self.eq_stmts.items():
@@ -284,6 +357,7 @@ class _Resolver:
             hidden=frozenset(self.hidden), equations=dict(self.equations), breaks=tuple(self.breaks),
             requirements=tuple(requirements), findings=tuple(self.findings),
             block_uses=dict(self.block_uses), hidden_owner=dict(self.hidden_owner), waivers=waivers,
+            ranges=dict(self.ranges), sources=dict(self.sources),
         )
 
     def keep_unshown_lines_unshown(self) -> None:
@@ -301,8 +375,8 @@ class _Resolver:
         for file, at in hidden.items():
             count = sum(1 for e in self.errors if e.span.file == file)
             span, path = self.unshown[file]
-            whose = f"included file {path} has" if _same_file(span, path, file) else \
-                f"included file {path} uses {file}, which has"
+            whose = f"included file {path} uses {file}, which has" if file in self.reached_through else \
+                f"included file {path} has"
             errors[at] = ModelError(
                 "LW208", f"{whose} {count} error{'s' if count > 1 else ''}, not shown: only "
                 f"`{MODEL_SUFFIX}` files have their lines shown", span,
@@ -342,14 +416,6 @@ class _Resolver:
         return name
 
 
-def _same_file(use_span: Span, path: str, shown: str) -> bool:
-    """Whether `shown` is the file that the `use` of `path` at `use_span` names."""
-    try:
-        return (Path(use_span.file).parent / path).resolve() == Path(shown).resolve()
-    except (OSError, RuntimeError):
-        return False
-
-
 def _shown_path(shown_base: str, relative: str, real: Path) -> str:
     """An included file's name as errors show it: the including file's folder, as that
     file is shown, joined with the `use` path (relative when the model's name was), or
@@ -364,12 +430,55 @@ def _shown_path(shown_base: str, relative: str, real: Path) -> str:
 
 
 def resolve_text(text: str, file: str = "<text>", extra_requirements: tuple[str, ...] = (),
-                 extra_source: str = "<settings>", root: str | os.PathLike | None = None) -> Model:
+                 extra_source: str = "<settings>", root: str | os.PathLike | None = None,
+                 overrides: Mapping[str, float] | None = None) -> Model:
     """Resolve a model given as text. Includes are relative to `file`'s folder (the working
     directory for "<text>") and must stay inside `root`: by default the git work tree
-    holding that folder, else the folder itself (see `source.include_root`)."""
-    mf = parse_text(text, file)
+    holding that folder, else the folder itself (see `source.include_root`). `overrides`
+    sets params (by name) to other values."""
+    return resolve_parsed(parse_model(text, file, extra_requirements, extra_source, root), overrides)
+
+
+@dataclass(frozen=True, eq=False)
+class Parsed:
+    """A model's syntax trees, parsed once; `sources` holds the included files' trees once a
+    resolution has read them (through the bounded reader, inside `root`), so that later
+    resolutions (one per sweep sample, possibly on another machine) need neither the disk
+    nor the parser."""
+
+    file: str
+    path: Path | None
+    tree: ast.ModelFile
+    extra: tuple[ast.RequireStmt, ...] = ()
+    sources: Mapping = field(default_factory=dict)  # `use` statement -> (real path, tree)
+    waivers: tuple[Waiver, ...] = ()  # the settings' waivers for this file (after the model's own)
+    root: Path | None = None  # where includes must stay (None: `source.include_root` of the file)
+
+    def with_sources(self, model: Model) -> "Parsed":
+        return replace(self, sources=dict(model.sources))
+
+
+def parse_model(text: str, file: str = "<text>", extra_requirements: tuple[str, ...] = (),
+                extra_source: str = "<settings>", root: str | os.PathLike | None = None) -> Parsed:
+    """Parse a model given as text (see `resolve_text` for `file` and `root`); its includes
+    are read by the first resolution."""
     path = Path(file).resolve() if not file.startswith("<") else None
+    tree = parse_text(text, file)
+    extra = _extra_requirements(extra_requirements, extra_source)
+    return Parsed(file, path, tree, extra, root=include_root(None if path is None else file, root))
+
+
+def resolve_parsed(parsed: Parsed, overrides: Mapping[str, float] | None = None) -> Model:
+    """Resolve a parsed model, with params set by `overrides` (param name -> value in SI):
+    each is checked against the model's params (LW254) and its declared range (LW292, a note)."""
+    root = parsed.root if parsed.root is not None else \
+        include_root(None if parsed.path is None else parsed.file)
+    resolver = _Resolver(parsed.file, root, overrides, parsed.sources)
+    model = resolver.resolve(parsed.tree, parsed.path, parsed.extra)
+    return replace(model, waivers=model.waivers.plus(parsed.waivers)) if parsed.waivers else model
+
+
+def _extra_requirements(extra_requirements: tuple[str, ...], extra_source: str) -> tuple[ast.RequireStmt, ...]:
     extra = []
     for i, line in enumerate(extra_requirements):
         where = _settings_position(extra_source, line, i)
@@ -380,8 +489,7 @@ def resolve_text(text: str, file: str = "<text>", extra_requirements: tuple[str,
                 raise ModelError("LW240", f"a default requirement must look like `* metric >= value`: {line!r}",
                                  Span(extra_source, i + 1, 1), "for example `* phase_margin >= 45deg`")
             extra.append(stmt)
-    model_root = include_root(None if path is None else file, root)
-    return _Resolver(file, model_root).resolve(mf, path, tuple(extra))
+    return tuple(extra)
 
 
 def _settings_position(source: str, requirement: str, index: int) -> str:
@@ -399,8 +507,15 @@ def _settings_position(source: str, requirement: str, index: int) -> str:
 
 
 def resolve_file(path: str | os.PathLike, extra_requirements: tuple[str, ...] = (),
-                 extra_source: str = "<settings>", root: str | os.PathLike | None = None) -> Model:
-    """Read and resolve one model file: a regular file, at most 4 MiB, UTF-8 text.
+                 extra_source: str = "<settings>", root: str | os.PathLike | None = None,
+                 overrides: Mapping[str, float] | None = None) -> Model:
+    """Read and resolve one model file (see `parse_file`); `overrides` sets params."""
+    return resolve_parsed(parse_file(path, extra_requirements, extra_source, root), overrides)
+
+
+def parse_file(path: str | os.PathLike, extra_requirements: tuple[str, ...] = (),
+               extra_source: str = "<settings>", root: str | os.PathLike | None = None) -> Parsed:
+    """Read and parse one model file: a regular file, at most 4 MiB, UTF-8 text.
 
     `root` is the folder tree of the checked paths (the command line passes their
     common folder): used outside git, where includes must stay inside it; inside a
@@ -424,4 +539,4 @@ def resolve_file(path: str | os.PathLike, extra_requirements: tuple[str, ...] = 
                 from None
         raise ModelError(exc.code, exc.reason, Span(file, 0, 0),
                          "split it into files joined with `use`" if exc.code == "LW105" else None) from None
-    return resolve_text(text, file, extra_requirements, extra_source, model_root)
+    return parse_model(text, file, extra_requirements, extra_source, model_root)

@@ -9,7 +9,7 @@ import dataclasses
 
 from .. import __version__
 from ..compare import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
-from ..results import CAUTION, _num, error_to_dict
+from ..results import CAUTION, error_to_dict, json_number
 from .escape import json_dumps
 
 __all__ = ["DIFF_SCHEMA_VERSION", "to_dict", "render"]
@@ -27,16 +27,16 @@ def _verdict(v: VerdictChange | None) -> dict | None:
 
 
 def _margin(c: MarginChange) -> dict:
-    return {"metric": c.metric, "label": c.label, "unit": c.unit, "before": _num(c.before),
-            "after": _num(c.after), "delta": _num(c.delta), "direction": c.direction,
+    return {"metric": c.metric, "label": c.label, "unit": c.unit, "before": json_number(c.before),
+            "after": json_number(c.after), "delta": json_number(c.delta), "direction": c.direction,
             "words": c.words, "regression": c.regression}
 
 
 def _requirement(r: RequirementChange) -> dict:
-    return {"metric": r.metric, "op": r.op, "unit": r.unit, "limit_before": _num(r.limit_before),
-            "limit_after": _num(r.limit_after), "limit_text_before": r.limit_text_before,
-            "limit_text_after": r.limit_text_after, "value_before": _num(r.value_before),
-            "value_after": _num(r.value_after), "met_before": r.met_before,
+    return {"metric": r.metric, "op": r.op, "unit": r.unit, "limit_before": json_number(r.limit_before),
+            "limit_after": json_number(r.limit_after), "limit_text_before": r.limit_text_before,
+            "limit_text_after": r.limit_text_after, "value_before": json_number(r.value_before),
+            "value_after": json_number(r.value_after), "met_before": r.met_before,
             "met_after": r.met_after, "status": r.status, "regression": r.regression,
             "line": r.line}
 

@@ -16,7 +16,7 @@ from ..results import CAUTION
 from .escape import html_text, xml_text
 from .summary import BREAK_COLUMNS, ModelSummary, finding_text, summarise, tally
 
-__all__ = ["render_html", "figure_count", "draw_svg", "CSS"]
+__all__ = ["render_html", "figure_count", "draw_svg", "inline_svg", "status_word", "CSS"]
 
 VIEWS = ("nyquist", "bode", "sensitivity")
 _CAPTIONS = {
@@ -73,7 +73,9 @@ _WORD_CLASS = {"STABLE": "ok", "PASS": "ok", "MET": "ok", "UNSTABLE": "bad", "FA
                "NOT MET": "bad", "ERROR": "bad", "MARGINAL": "warn", "WARNING": "warn"}
 
 
-def _word(word: str) -> str:
+def status_word(word: str) -> str:
+    """A status word (STABLE, FAIL, NOT MET, ...) as the page marks it: the word itself,
+    with a colour that only repeats it."""
     return f'<span class="word {_WORD_CLASS.get(word, "")}">{escape(word)}</span>'
 
 
@@ -113,10 +115,17 @@ def _unique_ids(svg: str, prefix: str) -> str:
 def draw_svg(job) -> str:
     """One figure as inline SVG: job = (BreakResult, kind, model name, hz, id prefix).
     A top-level function so a process pool can run it."""
-    from .plots import make_figure, svg_text
+    from .plots import make_figure
 
     result, kind, model, hz, prefix = job
-    svg = svg_text(make_figure(result, kind, model=model, hz=hz), salt=prefix)
+    return inline_svg(make_figure(result, kind, model=model, hz=hz), prefix)
+
+
+def inline_svg(fig, prefix: str) -> str:
+    """A figure as inline SVG for this page: no metadata, ids unique to `prefix`."""
+    from .plots import svg_text
+
+    svg = svg_text(fig, salt=prefix)
     svg = re.sub(r"<metadata>.*?</metadata>\s*", "", svg, flags=re.S)  # no URLs, no dates
     return _unique_ids(svg, prefix)
 
@@ -158,7 +167,7 @@ def _table(s: ModelSummary) -> list[str]:
     for b in s.breaks:
         cells = []
         for (header, _, right), cell in zip(BREAK_COLUMNS, b.cells):
-            body = _word(cell) if header == "verdict" else _e(cell)
+            body = status_word(cell) if header == "verdict" else _e(cell)
             cells.append(f'<td class="num">{body}</td>' if right else f"<td>{body}</td>")
         rows.append("<tr>" + "".join(cells) + "</tr>")
     return ['<div class="wrap"><table>',
@@ -168,7 +177,7 @@ def _table(s: ModelSummary) -> list[str]:
 
 
 def _requirements(s: ModelSummary) -> list[str]:
-    items = [f"<li>{_word('MET' if r.met else 'NOT MET')} break {_e(r.break_name)}: {_e(r.text)} "
+    items = [f"<li>{status_word('MET' if r.met else 'NOT MET')} break {_e(r.break_name)}: {_e(r.text)} "
              f"<small>{_e(r.place)}</small></li>" for r in s.requirements]
     if not items:
         return ["<p>No requirements apply to this model.</p>"]
@@ -176,7 +185,7 @@ def _requirements(s: ModelSummary) -> list[str]:
 
 
 def _warnings(s: ModelSummary) -> list[str]:
-    items = [f"<li>{_word('WARNING' if n.waived is None else 'WAIVED')} {_e(n.line)}</li>"
+    items = [f"<li>{status_word('WARNING' if n.waived is None else 'WAIVED')} {_e(n.line)}</li>"
              for n in s.notes if n.break_name is not None]
     items += [f"<li>break {_e(name)}: {_e(words)}</li>" for name, words in s.stabilising]
     out = ['<ul class="plain">', *items, "</ul>"] if items else []
@@ -184,9 +193,9 @@ def _warnings(s: ModelSummary) -> list[str]:
     return out
 
 
-def _model_section(s: ModelSummary, n: int, svgs: dict) -> list[str]:
+def _model_section(s: ModelSummary, n: int, svgs: dict, extra: list[str] = ()) -> list[str]:
     out = [f'<section id="model-{n}">',
-           f"<h2>{_word(s.verdict)} model {_e(s.model)} {_word(s.status)}</h2>",
+           f"<h2>{status_word(s.verdict)} model {_e(s.model)} {status_word(s.status)}</h2>",
            f'<p class="lede">{_e(s.file)}: {s.result.closed_loop_rhp_poles} closed-loop pole(s) in '
            "the right half plane</p>"]
     if not s.breaks:
@@ -197,8 +206,9 @@ def _model_section(s: ModelSummary, n: int, svgs: dict) -> list[str]:
     out += _requirements(s) + _warnings(s)
     for k, b in enumerate(s.breaks):
         out.append(f'<h3 id="model-{n}-break-{k}">break {_e(b.name)} at {_e(b.at)} '
-                   f"{_word(b.status)}</h3>")
+                   f"{status_word(b.status)}</h3>")
         out += _break_figures(b.result, f"m{n}b{k}", svgs, (n, k))
+    out += extra  # e.g. the sweep section (report/sweep_html.py)
     out.append("</section>")
     return out
 
@@ -206,14 +216,14 @@ def _model_section(s: ModelSummary, n: int, svgs: dict) -> list[str]:
 def _settings(run) -> list[str]:
     if not run.findings:
         return []
-    return ['<section id="settings">', f"<h2>{_word('WARNING')} settings</h2>",
+    return ['<section id="settings">', f"<h2>{status_word('WARNING')} settings</h2>",
             *[f"<pre>{_e(finding_text(f))}</pre>" for f in run.findings], "</section>"]
 
 
 def _errors(run) -> list[str]:
     if not run.errors:
         return []
-    out = ['<section id="unreadable">', f"<h2>{_word('ERROR')} models that could not be read</h2>"]
+    out = ['<section id="unreadable">', f"<h2>{status_word('ERROR')} models that could not be read</h2>"]
     out += [f"<pre>{_e(finding_text(e))}</pre>" for e in run.errors]
     return out + ["</section>"]
 
@@ -222,16 +232,17 @@ def _summary(run, fail: bool) -> list[str]:
     t = tally(run, fail)
     overall = "PASS" if t.failed == 0 and not t.unreadable else "FAIL"
     breaks = sum(len(m.breaks) for m in run.models)
-    cells = [("result", _word(overall)), ("models", t.models), ("passed", t.passed),
+    cells = [("result", status_word(overall)), ("models", t.models), ("passed", t.passed),
              ("failed", t.failed), ("could not be read", t.unreadable), ("breaks", breaks)]
     body = "".join(f"<div>{_e(k)}<b>{v if k == 'result' else _e(v)}</b></div>" for k, v in cells)
     return [f'<div class="summary">{body}</div>', f"<p>{_e(t.sentence())}.</p>"]
 
 
 def render_html(run, *, hz: bool = False, fail_on_warnings: bool = False, jobs: int = 1,
-                tick: Callable[[], None] = lambda: None) -> str:
+                tick: Callable[[], None] = lambda: None, extra: dict | None = None) -> str:
     """The whole report as one string; figures drawn in `jobs` processes, and
-    `tick` called once per figure drawn."""
+    `tick` called once per figure drawn. `extra` maps a model's file to more of its
+    section (HTML lines), such as its sweep."""
     svgs = _draw_all(run, hz, jobs, tick)
     version = f" {run.version}" if run.version else ""
     out = ['<!DOCTYPE html>', '<html lang="en">', "<head>",
@@ -246,10 +257,10 @@ def render_html(run, *, hz: bool = False, fail_on_warnings: bool = False, jobs: 
     summaries = [summarise(m, fail_on_warnings) for m in run.models]
     if summaries:
         out.append('<nav><ul class="plain">' + "".join(
-            f'<li><a href="#model-{n}">{_e(s.model)}</a> ({_e(s.file)}) {_word(s.status)}</li>'
+            f'<li><a href="#model-{n}">{_e(s.model)}</a> ({_e(s.file)}) {status_word(s.status)}</li>'
             for n, s in enumerate(summaries)) + "</ul></nav>")
     for n, s in enumerate(summaries):
-        out += _model_section(s, n, svgs)
+        out += _model_section(s, n, svgs, (extra or {}).get(s.file, []))
     out += _settings(run) + _errors(run)
     out += ["</main>", f"<footer><p>{_e(CAUTION)}</p></footer>", "</body>", "</html>"]
     return "\n".join(out) + "\n"

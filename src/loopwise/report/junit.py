@@ -15,17 +15,17 @@ from ..results import CAUTION
 from .escape import xml_text
 from .summary import BreakSummary, ModelSummary, finding_text, summarise
 
-__all__ = ["render"]
+__all__ = ["render", "testcase", "failure", "error_suite", "settings_suite", "finish"]
 
 
-def _case(suite, classname: str, name: str, file: str, line: int | None = None):
+def testcase(suite, classname: str, name: str, file: str, line: int | None = None):
     attrs = {"classname": xml_text(classname), "name": xml_text(name), "file": xml_text(file)}
     if line:
         attrs["line"] = str(line)
     return ET.SubElement(suite, "testcase", attrs)
 
 
-def _fail(case, kind: str, message: str, details: list[str]) -> None:
+def failure(case, kind: str, message: str, details: list[str]) -> None:
     el = ET.SubElement(case, "failure", {"type": kind, "message": xml_text(message)})
     el.text = xml_text("\n".join(details))
 
@@ -61,25 +61,25 @@ def _model_suite(root, s: ModelSummary, fail_on_warnings: bool) -> None:
     ET.SubElement(props, "property", {"name": "model", "value": xml_text(s.model)})
     ET.SubElement(props, "property", {"name": "caution", "value": CAUTION})
     if s.is_library:
-        case = _case(suite, s.model, "library", s.file)
+        case = testcase(suite, s.model, "library", s.file)
         ET.SubElement(case, "skipped", {"message": s.detail})
         _counts(suite, 1, 0, 1)
         return
     failures = 0
-    case = _case(suite, s.model, "closed loop", s.file)
+    case = testcase(suite, s.model, "closed loop", s.file)
     model_warnings = [n for n in s.notes if n.break_name is None and n.finding.counts]  # a waived one does not fail
     if s.status != "STABLE":
-        _fail(case, "instability", f"{s.status}: {s.detail}",
+        failure(case, "instability", f"{s.status}: {s.detail}",
               [f"break {name}: {words}" for name, words in s.stabilising])
         failures += 1
     elif fail_on_warnings and model_warnings:
-        _fail(case, "warning", model_warnings[0].finding.message, [n.text for n in model_warnings])
+        failure(case, "warning", model_warnings[0].finding.message, [n.text for n in model_warnings])
         failures += 1
     for b in s.breaks:
-        case = _case(suite, s.model, f"break {b.name} at {b.at}", s.file, b.line)
+        case = testcase(suite, s.model, f"break {b.name} at {b.at}", s.file, b.line)
         problem = _break_problem(s, b, fail_on_warnings)
         if problem:
-            _fail(case, *problem)
+            failure(case, *problem)
             failures += 1
     notes = [n.text for n in s.notes]
     if notes:
@@ -87,41 +87,48 @@ def _model_suite(root, s: ModelSummary, fail_on_warnings: bool) -> None:
     _counts(suite, 1 + len(s.breaks), failures)
 
 
-def _error_suite(root, file: str, errors) -> None:
+def error_suite(root, file: str, errors) -> None:
     suite = ET.SubElement(root, "testsuite", {"name": xml_text(file), "tests": "1",
                                               "failures": "0", "errors": "1", "skipped": "0"})
-    case = _case(suite, file, "read model", file, errors[0].span.line or None)
+    case = testcase(suite, file, "read model", file, errors[0].span.line or None)
     el = ET.SubElement(case, "error", {"type": xml_text(errors[0].code),
                                        "message": xml_text(f"{errors[0].code} {errors[0].message}")})
     el.text = xml_text("\n".join(finding_text(e) for e in errors))
 
 
-def _settings_suite(root, findings, fail_on_warnings: bool) -> None:
+def settings_suite(root, findings, fail_on_warnings: bool) -> None:
     """Warnings about the run itself (a settings waiver that matched nothing): one case each."""
     suite = ET.SubElement(root, "testsuite", {"name": xml_text(findings[0].span.file)})
     failures = 0
     for f in findings:
-        case = _case(suite, "settings", f"{f.code} {f.message}", f.span.file, f.span.line or None)
+        case = testcase(suite, "settings", f"{f.code} {f.message}", f.span.file, f.span.line or None)
         if fail_on_warnings and f.counts:
-            _fail(case, "warning", f"{f.code} {f.message}", [finding_text(f)])
+            failure(case, "warning", f"{f.code} {f.message}", [finding_text(f)])
             failures += 1
     ET.SubElement(suite, "system-out").text = xml_text("\n".join(finding_text(f) for f in findings))
     _counts(suite, len(findings), failures)
+
+
+def finish(root, run, fail_on_warnings: bool = False) -> str:
+    """The document once the models' suites are in `root`: a suite for the run's own
+    findings (settings), one per file that could not be read, the totals, the XML text.
+    Shared by every kind of result written as JUnit (check's, a sweep's)."""
+    if run.findings:
+        settings_suite(root, run.findings, fail_on_warnings)
+    by_file: dict[str, list] = {}
+    for e in run.errors:
+        by_file.setdefault(e.span.file, []).append(e)
+    for file, errors in by_file.items():
+        error_suite(root, file, errors)
+    suites = root.findall("testsuite")
+    for key in ("tests", "failures", "errors", "skipped"):
+        root.set(key, str(sum(int(s.get(key)) for s in suites)))
+    ET.indent(root)
+    return '<?xml version="1.0" encoding="UTF-8"?>\n' + ET.tostring(root, encoding="unicode") + "\n"
 
 
 def render(run, fail_on_warnings: bool = False) -> str:
     root = ET.Element("testsuites", {"name": "loopwise check"})
     for m in run.models:
         _model_suite(root, summarise(m, fail_on_warnings), fail_on_warnings)
-    if run.findings:
-        _settings_suite(root, run.findings, fail_on_warnings)
-    by_file: dict[str, list] = {}
-    for e in run.errors:
-        by_file.setdefault(e.span.file, []).append(e)
-    for file, errors in by_file.items():
-        _error_suite(root, file, errors)
-    suites = root.findall("testsuite")
-    for key in ("tests", "failures", "errors", "skipped"):
-        root.set(key, str(sum(int(s.get(key)) for s in suites)))
-    ET.indent(root)
-    return '<?xml version="1.0" encoding="UTF-8"?>\n' + ET.tostring(root, encoding="unicode") + "\n"
+    return finish(root, run, fail_on_warnings)

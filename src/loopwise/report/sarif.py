@@ -8,7 +8,12 @@ code-review tools: each finding is a result at the line it concerns.
   unreadable models at theirs;
 - `diff`: each regression on the new side (LW701 verdict, LW702 requirement,
   LW703 margin) at its `break` or `require` line, other changes as notes
-  (LW791), errors of models that cannot be read on the new side at their lines.
+  (LW791), errors of models that cannot be read on the new side at their lines;
+- `sweep`: a break with sampled plants that are not stable (LW602) at its `break`
+  line, a requirement not met at the worst plant found (LW603) at its `require`
+  line, each with the param values of the plant in the message; warnings that
+  plants gave at the break line with how many; the model's notes (LW691, LW692,
+  LW292) and the run's errors (LW601 among them) at their own places.
 
 Rules come from the diagnostics registry (`loopwise.diagnostics`); only the
 rules a log uses are listed. File locations are relative to the repository
@@ -31,7 +36,8 @@ from ..run import exit_status
 from .escape import json_dumps
 from .summary import ModelSummary, summarise, waiver_note
 
-__all__ = ["SARIF_SCHEMA", "SarifLog", "render_check", "render_diff", "check_log", "diff_log", "repository_root"]
+__all__ = ["SARIF_SCHEMA", "SarifLog", "render_check", "render_diff", "render_sweep", "check_log", "diff_log",
+           "sweep_log", "repository_root"]
 
 #: the OASIS schema of SARIF 2.1.0 (errata 01), named in every log
 SARIF_SCHEMA = "https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/sarif-schema-2.1.0.json"
@@ -219,3 +225,45 @@ def diff_log(result, root: Path | None = None) -> dict:
 
 def render_diff(result) -> str:
     return json_dumps(diff_log(result))
+
+
+# --- sweep --------------------------------------------------------------------------------
+
+def _sweep_results(log: SarifLog, m) -> None:
+    from .sweep_summary import boundary_words, requirement_words, unstable_where
+
+    for b in m.breaks:
+        if b.samples and not b.stable_everywhere:
+            text = f"break {b.name} at {b.at}: not stable {unstable_where(b)}; model {m.model}"
+            text += "".join(f"; stability lost between: {boundary_words(k)}" for k in b.boundaries)
+            log.add("LW602", text, m.file, b.line)
+        for r in b.requirements:
+            if not r.result.met:
+                log.add("LW603", "requirement not met at the worst plant found: " + requirement_words(m, b, r),
+                        r.result.file or m.file, r.result.line)
+        for code, n in b.warnings:
+            summary = CODES[code].summary if code in CODES else code
+            log.add(code, f"break {b.name}: {summary}, at {n} of {b.samples} sampled plants", m.file, b.line,
+                    level="warning")
+    for f in m.findings:
+        log.finding(f, waiver_note(f))
+
+
+def sweep_log(run, fail_on_warnings: bool = False, root: Path | None = None) -> dict:
+    """The SARIF log (a dict) of a sweep run."""
+    from .sweep_summary import EVIDENCE
+
+    log = SarifLog(root if root is not None else repository_root())
+    for m in run.models:
+        _sweep_results(log, m)
+    for f in run.findings:  # about the run itself: a settings waiver that matched nothing
+        log.finding(f, waiver_note(f))
+    for e in run.errors:
+        log.finding(e)
+    return log.log(run.exit_status(fail_on_warnings),
+                   {"models": len(run.models), "evidence": EVIDENCE,
+                    "unreadable": len({e.span.file for e in run.errors if e.code != "LW601"})})
+
+
+def render_sweep(run, fail_on_warnings: bool = False) -> str:
+    return json_dumps(sweep_log(run, fail_on_warnings))

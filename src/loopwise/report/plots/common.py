@@ -34,8 +34,9 @@ INK = {
 #: the drawn line may leave the engine's samples by at most this much (points;
 #: a fifth of a pixel on a screen, a third at 150 dpi)
 THIN_TOL_PT = 0.15
-#: lines whose turns around -1 must survive thinning
-NYQUIST_LINES = ("nyquist-positive", "nyquist-negative", "zoom-positive", "zoom-negative")
+#: lines whose turns around -1 must survive thinning (the sweep's band is Nyquist curves too)
+NYQUIST_LINES = ("nyquist-positive", "nyquist-negative", "zoom-positive", "zoom-negative",
+                 "band-nominal", "band-plant")
 #: the mirror half of a Nyquist curve -> its positive half (thinned once, mirrored;
 #: reflection in the real axis keeps -1 and, with equal axis scales, all distances)
 MIRRORS = {"nyquist-negative": "nyquist-positive", "zoom-negative": "zoom-positive"}

@@ -1,6 +1,9 @@
 """The Nyquist view: the whole closed curve, far stretches on a compressed
 ring, crossovers tagged, the count in a box, and an inset near -1 when the
-curve passes close to it (docs/plots.md)."""
+curve passes close to it (docs/plots.md).
+
+`drawn_curve`, `draw_guides` and `set_limits` are public: the sweep's band of
+sampled plants (`plots/sweep.py`) draws its curves the same way."""
 from __future__ import annotations
 
 import math
@@ -49,11 +52,8 @@ def nyquist_figure(result: BreakResult, *, model: str | None = None, hz: bool = 
         ax, side = axes["main"], Panel(fig, side_rect)
         ax.set_aspect("equal", anchor="N")
         ring = choose_ring(response)
-        upper, _ = closed_curve(response)
-        if ring is not None:
-            upper = densify_ring_arcs(ring.compress(upper), ring)
-        mirror = np.conj(upper[::-1])
-        _guides(ax, ring)
+        upper, mirror = drawn_curve(response, ring)
+        draw_guides(ax, ring)
         ax.plot(upper.real, upper.imag, color=INK["curve"], lw=1.9, zorder=3,
                 label="L, positive frequencies", gid="nyquist-positive")
         ax.plot(mirror.real, mirror.imag, color=INK["mirror"], lw=1.3, ls=(0, (5, 3)),
@@ -64,7 +64,7 @@ def nyquist_figure(result: BreakResult, *, model: str | None = None, hz: bool = 
                 label="critical point \u22121", gid="critical-point")
         marks, unmarked = select_crossings(result)
         points = _mark_crossings(ax, marks, ring)
-        _limits(ax, upper, mirror, ring)
+        set_limits(ax, upper, mirror, ring)
         ax.set_xlabel("Re L")
         ax.set_ylabel("Im L")
         title(fig, result, "Nyquist curve of L", model)
@@ -83,7 +83,18 @@ def nyquist_figure(result: BreakResult, *, model: str | None = None, hz: bool = 
     return fig
 
 
-def _guides(ax, ring: Ring | None) -> None:
+def drawn_curve(response, ring: Ring | None) -> tuple[np.ndarray, np.ndarray]:
+    """The closed curve as the view draws it: the positive-frequency half (compressed onto
+    the ring, its arcs there densified, when there is one) and its mirror image."""
+    upper, _ = closed_curve(response)
+    if ring is not None:
+        upper = densify_ring_arcs(ring.compress(upper), ring)
+    return upper, np.conj(upper[::-1])
+
+
+def draw_guides(ax, ring: Ring | None) -> None:
+    """The shaded ring (when there is one) with its x10, x100, x1000 circles, the unit
+    circle and the axes through the origin."""
     from matplotlib.patches import Annulus, Circle
 
     if ring is not None:
@@ -185,7 +196,8 @@ def _key_line(tag: str, c, hz: bool) -> str:
     return f"{tag}  {freq_symbol(c.kind, hz)} {eq} {freq_label(c.freq, hz)}, {what}"
 
 
-def _limits(ax, upper, mirror, ring) -> None:
+def set_limits(ax, upper, mirror, ring) -> None:
+    """Axis limits that hold the drawn curve, -1 and the unit circle (the whole ring when there is one)."""
     if ring is not None:
         lim = ring.outer * 1.04
         ax.set_xlim(-lim, lim)

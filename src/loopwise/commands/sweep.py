@@ -1,0 +1,73 @@
+"""`loopwise sweep PATH...`: is every loop stable, with its margins, for every plant in
+the box of ranged params (`param x = v in [lo, hi]`), and where is it worst?
+
+Thin: the shared options, settings and output writer (`commands/options.py`,
+`loopwise.output`), the sweep (`loopwise.sweep`), a reporter. Nothing heavy is
+imported at module level (this module loads for `loopwise sweep --help`).
+"""
+from __future__ import annotations
+
+import argparse
+import sys
+
+from ..errors import UsageError
+from ..report import formats
+from .options import (add_config, add_design, add_fail_on_warnings, add_jobs, add_no_progress, add_output,
+                      add_set, load_settings_for)
+
+__all__ = ["add_parser", "run"]
+
+def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
+    p = subparsers.add_parser(
+        "sweep", help=help_text,
+        description=help_text + " Every corner of the box (all of them up to 8 ranged params), a "
+        "space-filling set, a local search from the worst plants, and bisection where stability is "
+        "lost: sampled evidence, not a proof (see docs/sweep.md).",
+        epilog="Exit codes: 0 every sampled plant stable and every requirement met at the worst "
+               "plant found; 1 otherwise; 2 a model, an option or a sampled plant could not be read; "
+               "130 interrupted (Ctrl-C); 143 terminated (SIGTERM).")
+    p.add_argument("paths", nargs="+", metavar="PATH", help="model files or folders of models")
+    add_design(p)
+    add_jobs(p, "evaluate plants", default=0)
+    p.add_argument("--cluster", metavar="ADDRESS",
+                   help="send the plants to the Dask scheduler at ADDRESS (e.g. tcp://10.0.0.5:8786) "
+                        "instead; needs pip install \"loopwise[cluster]\"; same results as a local run")
+    add_set(p)
+    p.add_argument("-f", "--format", choices=formats("sweep"), default="text", help="report format (default: text)")
+    add_output(p, "write the report to FILE; a text summary still goes to stdout unless --quiet")
+    p.add_argument("-q", "--quiet", action="store_true", help="with --output, print nothing to stdout")
+    add_config(p)
+    add_fail_on_warnings(p, "a plant gives warnings")
+    add_no_progress(p)
+    return p
+
+
+def run(args) -> int:
+    from ..output import emit, guard_output, protected_inputs
+    from ..progress import wants_progress
+    from ..report import render
+    from ..run import discover
+    from ..sweep import SweepOptions, sweep_files
+
+    if args.cluster and args.jobs:
+        raise UsageError("--jobs and --cluster do not go together: the cluster's workers do the work")
+    settings = load_settings_for(args)  # with --fail-on-warnings and --set
+    files = discover(args.paths, settings)
+    protected = None
+    if args.output:
+        # fail before a long sweep rather than after it
+        protected = protected_inputs(files, settings)
+        guard_output(args.output, protected)
+    progress = not args.no_progress and wants_progress(sys.stderr)
+    result = sweep_files(files, settings, SweepOptions(args.samples, args.seed), jobs=args.jobs,
+                         cluster=args.cluster, progress=progress)
+    fail = settings.fail_on_warnings
+    if args.output:
+        emit(render(result, args.format, kind="sweep", fail_on_warnings=fail), args.output, protected)
+        if not args.quiet:
+            emit(render(result, "text", kind="sweep", fail_on_warnings=fail))
+            emit(f"{args.format} report written to {args.output}\n")
+    else:
+        emit(render(result, args.format, kind="sweep", fail_on_warnings=fail))
+    return result.exit_status(fail)
+

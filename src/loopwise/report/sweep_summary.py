@@ -1,0 +1,131 @@
+"""What every format of `loopwise sweep` says, in words: the verdict over the box, what
+was sampled (and that it is evidence, not a proof), per break the worst margins and
+where, unmet requirements and where stability is lost.
+
+The sweep's counterpart of `report.summary` (whose helpers it uses for requirements
+and findings): text, Markdown, JUnit, HTML and SARIF are written from these words, so
+they cannot drift apart. Strings here are raw; each format makes them safe with its
+own helper (`loopwise.report.escape`).
+"""
+from __future__ import annotations
+
+import math
+
+from ..sweep.results import format_at
+from .numbers import fmt_time
+from .summary import requirement_place, requirement_text
+
+__all__ = ["EVIDENCE", "WORST_HEADER", "format_at", "worst_value", "worst_rows", "verdict_words",
+           "evidence_words", "params_words", "requirement_words", "boundary_words", "break_state",
+           "unstable_where", "unstable_words", "unmet", "Tally", "tally", "verdict"]
+
+EVIDENCE = "sampled evidence, not a proof: a plant between the samples may be worse"
+
+#: the columns of the worst-margin table of a break
+WORST_HEADER = ("margin", "nominal", "worst", "where (param values)")
+
+#: (JSON key) -> (label, format of a finite value); the gain margin down is a negative dB
+#: figure, marked (<0) as in check's table (`summary.GM_DOWN_HEAD`), while its requirement
+#: `gain_margin_down >= 6dB` takes the size of the decrease
+_LABELS = {
+    "phase_margin_deg": ("phase margin", lambda v: f"{v:.1f} deg"),
+    "gain_margin_up_db": ("gain margin up", lambda v: f"{v:.1f} dB"),
+    "gain_margin_down_db": ("gain margin down (<0)", lambda v: f"{v:.1f} dB"),
+    "delay_margin_s": ("delay margin", fmt_time),
+    "disk_margin_alpha": ("disk margin alpha", lambda v: f"{v:.3f}"),
+    "sensitivity_peak": ("Ms", lambda v: f"{v:.3g}"),
+    "complementary_peak": ("Mt", lambda v: f"{v:.3g}"),
+}
+
+
+def worst_value(key: str, value) -> str:
+    """A worst (or nominal) margin as the tables show it: `-` not claimed, `inf` unbounded."""
+    if value is None:
+        return "-"
+    if not math.isfinite(value):
+        return "-inf" if key == "gain_margin_down_db" or value < 0 else "inf"
+    return _LABELS[key][1](value)
+
+
+def worst_rows(b) -> list[tuple[str, str, str, str]]:
+    """(margin, nominal, worst, where) for each worst margin of a break (a BreakSweep)."""
+    return [(_LABELS[key][0], worst_value(key, w.nominal), worst_value(key, w.value), format_at(w.at) if w.at else
+             ("unbounded everywhere" if w.value is not None else "no stable plant"))
+            for key, w in b.worst]
+
+
+def verdict(m, fail_on_warnings: bool = False) -> str:
+    return "PASS" if m.passes(fail_on_warnings) else "FAIL"
+
+
+def verdict_words(m) -> str:
+    n = m.samples
+    if m.stable_everywhere:
+        return f"STABLE at every sampled plant ({n})"
+    unstable = max((b.unstable_samples for b in m.breaks), default=0)
+    words = f"UNSTABLE at {unstable} of {n} sampled plants" if unstable else "not decided everywhere"
+    if m.failed_samples:
+        words += f"; {m.failed_samples} plant(s) could not be analysed"
+    return words
+
+
+def evidence_words(m) -> str:
+    c = m.counts
+    parts = [f"{c.nominal} nominal", f"{c.corners} corners", f"{c.space_filling} space-filling",
+             f"{c.local_search} local-search", f"{c.boundary} boundary"]
+    return f"{' + '.join(parts)} = {m.samples} plants (seed {m.seed}; {m.density})"
+
+
+def params_words(m) -> str:
+    swept = "; ".join(f"{p.name} in [{p.lo:.4g}, {p.hi:.4g}] (nominal {p.nominal:.4g})" for p in m.params)
+    fixed = ", ".join(f"{n}={v:.4g}" for n, v in m.fixed)
+    return f"swept: {swept or 'nothing (no ranged params)'}" + (f"; set: {fixed}" if fixed else "")
+
+
+def requirement_words(m, b, r) -> str:
+    """`file:line: break b: phase_margin >= 45deg (value 38.2 deg) at J=0.00029 - note`."""
+    res = r.result
+    note = f" - {res.note}" if res.note else ""
+    return f"{requirement_place(m, res)}: break {b.name}: {requirement_text(res)} at {format_at(r.at)}{note}"
+
+
+def boundary_words(k) -> str:
+    return f"stable at {format_at(k.stable_at)}; unstable at {format_at(k.unstable_at)}"
+
+
+def unstable_where(b) -> str:
+    """How many plants are not stable at a break, and the first of them found."""
+    return f"at {b.unstable_samples} of {b.samples} plants, first at {format_at(b.first_unstable_at)}"
+
+
+def unstable_words(b) -> str:
+    return f"UNSTABLE {unstable_where(b)}"
+
+
+def break_state(b) -> str:
+    """A break over the box in words: stable at every plant, or where it is not."""
+    return f"stable at all {b.samples} plants" if b.stable_everywhere else unstable_words(b)
+
+
+def unmet(m) -> list[tuple[object, object]]:
+    """(BreakSweep, SweepRequirement) of every requirement not met at the worst plant found."""
+    return [(b, r) for b in m.breaks for r in b.requirements if not r.result.met]
+
+
+class Tally:
+    """The run in numbers: models swept, passed, failed, files that could not be read."""
+
+    def __init__(self, run, fail_on_warnings: bool = False):
+        self.models = len(run.models)
+        self.passed = sum(m.passes(fail_on_warnings) for m in run.models)
+        self.failed = self.models - self.passed
+        # LW601 (a plant that could not be analysed) belongs to a swept model, not an unread file
+        self.unreadable = len({e.span.file for e in run.errors if e.code != "LW601"})
+
+    def sentence(self) -> str:
+        words = f"{self.models} model(s) swept, {self.passed} passed, {self.failed} failed"
+        return words + (f", {self.unreadable} could not be read" if self.unreadable else "")
+
+
+def tally(run, fail_on_warnings: bool = False) -> Tally:
+    return Tally(run, fail_on_warnings)
