@@ -331,3 +331,20 @@ def test_each_side_of_a_folder_diff_keeps_its_own_include_root(tmp_path, capsys)
     pm = next(x for x in m["breaks"][0]["margins"] if x["metric"] == "phase_margin_deg")
     assert pm["before"] == pytest.approx(180 - math.degrees(math.atan(math.sqrt(3))), rel=1e-9)
     assert pm["after"] == pytest.approx(180 - math.degrees(math.atan(math.sqrt(8))), rel=1e-9)
+
+
+@pytest.mark.parametrize("command", [["check"], ["sweep"], ["report", "--output", "{out}"]])
+def test_outside_git_the_root_is_the_folder_named_on_the_command_line(tmp_path, capsys, command):
+    """`loopwise check plain/` with plain/models/m.loop using ../lib/ctl.inc: the library lies
+    in the folder tree of the path named, though no model was found next to it (it is not a
+    .loop file), so it is inside the root: the models found are not the paths checked."""
+    if repository_root(tmp_path) is not None:
+        pytest.skip("the temporary folder lies inside a git work tree")
+    plain = tmp_path / "plain"
+    (plain / "models").mkdir(parents=True)
+    (plain / "lib").mkdir()
+    (plain / "lib" / "ctl.inc").write_text("param k = 2\nblock C = k/(s+1)\n")
+    (plain / "models" / "m.loop").write_text('use "../lib/ctl.inc"\n' + LOOP)
+    argv = [a.format(out=tmp_path / "r.html") for a in command]
+    assert main([argv[0], str(plain), *argv[1:]]) == 0
+    assert "LW207" not in capsys.readouterr().out

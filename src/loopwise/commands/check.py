@@ -57,6 +57,7 @@ def run(args) -> int:
     from ..output import emit, guard_output, protected_inputs
     from ..progress import wants_progress
     from ..report import render
+    from ..language.source import common_root
     from ..run import check_files, discover, exit_status
 
     settings = load_settings_for(args)  # with --fail-on-warnings and --set
@@ -67,7 +68,8 @@ def run(args) -> int:
         protected = protected_inputs(files, settings)
         guard_output(args.output, protected)
     progress = not args.no_progress and wants_progress(sys.stderr)
-    result = check_files(files, settings, jobs=args.jobs, progress=progress)
+    # includes stay inside the folder tree of the paths named (outside git)
+    result = check_files(files, settings, jobs=args.jobs, progress=progress, root=common_root(args.paths))
     fail = settings.fail_on_warnings
     colour = _colour(args.color, sys.stdout)
     if args.output:

@@ -48,7 +48,7 @@ def _sweep_sections(args, files, settings, result) -> tuple[dict, object | None]
     from ..sweep import SweepOptions, sweep_files
     from ..sweep.band import BAND_PLANTS, band_results
 
-    root = common_root(files) if files else None  # the include root `check_files` uses
+    root = common_root(args.paths)  # the include root `check_files` uses: the paths named
     swept = sweep_files(files, settings, SweepOptions(args.samples, args.seed), jobs=args.jobs, root=root)
     checked = {m.file: (n, m) for n, m in enumerate(result.models)}
     extra = {}
@@ -76,7 +76,9 @@ def run(args) -> int:
     protected = protected_inputs(files, settings)
     guard_output(args.output, protected)  # before the long run, not after it
     progress = not args.no_progress and wants_progress(sys.stderr)
-    result = check_files(files, settings, jobs=args.jobs, progress=progress)
+    from ..language.source import common_root
+
+    result = check_files(files, settings, jobs=args.jobs, progress=progress, root=common_root(args.paths))
     extra, swept = _sweep_sections(args, files, settings, result)
     with progress_bar("drawing", figure_count(result), enabled=progress) as tick:
         page = render_html(result, hz=args.hz, fail_on_warnings=fail, jobs=args.jobs, tick=tick, extra=extra)

@@ -46,6 +46,7 @@ def run(args) -> int:
     from ..output import emit, guard_output, protected_inputs
     from ..progress import wants_progress
     from ..report import render
+    from ..language.source import common_root
     from ..run import discover
     from ..sweep import SweepOptions, sweep_files
 
@@ -60,7 +61,7 @@ def run(args) -> int:
         guard_output(args.output, protected)
     progress = not args.no_progress and wants_progress(sys.stderr)
     result = sweep_files(files, settings, SweepOptions(args.samples, args.seed), jobs=args.jobs,
-                         cluster=args.cluster, progress=progress)
+                         cluster=args.cluster, progress=progress, root=common_root(args.paths))
     fail = settings.fail_on_warnings
     if args.output:
         emit(render(result, args.format, kind="sweep", fail_on_warnings=fail), args.output, protected)
