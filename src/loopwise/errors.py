@@ -28,8 +28,8 @@ _UNPRINTABLE_NAME = re.compile("[\ud800-\udfff]")
 
 def display_name(file: str) -> str:
     """A file name that can always be printed and written as UTF-8: bytes of the name
-    that were not UTF-8 (kept as lone surrogates) shown as U+FFFD, as the output
-    writer shows them (`loopwise.output.display_safe`)."""
+    that were not UTF-8 (kept as lone surrogates) shown as U+FFFD. The output
+    writer (`loopwise.output`) passes everything it writes through it."""
     return _UNPRINTABLE_NAME.sub("\ufffd", file)
 
 

@@ -6,18 +6,14 @@ signed delta, and a regression under the policy says so at the end of its line.
 from __future__ import annotations
 
 from ..compare import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
-from ..language.requirements import METRICS
 from ..results import CAUTION
-from ..settings import Regression
 from ..errors import printable
+from ..settings import Regression
+from .escape import one_line
 from .numbers import fmt_time
 
 __all__ = ["render", "fmt_value", "fmt_delta", "verdict_words", "requirement_words",
            "policy_words", "summary_words", "margin_words"]
-
-def _s(text) -> str:
-    """A user-controlled string (file, model and break names) on one line, terminal-safe."""
-    return printable(str(text), keep="")
 
 
 def fmt_value(x: float | None, unit: str, none_words: str = "none") -> str:
@@ -136,13 +132,13 @@ def _break_lines(d: BreakDiff) -> list[str]:
     at = d.at_after or d.at_before
     if d.status == "added":
         state = "stable" if d.stable_after else "UNSTABLE"
-        lines = [f"  + break {_s(d.name)} (at {_s(at)}): added, {state}"]
+        lines = [f"  + break {one_line(d.name)} (at {one_line(at)}): added, {state}"]
     elif d.status == "removed":
-        return [f"  - break {_s(d.name)} (at {_s(at)}): removed"]
+        return [f"  - break {one_line(d.name)} (at {one_line(at)}): removed"]
     else:
-        lines = [f"  break {_s(d.name)} (at {_s(at)})"]
+        lines = [f"  break {one_line(d.name)} (at {one_line(at)})"]
         if d.at_before != d.at_after:
-            lines.append(f"    opened at {_s(d.at_before)} -> {_s(d.at_after)}")
+            lines.append(f"    opened at {one_line(d.at_before)} -> {one_line(d.at_after)}")
     if d.verdict is not None:
         lines.append(f"    verdict {verdict_words(d.verdict)}")
         if not (d.stable_before and d.stable_after):
@@ -154,12 +150,12 @@ def _break_lines(d: BreakDiff) -> list[str]:
 
 
 def _model_lines(m: ModelDiff) -> list[str]:
-    head = f"{_s(m.file)}: {m.status}"
+    head = f"{one_line(m.file)}: {m.status}"
     if m.status in ("added", "errors disappeared"):
         head += f" ({'stable' if m.stable_after else 'UNSTABLE'}, {m.breaks_after} break(s))"
     lines = [head]
     if m.model_before and m.model_after and m.model_before != m.model_after:
-        lines.append(f"  model renamed {_s(m.model_before)} -> {_s(m.model_after)}")
+        lines.append(f"  model renamed {one_line(m.model_before)} -> {one_line(m.model_after)}")
     if m.verdict is not None and not any(d.verdict for d in m.breaks):
         lines.append(f"  model verdict {verdict_words(m.verdict)}")
     for d in m.breaks:
@@ -173,12 +169,12 @@ def _model_lines(m: ModelDiff) -> list[str]:
             lines += ["  " + ln for ln in block.splitlines()]
     for r in m.regressions:
         if r.startswith("model "):  # the break rows carry their own flags
-            lines.append(f"  REGRESSION: {_s(r)}")
+            lines.append(f"  REGRESSION: {one_line(r)}")
     return lines
 
 
 def render(result: DiffResult) -> str:
-    out = [f"loopwise diff: {_s(result.old_label)} -> {_s(result.new_label)}",
+    out = [f"loopwise diff: {one_line(result.old_label)} -> {one_line(result.new_label)}",
            f"regression: {policy_words(result.policy)}"]
     if result.settings:
         out.append(f"settings: {result.settings}")
@@ -194,7 +190,7 @@ def render(result: DiffResult) -> str:
         out += [f"{unchanged} model{'s' if unchanged != 1 else ''} unchanged", ""]
     out.append(summary_words(result))
     for r in result.regressions:
-        out.append(f"  regression: {_s(r)}")
+        out.append(f"  regression: {one_line(r)}")
     out += ["", CAUTION]
     # rendered errors and regressions quote names: nothing in them may drive a terminal
     return printable("\n".join(out), keep="\n") + "\n"

@@ -31,6 +31,7 @@ from urllib.parse import quote
 
 from .. import __version__
 from ..diagnostics import CODES
+from ..language.source import repository_root as work_tree
 from ..results import CAUTION
 from ..run import exit_status
 from .escape import json_dumps
@@ -46,12 +47,9 @@ _LEVEL = {"error": "error", "warning": "warning", "note": "note"}
 
 
 def repository_root(start: Path | None = None) -> Path | None:
-    """The nearest folder from `start` (default: the working directory) up that holds `.git`."""
-    here = (start or Path.cwd()).resolve()
-    for folder in (here, *here.parents):
-        if (folder / ".git").exists():
-            return folder
-    return None
+    """The git work tree holding `start` (default: the working directory), links followed
+    first: the one walk up to a `.git` entry (`language.source.repository_root`)."""
+    return work_tree((start or Path.cwd()).resolve())
 
 
 class SarifLog:
