@@ -30,7 +30,7 @@ from typing import Iterable, Iterator
 
 from .errors import UsageError, display_name
 
-__all__ = ["Protected", "protected_inputs", "guard_output", "write_output", "atomic_file",
+__all__ = ["Protected", "protected_inputs", "guard_inputs", "guard_output", "write_output", "atomic_file",
            "emit"]
 
 def _identity(path) -> tuple[int, int] | None:
@@ -75,6 +75,17 @@ def protected_inputs(models: Iterable, settings=None) -> Protected:
     if source:
         guard.add(source, "the settings file")
     return guard
+
+
+def guard_inputs(output, models: Iterable, settings=None) -> Protected | None:
+    """For a command about to write `output` (None: stdout): the inputs it must never
+    replace (`protected_inputs`), checked now (`guard_output`), before the long work
+    rather than after it. None when there is no output file."""
+    if not output:
+        return None
+    protected = protected_inputs(models, settings)
+    guard_output(output, protected)
+    return protected
 
 
 def guard_output(path, protected: Protected | None = None) -> None:

@@ -92,13 +92,10 @@ def structure_dot(diagram) -> str:
 
 def run(args: argparse.Namespace) -> int:
     from ..analysis import prepare_file
-    from ..output import emit, guard_output, protected_inputs
+    from ..output import emit, guard_inputs
 
     settings = load_settings_for(args)
-    protected = None
-    if args.output:
-        protected = protected_inputs([args.file], settings)
-        guard_output(args.output, protected)
+    protected = guard_inputs(args.output, [args.file], settings)
     try:
         prep = prepare_file(args.file, settings)
     except ModelErrors as exc:

@@ -1,6 +1,8 @@
 """The options every command shares, defined once: `--config` (and the settings it
 loads, with `--set` and `--fail-on-warnings` applied), `--jobs`, `--output`,
-`--no-progress`, and the sweep design's `--samples` and `--seed`.
+`--no-progress`, and the sweep design's `--samples` and `--seed`; and what the
+commands do with them alike: whether to draw a progress bar (`progress_wanted`)
+and writing a report in `--format` to `--output` or stdout (`write_report`).
 
 Imported for `--help`, so only the standard library and light modules here.
 """
@@ -12,7 +14,8 @@ from pathlib import Path
 from ..pool import JOBS_HELP
 
 __all__ = ["jobs_count", "count", "set_value", "add_config", "add_jobs", "add_output", "add_no_progress",
-           "add_set", "add_fail_on_warnings", "add_design", "load_settings_for"]
+           "add_set", "add_fail_on_warnings", "add_design", "load_settings_for", "progress_wanted",
+           "write_report"]
 
 
 def jobs_count(text: str) -> int:
@@ -81,6 +84,16 @@ def add_no_progress(p: argparse.ArgumentParser) -> None:
                    help="never draw a progress bar (it is drawn only on a terminal anyway)")
 
 
+def progress_wanted(args) -> bool:
+    """Whether to draw a progress bar: not with `--no-progress`, and only on a terminal
+    (`loopwise.progress.wants_progress`)."""
+    import sys
+
+    from ..progress import wants_progress
+
+    return not args.no_progress and wants_progress(sys.stderr)
+
+
 def add_set(p: argparse.ArgumentParser) -> None:
     p.add_argument("--set", dest="set", type=set_value, action="append", default=[], metavar="NAME=VALUE",
                    help="fix a param at a value for this run (repeatable; a unit may follow the number, "
@@ -120,3 +133,20 @@ def load_settings_for(args, start: Path | None = None):
     if getattr(args, "set", None):
         settings = replace(settings, overrides=tuple(dict(args.set).items()))
     return settings
+
+
+def write_report(args, result, kind: str, protected=None, colour: bool = False, **options) -> None:
+    """Write a result in `--format` (`report.render`, the registry of `kind`): to
+    `--output` (atomically, never over the `protected` inputs), then a text summary
+    on stdout unless `--quiet`; without `--output`, to stdout. `colour` applies to
+    stdout only; `options` go to the reporter (those it does not take are dropped)."""
+    from ..output import emit
+    from ..report import render
+
+    if args.output:
+        emit(render(result, args.format, kind=kind, colour=False, **options), args.output, protected)
+        if not args.quiet:
+            emit(render(result, "text", kind=kind, colour=colour, **options))
+            emit(f"{args.format} report written to {args.output}\n")
+    else:
+        emit(render(result, args.format, kind=kind, colour=colour, **options))

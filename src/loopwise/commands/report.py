@@ -10,7 +10,8 @@ import sys
 from pathlib import Path
 
 from ..errors import UsageError
-from .options import add_config, add_design, add_jobs, add_no_progress, add_output, load_settings_for
+from .options import (add_config, add_design, add_jobs, add_no_progress, add_output, load_settings_for,
+                      progress_wanted)
 
 __all__ = ["add_parser", "run"]
 
@@ -61,8 +62,9 @@ def _sweep_sections(args, files, settings, result) -> tuple[dict, object | None]
 
 
 def run(args) -> int:
-    from ..output import emit, guard_output, protected_inputs
-    from ..progress import progress_bar, wants_progress
+    from ..language.source import common_root
+    from ..output import emit, guard_inputs
+    from ..progress import progress_bar
     from ..report.summary import finding_text
     from ..report.html import figure_count, render_html
     from ..run import check_files, discover, exit_status
@@ -73,11 +75,8 @@ def run(args) -> int:
     settings = load_settings_for(args)
     fail = settings.fail_on_warnings  # --fail-on-warnings applied by load_settings_for
     files = discover(args.paths, settings)
-    protected = protected_inputs(files, settings)
-    guard_output(args.output, protected)  # before the long run, not after it
-    progress = not args.no_progress and wants_progress(sys.stderr)
-    from ..language.source import common_root
-
+    protected = guard_inputs(args.output, files, settings)  # before the long run, not after it
+    progress = progress_wanted(args)
     result = check_files(files, settings, jobs=args.jobs, progress=progress, root=common_root(args.paths))
     extra, swept = _sweep_sections(args, files, settings, result)
     with progress_bar("drawing", figure_count(result), enabled=progress) as tick:
