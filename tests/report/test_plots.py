@@ -1,7 +1,7 @@
 """The figures: drawn from the engine's samples, and what they show is what the engine found.
 
 The Nyquist count is re-read from the drawn line data by a method independent
-of the engine and of `geometry.winding_number`: signed crossings of the ray
+of the engine: signed crossings of the ray
 from -1 towards -infinity (a closed curve winds around a point as often as it
 crosses any ray from it, counted with sign).
 """

@@ -6,7 +6,7 @@ from dataclasses import dataclass
 from ..errors import Span
 
 __all__ = [
-    "Expr", "Number", "Name", "Laplace", "BinOp", "Neg", "Power", "Call", "Inline",
+    "Expr", "Number", "Name", "BinOp", "Neg", "Power", "Call", "Inline",
     "Statement", "ModelStmt", "UseStmt", "ParamStmt", "InputStmt", "BlockStmt",
     "EquationStmt", "BreakStmt", "RequireStmt", "WaiveStmt", "ModelFile",
 ]
@@ -33,11 +33,6 @@ class Name(Expr):
     """A param, block, signal or `s` (resolved after parsing)."""
 
     name: str
-
-
-@dataclass(frozen=True)
-class Laplace(Expr):
-    """The Laplace variable `s` (only made by the resolver, never parsed)."""
 
 
 @dataclass(frozen=True)

@@ -15,7 +15,7 @@ from ..results import BreakResult, LoopResponse
 from .summary import break_status as verdict_word  # the tables' word for a break's verdict
 
 __all__ = [
-    "Ring", "choose_ring", "closed_curve", "winding_number", "Crossing",
+    "Ring", "choose_ring", "closed_curve", "Crossing",
     "crossings", "unwrapped_phase_deg", "low_frequency_asymptote", "verdict_word", "bode_range",
     "decade_label",
     "gap_at_axis_poles", "Unmarked", "select_crossings", "Zoom", "zoom_near_critical",
@@ -100,16 +100,6 @@ def closed_curve(response: LoopResponse) -> tuple[np.ndarray, np.ndarray]:
     """(upper half, mirror half): the mirror is conj(L) reversed (negative frequencies)."""
     upper = np.asarray(response.L, dtype=complex)
     return upper, np.conj(upper[::-1])
-
-
-def winding_number(z: np.ndarray, about: complex = -1.0) -> int:
-    """Clockwise turns of the closed polyline z around `about` (sum of angle steps)."""
-    z = np.asarray(z, dtype=complex) - about
-    if z.size < 2:
-        return 0
-    z = np.append(z, z[0])
-    steps = np.angle(z[1:] / z[:-1])
-    return int(round(-steps.sum() / (2 * math.pi)))
 
 
 def low_frequency_asymptote(response: LoopResponse) -> tuple[int, int]:
