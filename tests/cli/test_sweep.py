@@ -12,24 +12,14 @@ import numpy as np
 import jsonschema
 import pytest
 
+# L = K exp(-sT)/s: INSIDE stable everywhere (worst K T = 1.2, PM >= 21.2 deg), CROSSING
+# unstable in a corner (K T up to 1.7 > pi/2)
+from tests.scenarios import DELAYED_CROSSING as CROSSING, DELAYED_INSIDE as INSIDE, NO_RANGES
+
 from .conftest import loopwise, write
 
 SCHEMA = json.loads((Path(__file__).parents[2] / "docs" / "sweep.schema.json").read_text())
 
-#: L = K exp(-sT)/s: stable exactly when K T < pi/2, PM = 90 deg - K T (tests/reference/test_sweep_analytic.py)
-DELAYED = """\
-model delayed
-param K = 1 in [0.5, {k_hi}]
-param T = 0.5 in [0.2, 1]
-input r
-e = r - y
-y = [K*exp(-T*s)/s](e)
-break loop at y
-require loop phase_margin >= 15deg
-"""
-INSIDE = DELAYED.format(k_hi=1.2)      # worst K T = 1.2: stable everywhere, PM >= 21.2 deg
-CROSSING = DELAYED.format(k_hi=1.7)    # K T up to 1.7 > pi/2: unstable in a corner
-NO_RANGES = "model plain\ninput r\ne = r - y\ny = [2/(s*(s + 3))](e)\nbreak loop at y\n"
 #: at the corner a = 0 the block's gain divides by zero: that plant cannot be analysed
 DIVIDES = "model divides\nparam a = 1 in [0, 2]\ninput r\ne = r - y\ny = [1/(s + 1)/a](e)\nbreak loop at y\n"
 

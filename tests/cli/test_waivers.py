@@ -9,6 +9,8 @@ import xml.etree.ElementTree as ET
 
 import pytest
 
+from tests.scenarios import CASCADE
+
 from .conftest import write
 from .test_formats import validate
 
@@ -82,17 +84,7 @@ def test_markdown_passes_and_shows_the_reasons(waived):
 
 
 def test_a_break_warning_waived_in_every_format(cli, tmp_path):
-    cascade = """\
-model casc
-input r
-e = r - y2
-e1 = [8](e) - y1
-y1 = [10/s](e1)
-y2 = [1/(s+1)](y1)
-break inner at y1 -> e1
-break outer at y2
-waive LW383 at inner "the inner loop is slowed on purpose (actuator wear)"
-"""
+    cascade = "model casc\n" + CASCADE + 'waive LW383 at inner "the inner loop is slowed on purpose (actuator wear)"\n'
     write(tmp_path, "c.loop", cascade)
     code, out, _ = cli("check", "c.loop", "--fail-on-warnings")
     assert code == 0, out

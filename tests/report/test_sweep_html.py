@@ -10,19 +10,13 @@ import pytest
 from loopwise.cli import main
 from loopwise.report.plots.sweep import PROFILE_BINS, worst_profile
 from loopwise.sweep.results import WORST_KEYS, PlantTable
+from tests.scenarios import DELAYED_INSIDE, NO_RANGES
 
 SVG = "{http://www.w3.org/2000/svg}"
 
 #: L = K exp(-sT)/s: PM = 90 deg - K T, stable for every plant of this box (K T <= 1.2)
-MODEL = """model delayed
-param K = 1 in [0.5, 1.2]
-param T = 0.5 in [0.2, 1]
-input r
-e = r - y
-y = [K*exp(-T*s)/s](e)
-break loop at y
-"""
-PLAIN = "model plain\ninput r\ne = r - y\ny = [2/(s*(s + 3))](e)\nbreak loop at y\n"
+MODEL = DELAYED_INSIDE.replace("require loop phase_margin >= 15deg\n", "")
+PLAIN = NO_RANGES
 
 
 @pytest.fixture(scope="module")
