@@ -205,13 +205,14 @@ def test_use_of_a_symlink_loop_is_a_located_error(tmp_path):
 
 BOMB_COUNT = """
 import sys
-from loopwise.language import resolve
+from loopwise.language import includes, resolve
 calls = []
 real = resolve.parse_text
 def counting(text, file="<text>", *rest):
     calls.append(file)
     return real(text, file, *rest)
-resolve.parse_text = counting
+resolve.parse_text = counting   # the model itself (and settings requirements)
+includes.parse_text = counting  # every included file
 model = resolve.resolve_file(sys.argv[1])
 print(len(calls), len(set(calls)), len(model.params))
 """

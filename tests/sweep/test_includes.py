@@ -17,7 +17,7 @@ import pytest
 from loopwise.cli import main
 from loopwise.errors import ModelErrors
 from loopwise.language import ast
-from loopwise.language import resolve as resolve_module
+from loopwise.language import includes as includes_module, resolve as resolve_module
 from loopwise.language.resolve import resolve_parsed
 from tests.scenarios import outside_git
 from loopwise.settings import Settings
@@ -122,8 +122,9 @@ def no_disk(monkeypatch):
     """Reading, parsing or locating a file from here on fails the test."""
     def refuse(*args, **kwargs):
         raise AssertionError("a plant's resolution went to the disk or the parser")
-    monkeypatch.setattr(resolve_module, "read_source", refuse)
-    monkeypatch.setattr(resolve_module, "parse_text", refuse)
+    for module in (resolve_module, includes_module):
+        monkeypatch.setattr(module, "read_source", refuse)
+        monkeypatch.setattr(module, "parse_text", refuse)
     monkeypatch.setattr(Path, "resolve", refuse)
 
 
