@@ -173,6 +173,40 @@ def test_a_settings_waiver_that_matches_nothing_is_reported_once_in_every_format
     assert cli("check", "tanks", "--no-fail-on-warnings")[0] == 0
 
 
+def test_every_format_agrees_with_the_exit_code_when_only_a_settings_warning_fails(cli, tmp_path):
+    # regression: with fail_on_warnings and only LW284 (about the run, not a model) the
+    # exit code was 1 while Markdown said "all models pass", the HTML summary PASS and the
+    # text tally "2 passed, 0 failed" with nothing saying why the run failed
+    write(tmp_path, "tanks/t1.loop", MODEL)
+    write(tmp_path, "tanks/t2.loop", MODEL)
+    write(tmp_path, "loopwise.toml", SETTINGS)
+    code, text, _ = cli("check", "tanks")
+    assert code == 1
+    assert text.splitlines()[-2] == ("2 models checked, 2 passed, 0 failed, 4 findings waived, "
+                                     "1 settings warning (fail_on_warnings: the run fails).")
+    markdown = cli("check", "tanks", "--format", "markdown")[1]
+    assert markdown.splitlines()[0] == "### loopwise check: 1 settings warning fails the run"
+    junit = ET.fromstring(cli("check", "tanks", "--format", "junit")[1])
+    assert junit.get("failures") == "1"
+    sarif = json.loads(cli("check", "tanks", "--format", "sarif")[1])
+    assert sarif["runs"][0]["invocations"][0]["exitCode"] == 1
+    code, _, _ = cli("report", "tanks", "--output", "r.html")
+    summary = (tmp_path / "r.html").read_text().split('<div class="summary">')[1].split("</div></div>")[0]
+    assert code == 1 and '<span class="word bad">FAIL</span>' in summary
+    code, swept, _ = cli("sweep", "tanks", "--samples", "2", "--jobs", "1")
+    assert code == 1 and swept.splitlines()[-2].endswith(", 1 settings warning (fail_on_warnings: the run fails).")
+    code, swept, _ = cli("sweep", "tanks", "--samples", "2", "--jobs", "1", "--format", "markdown")
+    assert code == 1 and swept.splitlines()[0] == "### loopwise sweep: 1 settings warning fails the run"
+    # without fail_on_warnings the same run passes, and every format says so
+    off = ("--no-fail-on-warnings",)
+    code, text, _ = cli("check", "tanks", *off)
+    assert code == 0 and text.splitlines()[-2].endswith(", 1 settings warning.")
+    assert cli("check", "tanks", "--format", "markdown", *off)[1].startswith("### loopwise check: all models pass\n")
+    assert ET.fromstring(cli("check", "tanks", "--format", "junit", *off)[1]).get("failures") == "0"
+    code, swept, _ = cli("sweep", "tanks", "--samples", "2", "--jobs", "1", "--format", "markdown", *off)
+    assert code == 0 and swept.startswith("### loopwise sweep: every model passes over its box\n")
+
+
 def test_a_settings_waiver_is_not_judged_when_no_checked_model_is_covered(cli, tmp_path):
     write(tmp_path, "elsewhere/m.loop", MODEL + WAIVE_A + WAIVE_B)
     write(tmp_path, "loopwise.toml", SETTINGS)

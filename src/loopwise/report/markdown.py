@@ -70,7 +70,10 @@ def render(run, fail_on_warnings: bool = False) -> str:
     t = tally(run, fail_on_warnings)
     summaries = [summarise(m, fail_on_warnings) for m in run.models]
     failing = t.failed + t.unreadable
-    head = "all models pass" if not failing else f"{failing} of {t.models + t.unreadable} models need attention"
+    parts = [f"{failing} of {t.models + t.unreadable} models need attention"] if failing else []
+    if t.run_fails:  # with fail_on_warnings, a warning about the run fails it (the exit code says 1)
+        parts.append(f"{t.run_warnings} settings warning{'s fail' if t.run_warnings != 1 else ' fails'} the run")
+    head = "; ".join(parts) or "all models pass"
     out = [f"### loopwise check: {head}", "", t.sentence() + ".", ""]
     out += _summary_table(summaries, run)
     out.append("")

@@ -17,7 +17,8 @@ from typing import Callable
 from .numbers import finite, fmt_quantity, fmt_time
 
 __all__ = [
-    "LIBRARY_NOTE", "is_library", "break_status", "model_status", "model_passes", "Tally", "tally",
+    "LIBRARY_NOTE", "is_library", "break_status", "model_status", "model_passes", "run_warnings_fail",
+    "run_warnings_words", "Tally", "tally",
     "count_met", "requirement_place", "requirement_text", "finding_text", "waiver_note",
     "BREAK_COLUMNS", "break_row", "Note", "RequirementLine", "BreakSummary", "ModelSummary",
     "summarise", "stabilising_text", "GM_DOWN_HEAD",
@@ -54,8 +55,23 @@ def model_passes(m, fail_on_warnings: bool = False) -> bool:
     return m.ok and not (fail_on_warnings and m.open_warnings)
 
 
+def run_warnings_fail(run, fail_on_warnings: bool = False) -> bool:
+    """Whether the run's own warnings (a settings waiver that matched nothing) fail it:
+    with fail_on_warnings, one that counts (`Finding.counts`). The exit rules of check
+    and sweep apply the same test, so every format's overall verdict says it too."""
+    return fail_on_warnings and any(f.counts for f in run.findings)
+
+
+def run_warnings_words(count: int, fail: bool) -> str:
+    """`1 settings warning`, and when they fail the run (`run_warnings_fail`), that too."""
+    words = f"{count} settings warning{'s' if count != 1 else ''}"
+    return words + (" (fail_on_warnings: the run fails)" if fail else "")
+
+
 @dataclass(frozen=True)
 class Tally:
+    """A check run in numbers, and whether it passes as its exit code says."""
+
     models: int      # models checked (library files not counted)
     passed: int
     failed: int
@@ -63,8 +79,16 @@ class Tally:
     libraries: int = 0
     waived: int = 0          # warnings and notes accepted by a waiver (shown, not counted)
     run_warnings: int = 0    # warnings about the run itself (a settings waiver that matched nothing)
+    run_fails: bool = False  # those warnings fail the run (`run_warnings_fail`)
+
+    @property
+    def passes(self) -> bool:
+        """The run passes (exit code 0): every model passes, all were read, and no
+        warning about the run itself fails it."""
+        return not (self.failed or self.unreadable or self.run_fails)
 
     def sentence(self) -> str:
+        """`7 models checked, 6 passed, 1 failed, ...`: the run in one sentence."""
         parts = [f"{self.models} model{'s' if self.models != 1 else ''} checked",
                  f"{self.passed} passed", f"{self.failed} failed"]
         if self.unreadable:
@@ -75,17 +99,19 @@ class Tally:
         if self.waived:
             parts.append(f"{self.waived} finding{'s' if self.waived != 1 else ''} waived")
         if self.run_warnings:
-            parts.append(f"{self.run_warnings} settings warning{'s' if self.run_warnings != 1 else ''}")
+            parts.append(run_warnings_words(self.run_warnings, self.run_fails))
         return ", ".join(parts)
 
 
 def tally(run, fail_on_warnings: bool = False) -> Tally:
+    """The `Tally` of a check's `RunResult` under the same rules as its exit code."""
     models = [m for m in run.models if not is_library(m)]
     passed = sum(model_passes(m, fail_on_warnings) for m in models)
     unreadable = len({e.span.file for e in run.errors})
     waived = sum(f.waiver is not None for m in run.models for f in m.every_finding)
     return Tally(len(models), passed, len(models) - passed, unreadable,
-                 len(run.models) - len(models), waived, sum(f.counts for f in run.findings))
+                 len(run.models) - len(models), waived, sum(f.counts for f in run.findings),
+                 run_warnings_fail(run, fail_on_warnings))
 
 
 def count_met(b) -> tuple[int, int]:

@@ -43,7 +43,12 @@ def _model(m, fail_on_warnings: bool) -> list[str]:
 
 def render(run, fail_on_warnings: bool = False) -> str:
     t = tally(run, fail_on_warnings)
-    head = "every model passes over its box" if not (t.failed or run.errors) else "models need attention"
+    if t.passes:
+        head = "every model passes over its box"
+    elif t.failed or t.errors:
+        head = "models need attention"
+    else:  # with fail_on_warnings, a warning about the run fails it (the exit code says 1)
+        head = f"{t.run_warnings} settings warning{'s fail' if t.run_warnings != 1 else ' fails'} the run"
     out = [f"### loopwise sweep: {head}", "", t.sentence() + ".", ""]
     for m in run.models:
         out += _model(m, fail_on_warnings)

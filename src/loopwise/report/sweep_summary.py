@@ -13,7 +13,7 @@ import math
 
 from ..sweep.results import format_at
 from .numbers import fmt_time
-from .summary import requirement_place, requirement_text
+from .summary import requirement_place, requirement_text, run_warnings_fail, run_warnings_words
 
 __all__ = ["EVIDENCE", "WORST_HEADER", "format_at", "worst_value", "worst_rows", "verdict_words",
            "evidence_words", "params_words", "requirement_words", "boundary_words", "break_state",
@@ -113,7 +113,8 @@ def unmet(m) -> list[tuple[object, object]]:
 
 
 class Tally:
-    """The run in numbers: models swept, passed, failed, files that could not be read."""
+    """The run in numbers: models swept, passed, failed, files that could not be read,
+    warnings about the run itself; and whether it passes as its exit code says."""
 
     def __init__(self, run, fail_on_warnings: bool = False):
         self.models = len(run.models)
@@ -121,10 +122,21 @@ class Tally:
         self.failed = self.models - self.passed
         # LW601 (a plant that could not be analysed) belongs to a swept model, not an unread file
         self.unreadable = len({e.span.file for e in run.errors if e.code != "LW601"})
+        self.errors = len(run.errors)
+        self.run_warnings = sum(f.counts for f in run.findings)
+        self.run_fails = run_warnings_fail(run, fail_on_warnings)
+
+    @property
+    def passes(self) -> bool:
+        """The run passes (exit code 0): every model passes over its box, nothing failed
+        to be read or analysed, and no warning about the run itself fails it."""
+        return not (self.failed or self.errors or self.run_fails)
 
     def sentence(self) -> str:
+        """`2 model(s) swept, 1 passed, 1 failed, ...`: the run in one sentence."""
         words = f"{self.models} model(s) swept, {self.passed} passed, {self.failed} failed"
-        return words + (f", {self.unreadable} could not be read" if self.unreadable else "")
+        words += f", {self.unreadable} could not be read" if self.unreadable else ""
+        return words + (f", {run_warnings_words(self.run_warnings, self.run_fails)}" if self.run_warnings else "")
 
 
 def tally(run, fail_on_warnings: bool = False) -> Tally:
