@@ -207,6 +207,31 @@ def test_every_format_agrees_with_the_exit_code_when_only_a_settings_warning_fai
     assert code == 0 and swept.startswith("### loopwise sweep: every model passes over its box\n")
 
 
+def test_a_settings_waiver_is_named_relative_to_the_working_directory(cli, tmp_path, monkeypatch):
+    # regression: found from the working directory up, the settings file was named by its
+    # absolute path in every waiver note and LW284, while a model's own waiver is relative
+    write(tmp_path, "tanks/t1.loop", MODEL.replace("input r", "input r, d"))
+    write(tmp_path, "tanks/t2.loop", MODEL)
+    write(tmp_path, "loopwise.toml", SETTINGS.replace('at = "d"\n', ""))
+    code, out, _ = cli("check", "tanks", "--no-fail-on-warnings")
+    assert code == 0, out
+    assert "    waived: tank models share one library of blocks (loopwise.toml:5)" in out
+    assert "    waived: the disturbance input is wired in the next revision (loopwise.toml:10)" in out
+    doc = json.loads(cli("check", "tanks", "--format", "json")[1])
+    assert {f["waived"]["file"] for m in doc["models"] for f in m["findings"]} == {"loopwise.toml"}
+    sarif = json.loads(cli("check", "tanks", "--format", "sarif")[1])
+    justifications = {s["justification"] for r in sarif["runs"][0]["results"] for s in r.get("suppressions", [])}
+    assert justifications == {"waived: tank models share one library of blocks (loopwise.toml:5)",
+                              "waived: the disturbance input is wired in the next revision (loopwise.toml:10)"}
+    # an LW284 names it the same way (t2 alone has no LW381 for the second waiver to accept)
+    code, out, _ = cli("check", "tanks/t2.loop")
+    assert code == 1 and "\nloopwise.toml:10:1: warning LW284 the waiver of LW381 matches no finding" in out
+    # from a folder below the settings file's, the file lies outside: its full path
+    monkeypatch.chdir(tmp_path / "tanks")
+    out = cli("check", "t1.loop", "--no-fail-on-warnings")[1]
+    assert f"    waived: tank models share one library of blocks ({tmp_path.resolve() / 'loopwise.toml'}:5)" in out
+
+
 def test_a_settings_waiver_is_not_judged_when_no_checked_model_is_covered(cli, tmp_path):
     write(tmp_path, "elsewhere/m.loop", MODEL + WAIVE_A + WAIVE_B)
     write(tmp_path, "loopwise.toml", SETTINGS)
