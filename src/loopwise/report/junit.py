@@ -81,7 +81,7 @@ def _model_suite(root, s: ModelSummary, fail_on_warnings: bool) -> None:
         if problem:
             failure(case, *problem)
             failures += 1
-    notes = [n.text for n in s.notes]
+    notes = [n.logged for n in s.notes]  # each says its severity, as the text report does
     if notes:
         ET.SubElement(suite, "system-out").text = xml_text("\n".join(notes))
     _counts(suite, 1 + len(s.breaks), failures)

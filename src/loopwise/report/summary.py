@@ -255,6 +255,15 @@ class Note:
             return self.line
         return finding_text(self.finding)
 
+    @property
+    def logged(self) -> str:
+        """As a log shows it, its severity always said: a break's on one line after its
+        severity (`warning: break b: LW383 ...`), a model's as `text` (`file:line:col:
+        warning LW281 ...`, the source line, a caret)."""
+        if self.break_name is not None:
+            return f"{self.finding.severity}: {self.line}"
+        return self.text
+
 
 @dataclass(frozen=True)
 class RequirementLine:
