@@ -16,7 +16,7 @@ from .errors import Finding
 __all__ = [
     "SCHEMA_VERSION", "GainCrossover", "PhaseCrossover", "DiskMargin", "Peak",
     "Margins", "RequirementResult", "LoopResponse", "HiddenMode", "BreakResult", "ModelResult",
-    "RunResult", "CAUTION", "error_to_dict", "json_number",
+    "RunResult", "CAUTION", "error_to_dict", "json_number", "LIBRARY_NOTE", "is_library",
 ]
 
 SCHEMA_VERSION = 2
@@ -25,6 +25,15 @@ CAUTION = (
     "Results describe the linear model only: an analysis aid, not a substitute for "
     "the applicable standards and a qualified engineer's review."
 )
+
+#: the analysis's note for a file of params and blocks only (brought in with `use`)
+LIBRARY_NOTE = "LW491"
+
+
+def is_library(m) -> bool:
+    """Whether a model's result (a check's or a sweep's) is that of a library of params and
+    blocks for `use`: no breaks, and the analysis's note that there is nothing to check."""
+    return not m.breaks and any(f.code == LIBRARY_NOTE for f in m.findings)
 
 
 def json_number(x: float | None) -> float | None:

@@ -163,6 +163,38 @@ def test_a_model_without_ranges_is_checked_at_its_nominal_point_with_a_note(cli,
     assert [f["code"] for f in model["findings"]] == ["LW691"]
 
 
+#: params and blocks only (a library for `use`), one param with a range
+LIBRARY = "param k = 2 in [1, 3]\nblock C = k/(s + 1)\n"
+
+
+def test_a_library_is_said_to_have_nothing_to_check_as_check_says(cli, tmp_path):
+    # regression: `sweep` printed "PASS ... STABLE at every sampled plant" for a library,
+    # and sampled its ranged params, while `check` calls it a library with nothing to check
+    write(tmp_path, "lib.loop", LIBRARY)
+    write(tmp_path, "plain.loop", NO_RANGES)
+    code, checked, _ = cli("check", "lib.loop", "plain.loop")
+    assert code == 0
+    code, text, _ = cli("sweep", "lib.loop", "plain.loop", *FAST)
+    assert code == 0
+    library_line = "PASS  lib.loop  library of params and blocks for `use`: nothing to check on its own"
+    assert checked.splitlines()[0] == text.splitlines()[0] == library_line
+    assert text.splitlines()[1] == ""  # nothing sampled, no evidence lines, no notes
+    assert text.splitlines()[-2] == ("1 model(s) swept, 1 passed, 0 failed, "
+                                     "1 library for `use` not checked on its own.")
+    doc = validate(cli("sweep", "lib.loop", *FAST, "--format", "json")[1])
+    (lib,) = doc["models"]
+    assert lib["params"] == [] and lib["samples"] == 1 and lib["breaks"] == []
+    assert [f["code"] for f in lib["findings"]] == ["LW491"]  # no LW691: not a model to sweep
+    markdown = cli("sweep", "lib.loop", *FAST, "--format", "markdown")[1]
+    assert "#### PASS `lib` (`lib.loop`): library of params and blocks for `use`: nothing to check on its own" \
+        in markdown and "Evidence:" not in markdown
+    junit = ET.fromstring(cli("sweep", "lib.loop", *FAST, "--format", "junit")[1])
+    (case,) = junit.iter("testcase")
+    assert case.get("name") == "library" and case.find("skipped") is not None
+    sarif = json.loads(cli("sweep", "lib.loop", *FAST, "--format", "sarif")[1])
+    assert sarif["runs"][0]["results"] == []  # as check's SARIF gives a library no result
+
+
 def test_a_plant_that_cannot_be_analysed_exits_2_and_names_it(cli, tmp_path):
     write(tmp_path, "divides.loop", DIVIDES)
     code, out, _ = cli("sweep", "divides.loop", *FAST)

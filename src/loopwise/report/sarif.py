@@ -32,7 +32,7 @@ from urllib.parse import quote
 from .. import __version__
 from ..diagnostics import CODES
 from ..language.source import repository_root as work_tree
-from ..results import CAUTION
+from ..results import CAUTION, is_library
 from ..run import exit_status
 from .escape import json_dumps
 from .summary import ModelSummary, summarise, waiver_note
@@ -253,7 +253,8 @@ def sweep_log(run, fail_on_warnings: bool = False, root: Path | None = None) -> 
 
     log = SarifLog(root if root is not None else repository_root())
     for m in run.models:
-        _sweep_results(log, m)
+        if not is_library(m):  # nothing to sweep, as check gives it no result
+            _sweep_results(log, m)
     for f in run.findings:  # about the run itself: a settings waiver that matched nothing
         log.finding(f, waiver_note(f))
     for e in run.errors:

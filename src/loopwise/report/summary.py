@@ -14,10 +14,11 @@ import math
 from dataclasses import dataclass
 from typing import Callable
 
+from ..results import LIBRARY_NOTE, is_library
 from .numbers import finite, fmt_quantity, fmt_time
 
 __all__ = [
-    "LIBRARY_NOTE", "is_library", "break_status", "model_status", "model_passes", "run_warnings_fail",
+    "LIBRARY_NOTE", "LIBRARY_WORDS", "is_library", "break_status", "model_status", "model_passes", "run_warnings_fail",
     "run_warnings_words", "Tally", "tally",
     "count_met", "requirement_place", "requirement_text", "finding_text", "waiver_note",
     "BREAK_COLUMNS", "break_row", "Note", "RequirementLine", "BreakSummary", "ModelSummary",
@@ -26,12 +27,8 @@ __all__ = [
 
 # --- verdicts ---------------------------------------------------------------------------
 
-#: the analysis's note for a file of params and blocks only (brought in with `use`)
-LIBRARY_NOTE = "LW491"
-
-
-def is_library(m) -> bool:
-    return not m.breaks and any(f.code == LIBRARY_NOTE for f in m.findings)
+#: what every format says of a library (`results.is_library`), for check and sweep alike
+LIBRARY_WORDS = "library of params and blocks for `use`: nothing to check on its own"
 
 
 def break_status(b) -> str:
@@ -325,7 +322,7 @@ class ModelSummary:
 
 def _detail(m, status: str) -> str:
     if status == "LIBRARY":
-        return "library of params and blocks for `use`: nothing to check on its own"
+        return LIBRARY_WORDS
     if status == "STABLE":
         return "no closed-loop poles in the right half plane"
     if status == "MARGINAL":

@@ -13,11 +13,13 @@ import math
 
 from ..sweep.results import format_at
 from .numbers import fmt_time
-from .summary import requirement_place, requirement_text, run_warnings_fail, run_warnings_words
+from ..results import LIBRARY_NOTE, is_library
+from .summary import (LIBRARY_WORDS, requirement_place, requirement_text, run_warnings_fail,
+                      run_warnings_words)
 
 __all__ = ["EVIDENCE", "WORST_HEADER", "format_at", "worst_value", "worst_rows", "verdict_words",
            "evidence_words", "params_words", "requirement_words", "boundary_words", "break_state",
-           "unstable_where", "unstable_words", "unmet", "Tally", "tally", "verdict"]
+           "unstable_where", "unstable_words", "shown_findings", "unmet", "Tally", "tally", "verdict"]
 
 EVIDENCE = "sampled evidence, not a proof: a plant between the samples may be worse"
 
@@ -59,6 +61,10 @@ def verdict(m, fail_on_warnings: bool = False) -> str:
 
 
 def verdict_words(m) -> str:
+    """The verdict over the box in words: `STABLE at every sampled plant (42)`, where it is
+    not, or (a library of params and blocks) what check says of it."""
+    if is_library(m):
+        return LIBRARY_WORDS
     n = m.samples
     if m.stable_everywhere:
         return f"STABLE at every sampled plant ({n})"
@@ -107,6 +113,12 @@ def break_state(b) -> str:
     return f"stable at all {b.samples} plants" if b.stable_everywhere else unstable_words(b)
 
 
+def shown_findings(m) -> tuple:
+    """The model's findings every format shows: all but the library note (a library is
+    said in its verdict words, as check says it)."""
+    return tuple(f for f in m.findings if f.code != LIBRARY_NOTE)
+
+
 def unmet(m) -> list[tuple[object, object]]:
     """(BreakSweep, SweepRequirement) of every requirement not met at the worst plant found."""
     return [(b, r) for b in m.breaks for r in b.requirements if not r.result.met]
@@ -114,12 +126,15 @@ def unmet(m) -> list[tuple[object, object]]:
 
 class Tally:
     """The run in numbers: models swept, passed, failed, files that could not be read,
-    warnings about the run itself; and whether it passes as its exit code says."""
+    libraries (not swept), warnings about the run itself; and whether it passes as its
+    exit code says."""
 
     def __init__(self, run, fail_on_warnings: bool = False):
-        self.models = len(run.models)
-        self.passed = sum(m.passes(fail_on_warnings) for m in run.models)
+        swept = [m for m in run.models if not is_library(m)]
+        self.models = len(swept)
+        self.passed = sum(m.passes(fail_on_warnings) for m in swept)
         self.failed = self.models - self.passed
+        self.libraries = len(run.models) - len(swept)
         # LW601 (a plant that could not be analysed) belongs to a swept model, not an unread file
         self.unreadable = len({e.span.file for e in run.errors if e.code != "LW601"})
         self.errors = len(run.errors)
@@ -136,6 +151,9 @@ class Tally:
         """`2 model(s) swept, 1 passed, 1 failed, ...`: the run in one sentence."""
         words = f"{self.models} model(s) swept, {self.passed} passed, {self.failed} failed"
         words += f", {self.unreadable} could not be read" if self.unreadable else ""
+        if self.libraries:  # as check says it
+            words += (f", {self.libraries} librar{'ies' if self.libraries != 1 else 'y'} for `use` not checked "
+                      f"on {'their' if self.libraries != 1 else 'its'} own")
         return words + (f", {run_warnings_words(self.run_warnings, self.run_fails)}" if self.run_warnings else "")
 
 

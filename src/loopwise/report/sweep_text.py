@@ -7,11 +7,12 @@ through `escape.one_line`, so the output holds no control character.
 """
 from __future__ import annotations
 
-from ..results import CAUTION
+from ..results import CAUTION, is_library
 from .escape import one_line
 from .summary import finding_text
 from .sweep_summary import (EVIDENCE, WORST_HEADER, boundary_words, break_state, evidence_words, params_words,
-                            requirement_words, tally, unmet, verdict, verdict_words, worst_rows)
+                            requirement_words, shown_findings, tally, unmet, verdict, verdict_words,
+                            worst_rows)
 
 __all__ = ["render"]
 
@@ -33,6 +34,9 @@ def _break_block(b) -> list[str]:
 
 
 def _model_block(m, fail_on_warnings: bool) -> list[str]:
+    if is_library(m):  # nothing to sweep: the line check prints, and any other finding
+        out = [f"{verdict(m, fail_on_warnings)}  {one_line(m.file)}  {verdict_words(m)}"]
+        return out + ["  " + line for f in shown_findings(m) for line in finding_text(f).splitlines()]
     met = sum(r.result.met for b in m.breaks for r in b.requirements)
     total = sum(len(b.requirements) for b in m.breaks)
     reqs = f"requirements {met}/{total} met at the worst plants found" if total else "no requirements"
@@ -43,7 +47,7 @@ def _model_block(m, fail_on_warnings: bool) -> list[str]:
     if unmet(m):
         out.append("  unmet requirements (judged at the worst plant found):")
         out += [f"    {one_line(requirement_words(m, b, r))}" for b, r in unmet(m)]
-    for f in m.findings:  # already terminal-safe, several lines (source line, caret, hint)
+    for f in shown_findings(m):  # already terminal-safe, several lines (source line, caret, hint)
         out += ["  " + line for line in finding_text(f).splitlines()]
     return out
 
