@@ -56,7 +56,7 @@ def _sweep_sections(args, files, settings, result) -> tuple[dict, object | None]
     for s in swept.models:
         if s.file in checked and s.params:
             n, m = checked[s.file]
-            band = band_results(s.file, settings, s, BAND_PLANTS, root)
+            band = band_results(s, BAND_PLANTS)
             extra[s.file] = sweep_section(m, s, band, n, settings.fail_on_warnings)
     return extra, swept
 

@@ -93,7 +93,7 @@ def sweep_model(parsed, model, nominal, fixed: dict, options: SweepOptions, run_
         breaks=break_results(nominal, model, evidence, box, brackets),
         findings=tuple(findings) + sample_warnings(model.file, evidence),
         search_stopped=stopped, failed_samples=failed, plants=plant_table(evidence, box, len(nominal.breaks)),
-        nominal=nominal,
+        nominal=nominal, parsed=parsed,
     )
     return result, errors
 

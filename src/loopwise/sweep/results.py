@@ -174,6 +174,8 @@ class SweepModelResult:
     failed_samples: int = 0                 # plants that could not be analysed (see the run's errors)
     plants: PlantTable | None = None        # every plant in numbers (for pictures)
     nominal: object | None = None           # the nominal plant's full ModelResult (not in the JSON contract)
+    parsed: object | None = None            # the parsed model with its includes' trees (`language.resolve.Parsed`),
+                                            # which resolves any plant without the disk (not in the JSON contract)
 
     @property
     def samples(self) -> int:
