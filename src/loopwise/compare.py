@@ -40,6 +40,9 @@ Side = Union[ModelResult, Unreadable, None]
 
 @dataclass(frozen=True)
 class VerdictChange:
+    """How a verdict changed: stable or not, the closed-loop RHP pole count Z, and
+    whether a closed-loop pole sits on the imaginary axis (marginal), before and after."""
+
     stable_before: bool
     stable_after: bool
     z_before: int
@@ -49,6 +52,7 @@ class VerdictChange:
 
     @property
     def direction(self) -> str:
+        """`better` or `worse`: stability first, then fewer RHP poles, then leaving the axis."""
         if self.stable_before != self.stable_after:
             return "better" if self.stable_after else "worse"
         if self.z_before != self.z_after:
@@ -58,6 +62,10 @@ class VerdictChange:
 
 @dataclass(frozen=True)
 class RequirementChange:
+    """How one requirement changed: its limit, value and whether it was met, before and
+    after (None where it did not exist), in words (`status`) and, when it counts as
+    one, the regression it makes."""
+
     metric: str
     op: str
     limit_before: float | None  # None: the requirement did not exist before
@@ -77,6 +85,9 @@ class RequirementChange:
 
 @dataclass(frozen=True)
 class BreakDiff:
+    """What changed at one break (matched by name): its place, verdict, margins and
+    requirements, and the regressions among them; or that it was added or removed."""
+
     name: str
     status: str                 # "changed" | "added" | "removed"
     at_before: str | None
@@ -92,6 +103,10 @@ class BreakDiff:
 
 @dataclass(frozen=True)
 class ModelDiff:
+    """What changed in one model (matched by its path relative to its side's root):
+    its verdict, its breaks (the unchanged ones only counted), its errors on either
+    side, and the regressions among all of it."""
+
     file: str
     status: str   # "changed" | "unchanged" | "added" | "removed" | "errors appeared"
                   # | "errors disappeared" | "still unreadable"
@@ -109,11 +124,15 @@ class ModelDiff:
 
     @property
     def unreadable_after(self) -> bool:
+        """Whether the model cannot be read on the new side (the diff then exits 2)."""
         return self.status in ("errors appeared", "still unreadable")
 
 
 @dataclass(frozen=True)
 class DiffResult:
+    """A whole diff: every model of both sides, the policy that judged it, and where the
+    settings came from."""
+
     old_label: str
     new_label: str
     models: tuple[ModelDiff, ...]
@@ -122,10 +141,12 @@ class DiffResult:
 
     @property
     def regressions(self) -> tuple[str, ...]:
+        """Every regression of every model, each prefixed with the model's path."""
         return tuple(f"{m.file}: {r}" for m in self.models for r in m.regressions)
 
     @property
     def unreadable(self) -> tuple[ModelDiff, ...]:
+        """The models that cannot be read on the new side."""
         return tuple(m for m in self.models if m.unreadable_after)
 
     @property
@@ -136,6 +157,7 @@ class DiffResult:
         return 1 if self.regressions else 0
 
     def count(self, status: str) -> int:
+        """How many models have this `status` (`changed`, `added`, ...)."""
         return sum(1 for m in self.models if m.status == status)
 
 
@@ -176,6 +198,8 @@ def _requirement_change(b: RequirementResult | None, a: RequirementResult | None
 
 def compare_requirements(before: tuple[RequirementResult, ...], after: tuple[RequirementResult, ...],
                          policy: Regression) -> tuple[RequirementChange, ...]:
+    """The requirements that changed between two versions of a break (matched by metric,
+    operator and their order among equals), with the regression each makes under `policy`."""
     kb, ka = _req_key(before), _req_key(after)
     keys = list(kb) + [k for k in ka if k not in kb]
     changes = (_requirement_change(kb.get(k), ka.get(k), policy) for k in keys)

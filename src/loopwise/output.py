@@ -49,6 +49,8 @@ class Protected:
         self._what: dict[tuple[int, int], str] = {}
 
     def add(self, path, what: str) -> None:
+        """Protect the file at `path` (by identity: another name for it is protected too);
+        `what` says what it is. A path that does not exist protects nothing."""
         key = _identity(path)
         if key is not None:
             self._what.setdefault(key, what)

@@ -38,6 +38,7 @@ class MarginSpec:
     requirements: tuple[str, ...] = ()  # requirement metrics that bound this margin
 
     def value(self, margins: Margins) -> float | None:
+        """This margin read from a break's `Margins` (None: unbounded, or not available)."""
         if self.metric == "disk_margin_alpha":
             return margins.disk_margin.alpha if margins.disk_margin else None
         if self.metric == "sensitivity_peak_db":
@@ -67,6 +68,10 @@ MARGINS: tuple[MarginSpec, ...] = (
 
 @dataclass(frozen=True)
 class MarginChange:
+    """How one margin of one break changed: the values before and after in its unit,
+    the signed change, better or worse, words when a side is None, and the regression
+    it makes under the policy (None: the change is information)."""
+
     metric: str               # MarginSpec.metric
     label: str
     unit: str
@@ -80,6 +85,8 @@ class MarginChange:
 
 
 def same(a: float | None, b: float | None, unit: str = "") -> bool:
+    """Whether two values of a margin are the same as far as the reports show them (two
+    decimals of deg and dB, four significant digits else); None equals only None."""
     if a is None or b is None:
         return a is None and b is None
     if unit in ABS_TOL:

@@ -36,6 +36,8 @@ _SYMLINK = b"120000"
 
 @dataclass(frozen=True)
 class TreeEntry:
+    """One regular file of a commit's tree: its path and its blob."""
+
     path: str    # slash-separated, relative to the repository root
     object: str  # the blob's id
 

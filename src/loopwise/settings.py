@@ -158,6 +158,11 @@ def overrides_problem(overrides) -> tuple[str, str] | None:
 
 @dataclass(frozen=True)
 class Settings:
+    """A project's settings, every value checked: default requirements for every break,
+    the include and exclude globs for folders, fail_on_warnings, the regression
+    policy of `loopwise diff`, the waivers; where they came from (`source`, as shown);
+    and the params `--set` fixes for this run."""
+
     requirements: tuple[str, ...] = ()
     include: tuple[str, ...] = ()
     exclude: tuple[str, ...] = ()
@@ -366,6 +371,9 @@ def _find(start: Path | None):
 
 
 def load_settings(start: Path | None = None) -> Settings:
+    """The settings of the nearest settings file from `start` (default: the working
+    directory) up to the repository root (`find_config`); the defaults when there is none.
+    A mistake in the file raises a located `SettingsError`."""
     found = _find(start)
     if found is None:
         return Settings()

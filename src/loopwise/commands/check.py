@@ -18,6 +18,7 @@ __all__ = ["add_parser", "run"]
 
 
 def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
+    """Add `loopwise check` and its options to the subcommands."""
     p = subparsers.add_parser(
         "check", help=help_text, description=help_text + " Folders are searched for *.loop files.",
         epilog="Exit codes: 0 every model stable with all requirements met; 1 an instability, "
@@ -54,6 +55,9 @@ def _colour(choice: str, stream) -> bool:
 
 
 def run(args) -> int:
+    """Check the models named on the command line and write the report; the exit code
+    (`run.exit_status`: 2 a model could not be read, 1 an instability, an unmet
+    requirement or a counted warning, else 0)."""
     from ..language.source import common_root
     from ..output import guard_inputs
     from ..run import check_files, discover, exit_status

@@ -62,24 +62,28 @@ def set_value(text: str) -> tuple[str, float]:
 
 
 def add_config(p: argparse.ArgumentParser, extra: str = "") -> None:
+    """`--config FILE`: the settings file to use instead of the nearest one; `extra` ends its help."""
     p.add_argument("--config", metavar="FILE",
                    help="settings file (loopwise.toml or pyproject.toml); default: the nearest "
                         "one from the working directory up to the repository root" + extra)
 
 
 def add_jobs(p: argparse.ArgumentParser, what: str = "check models", default: int = 1) -> None:
+    """`-j N` / `--jobs N`: how many processes do `what` (0: one per CPU), `default` without it."""
     p.add_argument("-j", "--jobs", type=jobs_count, default=default, metavar="N",
                    help=f"{what} {JOBS_HELP.format(default=default)}")
 
 
 def add_output(p: argparse.ArgumentParser, help_text: str, default: str | None = None,
                metavar: str = "FILE") -> None:
+    """`-o FILE` / `--output FILE`: where to write, written atomically and never over an input."""
     p.add_argument("-o", "--output", metavar=metavar, default=default,
                    help=help_text + "; written atomically, never over a model, an included "
                                     "file or the settings file")
 
 
 def add_no_progress(p: argparse.ArgumentParser) -> None:
+    """`--no-progress`: never draw a progress bar."""
     p.add_argument("--no-progress", action="store_true",
                    help="never draw a progress bar (it is drawn only on a terminal anyway)")
 
@@ -95,6 +99,7 @@ def progress_wanted(args) -> bool:
 
 
 def add_set(p: argparse.ArgumentParser) -> None:
+    """`--set NAME=VALUE` (repeatable): fix a param at a value for this run (`set_value`)."""
     p.add_argument("--set", dest="set", type=set_value, action="append", default=[], metavar="NAME=VALUE",
                    help="fix a param at a value for this run (repeatable; a unit may follow the number, "
                         "e.g. --set Td=200us); an unknown name is an error, a value outside the "
@@ -102,6 +107,8 @@ def add_set(p: argparse.ArgumentParser) -> None:
 
 
 def add_fail_on_warnings(p: argparse.ArgumentParser, what: str = "a model has warnings") -> None:
+    """`--fail-on-warnings` / `--no-fail-on-warnings`: exit 1 when `what`; None when not given
+    (then the settings file decides)."""
     p.add_argument("--fail-on-warnings", action=argparse.BooleanOptionalAction, default=None,
                    help=f"exit 1 when {what} (overrides the settings file)")
 

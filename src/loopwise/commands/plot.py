@@ -18,6 +18,7 @@ SUFFIXES = (".svg", ".png", ".pdf")
 
 
 def add_parser(subparsers, help_text: str):
+    """Add `loopwise plot` and its options to the subcommands."""
     p = subparsers.add_parser(
         "plot", help=help_text,
         description=help_text + " Figures are drawn from the same samples the check used.",
@@ -90,6 +91,8 @@ def _select(model, name: str | None, file: str):
 
 
 def run(args) -> int:
+    """Check one model and draw the chosen views of its breaks, each to its own file;
+    0 when every figure is written, 2 when the model cannot be read."""
     from ..output import guard_output, protected_inputs
     from ..progress import progress_bar
 

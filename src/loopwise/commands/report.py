@@ -17,6 +17,7 @@ __all__ = ["add_parser", "run"]
 
 
 def add_parser(subparsers, help_text: str):
+    """Add `loopwise report` and its options to the subcommands."""
     p = subparsers.add_parser(
         "report", help=help_text,
         description=help_text + " Folders are searched for *.loop files. The page has no "
@@ -62,6 +63,8 @@ def _sweep_sections(args, files, settings, result) -> tuple[dict, object | None]
 
 
 def run(args) -> int:
+    """Check the models (and, with `--sweep`, sweep them) and write the HTML report; the
+    exit code is check's (`run.exit_status`), or the sweep's when that is worse."""
     from ..language.source import common_root
     from ..output import emit, guard_inputs
     from ..progress import progress_bar

@@ -18,6 +18,7 @@ __all__ = ["add_parser", "run"]
 
 
 def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
+    """Add `loopwise sweep` and its options to the subcommands."""
     p = subparsers.add_parser(
         "sweep", help=help_text,
         description=help_text + " Every corner of the box (all of them up to 8 ranged params), a "
@@ -43,6 +44,10 @@ def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
 
 
 def run(args) -> int:
+    """Sweep the models named on the command line and write the report; the exit code
+    (`SweepRun.exit_status`: 2 a model or a plant could not be read, 1 a plant
+    unstable somewhere, a requirement not met at the worst plant found or a counted
+    warning, else 0)."""
     from ..language.source import common_root
     from ..output import guard_inputs
     from ..run import discover

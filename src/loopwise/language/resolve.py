@@ -322,6 +322,8 @@ class Parsed:
     root: Path | None = None  # where includes must stay (None: `source.include_root` of the file)
 
     def with_sources(self, model: Model) -> "Parsed":
+        """This parsed model with the included files' trees a resolution read (`model.sources`),
+        so that later resolutions need neither the disk nor the parser."""
         return replace(self, sources=dict(model.sources))
 
 

@@ -57,6 +57,7 @@ def _state(stable: bool, marginal: bool) -> str:
 
 
 def verdict_words(v: VerdictChange) -> str:
+    """`stable -> UNSTABLE (Z 0 -> 2, worse)`: a verdict change in words."""
     return (f"{_state(v.stable_before, v.marginal_before)} -> "
             f"{_state(v.stable_after, v.marginal_after)} "
             f"(Z {v.z_before} -> {v.z_after}, {v.direction})")
@@ -70,6 +71,9 @@ def _limit(r: RequirementChange, side: str) -> str:
 
 
 def requirement_words(r: RequirementChange) -> str:
+    """`phase_margin >= 45deg: met -> NOT MET (stopped being met; value 52.24 deg -> 37.01 deg)`:
+    one requirement's change, its limit as the model wrote it (and the old one when it
+    changed)."""
     side = "after" if r.limit_after is not None else "before"
     head = f"{r.metric} {r.op} {_limit(r, side)}"
     if r.limit_before is not None and r.limit_after is not None and (
@@ -85,6 +89,8 @@ def requirement_words(r: RequirementChange) -> str:
 
 
 def policy_words(p: Regression) -> str:
+    """The regression policy in one sentence: the loss thresholds, where a loss matters, and
+    the verdict and requirement rules that are on."""
     parts = [f"phase margin loss > {p.phase_margin_loss_deg:g} deg",
              f"gain margin loss > {p.gain_margin_loss_db:g} dB (up or down)",
              f"delay margin loss > {p.delay_margin_loss_fraction:.0%}"]
@@ -103,6 +109,7 @@ def policy_words(p: Regression) -> str:
 
 
 def summary_words(result: DiffResult) -> str:
+    """`2 model(s): 1 changed, 1 unchanged; 1 regression`: the whole diff in numbers."""
     order = ("changed", "added", "removed", "errors appeared", "errors disappeared",
              "still unreadable", "unchanged")
     counts = [f"{result.count(s)} {s}" for s in order if result.count(s)]
@@ -174,6 +181,8 @@ def _model_lines(m: ModelDiff) -> list[str]:
 
 
 def render(result: DiffResult) -> str:
+    """A diff as aligned plain text: the sides, the policy and the settings, each changed
+    model with its breaks' changes, the totals and every regression, then the caution."""
     out = [f"loopwise diff: {one_line(result.old_label)} -> {one_line(result.new_label)}",
            f"regression: {policy_words(result.policy)}"]
     if result.settings:

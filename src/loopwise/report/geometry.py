@@ -48,9 +48,13 @@ class Ring:
 
     @property
     def outer(self) -> float:
+        """The ring's outer radius on the page: where |L| = infinity is drawn."""
         return self.inner + self.width
 
     def compress(self, z: np.ndarray) -> np.ndarray:
+        """Where points z of the true plane are drawn: unchanged inside the ring's inner
+        radius, beyond it at `inner + width d/(1 + d)` with d the decades past `inner`,
+        at the same angle (infinity on the outer edge, 0 stays 0)."""
         z = np.asarray(z, dtype=complex)
         r = np.abs(z)
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
@@ -75,6 +79,7 @@ class Ring:
         return float(np.abs(self.compress(np.array([r], dtype=complex)))[0])
 
     def note(self) -> str:
+        """The map in words, for the figure's note (`|L| > 2: radius drawn as ...`)."""
         return (f"|L| > {self.inner:g}: radius drawn as {self.inner:g} + {self.width:g}"
                 f"\u00b7d/(1+d), d = log10(|L|/{self.inner:g})")
 
@@ -308,6 +313,7 @@ class Zoom:
 
     @property
     def limits(self) -> tuple[float, float, float, float]:
+        """(x min, x max, y min, y max) of the inset: the square around -1."""
         return (-1.0 - self.half, -1.0 + self.half, -self.half, self.half)
 
 

@@ -84,6 +84,7 @@ def _e(text) -> str:
 
 
 def figure_count(run) -> int:
+    """How many figures the page draws: three views for each break with a recorded response."""
     return sum(len(VIEWS) for m in run.models for b in m.breaks if b.response is not None)
 
 

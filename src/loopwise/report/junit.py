@@ -19,6 +19,8 @@ __all__ = ["render", "testcase", "library_case", "failure", "error_suite", "sett
 
 
 def testcase(suite, classname: str, name: str, file: str, line: int | None = None):
+    """A `testcase` in `suite` for `name` of `classname` (the model), at `file` and, when
+    given, `line`; every attribute made safe for XML."""
     attrs = {"classname": xml_text(classname), "name": xml_text(name), "file": xml_text(file)}
     if line:
         attrs["line"] = str(line)
@@ -33,6 +35,8 @@ def library_case(suite, model: str, file: str) -> None:
 
 
 def failure(case, kind: str, message: str, details: list[str]) -> None:
+    """Mark `case` failed: `kind` (instability, requirement, warning), a one-line `message`,
+    and the detail lines as its text."""
     el = ET.SubElement(case, "failure", {"type": kind, "message": xml_text(message)})
     el.text = xml_text("\n".join(details))
 
@@ -93,6 +97,8 @@ def _model_suite(root, s: ModelSummary, fail_on_warnings: bool) -> None:
 
 
 def error_suite(root, file: str, errors) -> None:
+    """A suite for a file that could not be read: one testcase with an `error` per file,
+    its text every located error with source line and caret."""
     suite = ET.SubElement(root, "testsuite", {"name": xml_text(file), "tests": "1",
                                               "failures": "0", "errors": "1", "skipped": "0"})
     case = testcase(suite, file, "read model", file, errors[0].span.line or None)
@@ -133,6 +139,8 @@ def finish(root, run, fail_on_warnings: bool = False) -> str:
 
 
 def render(run, fail_on_warnings: bool = False) -> str:
+    """A check's results as JUnit XML: a suite per model file (a testcase for the closed
+    loop and one per break), a suite for the run's own warnings, one per unreadable file."""
     root = ET.Element("testsuites", {"name": "loopwise check"})
     for m in run.models:
         _model_suite(root, summarise(m, fail_on_warnings), fail_on_warnings)

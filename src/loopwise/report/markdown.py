@@ -67,6 +67,9 @@ def _details(s: ModelSummary) -> list[str]:
 
 
 def render(run, fail_on_warnings: bool = False) -> str:
+    """A check's results as Markdown for a pull-request comment: a heading that says what
+    the exit code says, the tally, a row per model, each model's breaks, unmet
+    requirements and warnings, the settings' warnings, unreadable files, the caution."""
     t = tally(run, fail_on_warnings)
     summaries = [summarise(m, fail_on_warnings) for m in run.models]
     failing = t.failed + t.unreadable

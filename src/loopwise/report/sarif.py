@@ -89,6 +89,9 @@ class SarifLog:
     def add(self, code: str, message: str, file: str, line: int = 0, col: int = 0,
             end_col: int | None = None, level: str | None = None, kind: str = "fail",
             waived: str | None = None, properties: dict | None = None) -> None:
+        """One result: rule `code` (registered, so its rule is listed), the message, where (file,
+        line, columns; none given: the file itself), its level (default: the code's
+        severity) and kind; `waived` makes it a suppressed result with that justification."""
         index = self.rules.setdefault(code, len(self.rules))
         result: dict = {"ruleId": code, "ruleIndex": index, "kind": kind,
                         "level": level or _LEVEL[CODES[code].severity],
@@ -101,11 +104,15 @@ class SarifLog:
         self.results.append(result)
 
     def finding(self, f, waived: str | None = None, prefix: str = "") -> None:
+        """A located `Finding` as a result at its own place, its hint in the message after
+        `prefix`; `waived` as for `add`."""
         message = prefix + f.message + (f" (hint: {f.hint})" if f.hint else "")
         self.add(f.code, message, f.span.file, f.span.line, f.span.col, f.span.end_col,
                  level=_LEVEL.get(f.severity, "error"), waived=waived)
 
     def log(self, exit_code: int, properties: dict) -> dict:
+        """The whole log (a dict): the tool with the rules the results use, the repository
+        root, the invocation's `exit_code`, the results, and `properties` with the caution."""
         rules = []
         for code in self.rules:
             entry = CODES[code]
@@ -159,6 +166,7 @@ def check_log(run, fail_on_warnings: bool = False, root: Path | None = None) -> 
 
 
 def render_check(run, fail_on_warnings: bool = False) -> str:
+    """A check's results as a SARIF 2.1.0 log (`check_log`), as JSON text."""
     return json_dumps(check_log(run, fail_on_warnings))
 
 
@@ -222,6 +230,7 @@ def diff_log(result, root: Path | None = None) -> dict:
 
 
 def render_diff(result) -> str:
+    """A diff as a SARIF 2.1.0 log (`diff_log`), as JSON text."""
     return json_dumps(diff_log(result))
 
 
@@ -265,4 +274,5 @@ def sweep_log(run, fail_on_warnings: bool = False, root: Path | None = None) -> 
 
 
 def render_sweep(run, fail_on_warnings: bool = False) -> str:
+    """A sweep's results as a SARIF 2.1.0 log (`sweep_log`), as JSON text."""
     return json_dumps(sweep_log(run, fail_on_warnings))

@@ -39,6 +39,8 @@ def break_status(b) -> str:
 
 
 def model_status(m) -> str:
+    """A model's verdict word: LIBRARY, STABLE, MARGINAL (a closed-loop pole on the
+    imaginary axis) or UNSTABLE."""
     if is_library(m):
         return "LIBRARY"
     if m.stable:
@@ -112,6 +114,7 @@ def tally(run, fail_on_warnings: bool = False) -> Tally:
 
 
 def count_met(b) -> tuple[int, int]:
+    """(requirements met, requirements) of a break."""
     return sum(r.met for r in b.requirements), len(b.requirements)
 
 
@@ -225,6 +228,7 @@ BREAK_COLUMNS: tuple[tuple[str, Callable, bool], ...] = (
 
 
 def break_row(b) -> list[str]:
+    """A break's cells of the table, in `BREAK_COLUMNS` order, as every format shows them."""
     return [cell(b) for _, cell, _ in BREAK_COLUMNS]
 
 
@@ -264,6 +268,9 @@ class Note:
 
 @dataclass(frozen=True)
 class RequirementLine:
+    """One requirement of a model as the formats list it: its break, where it is written,
+    the requirement with its value in words, and whether it is met."""
+
     break_name: str
     place: str          # file:line of the `require` statement (or the settings file)
     text: str           # `requirement_text`, with the reason when it has no value
@@ -273,6 +280,9 @@ class RequirementLine:
 
 @dataclass(frozen=True)
 class BreakSummary:
+    """One break as the formats show it: its verdict word, its table cells, how many of its
+    requirements are met, and what would stabilise it when it is unstable."""
+
     name: str
     at: str
     line: int
@@ -286,6 +296,9 @@ class BreakSummary:
 
 @dataclass(frozen=True)
 class ModelSummary:
+    """One model as every format shows it (`summarise`): its verdict in words, whether it
+    passes, its breaks, requirements and the warnings and notes to show."""
+
     file: str
     model: str
     status: str                 # STABLE | UNSTABLE | MARGINAL | LIBRARY
@@ -300,18 +313,22 @@ class ModelSummary:
 
     @property
     def verdict(self) -> str:
+        """PASS or FAIL, by the exit rule (`model_passes`)."""
         return "PASS" if self.passes else "FAIL"
 
     @property
     def is_library(self) -> bool:
+        """Whether the model is a library of params and blocks (nothing to check on its own)."""
         return self.status == "LIBRARY"
 
     @property
     def unmet(self) -> tuple[RequirementLine, ...]:
+        """The requirements that are not met."""
         return tuple(r for r in self.requirements if not r.met)
 
     @property
     def requirements_words(self) -> str:
+        """`requirements 4/5 met`, or `no requirements`."""
         return f"requirements {self.met}/{self.total} met" if self.total else "no requirements"
 
     @property

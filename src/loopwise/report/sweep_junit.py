@@ -56,6 +56,9 @@ def _model_suite(root, m, fail_on_warnings: bool) -> None:
 
 
 def render(run, fail_on_warnings: bool = False) -> str:
+    """A sweep's results as JUnit XML: a suite per model with a testcase per break over the
+    box (a library's one skipped case), then check's suites for the run's own warnings
+    and the unreadable files (`junit.finish`)."""
     root = ET.Element("testsuites", {"name": "loopwise sweep"})
     for m in run.models:
         _model_suite(root, m, fail_on_warnings)

@@ -49,6 +49,9 @@ def _model(m, fail_on_warnings: bool) -> list[str]:
 
 
 def render(run, fail_on_warnings: bool = False) -> str:
+    """A sweep's results as Markdown for a pull-request comment: a heading that says what
+    the exit code says, the tally, each model's box, evidence and worst margins, the
+    settings' warnings and errors, the caution."""
     t = tally(run, fail_on_warnings)
     if t.passes:
         head = "every model passes over its box"

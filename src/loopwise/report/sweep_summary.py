@@ -57,6 +57,7 @@ def worst_rows(b) -> list[tuple[str, str, str, str]]:
 
 
 def verdict(m, fail_on_warnings: bool = False) -> str:
+    """PASS or FAIL for a model over its box, by the sweep's exit rule (`SweepModelResult.passes`)."""
     return "PASS" if m.passes(fail_on_warnings) else "FAIL"
 
 
@@ -76,6 +77,8 @@ def verdict_words(m) -> str:
 
 
 def evidence_words(m) -> str:
+    """What was sampled: `1 nominal + 16 corners + 300 space-filling + ... = N plants`, with
+    the seed and the design's spacing."""
     c = m.counts
     parts = [f"{c.nominal} nominal", f"{c.corners} corners", f"{c.space_filling} space-filling",
              f"{c.local_search} local-search", f"{c.boundary} boundary"]
@@ -83,6 +86,8 @@ def evidence_words(m) -> str:
 
 
 def params_words(m) -> str:
+    """The box in words: each swept param's range and nominal value, and the params set
+    with `--set`."""
     swept = "; ".join(f"{p.name} in [{p.lo:.4g}, {p.hi:.4g}] (nominal {p.nominal:.4g})" for p in m.params)
     fixed = ", ".join(f"{n}={v:.4g}" for n, v in m.fixed)
     return f"swept: {swept or 'nothing (no ranged params)'}" + (f"; set: {fixed}" if fixed else "")
@@ -96,6 +101,7 @@ def requirement_words(m, b, r) -> str:
 
 
 def boundary_words(k) -> str:
+    """Where stability is lost along one segment: the last stable and the first unstable plant."""
     return f"stable at {format_at(k.stable_at)}; unstable at {format_at(k.unstable_at)}"
 
 
@@ -105,6 +111,7 @@ def unstable_where(b) -> str:
 
 
 def unstable_words(b) -> str:
+    """`UNSTABLE at 12 of 300 plants, first at K=1.7, T=1`."""
     return f"UNSTABLE {unstable_where(b)}"
 
 
@@ -158,4 +165,5 @@ class Tally:
 
 
 def tally(run, fail_on_warnings: bool = False) -> Tally:
+    """The `Tally` of a sweep's run under the same rules as its exit code."""
     return Tally(run, fail_on_warnings)

@@ -53,6 +53,9 @@ def _model_block(m, fail_on_warnings: bool) -> list[str]:
 
 
 def render(run, fail_on_warnings: bool = False) -> str:
+    """A sweep's results as plain text: per model its verdict over the box, what was
+    sampled and each break's worst margins and where; the run's warnings and errors,
+    the tally, the caution."""
     out: list[str] = []
     for m in run.models:
         out += _model_block(m, fail_on_warnings)

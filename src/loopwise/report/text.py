@@ -68,6 +68,10 @@ def _model_block(s: ModelSummary, colour: bool) -> list[str]:
 
 
 def render(run, colour: bool = False, fail_on_warnings: bool = False) -> str:
+    """A check's results as aligned plain text: per model a verdict line and a table of
+    its breaks, unmet requirements, what would stabilise an unstable loop and the
+    warnings; the run's warnings, unreadable files, the tally and the caution.
+    `colour` adds terminal colours on top of the words."""
     out: list[str] = []
     for m in run.models:
         out += _model_block(summarise(m, fail_on_warnings), colour)

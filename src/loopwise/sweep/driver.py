@@ -23,6 +23,8 @@ __all__ = ["DEFAULT_SAMPLES", "SweepOptions", "prepare_sweep", "sweep_model", "s
 
 @dataclass(frozen=True)
 class SweepOptions:
+    """How a sweep samples the box: the size of the space-filling set and the design's seed."""
+
     samples: int = DEFAULT_SAMPLES
     seed: int = 0
 
