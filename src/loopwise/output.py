@@ -5,8 +5,8 @@ The rules it keeps, for every command and every format:
 - **Never over an input.** An output path that is (by file identity, so also
   through a symbolic or hard link) a model being read, a file a model `use`s,
   or the settings file is refused with a usage error (exit 2) before anything
-  is written. Commands call `guard_output` before the long work, so the mistake
-  costs nothing, and `write_output` checks again.
+  is written. Commands call `guard_inputs` (or `guard_output`) before the long
+  work, so the mistake costs nothing, and the writer checks again.
 - **Atomic.** The text goes to a temporary file in the same folder, is flushed
   to disk, and is renamed over the target: a write that fails half-way (disk
   full, a file size limit) leaves the previous file as it was and no temporary

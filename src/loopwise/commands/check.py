@@ -1,8 +1,11 @@
 """`loopwise check PATH...`: the verdict and margins of every break, in a format
-for people (text, markdown) or machines (json, junit).
+for people (text, markdown) or machines (json, junit, sarif): the choices come
+from the reporter registry (`loopwise.report.formats("check")`).
 
-This module is imported for `loopwise check --help`, so it imports nothing
-heavy at module level: the runner and the reporters load inside `run`.
+Thin: the shared options and settings (`commands/options.py`), the runner
+(`loopwise.run.check_files`), a reporter written by `options.write_report`. This
+module is imported for `loopwise check --help`, so it imports nothing heavy at
+module level: the runner and the reporters load inside `run`.
 """
 from __future__ import annotations
 

@@ -1,5 +1,7 @@
 """Plants for the report's Nyquist band: a few analysed plants checked again in full,
-with their responses, so that their curves can be drawn around the nominal one.
+with their responses, so that their curves can be drawn around the nominal one. They
+resolve from the parsed model the sweep kept (`SweepModelResult.parsed`): nothing is
+read or parsed again, and the nominal point is the sweep's own (`.nominal`).
 
 Only the report needs this (in the parent process, after the sweep): the sweep itself
 never moves response arrays (see evaluate.py).
