@@ -21,6 +21,7 @@ def _kind(value) -> str:
 
 
 def check_indent(indent) -> str:
+    """The contour's side of poles on the imaginary axis: `"right"` or `"left"`, exactly."""
     if not isinstance(indent, str):
         raise TypeError(f"indent must be 'right' or 'left' (a str), not {_kind(indent)}")
     if indent not in INDENTS:
@@ -29,6 +30,7 @@ def check_indent(indent) -> str:
 
 
 def model_text(text) -> str:
+    """A model given as text (`check_text`): a str; bytes and paths are refused with what to do."""
     if isinstance(text, str):
         return text
     if isinstance(text, (bytes, bytearray)):
@@ -49,6 +51,7 @@ def file_label(file) -> str:
 
 
 def model_path(path, what: str = "path") -> str:
+    """A path to a model (or to `what`): a non-empty str or `os.PathLike`, returned as a str."""
     if isinstance(path, os.PathLike):
         path = os.fspath(path)
     if isinstance(path, (bytes, bytearray)):
@@ -76,6 +79,7 @@ def model_paths(paths) -> tuple[str, ...]:
 
 
 def settings_or_none(settings):
+    """A `loopwise.settings.Settings` or None (the defaults), as given."""
     from .settings import Settings
 
     if settings is not None and not isinstance(settings, Settings):
@@ -85,6 +89,7 @@ def settings_or_none(settings):
 
 
 def jobs_count(jobs) -> int:
+    """A number of processes: a whole number, 0 meaning one per CPU."""
     if isinstance(jobs, bool) or not isinstance(jobs, int):
         raise TypeError(f"jobs must be a whole number (0: one per CPU), not {_kind(jobs)}")
     if jobs < 0:
@@ -93,12 +98,14 @@ def jobs_count(jobs) -> int:
 
 
 def flag(value, name: str) -> bool:
+    """A True or False option named `name` (no other value stands for one)."""
     if not isinstance(value, bool):
         raise TypeError(f"{name} must be True or False, not {_kind(value)}")
     return value
 
 
 def loop_transfer(L):
+    """A loop transfer function for `analyse_loop` / `nyquist_verdict`: a `loopwise.transfer.Transfer`."""
     from .transfer import Transfer
 
     if not isinstance(L, Transfer):

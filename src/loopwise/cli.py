@@ -76,6 +76,11 @@ def _tolerant_stdout() -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """Run `loopwise ARGS` (default: the process's arguments) and return the exit code.
+
+    0 all good; 1 an instability, an unmet requirement or a regression; 2 input that
+    could not be read or a usage mistake (one line on stderr, never a traceback);
+    130 interrupted; 143 terminated."""
     argv = list(sys.argv[1:] if argv is None else argv)
     _tolerant_stdout()
     command = next((a for a in argv if not a.startswith("-")), None)
@@ -128,4 +133,5 @@ def _exiting() -> None:
 
 
 def entry() -> None:
+    """The `loopwise` console script: exit with `main()`'s code."""
     raise SystemExit(main())

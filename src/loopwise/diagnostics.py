@@ -13,11 +13,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["Code", "CODES", "lookup", "DOCS"]
-
-#: the page that documents every code (each code has a row in its table)
-DOCS = "docs/language.md#diagnostics"
-
+__all__ = ["Code", "CODES"]
 
 @dataclass(frozen=True)
 class Code:
@@ -163,7 +159,3 @@ CODES: dict[str, Code] = {
     code: Code(code, _severity(code), summary, section, old) for code, summary, section, old in _TABLE
 }
 
-
-def lookup(code: str) -> Code:
-    """The registry entry of a code (KeyError for a code that is not registered)."""
-    return CODES[code]

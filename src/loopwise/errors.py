@@ -28,8 +28,8 @@ _UNPRINTABLE_NAME = re.compile("[\ud800-\udfff]")
 
 def display_name(file: str) -> str:
     """A file name that can always be printed and written as UTF-8: bytes of the name
-    that were not UTF-8 (kept as lone surrogates) shown as U+FFFD, as the output
-    writer shows them (`loopwise.output.display_safe`)."""
+    that were not UTF-8 (kept as lone surrogates) shown as U+FFFD. The output
+    writer (`loopwise.output`) passes everything it writes through it."""
     return _UNPRINTABLE_NAME.sub("\ufffd", file)
 
 
@@ -77,6 +77,7 @@ class ModelError(LoopwiseError):
 
     @property
     def errors(self) -> list["ModelError"]:
+        """Every located error this one stands for: itself alone."""
         return [self]
 
     @property
@@ -85,6 +86,7 @@ class ModelError(LoopwiseError):
         return tuple(e.as_finding() for e in self.errors)
 
     def as_finding(self) -> "Finding":
+        """This error as a located `Finding` (severity `error`), for the reporters."""
         return Finding("error", self.code, self.message, self.span, self.hint)
 
 
@@ -105,6 +107,7 @@ class ModelErrors(ModelError):
 
     @property
     def errors(self) -> list[ModelError]:
+        """Every located error found, in the order found (causes before follow-ups)."""
         return list(self._errors)
 
     def __str__(self) -> str:
@@ -142,6 +145,7 @@ class Finding:
         return self.severity == "warning" and self.waiver is None
 
     def to_dict(self) -> dict:
+        """The finding as the JSON contracts write it (docs/results.md, *finding*)."""
         return {
             "severity": self.severity,
             "code": self.code,

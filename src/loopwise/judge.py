@@ -52,6 +52,10 @@ def metric_value(metric: str, m: Margins, separation: float | None) -> tuple[flo
 
 def judge(requirements: tuple[Requirement, ...], margins: Margins | None, separation: float | None,
           verdict: str) -> tuple[RequirementResult, ...]:
+    """Each requirement of a break judged against its margins (None: the closed loop is not
+    stable, `verdict` says how, and no requirement is met) and its separation from the
+    break around it; one `RequirementResult` each, in order, with the value in the
+    metric's own unit and a note where there is no value."""
     out = []
     for req in requirements:
         if margins is None:

@@ -5,8 +5,8 @@ The rules it keeps, for every command and every format:
 - **Never over an input.** An output path that is (by file identity, so also
   through a symbolic or hard link) a model being read, a file a model `use`s,
   or the settings file is refused with a usage error (exit 2) before anything
-  is written. Commands call `guard_output` before the long work, so the mistake
-  costs nothing, and `write_output` checks again.
+  is written. Commands call `guard_inputs` (or `guard_output`) before the long
+  work, so the mistake costs nothing, and the writer checks again.
 - **Atomic.** The text goes to a temporary file in the same folder, is flushed
   to disk, and is renamed over the target: a write that fails half-way (disk
   full, a file size limit) leaves the previous file as it was and no temporary
@@ -21,7 +21,6 @@ The rules it keeps, for every command and every format:
 from __future__ import annotations
 
 import os
-import re
 import stat
 import sys
 import tempfile
@@ -29,19 +28,10 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import Iterable, Iterator
 
-from .errors import UsageError
+from .errors import UsageError, display_name
 
-__all__ = ["Protected", "protected_inputs", "guard_output", "write_output", "atomic_file",
-           "emit", "display_safe"]
-
-#: lone surrogates: the bytes of a file name that were not UTF-8 (PEP 383)
-_UNDECODED = re.compile("[\udc80-\udcff]")
-
-
-def display_safe(text: str) -> str:
-    """`text` with undecodable file-name bytes shown as U+FFFD (valid UTF-8 again)."""
-    return _UNDECODED.sub("\ufffd", text)
-
+__all__ = ["Protected", "protected_inputs", "guard_inputs", "guard_output", "write_output", "atomic_file",
+           "emit"]
 
 def _identity(path) -> tuple[int, int] | None:
     try:
@@ -59,6 +49,8 @@ class Protected:
         self._what: dict[tuple[int, int], str] = {}
 
     def add(self, path, what: str) -> None:
+        """Protect the file at `path` (by identity: another name for it is protected too);
+        `what` says what it is. A path that does not exist protects nothing."""
         key = _identity(path)
         if key is not None:
             self._what.setdefault(key, what)
@@ -87,9 +79,20 @@ def protected_inputs(models: Iterable, settings=None) -> Protected:
     return guard
 
 
+def guard_inputs(output, models: Iterable, settings=None) -> Protected | None:
+    """For a command about to write `output` (None: stdout): the inputs it must never
+    replace (`protected_inputs`), checked now (`guard_output`), before the long work
+    rather than after it. None when there is no output file."""
+    if not output:
+        return None
+    protected = protected_inputs(models, settings)
+    guard_output(output, protected)
+    return protected
+
+
 def guard_output(path, protected: Protected | None = None) -> None:
     """Refuse (UsageError) an output over an input or in a folder that does not exist."""
-    where = display_safe(os.fspath(path))
+    where = display_name(os.fspath(path))
     if protected is not None:
         reason = protected.reason(path)
         if reason:
@@ -97,7 +100,7 @@ def guard_output(path, protected: Protected | None = None) -> None:
                              "choose another output file")
     folder = Path(os.path.realpath(path)).parent
     if not folder.is_dir():
-        raise UsageError(f"cannot write {where}: the folder {display_safe(str(Path(path).parent))} "
+        raise UsageError(f"cannot write {where}: the folder {display_name(str(Path(path).parent))} "
                          "does not exist")
 
 
@@ -131,14 +134,14 @@ def atomic_file(path, protected: Protected | None = None) -> Iterator[str]:
         try:
             yield target
         except OSError as exc:
-            raise UsageError(f"cannot write {display_safe(raw)}: {exc.strerror or exc}") from None
+            raise UsageError(f"cannot write {display_name(raw)}: {exc.strerror or exc}") from None
         return
     folder, name = os.path.split(target)
     try:
         fd, tmp = tempfile.mkstemp(dir=folder, prefix=f".{name}.",
                                    suffix=".tmp" + Path(name).suffix)
     except OSError as exc:
-        raise UsageError(f"cannot write {display_safe(raw)}: {exc.strerror or exc}") from None
+        raise UsageError(f"cannot write {display_name(raw)}: {exc.strerror or exc}") from None
     os.close(fd)
     try:
         yield tmp
@@ -152,13 +155,13 @@ def atomic_file(path, protected: Protected | None = None) -> Iterator[str]:
         except OSError:
             pass
         if isinstance(exc, OSError):
-            raise UsageError(f"cannot write {display_safe(raw)}: {exc.strerror or exc}") from None
+            raise UsageError(f"cannot write {display_name(raw)}: {exc.strerror or exc}") from None
         raise
 
 
 def write_output(path, content: str | bytes, protected: Protected | None = None) -> None:
     """Write `content` (text is UTF-8) to `path` atomically, never over an input."""
-    data = display_safe(content).encode("utf-8") if isinstance(content, str) else content
+    data = display_name(content).encode("utf-8") if isinstance(content, str) else content
     with atomic_file(path, protected) as tmp:
         with open(tmp, "wb") as fh:
             fh.write(data)
@@ -167,7 +170,7 @@ def write_output(path, content: str | bytes, protected: Protected | None = None)
 def emit(text: str, output=None, protected: Protected | None = None) -> None:
     """The one way a command writes its result: to `output`, or to stdout."""
     if output is None:
-        sys.stdout.write(display_safe(text))
+        sys.stdout.write(display_name(text))
         sys.stdout.flush()
     else:
         write_output(output, text, protected)

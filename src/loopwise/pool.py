@@ -149,6 +149,7 @@ class Pool:
         return out
 
     def close(self) -> None:
+        """Let the workers finish and end them (the next `map` starts new ones)."""
         if self._executor is not None:
             self._executor.shutdown(wait=True)
             self._executor = None

@@ -16,7 +16,7 @@ from .errors import Finding
 __all__ = [
     "SCHEMA_VERSION", "GainCrossover", "PhaseCrossover", "DiskMargin", "Peak",
     "Margins", "RequirementResult", "LoopResponse", "HiddenMode", "BreakResult", "ModelResult",
-    "RunResult", "CAUTION", "error_to_dict", "json_number",
+    "RunResult", "CAUTION", "error_to_dict", "json_number", "LIBRARY_NOTE", "is_library",
 ]
 
 SCHEMA_VERSION = 2
@@ -25,6 +25,15 @@ CAUTION = (
     "Results describe the linear model only: an analysis aid, not a substitute for "
     "the applicable standards and a qualified engineer's review."
 )
+
+#: the analysis's note for a file of params and blocks only (brought in with `use`)
+LIBRARY_NOTE = "LW491"
+
+
+def is_library(m) -> bool:
+    """Whether a model's result (a check's or a sweep's) is that of a library of params and
+    blocks for `use`: no breaks, and the analysis's note that there is nothing to check."""
+    return not m.breaks and any(f.code == LIBRARY_NOTE for f in m.findings)
 
 
 def json_number(x: float | None) -> float | None:
@@ -50,6 +59,7 @@ class GainCrossover:
     phase_margin_deg: float
 
     def to_dict(self) -> dict:
+        """The crossover as the results contract writes it."""
         return {"freq": json_number(self.freq), "lag_deg": json_number(self.lag_deg),
                 "phase_margin_deg": json_number(self.phase_margin_deg)}
 
@@ -62,6 +72,7 @@ class PhaseCrossover:
     gain_margin_db: float
 
     def to_dict(self) -> dict:
+        """The crossover as the results contract writes it."""
         return {"freq": json_number(self.freq), "gain_margin_db": json_number(self.gain_margin_db)}
 
 
@@ -75,20 +86,25 @@ class DiskMargin:
     freq: float
 
     def to_dict(self) -> dict:
+        """The disk margin as the results contract writes it."""
         return {"alpha": json_number(self.alpha), "gain_db": [json_number(self.gain_db[0]), json_number(self.gain_db[1])],
                 "phase_deg": json_number(self.phase_deg), "freq": json_number(self.freq)}
 
 
 @dataclass(frozen=True)
 class Peak:
+    """The peak of a closed-loop magnitude (|S| or |T|) and the frequency where it lies."""
+
     value: float
     freq: float
 
     @property
     def db(self) -> float:
+        """The peak in dB (20 log10 of the value)."""
         return 20.0 * math.log10(self.value) if self.value > 0 else -math.inf
 
     def to_dict(self) -> dict:
+        """The peak as the results contract writes it (value, dB and frequency)."""
         return {"value": json_number(self.value), "db": json_number(self.db), "freq": json_number(self.freq)}
 
 
@@ -118,6 +134,10 @@ class Margins:
 
 @dataclass(frozen=True)
 class RequirementResult:
+    """One requirement judged at one break: the metric, operator and limit as written,
+    the value in the metric's own unit (None: it has none, `note` says why), whether it
+    is met, and where it is written (`file` empty: in the model itself)."""
+
     metric: str
     op: str
     limit: float
@@ -130,6 +150,7 @@ class RequirementResult:
     limit_text: str = ""  # the limit as written in the model (`6dB`, `0.5Hz`); "" for an expression
 
     def to_dict(self) -> dict:
+        """The requirement as the results contract writes it."""
         return {"metric": self.metric, "op": self.op, "limit": json_number(self.limit),
                 "limit_text": self.limit_text, "value": json_number(self.value), "met": bool(self.met),
                 "line": self.line}
@@ -154,10 +175,12 @@ class LoopResponse:
 
     @property
     def freq(self) -> np.ndarray:
+        """The frequencies (rad/s) of the samples on the imaginary axis."""
         return self.s[self.on_axis].imag
 
     @property
     def axis_L(self) -> np.ndarray:
+        """L at the samples on the imaginary axis (the Bode views' data)."""
         return self.L[self.on_axis]
 
 
@@ -182,6 +205,7 @@ class HiddenMode:
 
     @property
     def on_axis(self) -> bool:
+        """Whether the hidden pole lies on the imaginary axis."""
         return self.pole.real == 0.0
 
     @property
@@ -192,6 +216,7 @@ class HiddenMode:
         return self.multiplicity * (2 if self.pole.imag > 0 else 1)
 
     def to_dict(self) -> dict:
+        """The hidden mode as the results contract writes it."""
         return {"real": json_number(self.pole.real), "imag": json_number(self.pole.imag), "freq": json_number(abs(self.pole.imag)),
                 "on_axis": self.on_axis, "multiplicity": int(self.multiplicity), "code": self.code,
                 "pole_blocks": list(self.pole_blocks), "zero_blocks": list(self.zero_blocks),
@@ -200,6 +225,11 @@ class HiddenMode:
 
 @dataclass(frozen=True, eq=False)
 class BreakResult:
+    """The verdict and margins at one break: P (open-loop RHP poles), N (clockwise
+    encirclements of -1), Z = N + P, whether a closed-loop pole sits on the axis, the
+    margins (None: the closed loop is not stable), the requirements judged, the
+    warnings at its `break` line, and the samples of L the plots draw."""
+
     name: str
     at: str
     line: int
@@ -222,6 +252,7 @@ class BreakResult:
 
     @property
     def requirements_met(self) -> bool:
+        """Whether every requirement of the break is met."""
         return all(r.met for r in self.requirements)
 
     @property
@@ -230,6 +261,7 @@ class BreakResult:
         return tuple(w for w in self.warnings if w.counts)
 
     def to_dict(self) -> dict:
+        """The break as the results contract writes it (docs/results.md, *break*)."""
         m = self.margins
         d = {
             "name": self.name, "at": self.at, "line": self.line, "stable": bool(self.stable),
@@ -260,6 +292,9 @@ class BreakResult:
 
 @dataclass(frozen=True, eq=False)
 class ModelResult:
+    """One model checked: whether its closed loop is stable and how many poles lie in the
+    right half plane, every break, its findings and the modes cancellations hide."""
+
     file: str
     model: str
     stable: bool
@@ -270,10 +305,12 @@ class ModelResult:
 
     @property
     def requirements_met(self) -> bool:
+        """Whether every requirement of every break is met."""
         return all(b.requirements_met for b in self.breaks)
 
     @property
     def ok(self) -> bool:
+        """Stable with every requirement met: the model passes (warnings aside)."""
         return self.stable and self.requirements_met
 
     @property
@@ -287,6 +324,7 @@ class ModelResult:
         return tuple(f for f in self.every_finding if f.counts)
 
     def to_dict(self) -> dict:
+        """The model as the results contract writes it (docs/results.md, *model*)."""
         return {
             "file": self.file, "model": self.model, "stable": bool(self.stable),
             "closed_loop_rhp_poles": int(self.closed_loop_rhp_poles),
@@ -314,11 +352,14 @@ class RunResult:
 
     @property
     def exit_code(self) -> int:
+        """The exit code without fail_on_warnings: 2 a model could not be read, 1 a model
+        does not pass, else 0 (`run.exit_status` adds the warnings)."""
         if self.errors:
             return 2
         return 0 if all(m.ok for m in self.models) else 1
 
     def to_dict(self) -> dict:
+        """The run as its JSON contract (`"schema": 2`, docs/results.md)."""
         return {
             "schema": SCHEMA_VERSION, "tool": "loopwise", "version": self.version,
             "caution": CAUTION,

@@ -24,7 +24,7 @@ from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
 
-from .errors import UsageError
+from .errors import UsageError, display_name, printable
 
 __all__ = ["WORKING_TREE", "TreeEntry", "repository_root", "commit_of", "tree_entries",
            "safe_relative", "materialise", "working_tree_models", "settings_at"]
@@ -36,6 +36,8 @@ _SYMLINK = b"120000"
 
 @dataclass(frozen=True)
 class TreeEntry:
+    """One regular file of a commit's tree: its path and its blob."""
+
     path: str    # slash-separated, relative to the repository root
     object: str  # the blob's id
 
@@ -82,8 +84,9 @@ def safe_relative(path: str) -> bool:
     return all(part not in ("", ".", "..") and part.lower() != ".git" for part in path.split("/"))
 
 
-def _printable(path: str) -> str:
-    return "".join(c if c.isprintable() else "\ufffd" for c in path)
+def _shown(path: str) -> str:
+    """A tree path safe to quote in a message (the one sanitiser, `errors.printable`)."""
+    return printable(display_name(path), keep="")
 
 
 @lru_cache(maxsize=8)
@@ -101,7 +104,7 @@ def tree_entries(root: Path, commit: str) -> tuple[TreeEntry, ...]:
         mode, kind, obj = meta.split()
         path = os.fsdecode(name)
         if not safe_relative(path):
-            raise UsageError(f"revision {commit[:12]} holds an unsafe path {_printable(path)!r} "
+            raise UsageError(f"revision {commit[:12]} holds an unsafe path {_shown(path)!r} "
                              "(absolute, or with an empty, '.', '..' or '.git' part); "
                              "refusing to read it")
         if kind == b"blob" and mode != _SYMLINK:
@@ -112,12 +115,12 @@ def tree_entries(root: Path, commit: str) -> tuple[TreeEntry, ...]:
 def _target(into: Path, rel: str) -> Path:
     """Where `rel` is written under `into`; refused if it would land anywhere else."""
     if not safe_relative(rel):
-        raise UsageError(f"unsafe path {_printable(rel)!r}; refusing to write it")
+        raise UsageError(f"unsafe path {_shown(rel)!r}; refusing to write it")
     target = into / rel
     base = os.path.realpath(into)
     real = os.path.realpath(target)
     if os.path.commonpath([base, real]) != base or real == base:
-        raise UsageError(f"path {_printable(rel)!r} would be written outside {into}; refusing")
+        raise UsageError(f"path {_shown(rel)!r} would be written outside {into}; refusing")
     return target
 
 

@@ -15,17 +15,15 @@ from functools import lru_cache, partial
 from pathlib import Path
 
 from .errors import Finding, ModelError, Span, UsageError
-from .progress import PROGRESS_MIN_ITEMS, progress_bar, wants_progress
+from .progress import progress_bar
 
 __all__ = [
     "MODEL_SUFFIX", "models_in", "discover", "check_files", "check_paths", "check_outcomes",
     "check_one", "guarded",
-    "exit_status", "has_warnings", "matches_glob", "wants_progress",
+    "exit_status", "has_warnings", "matches_glob",
 ]
 
 MODEL_SUFFIX = ".loop"
-#: below this many models a progress bar is more flicker than help
-PROGRESS_MIN_MODELS = PROGRESS_MIN_ITEMS
 #: codes for models that could not be checked at all (located syntax/model errors are LW1xx+)
 E_UNREADABLE = "LW001"
 E_NOT_TEXT = "LW002"

@@ -158,6 +158,11 @@ def overrides_problem(overrides) -> tuple[str, str] | None:
 
 @dataclass(frozen=True)
 class Settings:
+    """A project's settings, every value checked: default requirements for every break,
+    the include and exclude globs for folders, fail_on_warnings, the regression
+    policy of `loopwise diff`, the waivers; where they came from (`source`, as shown);
+    and the params `--set` fixes for this run."""
+
     requirements: tuple[str, ...] = ()
     include: tuple[str, ...] = ()
     exclude: tuple[str, ...] = ()
@@ -210,8 +215,8 @@ def _dotted(text: str) -> tuple[str, ...]:
 class _Source:
     """The settings file's text, for locating keys (TOML parsers give no positions)."""
 
-    def __init__(self, path: Path, text: str):
-        self.path, self.text = str(path), text
+    def __init__(self, path: str, text: str):
+        self.path, self.text = path, text  # the name as shown (`_shown_path`)
         self.lines = text.split("\n")
         self.sections: list[tuple[tuple[str, ...], bool, int]] = [((), False, 0)]  # (table, array?, first line)
         for n, line in enumerate(self.lines):
@@ -286,19 +291,32 @@ class _Source:
 _TOML_POSITION = re.compile(r"\(at line (\d+), column (\d+)\)")
 
 
+def _shown_path(path: Path) -> str:
+    """A settings file's name as messages, findings and waivers show it: relative to the
+    working directory when it lies inside it, as the models named on the command line
+    are; absolute only when it lies outside (a name given relative stays as given)."""
+    if path.is_absolute():
+        try:
+            return str(path.relative_to(Path.cwd().resolve()))
+        except (ValueError, OSError):
+            pass
+    return str(path)
+
+
 def _parse(path: Path) -> tuple[_Source, dict]:
+    shown = _shown_path(path)
     try:
         text = path.read_bytes().decode("utf-8")
     except OSError as exc:
-        raise UsageError(f"cannot read settings from {path}: {exc.strerror or exc}") from None
+        raise UsageError(f"cannot read settings from {shown}: {exc.strerror or exc}") from None
     except UnicodeDecodeError:
-        raise UsageError(f"cannot read settings from {path}: it is not UTF-8 text") from None
-    source = _Source(path, text)
+        raise UsageError(f"cannot read settings from {shown}: it is not UTF-8 text") from None
+    source = _Source(shown, text)
     try:
         return source, tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         m = _TOML_POSITION.search(str(exc))
-        span = Span(str(path), int(m.group(1)), int(m.group(2))) if m else Span(str(path), 1, 1)
+        span = Span(shown, int(m.group(1)), int(m.group(2))) if m else Span(shown, 1, 1)
         message = _TOML_POSITION.sub("", str(exc)).strip()
         raise source.error("LW010", f"the settings file is not valid TOML: {message}", span,
                            "see https://toml.io for the syntax; strings need double quotes") from None
@@ -353,6 +371,9 @@ def _find(start: Path | None):
 
 
 def load_settings(start: Path | None = None) -> Settings:
+    """The settings of the nearest settings file from `start` (default: the working
+    directory) up to the repository root (`find_config`); the defaults when there is none.
+    A mistake in the file raises a located `SettingsError`."""
     found = _find(start)
     if found is None:
         return Settings()

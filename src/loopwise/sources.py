@@ -6,8 +6,9 @@ re-checked when any of its texts changed), the revision materialiser (an
 included file with any suffix comes out of git too), and naming the models
 that a broken included file stops.
 
-The scan reads only regular files (never a FIFO or a device) and at most the
-model size limit of each; what it cannot read it lists without following.
+The scan reads with the language's bounded reader (`language.source.read_bytes`:
+regular files only, never a FIFO or a device, and at most the model size limit
+of each, plus one byte); what it cannot read it lists without following.
 It follows the statement form of the grammar: `use "<path>"` at the start of
 a line, the path relative to the folder of the file that holds the `use`.
 Whether an include is allowed is the language's decision (resolve.py); the scan
@@ -17,17 +18,15 @@ from __future__ import annotations
 
 import os
 import re
-import stat
 from dataclasses import dataclass
 from pathlib import Path
+
+from .language.source import MAX_MODEL_BYTES, SourceError, read_bytes
 
 __all__ = ["USE", "use_targets", "Source", "model_sources", "read_regular"]
 
 #: a `use` statement: the keyword at the start of a line, then a quoted path
 USE = re.compile(r'^[ \t]*use[ \t]*"([^"\n]*)"', re.MULTILINE)
-#: the same limit as the parser's (language/parse.py, MAX_MODEL_BYTES), plus one
-#: byte so that an over-long file still differs from its first 4 MiB
-_READ_LIMIT = 4 * 1024 * 1024 + 1
 
 
 def use_targets(text: str) -> list[tuple[str, int]]:
@@ -37,26 +36,12 @@ def use_targets(text: str) -> list[tuple[str, int]]:
 
 def read_regular(path: Path) -> bytes | None:
     """The first bytes (up to the model size limit, plus one) of a regular file;
-    None for anything else (missing, a folder, a FIFO, a device, unreadable)."""
+    None for anything else (missing, a folder, a FIFO, a device, unreadable).
+    The one bounded reader (`language.source.read_bytes`) does the reading."""
     try:
-        fd = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
-    except OSError:
+        return read_bytes(path, MAX_MODEL_BYTES, refuse_larger=False)
+    except SourceError:
         return None
-    try:
-        if not stat.S_ISREG(os.fstat(fd).st_mode):
-            return None
-        chunks, left = [], _READ_LIMIT
-        while left > 0:
-            chunk = os.read(fd, min(left, 1 << 20))
-            if not chunk:
-                break
-            chunks.append(chunk)
-            left -= len(chunk)
-        return b"".join(chunks)
-    except OSError:
-        return None
-    finally:
-        os.close(fd)
 
 
 @dataclass(frozen=True)

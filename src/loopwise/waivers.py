@@ -48,13 +48,17 @@ class Waiver:
     files: tuple[str, ...] | None = None  # settings: the globs it covers; None: the model's own
 
     def covers(self, finding: Finding) -> bool:
+        """Whether this waiver accepts `finding`: its code, not an error, and (with `at`)
+        about that name."""
         return (finding.code == self.code and finding.severity != "error"
                 and (self.at is None or self.at in finding.about))
 
     def describe(self) -> str:
+        """`LW382 at balance`: the code and the subject, as messages name the waiver."""
         return self.code + (f" at {self.at}" if self.at else "")
 
     def to_dict(self) -> dict:
+        """Where the waiver is written and why, as the JSON contract records it on a finding."""
         return {"reason": self.reason, "at": self.at, "file": self.span.file,
                 "line": self.span.line, "col": self.span.col}
 
@@ -81,6 +85,7 @@ class Waivers:
         return min(matches, key=lambda w: (w.files is not None, w.at is None))
 
     def plus(self, more) -> "Waivers":
+        """These waivers followed by `more` (a model's own first, then the settings')."""
         return Waivers(self.items + tuple(more))
 
 

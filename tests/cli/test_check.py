@@ -321,7 +321,7 @@ class _Stream:
     (True, {"TERM": "dumb"}, False),
 ])
 def test_progress_only_on_an_interactive_terminal(monkeypatch, tty, env, wanted):
-    from loopwise.run import wants_progress
+    from loopwise.progress import wants_progress
 
     monkeypatch.delenv("CI", raising=False)
     monkeypatch.setenv("TERM", "xterm")
@@ -331,14 +331,15 @@ def test_progress_only_on_an_interactive_terminal(monkeypatch, tty, env, wanted)
 
 
 def test_a_run_with_the_progress_bar_gives_the_same_result(tmp_path):
-    from loopwise.run import PROGRESS_MIN_MODELS, check_paths
+    from loopwise.progress import PROGRESS_MIN_ITEMS
+    from loopwise.run import check_paths
 
-    for i in range(PROGRESS_MIN_MODELS):
+    for i in range(PROGRESS_MIN_ITEMS):
         write(tmp_path, f"d/m{i}.loop", GOOD)
     with_bar = check_paths([tmp_path / "d"], Settings(), jobs=1, progress=True)
     without = check_paths([tmp_path / "d"], Settings(), jobs=1, progress=False)
     assert with_bar.to_dict() == without.to_dict()
-    assert len(with_bar.models) == PROGRESS_MIN_MODELS
+    assert len(with_bar.models) == PROGRESS_MIN_ITEMS
 
 
 def test_an_error_in_a_shared_file_is_reported_once_and_each_model_it_stops_is_named(tmp_path, cli):

@@ -446,6 +446,11 @@ def test_safe_paths_and_targets(tmp_path):
     with pytest.raises(UsageError, match="outside"):
         _target(tmp_path / "into", "link/x.loop")
     assert _target(tmp_path / "into", "a/x.loop") == tmp_path / "into" / "a" / "x.loop"
+    # the refusal quotes the path through the one sanitiser: a control character or a
+    # byte that was not UTF-8 cannot reach the terminal
+    with pytest.raises(UsageError) as info:
+        _target(tmp_path, "../\x1b[2Jx\udcff.loop")
+    assert "'../?[2Jx\ufffd.loop'" in str(info.value) and "\x1b" not in str(info.value)
 
 
 def test_an_included_file_with_another_suffix_comes_out_of_the_revision(repo, capsys):

@@ -179,6 +179,16 @@ def test_junit_counts_warnings_only_when_asked(mixed_run):
     assert "never used" in warn.find("system-out").text
 
 
+def test_junit_system_out_says_the_severity_of_every_note(mixed_run):
+    # regression: a break's warning came out as `break b: LW481 ...`, without the
+    # `warning:` that the model's findings and the text report carry
+    root = ET.fromstring(render(mixed_run, "junit"))
+    warn = next(s for s in root.findall("testsuite") if s.get("name") == "warn.loop")
+    lines = warn.find("system-out").text.splitlines()
+    assert "warning: break b: LW481 the loop gain is neutral" in lines
+    assert "warn.loop:3:7: warning LW281 block `K` is never used" in lines
+
+
 def test_junit_survives_control_characters_in_messages():
     run = run_of(errors=[replace(syntax_error("x.loop"), message="bad \x01 byte")])
     root = ET.fromstring(render(run, "junit"))

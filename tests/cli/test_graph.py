@@ -9,6 +9,7 @@ from pathlib import Path
 import networkx as nx
 
 from loopwise.cli import main
+from tests.scenarios import FLOW_LEVEL as SCENARIO
 
 MODELS = Path(__file__).resolve().parents[2] / "models"
 
@@ -65,22 +66,8 @@ def test_graph_through_a_subprocess_has_no_traceback(tmp_path):
     assert proc.returncode == 2 and "Traceback" not in proc.stderr and "no such file" in proc.stderr
 
 
-FLOW_LEVEL = """model flow_level
-input r, n
-block Cl = 0.5*(1 + 1/(50*s))
-block Cf = 2*(1 + 1/(2*s))
-block Gf = 1/(0.5*s + 1)
-block Gl = 1/(10*s)
-block H  = exp(-0.05*s)/(0.1*s + 1)
-el = r - level
-fref = Cl(el)
-ef = fref - flow_meas
-flow = Gf(Cf(ef))
-flow_meas = H(flow) + n
-level = Gl(flow)
-break flow at flow
-break lvl at level
-"""
+#: the flow loop inside the level loop, its flow sensor with a delay, cut wide at `flow`
+FLOW_LEVEL = SCENARIO.format(kl=0.5, kf=2, sensor="exp(-0.05*s)/(0.1*s + 1)", inner="flow")
 
 
 def test_text_and_dot_show_the_same_nesting_through_a_sensor(tmp_path, capsys):

@@ -12,24 +12,14 @@ import numpy as np
 import jsonschema
 import pytest
 
+# L = K exp(-sT)/s: INSIDE stable everywhere (worst K T = 1.2, PM >= 21.2 deg), CROSSING
+# unstable in a corner (K T up to 1.7 > pi/2)
+from tests.scenarios import DELAYED_CROSSING as CROSSING, DELAYED_INSIDE as INSIDE, NO_RANGES
+
 from .conftest import loopwise, write
 
 SCHEMA = json.loads((Path(__file__).parents[2] / "docs" / "sweep.schema.json").read_text())
 
-#: L = K exp(-sT)/s: stable exactly when K T < pi/2, PM = 90 deg - K T (tests/reference/test_sweep_analytic.py)
-DELAYED = """\
-model delayed
-param K = 1 in [0.5, {k_hi}]
-param T = 0.5 in [0.2, 1]
-input r
-e = r - y
-y = [K*exp(-T*s)/s](e)
-break loop at y
-require loop phase_margin >= 15deg
-"""
-INSIDE = DELAYED.format(k_hi=1.2)      # worst K T = 1.2: stable everywhere, PM >= 21.2 deg
-CROSSING = DELAYED.format(k_hi=1.7)    # K T up to 1.7 > pi/2: unstable in a corner
-NO_RANGES = "model plain\ninput r\ne = r - y\ny = [2/(s*(s + 3))](e)\nbreak loop at y\n"
 #: at the corner a = 0 the block's gain divides by zero: that plant cannot be analysed
 DIVIDES = "model divides\nparam a = 1 in [0, 2]\ninput r\ne = r - y\ny = [1/(s + 1)/a](e)\nbreak loop at y\n"
 
@@ -171,6 +161,38 @@ def test_a_model_without_ranges_is_checked_at_its_nominal_point_with_a_note(cli,
     model = validate(out)["models"][0]
     assert model["samples"] == 1 and model["params"] == []
     assert [f["code"] for f in model["findings"]] == ["LW691"]
+
+
+#: params and blocks only (a library for `use`), one param with a range
+LIBRARY = "param k = 2 in [1, 3]\nblock C = k/(s + 1)\n"
+
+
+def test_a_library_is_said_to_have_nothing_to_check_as_check_says(cli, tmp_path):
+    # regression: `sweep` printed "PASS ... STABLE at every sampled plant" for a library,
+    # and sampled its ranged params, while `check` calls it a library with nothing to check
+    write(tmp_path, "lib.loop", LIBRARY)
+    write(tmp_path, "plain.loop", NO_RANGES)
+    code, checked, _ = cli("check", "lib.loop", "plain.loop")
+    assert code == 0
+    code, text, _ = cli("sweep", "lib.loop", "plain.loop", *FAST)
+    assert code == 0
+    library_line = "PASS  lib.loop  library of params and blocks for `use`: nothing to check on its own"
+    assert checked.splitlines()[0] == text.splitlines()[0] == library_line
+    assert text.splitlines()[1] == ""  # nothing sampled, no evidence lines, no notes
+    assert text.splitlines()[-2] == ("1 model(s) swept, 1 passed, 0 failed, "
+                                     "1 library for `use` not checked on its own.")
+    doc = validate(cli("sweep", "lib.loop", *FAST, "--format", "json")[1])
+    (lib,) = doc["models"]
+    assert lib["params"] == [] and lib["samples"] == 1 and lib["breaks"] == []
+    assert [f["code"] for f in lib["findings"]] == ["LW491"]  # no LW691: not a model to sweep
+    markdown = cli("sweep", "lib.loop", *FAST, "--format", "markdown")[1]
+    assert "#### PASS `lib` (`lib.loop`): library of params and blocks for `use`: nothing to check on its own" \
+        in markdown and "Evidence:" not in markdown
+    junit = ET.fromstring(cli("sweep", "lib.loop", *FAST, "--format", "junit")[1])
+    (case,) = junit.iter("testcase")
+    assert case.get("name") == "library" and case.find("skipped") is not None
+    sarif = json.loads(cli("sweep", "lib.loop", *FAST, "--format", "sarif")[1])
+    assert sarif["runs"][0]["results"] == []  # as check's SARIF gives a library no result
 
 
 def test_a_plant_that_cannot_be_analysed_exits_2_and_names_it(cli, tmp_path):

@@ -9,6 +9,8 @@ import xml.etree.ElementTree as ET
 
 import pytest
 
+from tests.scenarios import CASCADE
+
 from .conftest import write
 from .test_formats import validate
 
@@ -82,17 +84,7 @@ def test_markdown_passes_and_shows_the_reasons(waived):
 
 
 def test_a_break_warning_waived_in_every_format(cli, tmp_path):
-    cascade = """\
-model casc
-input r
-e = r - y2
-e1 = [8](e) - y1
-y1 = [10/s](e1)
-y2 = [1/(s+1)](y1)
-break inner at y1 -> e1
-break outer at y2
-waive LW383 at inner "the inner loop is slowed on purpose (actuator wear)"
-"""
+    cascade = "model casc\n" + CASCADE + 'waive LW383 at inner "the inner loop is slowed on purpose (actuator wear)"\n'
     write(tmp_path, "c.loop", cascade)
     code, out, _ = cli("check", "c.loop", "--fail-on-warnings")
     assert code == 0, out
@@ -179,6 +171,65 @@ def test_a_settings_waiver_that_matches_nothing_is_reported_once_in_every_format
     markdown = cli("check", "tanks", "--format", "markdown")[1]
     assert "#### Settings" in markdown and "LW284 the waiver of LW381 at d" in markdown
     assert cli("check", "tanks", "--no-fail-on-warnings")[0] == 0
+
+
+def test_every_format_agrees_with_the_exit_code_when_only_a_settings_warning_fails(cli, tmp_path):
+    # regression: with fail_on_warnings and only LW284 (about the run, not a model) the
+    # exit code was 1 while Markdown said "all models pass", the HTML summary PASS and the
+    # text tally "2 passed, 0 failed" with nothing saying why the run failed
+    write(tmp_path, "tanks/t1.loop", MODEL)
+    write(tmp_path, "tanks/t2.loop", MODEL)
+    write(tmp_path, "loopwise.toml", SETTINGS)
+    code, text, _ = cli("check", "tanks")
+    assert code == 1
+    assert text.splitlines()[-2] == ("2 models checked, 2 passed, 0 failed, 4 findings waived, "
+                                     "1 settings warning (fail_on_warnings: the run fails).")
+    markdown = cli("check", "tanks", "--format", "markdown")[1]
+    assert markdown.splitlines()[0] == "### loopwise check: 1 settings warning fails the run"
+    junit = ET.fromstring(cli("check", "tanks", "--format", "junit")[1])
+    assert junit.get("failures") == "1"
+    sarif = json.loads(cli("check", "tanks", "--format", "sarif")[1])
+    assert sarif["runs"][0]["invocations"][0]["exitCode"] == 1
+    code, _, _ = cli("report", "tanks", "--output", "r.html")
+    summary = (tmp_path / "r.html").read_text().split('<div class="summary">')[1].split("</div></div>")[0]
+    assert code == 1 and '<span class="word bad">FAIL</span>' in summary
+    code, swept, _ = cli("sweep", "tanks", "--samples", "2", "--jobs", "1")
+    assert code == 1 and swept.splitlines()[-2].endswith(", 1 settings warning (fail_on_warnings: the run fails).")
+    code, swept, _ = cli("sweep", "tanks", "--samples", "2", "--jobs", "1", "--format", "markdown")
+    assert code == 1 and swept.splitlines()[0] == "### loopwise sweep: 1 settings warning fails the run"
+    # without fail_on_warnings the same run passes, and every format says so
+    off = ("--no-fail-on-warnings",)
+    code, text, _ = cli("check", "tanks", *off)
+    assert code == 0 and text.splitlines()[-2].endswith(", 1 settings warning.")
+    assert cli("check", "tanks", "--format", "markdown", *off)[1].startswith("### loopwise check: all models pass\n")
+    assert ET.fromstring(cli("check", "tanks", "--format", "junit", *off)[1]).get("failures") == "0"
+    code, swept, _ = cli("sweep", "tanks", "--samples", "2", "--jobs", "1", "--format", "markdown", *off)
+    assert code == 0 and swept.startswith("### loopwise sweep: every model passes over its box\n")
+
+
+def test_a_settings_waiver_is_named_relative_to_the_working_directory(cli, tmp_path, monkeypatch):
+    # regression: found from the working directory up, the settings file was named by its
+    # absolute path in every waiver note and LW284, while a model's own waiver is relative
+    write(tmp_path, "tanks/t1.loop", MODEL.replace("input r", "input r, d"))
+    write(tmp_path, "tanks/t2.loop", MODEL)
+    write(tmp_path, "loopwise.toml", SETTINGS.replace('at = "d"\n', ""))
+    code, out, _ = cli("check", "tanks", "--no-fail-on-warnings")
+    assert code == 0, out
+    assert "    waived: tank models share one library of blocks (loopwise.toml:5)" in out
+    assert "    waived: the disturbance input is wired in the next revision (loopwise.toml:10)" in out
+    doc = json.loads(cli("check", "tanks", "--format", "json")[1])
+    assert {f["waived"]["file"] for m in doc["models"] for f in m["findings"]} == {"loopwise.toml"}
+    sarif = json.loads(cli("check", "tanks", "--format", "sarif")[1])
+    justifications = {s["justification"] for r in sarif["runs"][0]["results"] for s in r.get("suppressions", [])}
+    assert justifications == {"waived: tank models share one library of blocks (loopwise.toml:5)",
+                              "waived: the disturbance input is wired in the next revision (loopwise.toml:10)"}
+    # an LW284 names it the same way (t2 alone has no LW381 for the second waiver to accept)
+    code, out, _ = cli("check", "tanks/t2.loop")
+    assert code == 1 and "\nloopwise.toml:10:1: warning LW284 the waiver of LW381 matches no finding" in out
+    # from a folder below the settings file's, the file lies outside: its full path
+    monkeypatch.chdir(tmp_path / "tanks")
+    out = cli("check", "t1.loop", "--no-fail-on-warnings")[1]
+    assert f"    waived: tank models share one library of blocks ({tmp_path.resolve() / 'loopwise.toml'}:5)" in out
 
 
 def test_a_settings_waiver_is_not_judged_when_no_checked_model_is_covered(cli, tmp_path):

@@ -21,6 +21,7 @@ from loopwise.analysis import check_file
 from loopwise.cli import main
 from loopwise.errors import ModelError, ModelErrors, render
 from loopwise.language.source import repository_root
+from tests.scenarios import outside_git
 
 LOOP = "input r\ne = r - y\ny = C(e)\nbreak b at y\n"  # needs a block C from an include
 SECRET = "API_TOKEN=hunter2-do-not-print"
@@ -147,11 +148,7 @@ def test_inside_git_an_include_may_reach_anywhere_in_the_work_tree(tmp_path):
 
 
 def test_outside_git_the_checked_folder_bounds_includes(tmp_path, capsys):
-    top = tmp_path / "plain"
-    (top / "models").mkdir(parents=True)
-    if repository_root(top) is not None:
-        pytest.skip("the temporary folder lies inside a git work tree")
-    (top / "lib").mkdir()
+    top = outside_git(tmp_path)
     (top / "lib" / "ctl.loop").write_text("param k = 2\nblock C = k/(s+1)\n")
     m = top / "models" / "m.loop"
     m.write_text('use "../lib/ctl.loop"\n' + LOOP)
@@ -208,13 +205,14 @@ def test_use_of_a_symlink_loop_is_a_located_error(tmp_path):
 
 BOMB_COUNT = """
 import sys
-from loopwise.language import resolve
+from loopwise.language import includes, resolve
 calls = []
 real = resolve.parse_text
 def counting(text, file="<text>", *rest):
     calls.append(file)
     return real(text, file, *rest)
-resolve.parse_text = counting
+resolve.parse_text = counting   # the model itself (and settings requirements)
+includes.parse_text = counting  # every included file
 model = resolve.resolve_file(sys.argv[1])
 print(len(calls), len(set(calls)), len(model.params))
 """

@@ -150,3 +150,33 @@ def test_common_root_of_checked_paths(tmp_path):
 def test_limit_is_documented():
     text = (Path(__file__).resolve().parents[2] / "docs" / "language.md").read_text("utf-8")
     assert f"{MAX_MODEL_BYTES // (1024 * 1024)} MiB" in text
+
+
+# --- the light scan's reads go through the same reader ----------------------------------------
+
+def test_the_light_scan_reads_with_the_bounded_reader(tmp_path):
+    from loopwise.sources import model_sources, read_regular
+
+    big = tmp_path / "big.loop"
+    big.write_bytes(b"#" * (MAX_MODEL_BYTES + 10))
+    # not refused: the first limit + 1 bytes, enough to tell it from its first 4 MiB
+    assert len(read_regular(big)) == MAX_MODEL_BYTES + 1
+    assert read_regular(tmp_path) is None and read_regular(tmp_path / "nowhere.loop") is None
+    (tmp_path / "lib.txt").write_text("param k = 1\n")
+    m = tmp_path / "m.loop"
+    m.write_text('use "lib.txt"\nuse "missing.loop"\n' + GOOD)
+    found = {s.path.name: s for s in model_sources(m)}
+    assert found["lib.txt"].data == b"param k = 1\n" and found["lib.txt"].line == 1
+    assert found["missing.loop"].data is None and found["missing.loop"].line == 2
+
+
+@pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="needs FIFOs")
+def test_the_light_scan_never_blocks_on_a_fifo(tmp_path):
+    fifo = tmp_path / "pipe.loop"
+    os.mkfifo(fifo)
+    proc = run_python(f"""
+        from pathlib import Path
+        from loopwise.sources import read_regular
+        print(read_regular(Path({str(fifo)!r})))
+        """)
+    assert proc.stdout.strip() == "None", proc.stderr

@@ -11,6 +11,7 @@ from loopwise.analysis import check_text
 from loopwise.errors import Finding, ModelError, Span
 from loopwise.language import ast
 from loopwise.waivers import Waiver, Waivers
+from tests.scenarios import CASCADE
 
 from .conftest import assert_rendered, one
 
@@ -158,23 +159,14 @@ waive LW382 at h2 "balance pipe between the tanks, not a control loop"
 
 
 def test_a_break_warning_is_about_its_break():
-    cascade = """\
-input r
-e = r - y2
-e1 = [8](e) - y1
-y1 = [10/s](e1)
-y2 = [1/(s+1)](y1)
-break inner at y1 -> e1
-break outer at y2
-"""
-    # re-derived: inner crossover 15.2 rad/s, outer 6.6 rad/s: separation 2.3 < 3 (common practice)
-    plain = check_text(cascade, "c.loop")
+    # tests/scenarios.py re-derives the separation: 2.3 < 3 (common practice)
+    plain = check_text(CASCADE, "c.loop")
     inner = {b.name: b for b in plain.breaks}["inner"]
     assert [(w.code, w.about) for w in inner.warnings] == [("LW383", ("inner",))]
-    wrong = check_text(cascade + 'waive LW383 at outer "slow on purpose"\n', "c.loop")
+    wrong = check_text(CASCADE + 'waive LW383 at outer "slow on purpose"\n', "c.loop")
     assert {b.name: b for b in wrong.breaks}["inner"].open_warnings
     assert [f.code for f in wrong.findings] == ["LW284"]
-    right = check_text(cascade + 'waive LW383 at inner "slow on purpose"\n', "c.loop")
+    right = check_text(CASCADE + 'waive LW383 at inner "slow on purpose"\n', "c.loop")
     assert not right.open_warnings and [f.code for f in right.findings] == []
 
 

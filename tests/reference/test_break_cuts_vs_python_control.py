@@ -27,6 +27,7 @@ import pytest
 from scipy.optimize import brentq
 
 import loopwise
+from tests.scenarios import FLOW_LEVEL  # the flow loop inside the level loop, {inner} the flow cut
 
 S = ct.tf([1, 0], [1])
 
@@ -105,25 +106,6 @@ def test_the_wide_cut_really_changes_the_phase_margin():
 
 
 # ----------------------------------------------------------------------------- flow inside level
-
-FLOW_LEVEL = """model flow_level
-input r, n
-block Cl = {kl}*(1 + 1/(50*s))
-block Cf = {kf}*(1 + 1/(2*s))
-block Gf = 1/(0.5*s + 1)
-block Gl = 1/(10*s)
-block H  = {sensor}
-el = r - level
-fref = Cl(el)
-ef = fref - flow_meas
-flow = Gf(Cf(ef))
-flow_meas = H(flow) + n
-level = Gl(flow)
-break flow at {inner}
-break lvl at level
-require flow separation >= 5
-"""
-
 
 def flow_level_loops(kf: float, kl: float):
     Cl, Cf = kl * (1 + 1 / (50 * S)), kf * (1 + 1 / (2 * S))

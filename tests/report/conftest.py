@@ -6,6 +6,7 @@ and delay, for tests that compare the drawing with a formula.
 """
 from __future__ import annotations
 
+import numpy as np
 import pytest
 
 from loopwise.analysis import check_text
@@ -111,3 +112,13 @@ def write_models(folder):
 def model_files(tmp_path):
     """The loops written as model files in a temporary folder."""
     return write_models(tmp_path / "models")
+
+
+def drawn_line(fig, gid: str) -> np.ndarray:
+    """The drawn points of the one line with this gid, as complex numbers; NaN gaps
+    (lines broken at axis poles) dropped."""
+    found = [l for ax in fig.axes for l in ax.get_lines() if l.get_gid() == gid]
+    assert len(found) == 1, gid
+    x, y = found[0].get_data()
+    z = np.asarray(x, float) + 1j * np.asarray(y, float)
+    return z[np.isfinite(z)]

@@ -16,7 +16,7 @@ from loopwise.report import plots
 from loopwise.report.geometry import ZOOM_BELOW, choose_ring, select_crossings
 from loopwise.transfer import Transfer
 
-from .conftest import LOOPS
+from .conftest import LOOPS, drawn_line
 
 MODELS = Path(__file__).resolve().parents[2] / "models"
 
@@ -30,14 +30,6 @@ def demo() -> dict[str, tuple[str, object]]:
         for b in m.breaks:
             out[f"{m.model}/{b.name}"] = (m.model, b)
     return out
-
-
-def _line(fig, gid):
-    found = [l for ax in fig.axes for l in ax.get_lines() if l.get_gid() == gid]
-    assert len(found) == 1, gid
-    x, y = found[0].get_data()
-    z = np.asarray(x, float) + 1j * np.asarray(y, float)
-    return z[np.isfinite(z)]
 
 
 def _all_text(fig) -> str:
@@ -83,7 +75,7 @@ def _boxes_overlap(a, b, slack: float = 0.5) -> bool:
 def test_phase_at_the_lowest_drawn_frequency_sits_on_the_asymptote(loops, name, start):
     """L ~ K / s^n at low frequency has phase -90 n deg (and -180 more when K < 0);
     the drawn phase starts on that branch (within 5 deg: the dynamics above add a little)."""
-    phase = _line(plots.bode_figure(loops[name]), "bode-phase")
+    phase = drawn_line(plots.bode_figure(loops[name]), "bode-phase")
     assert start - 5.0 <= phase.imag[0] <= start + 5.0
 
 
@@ -134,7 +126,7 @@ def test_a_delays_far_phase_crossovers_are_counted_not_drawn_to_scale(demo, sour
     assert f"\u2212{min(p.gain_margin_db for p in beyond):.1f} dB" in key
     # the phase axis shows the margins' region: every marked crossover, within two turns,
     # although the delay's lag over the drawn frequencies runs to thousands of degrees
-    phase = _line(fig, "bode-phase")
+    phase = drawn_line(fig, "bode-phase")
     lo, hi = fig.axes[1].get_ylim()
     assert hi - lo < 720.0 and phase.imag.min() < lo - 1000.0
     for c in marks:
@@ -214,7 +206,7 @@ def test_the_indentation_arc_on_the_ring_is_drawn_smooth(loops):
     fig = plots.nyquist_figure(result)
     ring = choose_ring(result.response)
     ax = fig.axes[0]
-    z = _line(fig, "nyquist-positive")
+    z = drawn_line(fig, "nyquist-positive")
     pt_per_unit = (ax.transData.transform([[1, 0]]) - ax.transData.transform([[0, 0]]))[0, 0] * 72 / fig.dpi
     a, b = z[:-1], z[1:]
     on_arc = (np.abs(a) > ring.inner + 0.9 * ring.width) & (np.abs(b) > ring.inner + 0.9 * ring.width)

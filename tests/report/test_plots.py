@@ -1,7 +1,7 @@
 """The figures: drawn from the engine's samples, and what they show is what the engine found.
 
 The Nyquist count is re-read from the drawn line data by a method independent
-of the engine and of `geometry.winding_number`: signed crossings of the ray
+of the engine: signed crossings of the ray
 from -1 towards -infinity (a closed curve winds around a point as often as it
 crosses any ray from it, counted with sign).
 """
@@ -22,16 +22,7 @@ from loopwise.report import plots
 from loopwise.report.geometry import Ring, choose_ring, crossings
 from loopwise.report.plots.common import THIN_TOL_PT
 
-from .conftest import LOOPS
-
-
-def _line(fig, gid):
-    """The drawn points of one line; NaN gaps (lines broken at axis poles) dropped."""
-    found = [l for ax in fig.axes for l in ax.get_lines() if l.get_gid() == gid]
-    assert len(found) == 1, gid
-    x, y = found[0].get_data()
-    z = np.asarray(x, float) + 1j * np.asarray(y, float)
-    return z[np.isfinite(z)]
+from .conftest import LOOPS, drawn_line
 
 
 def _texts(fig) -> str:
@@ -69,13 +60,13 @@ def _distance_to_polyline(points: np.ndarray, line: np.ndarray) -> np.ndarray:
 def test_drawn_nyquist_curve_winds_as_often_as_the_engine_counts(loops, name):
     result = loops[name]
     fig = plots.nyquist_figure(result, model=name)
-    drawn = np.concatenate([_line(fig, "nyquist-positive"), _line(fig, "nyquist-negative")])
+    drawn = np.concatenate([drawn_line(fig, "nyquist-positive"), drawn_line(fig, "nyquist-negative")])
     assert _ray_crossings(drawn) == result.encirclements
     # the drawn curve is the engine's own, compressed: every drawn point is a sample,
     # or (on the ring) a point of an arc between two; and no sample lies further
     # from the drawn line than the thinning allows
     ring = choose_ring(result.response)
-    upper = _line(fig, "nyquist-positive")
+    upper = drawn_line(fig, "nyquist-positive")
     samples = result.response.L
     if ring is not None:
         samples = ring.compress(samples)
@@ -96,7 +87,7 @@ def test_drawn_nyquist_curve_winds_as_often_as_the_engine_counts(loops, name):
 @pytest.mark.parametrize("name", sorted(LOOPS))
 def test_the_mirror_half_is_the_conjugate_in_reverse(loops, name):
     fig = plots.nyquist_figure(loops[name], model=name)
-    upper, mirror = _line(fig, "nyquist-positive"), _line(fig, "nyquist-negative")
+    upper, mirror = drawn_line(fig, "nyquist-positive"), drawn_line(fig, "nyquist-negative")
     np.testing.assert_allclose(mirror, np.conj(upper[::-1]))
 
 
@@ -107,7 +98,7 @@ def test_ring_stretches_exactly_where_the_loop_has_axis_poles(loops, name):
     assert bool(result.response.axis_poles) == has_axis_poles
     fig = plots.nyquist_figure(result, model=name)
     ring_patches = [p for p in fig.axes[0].patches if p.get_gid() == "ring"]
-    upper = _line(fig, "nyquist-positive")
+    upper = drawn_line(fig, "nyquist-positive")
     if has_axis_poles:
         ring = choose_ring(result.response)
         assert ring is not None and len(ring_patches) == 1
@@ -172,7 +163,7 @@ def test_crossovers_are_marked_where_the_engine_found_them(loops):
 def test_bode_phase_is_continuous_and_shows_the_delay(loops):
     result = loops["integrator_delay"]
     fig = plots.bode_figure(result, model="m")
-    phase = _line(fig, "bode-phase")
+    phase = drawn_line(fig, "bode-phase")
     w, deg = phase.real, phase.imag
     assert np.all(np.abs(np.diff(deg)) < 90)
     # phase of 3 exp(-0.05 s)/(s (s+1)(s+2)) at s = jw, re-derived:
@@ -185,8 +176,8 @@ def test_bode_phase_is_continuous_and_shows_the_delay(loops):
 
 def test_bode_in_hz_divides_the_frequency_axis(loops):
     result = loops["three_lags"]
-    rad = _line(plots.bode_figure(result), "bode-magnitude")
-    hz = _line(plots.bode_figure(result, hz=True), "bode-magnitude")
+    rad = drawn_line(plots.bode_figure(result), "bode-magnitude")
+    hz = drawn_line(plots.bode_figure(result, hz=True), "bode-magnitude")
     np.testing.assert_allclose(hz.real, rad.real / (2 * math.pi))
     np.testing.assert_allclose(hz.imag, rad.imag)
 
@@ -194,7 +185,7 @@ def test_bode_in_hz_divides_the_frequency_axis(loops):
 def test_sensitivity_curves_are_S_and_T_of_the_samples(loops):
     result = loops["three_lags"]
     fig = plots.sensitivity_figure(result)
-    s_line, t_line = _line(fig, "sens-S"), _line(fig, "sens-T")
+    s_line, t_line = drawn_line(fig, "sens-S"), drawn_line(fig, "sens-T")
     # each drawn point is a sample (the lines are thinned separately)
     L_s = result.response.axis_L[np.isin(result.response.freq, s_line.real)]
     L_t = result.response.axis_L[np.isin(result.response.freq, t_line.real)]

@@ -19,6 +19,7 @@ from sarif_pydantic import Sarif
 
 from loopwise.cli import main
 from loopwise.diagnostics import CODES
+from tests.scenarios import DELAYED_CROSSING
 
 SCHEMA = json.loads((Path(__file__).parent / "data" / "sarif-schema-2.1.0.json").read_text(encoding="utf-8"))
 
@@ -224,7 +225,8 @@ def test_waivers_in_a_check_become_suppressions_and_an_unmatched_settings_waiver
                for r in doc["runs"][0]["results"]}
     assert by_file[("LW282", "m.loop")]["suppressions"][0]["justification"] == \
         "waived: kept for the next axis (m.loop:8)"
-    assert by_file[("LW282", "u.loop")]["suppressions"][0]["justification"].startswith("waived: shared blocks (")
+    assert by_file[("LW282", "u.loop")]["suppressions"][0]["justification"] == \
+        "waived: shared blocks (loopwise.toml:5)"  # relative, as the model's own waiver
     unmatched = by_file[("LW284", "loopwise.toml")]
     assert unmatched["level"] == "warning" and "suppressions" not in unmatched
     assert unmatched["locations"][0]["physicalLocation"]["region"]["startLine"] == 10
@@ -233,18 +235,10 @@ def test_waivers_in_a_check_become_suppressions_and_an_unmatched_settings_waiver
 
 # --- sweep ---------------------------------------------------------------------------------
 
-#: L = K exp(-sT)/s is stable exactly when K T < pi/2 and then has PM = 90 deg - K T (in
-#: degrees; analytic, tests/reference/test_sweep_analytic.py). Over K in [0.5, 1.7] and T in
-#: [0.2, 1] the corner K T = 1.7 is unstable; PM >= 15 deg fails there (no margins claimed).
-SWEPT = """model delayed
-param K = 1 in [0.5, 1.7]
-param T = 0.5 in [0.2, 1]
-input r
-e = r - y
-y = [K*exp(-T*s)/s](e)
-break loop at y
-require loop phase_margin >= 15deg
-"""
+#: L = K exp(-sT)/s over K in [0.5, 1.7] and T in [0.2, 1]: the corner K T = 1.7 is
+#: unstable (stable exactly when K T < pi/2, tests/scenarios.py); PM >= 15 deg fails there
+#: (no margins claimed)
+SWEPT = DELAYED_CROSSING
 #: stable over the whole box (K T <= 0.6), but PM >= 70 deg fails where K T is largest:
 #: 90 - 0.6 rad = 55.6 deg at K = 1.2, T = 0.5
 STABLE_UNMET = SWEPT.replace("[0.5, 1.7]", "[0.5, 1.2]").replace("[0.2, 1]", "[0.2, 0.5]").replace(

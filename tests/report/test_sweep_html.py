@@ -10,19 +10,13 @@ import pytest
 from loopwise.cli import main
 from loopwise.report.plots.sweep import PROFILE_BINS, worst_profile
 from loopwise.sweep.results import WORST_KEYS, PlantTable
+from tests.scenarios import DELAYED_INSIDE, NO_RANGES
 
 SVG = "{http://www.w3.org/2000/svg}"
 
 #: L = K exp(-sT)/s: PM = 90 deg - K T, stable for every plant of this box (K T <= 1.2)
-MODEL = """model delayed
-param K = 1 in [0.5, 1.2]
-param T = 0.5 in [0.2, 1]
-input r
-e = r - y
-y = [K*exp(-T*s)/s](e)
-break loop at y
-"""
-PLAIN = "model plain\ninput r\ne = r - y\ny = [2/(s*(s + 3))](e)\nbreak loop at y\n"
+MODEL = DELAYED_INSIDE.replace("require loop phase_margin >= 15deg\n", "")
+PLAIN = NO_RANGES
 
 
 @pytest.fixture(scope="module")
@@ -81,3 +75,24 @@ def test_worst_profile_is_the_worst_value_in_each_stretch_of_each_range():
             assert worst[p, k] == pytest.approx(pm[inside].min())
     assert np.all(np.diff(worst[1]) < 0)  # the worst margin falls as b grows
     assert math.isclose(np.nanmin(worst), pm.min())
+
+
+def test_the_band_reuses_the_parsed_model_and_the_nominal_point_of_the_sweep(tmp_path, monkeypatch):
+    # regression: the band of plants parsed each swept model again (and checked its
+    # nominal point again) although the sweep's result already held both
+    import loopwise.analysis as analysis
+
+    parsed, real = [], analysis.parse_for_check
+
+    def counting(path, *args, **kwargs):
+        parsed.append(str(path))
+        return real(path, *args, **kwargs)
+
+    monkeypatch.setattr(analysis, "parse_for_check", counting)
+    (tmp_path / "delayed.loop").write_text(MODEL)
+    out = tmp_path / "report.html"
+    assert main(["report", str(tmp_path / "delayed.loop"), "--sweep", "--samples", "4", "--jobs", "1",
+                 "--output", str(out), "--no-progress"]) == 0
+    assert len(parsed) == 2  # the check's and the sweep's; the band's plants resolve from the sweep's
+    # the band is still drawn: the nominal curve and the sampled plants around it
+    assert "Nyquist curves of " in out.read_text(encoding="utf-8")

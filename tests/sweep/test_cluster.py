@@ -5,18 +5,12 @@ from __future__ import annotations
 import pytest
 
 from loopwise.sweep import SweepOptions, sweep_paths
+from tests.scenarios import DELAYED_CROSSING
 
 distributed = pytest.importorskip("distributed")
 
-MODEL = """model delayed
-param K = 1 in [0.5, 1.7]
-param T = 0.5 in [0.2, 1]
-input r
-e = r - y
-y = [K*exp(-T*s)/s](e)
-break loop at y
-require loop phase_margin >= 15deg
-"""
+#: unstable in a corner of the box: the comparison covers the search and the bisection
+MODEL = DELAYED_CROSSING
 
 
 def test_a_local_dask_cluster_gives_the_local_results(tmp_path):

@@ -17,9 +17,9 @@ import pytest
 from loopwise.cli import main
 from loopwise.errors import ModelErrors
 from loopwise.language import ast
-from loopwise.language import resolve as resolve_module
+from loopwise.language import includes as includes_module, resolve as resolve_module
 from loopwise.language.resolve import resolve_parsed
-from loopwise.language.source import repository_root
+from tests.scenarios import outside_git
 from loopwise.settings import Settings
 from loopwise.sweep.driver import prepare_sweep
 from loopwise.sweep.evaluate import evaluate_points
@@ -85,11 +85,7 @@ def test_a_sweep_refuses_a_model_that_is_not_utf8_at_the_byte_as_check_does(tmp_
 
 
 def test_outside_git_a_sweep_uses_the_checked_folder_as_check_does(tmp_path, capsys):
-    top = tmp_path / "plain"
-    (top / "models").mkdir(parents=True)
-    if repository_root(top) is not None:
-        pytest.skip("the temporary folder lies inside a git work tree")
-    (top / "lib").mkdir()
+    top = outside_git(tmp_path)
     (top / "lib" / "ctl.loop").write_text("param k = 2 in [1, 3]\nblock C = k/(s+1)\n")
     m = top / "models" / "m.loop"
     m.write_text('use "../lib/ctl.loop"\n' + LOOP)
@@ -126,8 +122,9 @@ def no_disk(monkeypatch):
     """Reading, parsing or locating a file from here on fails the test."""
     def refuse(*args, **kwargs):
         raise AssertionError("a plant's resolution went to the disk or the parser")
-    monkeypatch.setattr(resolve_module, "read_source", refuse)
-    monkeypatch.setattr(resolve_module, "parse_text", refuse)
+    for module in (resolve_module, includes_module):
+        monkeypatch.setattr(module, "read_source", refuse)
+        monkeypatch.setattr(module, "parse_text", refuse)
     monkeypatch.setattr(Path, "resolve", refuse)
 
 
@@ -199,11 +196,7 @@ def test_a_kept_tree_is_still_held_to_the_include_root(tmp_path, monkeypatch):
 def test_report_sweep_reads_the_includes_as_check_does_for_its_band_too(tmp_path, capsys):
     # outside git the report's sweep (and the band of plants drawn from it) uses the
     # checked folder as the include root, as the report's check does
-    top = tmp_path / "plain"
-    (top / "models").mkdir(parents=True)
-    if repository_root(top) is not None:
-        pytest.skip("the temporary folder lies inside a git work tree")
-    (top / "lib").mkdir()
+    top = outside_git(tmp_path)
     # a library found in the folder too: the models found span plain/ (see docs/language.md)
     (top / "lib" / "ctl.loop").write_text("param k = 2 in [1, 3]\nblock C = k/(s+1)\n")
     (top / "models" / "m.loop").write_text('use "../lib/ctl.loop"\n' + LOOP)

@@ -1,8 +1,11 @@
 """`loopwise check PATH...`: the verdict and margins of every break, in a format
-for people (text, markdown) or machines (json, junit).
+for people (text, markdown) or machines (json, junit, sarif): the choices come
+from the reporter registry (`loopwise.report.formats("check")`).
 
-This module is imported for `loopwise check --help`, so it imports nothing
-heavy at module level: the runner and the reporters load inside `run`.
+Thin: the shared options and settings (`commands/options.py`), the runner
+(`loopwise.run.check_files`), a reporter written by `options.write_report`. This
+module is imported for `loopwise check --help`, so it imports nothing heavy at
+module level: the runner and the reporters load inside `run`.
 """
 from __future__ import annotations
 
@@ -12,12 +15,13 @@ import sys
 
 from ..report import formats
 from .options import (add_config, add_fail_on_warnings, add_jobs, add_no_progress, add_output, add_set,
-                      load_settings_for)
+                      load_settings_for, progress_wanted, write_report)
 
 __all__ = ["add_parser", "run"]
 
 
 def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
+    """Add `loopwise check` and its options to the subcommands."""
     p = subparsers.add_parser(
         "check", help=help_text, description=help_text + " Folders are searched for *.loop files.",
         epilog="Exit codes: 0 every model stable with all requirements met; 1 an instability, "
@@ -54,29 +58,19 @@ def _colour(choice: str, stream) -> bool:
 
 
 def run(args) -> int:
-    from ..output import emit, guard_output, protected_inputs
-    from ..progress import wants_progress
-    from ..report import render
+    """Check the models named on the command line and write the report; the exit code
+    (`run.exit_status`: 2 a model could not be read, 1 an instability, an unmet
+    requirement or a counted warning, else 0)."""
     from ..language.source import common_root
+    from ..output import guard_inputs
     from ..run import check_files, discover, exit_status
 
     settings = load_settings_for(args)  # with --fail-on-warnings and --set
     files = discover(args.paths, settings)
-    protected = None
-    if args.output:
-        # fail before a long run rather than after it
-        protected = protected_inputs(files, settings)
-        guard_output(args.output, protected)
-    progress = not args.no_progress and wants_progress(sys.stderr)
+    protected = guard_inputs(args.output, files, settings)  # fail before a long run, not after it
     # includes stay inside the folder tree of the paths named (outside git)
-    result = check_files(files, settings, jobs=args.jobs, progress=progress, root=common_root(args.paths))
+    result = check_files(files, settings, jobs=args.jobs, progress=progress_wanted(args),
+                         root=common_root(args.paths))
     fail = settings.fail_on_warnings
-    colour = _colour(args.color, sys.stdout)
-    if args.output:
-        emit(render(result, args.format, colour=False, fail_on_warnings=fail), args.output, protected)
-        if not args.quiet:
-            emit(render(result, "text", colour=colour, fail_on_warnings=fail))
-            emit(f"{args.format} report written to {args.output}\n")
-    else:
-        emit(render(result, args.format, colour=colour, fail_on_warnings=fail))
+    write_report(args, result, "check", protected, colour=_colour(args.color, sys.stdout), fail_on_warnings=fail)
     return exit_status(result, fail)

@@ -33,6 +33,7 @@ def _non_negative(unit: str, key: str):
 
 
 def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
+    """Add `loopwise diff` and its options to the subcommands."""
     p = subparsers.add_parser(
         "diff", help=help_text, description=help_text + " OLD and NEW are two model files or two "
         "folders (models matched by relative path, breaks by name); with --rev the models come "
@@ -72,6 +73,9 @@ def _policy(args, settings):
 
 
 def run(args) -> int:
+    """Compare the two sides (files, folders or git revisions) and write the diff; the
+    exit code (`DiffResult.exit_code`: 2 a model unreadable on the new side, 1 a
+    regression, else 0)."""
     from ..compare import compare
     from ..output import emit, guard_output
     from ..report import render

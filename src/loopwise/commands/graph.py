@@ -11,6 +11,7 @@ __all__ = ["add_parser", "run", "structure_text", "structure_dot"]
 
 
 def add_parser(sub, help_text: str) -> None:
+    """Add `loopwise graph` and its options to the subcommands."""
     p = sub.add_parser("graph", help=help_text, description=help_text,
                        epilog="Exit codes: 0 the structure was printed; 2 the model could not "
                               "be read or a usage mistake.")
@@ -25,6 +26,9 @@ def _display(name, model) -> str:
 
 
 def structure_text(diagram) -> str:
+    """A model's loop graph (`engine.diagram.Diagram`) as text: inputs, signals, loops,
+    breaks with the break that encloses each, the nesting as a tree, and the
+    structural findings."""
     model = diagram.model
     lines = [f"model {model.name}  ({model.file})", ""]
     shown = [s for s in model.signals if s not in model.hidden]
@@ -65,6 +69,8 @@ def _q(name: str) -> str:
 
 
 def structure_dot(diagram) -> str:
+    """A model's loop graph as Graphviz DOT: signals as nodes, wiring terms as labelled
+    edges, each cut wire dashed and labelled with its break (and the break around it)."""
     model = diagram.model
     # each cut wire is labelled with its break and, for an enclosed break, the break around it
     cut = {e: b.stmt.name + (f" (inside {b.enclosed_by})" if b.enclosed_by else "")
@@ -91,14 +97,13 @@ def structure_dot(diagram) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
+    """Print the structure of one model (text, or DOT with `--dot`); 0, or 2 when the
+    model cannot be read."""
     from ..analysis import prepare_file
-    from ..output import emit, guard_output, protected_inputs
+    from ..output import emit, guard_inputs
 
     settings = load_settings_for(args)
-    protected = None
-    if args.output:
-        protected = protected_inputs([args.file], settings)
-        guard_output(args.output, protected)
+    protected = guard_inputs(args.output, [args.file], settings)
     try:
         prep = prepare_file(args.file, settings)
     except ModelErrors as exc:

@@ -1,6 +1,8 @@
 """The options every command shares, defined once: `--config` (and the settings it
 loads, with `--set` and `--fail-on-warnings` applied), `--jobs`, `--output`,
-`--no-progress`, and the sweep design's `--samples` and `--seed`.
+`--no-progress`, and the sweep design's `--samples` and `--seed`; and what the
+commands do with them alike: whether to draw a progress bar (`progress_wanted`)
+and writing a report in `--format` to `--output` or stdout (`write_report`).
 
 Imported for `--help`, so only the standard library and light modules here.
 """
@@ -12,7 +14,8 @@ from pathlib import Path
 from ..pool import JOBS_HELP
 
 __all__ = ["jobs_count", "count", "set_value", "add_config", "add_jobs", "add_output", "add_no_progress",
-           "add_set", "add_fail_on_warnings", "add_design", "load_settings_for"]
+           "add_set", "add_fail_on_warnings", "add_design", "load_settings_for", "progress_wanted",
+           "write_report"]
 
 
 def jobs_count(text: str) -> int:
@@ -59,29 +62,44 @@ def set_value(text: str) -> tuple[str, float]:
 
 
 def add_config(p: argparse.ArgumentParser, extra: str = "") -> None:
+    """`--config FILE`: the settings file to use instead of the nearest one; `extra` ends its help."""
     p.add_argument("--config", metavar="FILE",
                    help="settings file (loopwise.toml or pyproject.toml); default: the nearest "
                         "one from the working directory up to the repository root" + extra)
 
 
 def add_jobs(p: argparse.ArgumentParser, what: str = "check models", default: int = 1) -> None:
+    """`-j N` / `--jobs N`: how many processes do `what` (0: one per CPU), `default` without it."""
     p.add_argument("-j", "--jobs", type=jobs_count, default=default, metavar="N",
                    help=f"{what} {JOBS_HELP.format(default=default)}")
 
 
 def add_output(p: argparse.ArgumentParser, help_text: str, default: str | None = None,
                metavar: str = "FILE") -> None:
+    """`-o FILE` / `--output FILE`: where to write, written atomically and never over an input."""
     p.add_argument("-o", "--output", metavar=metavar, default=default,
                    help=help_text + "; written atomically, never over a model, an included "
                                     "file or the settings file")
 
 
 def add_no_progress(p: argparse.ArgumentParser) -> None:
+    """`--no-progress`: never draw a progress bar."""
     p.add_argument("--no-progress", action="store_true",
                    help="never draw a progress bar (it is drawn only on a terminal anyway)")
 
 
+def progress_wanted(args) -> bool:
+    """Whether to draw a progress bar: not with `--no-progress`, and only on a terminal
+    (`loopwise.progress.wants_progress`)."""
+    import sys
+
+    from ..progress import wants_progress
+
+    return not args.no_progress and wants_progress(sys.stderr)
+
+
 def add_set(p: argparse.ArgumentParser) -> None:
+    """`--set NAME=VALUE` (repeatable): fix a param at a value for this run (`set_value`)."""
     p.add_argument("--set", dest="set", type=set_value, action="append", default=[], metavar="NAME=VALUE",
                    help="fix a param at a value for this run (repeatable; a unit may follow the number, "
                         "e.g. --set Td=200us); an unknown name is an error, a value outside the "
@@ -89,6 +107,8 @@ def add_set(p: argparse.ArgumentParser) -> None:
 
 
 def add_fail_on_warnings(p: argparse.ArgumentParser, what: str = "a model has warnings") -> None:
+    """`--fail-on-warnings` / `--no-fail-on-warnings`: exit 1 when `what`; None when not given
+    (then the settings file decides)."""
     p.add_argument("--fail-on-warnings", action=argparse.BooleanOptionalAction, default=None,
                    help=f"exit 1 when {what} (overrides the settings file)")
 
@@ -120,3 +140,20 @@ def load_settings_for(args, start: Path | None = None):
     if getattr(args, "set", None):
         settings = replace(settings, overrides=tuple(dict(args.set).items()))
     return settings
+
+
+def write_report(args, result, kind: str, protected=None, colour: bool = False, **options) -> None:
+    """Write a result in `--format` (`report.render`, the registry of `kind`): to
+    `--output` (atomically, never over the `protected` inputs), then a text summary
+    on stdout unless `--quiet`; without `--output`, to stdout. `colour` applies to
+    stdout only; `options` go to the reporter (those it does not take are dropped)."""
+    from ..output import emit
+    from ..report import render
+
+    if args.output:
+        emit(render(result, args.format, kind=kind, colour=False, **options), args.output, protected)
+        if not args.quiet:
+            emit(render(result, "text", kind=kind, colour=colour, **options))
+            emit(f"{args.format} report written to {args.output}\n")
+    else:
+        emit(render(result, args.format, kind=kind, colour=colour, **options))

@@ -9,7 +9,7 @@ import sys
 from pathlib import Path
 
 from ..errors import UsageError
-from .options import add_config, add_no_progress, load_settings_for
+from .options import add_config, add_no_progress, load_settings_for, progress_wanted
 
 __all__ = ["add_parser", "run", "output_paths"]
 
@@ -18,6 +18,7 @@ SUFFIXES = (".svg", ".png", ".pdf")
 
 
 def add_parser(subparsers, help_text: str):
+    """Add `loopwise plot` and its options to the subcommands."""
     p = subparsers.add_parser(
         "plot", help=help_text,
         description=help_text + " Figures are drawn from the same samples the check used.",
@@ -90,8 +91,10 @@ def _select(model, name: str | None, file: str):
 
 
 def run(args) -> int:
+    """Check one model and draw the chosen views of its breaks, each to its own file;
+    0 when every figure is written, 2 when the model cannot be read."""
     from ..output import guard_output, protected_inputs
-    from ..progress import progress_bar, wants_progress
+    from ..progress import progress_bar
 
     _check_suffix(args.output)
     settings = load_settings_for(args)
@@ -106,8 +109,7 @@ def run(args) -> int:
     for _, _, path in jobs:  # every name refused before the first figure is drawn
         guard_output(path, protected)
     by_name = {b.name: b for b in breaks}
-    progress = not args.no_progress and wants_progress(sys.stderr)
-    with progress_bar("drawing", len(jobs), enabled=progress) as tick:
+    with progress_bar("drawing", len(jobs), enabled=progress_wanted(args)) as tick:
         for name, kind, path in jobs:
             _draw(by_name[name], kind, path, model.model, args.hz, protected)
             print(f"wrote {path}")

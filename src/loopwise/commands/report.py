@@ -10,12 +10,14 @@ import sys
 from pathlib import Path
 
 from ..errors import UsageError
-from .options import add_config, add_design, add_jobs, add_no_progress, add_output, load_settings_for
+from .options import (add_config, add_design, add_jobs, add_no_progress, add_output, load_settings_for,
+                      progress_wanted)
 
 __all__ = ["add_parser", "run"]
 
 
 def add_parser(subparsers, help_text: str):
+    """Add `loopwise report` and its options to the subcommands."""
     p = subparsers.add_parser(
         "report", help=help_text,
         description=help_text + " Folders are searched for *.loop files. The page has no "
@@ -55,14 +57,17 @@ def _sweep_sections(args, files, settings, result) -> tuple[dict, object | None]
     for s in swept.models:
         if s.file in checked and s.params:
             n, m = checked[s.file]
-            band = band_results(s.file, settings, s, BAND_PLANTS, root)
+            band = band_results(s, BAND_PLANTS)
             extra[s.file] = sweep_section(m, s, band, n, settings.fail_on_warnings)
     return extra, swept
 
 
 def run(args) -> int:
-    from ..output import emit, guard_output, protected_inputs
-    from ..progress import progress_bar, wants_progress
+    """Check the models (and, with `--sweep`, sweep them) and write the HTML report; the
+    exit code is check's (`run.exit_status`), or the sweep's when that is worse."""
+    from ..language.source import common_root
+    from ..output import emit, guard_inputs
+    from ..progress import progress_bar
     from ..report.summary import finding_text
     from ..report.html import figure_count, render_html
     from ..run import check_files, discover, exit_status
@@ -73,11 +78,8 @@ def run(args) -> int:
     settings = load_settings_for(args)
     fail = settings.fail_on_warnings  # --fail-on-warnings applied by load_settings_for
     files = discover(args.paths, settings)
-    protected = protected_inputs(files, settings)
-    guard_output(args.output, protected)  # before the long run, not after it
-    progress = not args.no_progress and wants_progress(sys.stderr)
-    from ..language.source import common_root
-
+    protected = guard_inputs(args.output, files, settings)  # before the long run, not after it
+    progress = progress_wanted(args)
     result = check_files(files, settings, jobs=args.jobs, progress=progress, root=common_root(args.paths))
     extra, swept = _sweep_sections(args, files, settings, result)
     with progress_bar("drawing", figure_count(result), enabled=progress) as tick:

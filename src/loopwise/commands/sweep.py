@@ -8,16 +8,17 @@ imported at module level (this module loads for `loopwise sweep --help`).
 from __future__ import annotations
 
 import argparse
-import sys
 
 from ..errors import UsageError
 from ..report import formats
 from .options import (add_config, add_design, add_fail_on_warnings, add_jobs, add_no_progress, add_output,
-                      add_set, load_settings_for)
+                      add_set, load_settings_for, progress_wanted, write_report)
 
 __all__ = ["add_parser", "run"]
 
+
 def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
+    """Add `loopwise sweep` and its options to the subcommands."""
     p = subparsers.add_parser(
         "sweep", help=help_text,
         description=help_text + " Every corner of the box (all of them up to 8 ranged params), a "
@@ -43,10 +44,12 @@ def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
 
 
 def run(args) -> int:
-    from ..output import emit, guard_output, protected_inputs
-    from ..progress import wants_progress
-    from ..report import render
+    """Sweep the models named on the command line and write the report; the exit code
+    (`SweepRun.exit_status`: 2 a model or a plant could not be read, 1 a plant
+    unstable somewhere, a requirement not met at the worst plant found or a counted
+    warning, else 0)."""
     from ..language.source import common_root
+    from ..output import guard_inputs
     from ..run import discover
     from ..sweep import SweepOptions, sweep_files
 
@@ -54,21 +57,9 @@ def run(args) -> int:
         raise UsageError("--jobs and --cluster do not go together: the cluster's workers do the work")
     settings = load_settings_for(args)  # with --fail-on-warnings and --set
     files = discover(args.paths, settings)
-    protected = None
-    if args.output:
-        # fail before a long sweep rather than after it
-        protected = protected_inputs(files, settings)
-        guard_output(args.output, protected)
-    progress = not args.no_progress and wants_progress(sys.stderr)
+    protected = guard_inputs(args.output, files, settings)  # fail before a long sweep, not after it
     result = sweep_files(files, settings, SweepOptions(args.samples, args.seed), jobs=args.jobs,
-                         cluster=args.cluster, progress=progress, root=common_root(args.paths))
+                         cluster=args.cluster, progress=progress_wanted(args), root=common_root(args.paths))
     fail = settings.fail_on_warnings
-    if args.output:
-        emit(render(result, args.format, kind="sweep", fail_on_warnings=fail), args.output, protected)
-        if not args.quiet:
-            emit(render(result, "text", kind="sweep", fail_on_warnings=fail))
-            emit(f"{args.format} report written to {args.output}\n")
-    else:
-        emit(render(result, args.format, kind="sweep", fail_on_warnings=fail))
+    write_report(args, result, "sweep", protected, fail_on_warnings=fail)
     return result.exit_status(fail)
-

@@ -46,17 +46,23 @@ class Evaluator:
         self.mode = mode
 
     def run(self, expr):
+        """The value of `expr` in this mode: a Quantity (a constant), a Transfer, or a list of
+        wiring Terms; a located ModelError when the expression has no meaning here."""
         return self.ev(expr)
 
     def ev(self, e):
+        """The value of one node, by its kind (`ev_Number`, `ev_Name`, ...)."""
         method = getattr(self, "ev_" + type(e).__name__)
         return method(e)
 
     def ev_Number(self, e: ast.Number):
+        """A literal: its SI value, and the kind its unit suffix gives it."""
         from .units import unit_kind
         return Quantity(e.value, unit_kind(e.unit))
 
     def ev_Name(self, e: ast.Name):
+        """A name: `s` (a transfer), a param's value, or a signal (a wiring term); any other
+        use is a located error with a hint (LW214 to LW218)."""
         r = self.r
         if e.name == "s":
             if self.mode == "transfer":
@@ -97,6 +103,8 @@ class Evaluator:
             name in r.block_stmts or name in r.eq_stmts or name in r.inputs
 
     def binary(self, op: str, a, b, span: Span):
+        """`a op b` for constants (unit kinds kept where they agree), transfers, or wirings
+        (`wiring_binary`); a division by zero, a delay in a sum or an overflow is located at `span`."""
         if isinstance(a, Quantity) and isinstance(b, Quantity):
             kind = a.kind if a.kind == b.kind or b.kind is None else (b.kind if a.kind is None else None)
             if op == "/" and b.value == 0:
@@ -122,6 +130,10 @@ class Evaluator:
         return _within_order(result, span)
 
     def wiring_binary(self, op: str, a, b, span: Span):
+        """`a op b` where a side is a signal sum: sums and differences of signal sums, and
+        sums scaled or divided by constants. A constant offset in a sum is dropped with a
+        note (LW291); a transfer, a product of signals or a division by one is a located
+        error."""
         if isinstance(a, Transfer) or isinstance(b, Transfer):
             raise ModelError("LW213", "a transfer function must be applied to a signal in a wiring", span,
                              "write `[G](x)` (brackets around the transfer) or name it with `block`")
@@ -151,9 +163,11 @@ class Evaluator:
         return [_scale(t, 1.0 / b.value, span) for t in a]
 
     def ev_BinOp(self, e: ast.BinOp):
+        """`left op right` (`binary`)."""
         return self.binary(e.op, self.ev(e.left), self.ev(e.right), e.span)
 
     def ev_Neg(self, e: ast.Neg):
+        """`-x` for a constant, a signal sum or a transfer."""
         v = self.ev(e.operand)
         if isinstance(v, Quantity):
             return Quantity(-v.value, v.kind)
@@ -162,6 +176,9 @@ class Evaluator:
         return -v
 
     def ev_Power(self, e: ast.Power):
+        """`base ^ n` with a constant exponent: a constant to any real power, a transfer to a
+        whole power (negative for its inverse) within `MAX_ORDER`; a power of a signal is
+        a located error (not linear)."""
         if isinstance(e.base, ast.Name) and e.base.name == "e" and not self.known("e"):
             raise _euler_power(e, self.mode)
         base = self.ev(e.base)
@@ -198,6 +215,8 @@ class Evaluator:
         return _within_order(result, e.span)
 
     def ev_Call(self, e: ast.Call):
+        """`exp(-T*s)` (a pure delay, in a transfer) or `Block(x)` (a block applied to a signal
+        sum, in a wiring); anything else is a located error with a hint."""
         r = self.r
         if e.func == "exp":
             if self.mode != "transfer":
@@ -223,6 +242,8 @@ class Evaluator:
         return self.apply(app, self.ev(e.arg), e.arg.span)
 
     def ev_Inline(self, e: ast.Inline):
+        """`[transfer](x)`: an unnamed block applied in a wiring, its transfer checked like a
+        block's."""
         if self.mode != "wiring":
             raise ModelError("LW229", "a bracketed transfer `[..](x)` belongs in a signal equation",
                              e.span, "in a block or param, write the transfer without brackets")
@@ -233,6 +254,8 @@ class Evaluator:
         return self.apply(Application(label, tf, e.span), self.ev(e.arg), e.arg.span)
 
     def apply(self, app: Application, arg, span: Span) -> list[Term]:
+        """One application of a block to `arg`: a single wiring term when `arg` is one plain
+        signal, else a term on a hidden signal that stands for the sum."""
         if not isinstance(arg, list):
             raise ModelError("LW212", "a block must be applied to a signal (or a sum of signals)", span,
                              "the argument holds no signal")

@@ -104,6 +104,9 @@ class Hints:
         self.found: dict[tuple[str, str], str | None] = {}
 
     def did_you_mean(self, name: str, options: Callable[[], Iterable[str]], kind: str = "") -> str | None:
+        """`did you mean `<name>`?` for the closest of `options` to `name` (None: none is
+        close, or the searches are used up); `kind` keeps answers for different kinds of
+        name apart."""
         key = (kind, name)
         if key not in self.found:
             if self.left <= 0:

@@ -22,6 +22,8 @@ class Quantity:
 
 @dataclass(frozen=True, eq=False)
 class Block:
+    """A named block: its transfer function (exact, delays kept) and where it is defined."""
+
     name: str
     transfer: Transfer
     span: Span
@@ -48,6 +50,11 @@ class Term:
 
 @dataclass(frozen=True, eq=False)
 class Model:
+    """A resolved model: its params, blocks, inputs and signals (hidden ones for nested
+    applications included), every signal's equation as wiring terms, its breaks,
+    requirements, findings and waivers, the params' ranges, and the trees of the files
+    it `use`s."""
+
     name: str
     file: str
     params: dict[str, Quantity]

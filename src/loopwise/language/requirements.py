@@ -19,6 +19,9 @@ __all__ = ["Metric", "METRICS", "Requirement", "make_requirement"]
 
 @dataclass(frozen=True)
 class Metric:
+    """A metric a requirement can bound: its name, its own unit, the unit kinds its limit
+    may be written in, and what it measures."""
+
     name: str
     unit: str  # the metric's own unit, for display
     kinds: tuple[str, ...]  # unit kinds a limit may carry besides none
@@ -43,6 +46,9 @@ METRICS: dict[str, Metric] = {m.name: m for m in [
 
 @dataclass(frozen=True)
 class Requirement:
+    """A checked requirement: the break it applies to (`*`: every break), the metric, the
+    operator, the limit in the metric's own unit, and where and how it is written."""
+
     target: str  # a break name or "*"
     metric: str
     op: str
@@ -81,6 +87,9 @@ def _to_metric_unit(metric: Metric, value: float, kind: str | None, span: Span) 
 
 
 def make_requirement(stmt: ast.RequireStmt, const) -> Requirement:
+    """A `require` statement checked: a known metric, a constant limit in a unit that fits
+    it, converted to the metric's own unit (`const` evaluates the limit with the
+    model's params); a located error otherwise."""
     metric = METRICS.get(stmt.metric)
     if metric is None:
         hint = did_you_mean(stmt.metric, METRICS) or "metrics: " + ", ".join(METRICS)

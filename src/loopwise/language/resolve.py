@@ -1,5 +1,6 @@
-"""Syntax tree -> a resolved model: includes read, names checked, params and
-blocks evaluated, every signal equation turned into a list of wiring terms.
+"""Syntax tree -> a resolved model: includes read (`language.includes`), names
+checked, params and blocks evaluated, every signal equation turned into a list of
+wiring terms.
 
 A wiring term is ``gain * application(source)``: one block (or bracketed transfer)
 applied to one signal, or a plain scaled signal. Nested applications and
@@ -9,12 +10,11 @@ the closed-loop characteristic function ``prod(den_b) * det(I - A)`` right.
 """
 from __future__ import annotations
 
-import dataclasses
 import math
 import os
 from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
-from pathlib import Path, PurePath
+from pathlib import Path
 
 import numpy as np
 
@@ -23,8 +23,9 @@ from ..transfer import Transfer
 from . import ast
 from .evaluate import BUILT_IN, Evaluator
 from .hints import Hints
+from .includes import MODEL_SUFFIX, Includes
 from .model import Application, Block, Model, Quantity, Term
-from .parse import MAX_TOKENS, parse_text
+from .parse import parse_text
 from .requirements import make_requirement
 from .source import SourceError, include_root, is_within, read_source
 from ..waivers import Waiver, Waivers, make_waiver
@@ -32,30 +33,16 @@ from ..waivers import Waiver, Waivers, make_waiver
 __all__ = ["Quantity", "Block", "Application", "Term", "Model", "resolve_text", "resolve_file",
            "MODEL_SUFFIX", "Parsed", "parse_model", "parse_file", "resolve_parsed"]
 
-#: only files with this suffix (as named and where links lead) have their lines shown
-#: under an error; any other included file is read, but its errors are one LW208 at the
-#: `use` that brought it in, and its findings point there
-MODEL_SUFFIX = ".loop"
-
 
 class _Resolver:
     def __init__(self, file: str, root: Path, overrides: Mapping[str, float] | None = None, sources=None):
         self.file = file
-        self.root = root  # every include must resolve inside it (resolved, links followed)
         self.overrides = dict(overrides or {})  # param name -> value (sweeps and --set)
-        #: `use` statement -> (real path, its parsed file): read by an earlier resolution of
-        #: the same parsed model (a sweep's plants), or by this one
-        self.sources = dict(sources or {})
-        self.read: dict[Path, ast.ModelFile] = {}  # real path -> parsed file, read by this resolution
         self.ranges: dict[str, tuple[float, float]] = {}
-        self.included: set[Path] = set()  # each file is read and collected once per model
-        self.tokens_left = MAX_TOKENS
-        #: included files whose lines are never shown (not `.loop`), by shown name -> the
-        #: `use` in a `.loop` file that led to them (its span and its path)
-        self.unshown: dict[str, tuple[Span, str]] = {}
-        self.reached_through: set[str] = set()  # unshown files used by another unshown file
         self.hints = Hints()
         self.errors: list[ModelError] = []
+        #: the included files: every one must resolve inside `root` (resolved, links followed)
+        self.includes = Includes(root, sources, self.errors)
         self.findings: list[Finding] = []
         self.params: dict[str, Quantity] = {}
         self.param_spans: dict[str, Span] = {}
@@ -133,93 +120,13 @@ class _Resolver:
                 self.waives.append(stmt)
 
     def include(self, stmt: ast.UseStmt, stack: tuple[tuple[Path, str], ...]) -> None:
-        """Read, parse and collect the file a `use` names: once per model, inside the root.
-
-        `stack` holds (real path, shown name) of the files being collected, the model first.
-        A `use` that an earlier resolution of the same parsed model has read (`sources`) takes
-        its tree from there, without the disk: the reading checks (regular file, size, UTF-8,
-        token budget) passed then; the root, cycle, once-per-model and statement rules apply
-        again here.
-        """
-        known = self.sources.get(stmt)
-        if known is None:
-            real = self.locate(stmt, stack)
-            if real is None:
-                return
-        else:
-            real = known[0]
-        if not is_within(real, self.root):
-            self.errors.append(ModelError(
-                "LW207", f"included file {stmt.path} lies outside the repository", stmt.span,
-                f"a `use` must stay inside {self.root} (the repository or checked folder that holds "
-                "the model); links are followed before this check"))
-            return
-        chain = [p for p, _ in stack]
-        if real in chain:
-            names = " -> ".join(p.name for p in (*chain[chain.index(real):], real))
-            self.errors.append(ModelError("LW205", f"include cycle: {names}", stmt.span,
-                                          "a file may not use itself, directly or through others"))
-            return
-        if real in self.included:
-            if real in self.read:  # kept, so that a later resolution needs no disk for it either
-                self.sources.setdefault(stmt, (real, self.read[real]))
-            return  # the same library reached again (a diamond): its names are already in
-        self.included.add(real)
-        mf = known[1] if known is not None else self.read_include(stmt, stack, real)
-        if mf is None:
-            return
-        if known is not None:
-            self.mark_unshown(stmt, mf.path, real)
-            self.tokens_left -= mf.tokens
-        self.read[real] = mf
-        self.sources[stmt] = (real, mf)
-        self.collect(mf, (*stack, (real, mf.path)), top=False)
-
-    def locate(self, stmt: ast.UseStmt, stack: tuple[tuple[Path, str], ...]) -> Path | None:
-        """The real path (links followed) of the file a `use` names, or None (LW206)."""
-        base = stack[-1][0].parent if stack else Path.cwd()
-        try:
-            return (base / stmt.path).resolve()
-        except (OSError, RuntimeError):  # a loop of links (RuntimeError before Python 3.13)
-            self.errors.append(ModelError("LW206", f"cannot read included file {stmt.path}: a loop of "
-                                          "symbolic links", stmt.span, "point the path at a real file"))
-            return None
-
-    def mark_unshown(self, stmt: ast.UseStmt, shown: str, real: Path) -> None:
-        """An included file that is not `.loop` (as named, or where links lead), or that is
-        reached through one, never has its lines shown (decided from names alone: a
-        sweep's plant resolves without the disk)."""
-        if stmt.span.file in self.unshown:
-            self.unshown[shown] = self.unshown[stmt.span.file]
-            self.reached_through.add(shown)
-        elif PurePath(stmt.path).suffix != MODEL_SUFFIX or real.suffix != MODEL_SUFFIX:
-            self.unshown[shown] = (stmt.span, stmt.path)
-
-    def read_include(self, stmt: ast.UseStmt, stack: tuple[tuple[Path, str], ...],
-                     real: Path) -> ast.ModelFile | None:
-        """Read (the bounded reader) and parse (within the token budget) an included file."""
-        shown_base = os.path.dirname(stack[-1][1]) if stack else ""
-        shown = _shown_path(shown_base, stmt.path, real)
-        self.mark_unshown(stmt, shown, real)
-        try:
-            text = read_source(real)
-        except SourceError as exc:
-            if exc.code == "LW104":  # a .loop file inside the repository: its place may be shown
-                self.errors.append(ModelError("LW104", exc.reason, Span(shown, exc.line, exc.col),
-                                              "a model is plain UTF-8 text"))
-            else:
-                self.errors.append(ModelError("LW206", f"cannot read included file {stmt.path}: {exc.reason}",
-                                              stmt.span, f"the path is relative to the folder of the file "
-                                              f"that holds the `use` ({shown_base or '.'})"))
-            return None
-        try:
-            mf = parse_text(text, shown, self.tokens_left)
-        except ModelError as exc:
-            self.errors.append(exc)
-            self.tokens_left = 0 if exc.code == "LW108" else self.tokens_left
-            return None
-        self.tokens_left -= mf.tokens
-        return mf
+        """Collect the statements of the file a `use` names, when `Includes.enter` lets it in
+        (once per model, inside the root, no cycle, read and parsed). `stack` holds
+        (real path, shown name) of the files being collected, the model first."""
+        found = self.includes.enter(stmt, stack)
+        if found is not None:
+            real, mf = found
+            self.collect(mf, (*stack, (real, mf.path)), top=False)
 
     # --- expressions --------------------------------------------------------------
     def const(self, expr: ast.Expr, what: str) -> Quantity:
@@ -255,7 +162,7 @@ class _Resolver:
         try:
             value = self.evaluate(stmt.transfer, "transfer")
             tf = value if isinstance(value, Transfer) else Transfer.constant(value.value)
-            span = self.unshown.get(stmt.span.file, (stmt.span,))[0]  # what later stages point at
+            span = self.includes.shown_span(stmt.span)  # what later stages point at
             self.blocks[stmt.name] = Block(stmt.name, self.checked_transfer(tf, f"block `{stmt.name}`",
                                                                             stmt.transfer.span, (stmt.name,)),
                                            span)
@@ -314,9 +221,7 @@ class _Resolver:
     # --- the pass ---------------------------------------------------------------
     def resolve(self, mf: ast.ModelFile, path: Path | None, extra_requirements=()) -> Model:
         self.all_params = {st.name for st in mf.statements if isinstance(st, ast.ParamStmt)}
-        self.tokens_left = MAX_TOKENS - mf.tokens
-        if path is not None:
-            self.included.add(path)
+        self.includes.start(mf, path)
         self.collect(mf, ((path, self.file),) if path else (), top=True)
         self.check_overrides()
         for stmt in self.block_stmts.values():
@@ -346,7 +251,7 @@ class _Resolver:
             except ModelError as exc:
                 self.errors.append(exc)
         waivers = self.waivers()
-        self.keep_unshown_lines_unshown()
+        self.errors, self.findings = self.includes.hide(self.errors, self.findings)
         if self.errors:
             raise ModelErrors(list(self.errors))  # in the order found: causes before follow-ups
         signals = {n: s.span for n, s in self.eq_stmts.items()}
@@ -357,33 +262,8 @@ class _Resolver:
             hidden=frozenset(self.hidden), equations=dict(self.equations), breaks=tuple(self.breaks),
             requirements=tuple(requirements), findings=tuple(self.findings),
             block_uses=dict(self.block_uses), hidden_owner=dict(self.hidden_owner), waivers=waivers,
-            ranges=dict(self.ranges), sources=dict(self.sources),
+            ranges=dict(self.ranges), sources=dict(self.includes.sources),
         )
-
-    def keep_unshown_lines_unshown(self) -> None:
-        """Errors in an included file that is not a `.loop` file become one LW208 at the `use`
-        that led to it (their messages quote its text); its findings point at that `use`."""
-        errors, hidden = [], {}
-        for err in self.errors:
-            file = err.span.file
-            if file not in self.unshown:
-                errors.append(err)
-                continue
-            if file not in hidden:  # one error in the place of the first
-                hidden[file] = len(errors)
-                errors.append(None)
-        for file, at in hidden.items():
-            count = sum(1 for e in self.errors if e.span.file == file)
-            span, path = self.unshown[file]
-            whose = f"included file {path} uses {file}, which has" if file in self.reached_through else \
-                f"included file {path} has"
-            errors[at] = ModelError(
-                "LW208", f"{whose} {count} error{'s' if count > 1 else ''}, not shown: only "
-                f"`{MODEL_SUFFIX}` files have their lines shown", span,
-                f"rename it to end in `{MODEL_SUFFIX}` to see them (or check it on its own)")
-        self.errors = errors
-        self.findings = [dataclasses.replace(f, span=self.unshown[f.span.file][0]) if f.span.file in self.unshown
-                         else f for f in self.findings]
 
     def waivers(self) -> Waivers:
         """The model's `waive` statements, checked against its names (after they are all known)."""
@@ -416,19 +296,6 @@ class _Resolver:
         return name
 
 
-def _shown_path(shown_base: str, relative: str, real: Path) -> str:
-    """An included file's name as errors show it: the including file's folder, as that
-    file is shown, joined with the `use` path (relative when the model's name was), or
-    the real path when links make that name lead elsewhere."""
-    shown = os.path.normpath(os.path.join(shown_base, relative))
-    try:
-        if Path(shown).resolve() == real:
-            return shown
-    except (OSError, RuntimeError):
-        pass
-    return str(real)
-
-
 def resolve_text(text: str, file: str = "<text>", extra_requirements: tuple[str, ...] = (),
                  extra_source: str = "<settings>", root: str | os.PathLike | None = None,
                  overrides: Mapping[str, float] | None = None) -> Model:
@@ -455,6 +322,8 @@ class Parsed:
     root: Path | None = None  # where includes must stay (None: `source.include_root` of the file)
 
     def with_sources(self, model: Model) -> "Parsed":
+        """This parsed model with the included files' trees a resolution read (`model.sources`),
+        so that later resolutions need neither the disk nor the parser."""
         return replace(self, sources=dict(model.sources))
 
 

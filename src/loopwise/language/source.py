@@ -1,8 +1,8 @@
 """Reading model files, and the folder an include must stay in.
 
-One bounded reader serves every file the language reads (a model named on the
-command line, a file it `use`s, a source line shown under an error): regular
-files only (a pipe or device named ``*.loop`` would block or never end), at
+One bounded reader serves every file loopwise reads as a model (a model named on
+the command line, a file it `use`s, a source line shown under an error, and the
+light scan of `loopwise.sources`): regular files only (a pipe or device named ``*.loop`` would block or never end), at
 most `MAX_MODEL_BYTES` (enforced while reading, not trusted from the size the
 file system reports), strict UTF-8.
 
@@ -19,7 +19,7 @@ import os
 import stat
 from pathlib import Path
 
-__all__ = ["MAX_MODEL_BYTES", "SourceError", "read_source", "repository_root", "include_root",
+__all__ = ["MAX_MODEL_BYTES", "SourceError", "read_bytes", "read_source", "repository_root", "include_root",
            "common_root", "is_within"]
 
 #: a model file larger than this is refused (a clear refusal, never a hang)
@@ -43,13 +43,15 @@ class SourceError(Exception):
         self.col = col
 
 
-def read_source(path: str | os.PathLike, limit: int = MAX_MODEL_BYTES) -> str:
-    """The text of a regular file of at most `limit` bytes, decoded as strict UTF-8.
+def read_bytes(path: str | os.PathLike, limit: int = MAX_MODEL_BYTES, *, refuse_larger: bool = True) -> bytes:
+    """The bytes of a regular file: at most `limit` of them, or a SourceError.
 
     Opened without blocking (a FIFO would wait for a writer forever), checked to
     be a regular file on the open descriptor (no race with a swapped path), and
     read in chunks that stop one byte past the limit (`/dev/zero` cannot get
-    here, and a file that grows while read cannot pass the limit).
+    here, and a file that grows while read cannot pass the limit). With
+    `refuse_larger=False` a larger file is not refused: its first `limit` + 1
+    bytes come back (enough to tell it from its first `limit`).
     """
     flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_NOCTTY", 0) \
         | getattr(os, "O_BINARY", 0)
@@ -69,7 +71,7 @@ def read_source(path: str | os.PathLike, limit: int = MAX_MODEL_BYTES) -> str:
             raise SourceError("is a folder, not a model file")
         if not stat.S_ISREG(info.st_mode):
             raise SourceError("is not a regular file (a pipe, device or socket is never read)")
-        if info.st_size > limit:
+        if refuse_larger and info.st_size > limit:
             raise SourceError(_too_large(info.st_size, limit), "LW105")
         chunks, total = [], 0
         while total <= limit:
@@ -78,13 +80,19 @@ def read_source(path: str | os.PathLike, limit: int = MAX_MODEL_BYTES) -> str:
                 break
             chunks.append(chunk)
             total += len(chunk)
-        if total > limit:
+        if refuse_larger and total > limit:
             raise SourceError(_too_large(total, limit), "LW105")
     except OSError as exc:
         raise SourceError(f"cannot read the file: {exc.strerror or exc}") from None
     finally:
         os.close(fd)
-    data = b"".join(chunks)
+    return b"".join(chunks)
+
+
+def read_source(path: str | os.PathLike, limit: int = MAX_MODEL_BYTES) -> str:
+    """The text of a regular file of at most `limit` bytes, decoded as strict UTF-8
+    (`read_bytes`); a SourceError says why not, and where a byte is not UTF-8."""
+    data = read_bytes(path, limit)
     try:
         return data.decode("utf-8")
     except UnicodeDecodeError as exc:

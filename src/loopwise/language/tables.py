@@ -115,6 +115,7 @@ def _decode(d: dict):
 
 
 def main() -> None:
+    """`python -m loopwise.language.tables`: write the tables of the current grammar to `TABLES_FILE`."""
     TABLES_FILE.write_text(tables_json(), encoding="utf-8")
     print(f"wrote {TABLES_FILE}")
 

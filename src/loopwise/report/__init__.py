@@ -31,6 +31,7 @@ class Reporter:
     description: str = ""
 
     def load(self):
+        """The reporter's function, its module imported now (not before it is used)."""
         module = self.module if "." in self.module else f"loopwise.report.{self.module}"
         return getattr(importlib.import_module(module), self.function)
 
@@ -42,7 +43,8 @@ REPORTERS: dict[tuple[str, str], Reporter] = {}
 def register(kind: str, name: str, module: str, function: str = "render", description: str = "") -> Reporter:
     """Add (or replace) the reporter of format `name` for results of `kind`.
 
-    (`"loopwise.sweep.report"`); its `function(result, **options)` returns text and
+    `module` is a module of `loopwise.report` by its short name (`"text"`) or any
+    module by its full name; its `function(result, **options)` returns text and
     may accept any of the keyword options `render` passes (`colour`,
     `fail_on_warnings`); options it does not take are not passed."""
     entry = Reporter(kind, name, module, function, description)
@@ -56,6 +58,8 @@ def formats(kind: str) -> tuple[str, ...]:
 
 
 def reporter(kind: str, name: str) -> Reporter:
+    """The registered reporter of format `name` for results of `kind`; a ValueError naming
+    the formats there are when there is none."""
     try:
         return REPORTERS[(kind, name)]
     except KeyError:

@@ -61,6 +61,8 @@ def _model(m: ModelDiff) -> dict:
 
 
 def to_dict(result: DiffResult) -> dict:
+    """A diff as its JSON contract (`"kind": "diff"`, docs/diff.md): the policy, the
+    settings, a summary with the exit code, the regressions and every model's changes."""
     p = result.policy
     statuses = ("changed", "unchanged", "added", "removed", "errors appeared",
                 "errors disappeared", "still unreadable")
@@ -79,4 +81,5 @@ def to_dict(result: DiffResult) -> dict:
 
 
 def render(result: DiffResult) -> str:
+    """A diff as indented JSON (`to_dict`), every control character escaped."""
     return json_dumps(to_dict(result))

@@ -64,6 +64,8 @@ def _model_section(m: ModelDiff) -> list[str]:
 
 
 def render(result: DiffResult) -> str:
+    """A diff as Markdown for a pull-request comment: the verdict first, the regressions,
+    then each changed model with its breaks' changes, then the caution."""
     n = len(result.regressions)
     if result.unreadable:
         verdict = f"**{len(result.unreadable)} model(s) cannot be read on the new side**"

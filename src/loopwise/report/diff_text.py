@@ -6,18 +6,14 @@ signed delta, and a regression under the policy says so at the end of its line.
 from __future__ import annotations
 
 from ..compare import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
-from ..language.requirements import METRICS
 from ..results import CAUTION
-from ..settings import Regression
 from ..errors import printable
+from ..settings import Regression
+from .escape import one_line
 from .numbers import fmt_time
 
 __all__ = ["render", "fmt_value", "fmt_delta", "verdict_words", "requirement_words",
            "policy_words", "summary_words", "margin_words"]
-
-def _s(text) -> str:
-    """A user-controlled string (file, model and break names) on one line, terminal-safe."""
-    return printable(str(text), keep="")
 
 
 def fmt_value(x: float | None, unit: str, none_words: str = "none") -> str:
@@ -61,6 +57,7 @@ def _state(stable: bool, marginal: bool) -> str:
 
 
 def verdict_words(v: VerdictChange) -> str:
+    """`stable -> UNSTABLE (Z 0 -> 2, worse)`: a verdict change in words."""
     return (f"{_state(v.stable_before, v.marginal_before)} -> "
             f"{_state(v.stable_after, v.marginal_after)} "
             f"(Z {v.z_before} -> {v.z_after}, {v.direction})")
@@ -74,6 +71,9 @@ def _limit(r: RequirementChange, side: str) -> str:
 
 
 def requirement_words(r: RequirementChange) -> str:
+    """`phase_margin >= 45deg: met -> NOT MET (stopped being met; value 52.24 deg -> 37.01 deg)`:
+    one requirement's change, its limit as the model wrote it (and the old one when it
+    changed)."""
     side = "after" if r.limit_after is not None else "before"
     head = f"{r.metric} {r.op} {_limit(r, side)}"
     if r.limit_before is not None and r.limit_after is not None and (
@@ -89,6 +89,8 @@ def requirement_words(r: RequirementChange) -> str:
 
 
 def policy_words(p: Regression) -> str:
+    """The regression policy in one sentence: the loss thresholds, where a loss matters, and
+    the verdict and requirement rules that are on."""
     parts = [f"phase margin loss > {p.phase_margin_loss_deg:g} deg",
              f"gain margin loss > {p.gain_margin_loss_db:g} dB (up or down)",
              f"delay margin loss > {p.delay_margin_loss_fraction:.0%}"]
@@ -107,6 +109,7 @@ def policy_words(p: Regression) -> str:
 
 
 def summary_words(result: DiffResult) -> str:
+    """`2 model(s): 1 changed, 1 unchanged; 1 regression`: the whole diff in numbers."""
     order = ("changed", "added", "removed", "errors appeared", "errors disappeared",
              "still unreadable", "unchanged")
     counts = [f"{result.count(s)} {s}" for s in order if result.count(s)]
@@ -136,13 +139,13 @@ def _break_lines(d: BreakDiff) -> list[str]:
     at = d.at_after or d.at_before
     if d.status == "added":
         state = "stable" if d.stable_after else "UNSTABLE"
-        lines = [f"  + break {_s(d.name)} (at {_s(at)}): added, {state}"]
+        lines = [f"  + break {one_line(d.name)} (at {one_line(at)}): added, {state}"]
     elif d.status == "removed":
-        return [f"  - break {_s(d.name)} (at {_s(at)}): removed"]
+        return [f"  - break {one_line(d.name)} (at {one_line(at)}): removed"]
     else:
-        lines = [f"  break {_s(d.name)} (at {_s(at)})"]
+        lines = [f"  break {one_line(d.name)} (at {one_line(at)})"]
         if d.at_before != d.at_after:
-            lines.append(f"    opened at {_s(d.at_before)} -> {_s(d.at_after)}")
+            lines.append(f"    opened at {one_line(d.at_before)} -> {one_line(d.at_after)}")
     if d.verdict is not None:
         lines.append(f"    verdict {verdict_words(d.verdict)}")
         if not (d.stable_before and d.stable_after):
@@ -154,12 +157,12 @@ def _break_lines(d: BreakDiff) -> list[str]:
 
 
 def _model_lines(m: ModelDiff) -> list[str]:
-    head = f"{_s(m.file)}: {m.status}"
+    head = f"{one_line(m.file)}: {m.status}"
     if m.status in ("added", "errors disappeared"):
         head += f" ({'stable' if m.stable_after else 'UNSTABLE'}, {m.breaks_after} break(s))"
     lines = [head]
     if m.model_before and m.model_after and m.model_before != m.model_after:
-        lines.append(f"  model renamed {_s(m.model_before)} -> {_s(m.model_after)}")
+        lines.append(f"  model renamed {one_line(m.model_before)} -> {one_line(m.model_after)}")
     if m.verdict is not None and not any(d.verdict for d in m.breaks):
         lines.append(f"  model verdict {verdict_words(m.verdict)}")
     for d in m.breaks:
@@ -173,12 +176,14 @@ def _model_lines(m: ModelDiff) -> list[str]:
             lines += ["  " + ln for ln in block.splitlines()]
     for r in m.regressions:
         if r.startswith("model "):  # the break rows carry their own flags
-            lines.append(f"  REGRESSION: {_s(r)}")
+            lines.append(f"  REGRESSION: {one_line(r)}")
     return lines
 
 
 def render(result: DiffResult) -> str:
-    out = [f"loopwise diff: {_s(result.old_label)} -> {_s(result.new_label)}",
+    """A diff as aligned plain text: the sides, the policy and the settings, each changed
+    model with its breaks' changes, the totals and every regression, then the caution."""
+    out = [f"loopwise diff: {one_line(result.old_label)} -> {one_line(result.new_label)}",
            f"regression: {policy_words(result.policy)}"]
     if result.settings:
         out.append(f"settings: {result.settings}")
@@ -194,7 +199,7 @@ def render(result: DiffResult) -> str:
         out += [f"{unchanged} model{'s' if unchanged != 1 else ''} unchanged", ""]
     out.append(summary_words(result))
     for r in result.regressions:
-        out.append(f"  regression: {_s(r)}")
+        out.append(f"  regression: {one_line(r)}")
     out += ["", CAUTION]
     # rendered errors and regressions quote names: nothing in them may drive a terminal
     return printable("\n".join(out), keep="\n") + "\n"

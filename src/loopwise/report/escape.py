@@ -6,7 +6,8 @@ terminal, end a Markdown code span or table cell, or make XML not well-formed.
 Every reporter passes such text through the helper of its format:
 
 - terminal and plain text: `loopwise.errors.printable` (control characters,
-  line and paragraph separators and bidirectional overrides become `?`);
+  line and paragraph separators and bidirectional overrides become `?`), and
+  `one_line` for a name or message that must stay on its line;
 - Markdown: `md_text` (running text), `md_code` (a code span), `md_cell` (a table
   cell), `md_fence` (a fenced block that nothing inside can close);
 - XML (HTML and JUnit): `xml_text` (characters XML 1.0 cannot carry removed; the
@@ -24,7 +25,7 @@ from html import escape
 
 from ..errors import printable
 
-__all__ = ["printable", "md_text", "md_code", "md_cell", "md_fence", "xml_text", "html_text",
+__all__ = ["printable", "one_line", "md_text", "md_code", "md_cell", "md_fence", "xml_text", "html_text",
            "json_dumps"]
 
 _BACKTICKS = re.compile("`+")
@@ -34,9 +35,10 @@ _BACKTICKS = re.compile("`+")
 _MD_SPECIAL = re.compile(r"([\\`*_\[\]<>#|~&])")
 
 
-def _one_line(text: str) -> str:
-    """Terminal-safe and on one line: a newline in a name becomes `?` like any other
-    control character, so it cannot start a new Markdown block."""
+def one_line(text) -> str:
+    """A user string terminal-safe and on one line: a newline in a name becomes `?`
+    like any other control character, so it cannot start a new line of a table or a
+    new Markdown block. The plain-text formats show every user string through it."""
     return printable(str(text), keep="")
 
 
@@ -44,7 +46,7 @@ def md_text(text: str) -> str:
     """Running Markdown text that shows `text` literally: every character with an
     inline meaning is backslash-escaped, so no link, image, HTML tag or heading
     can be made from it."""
-    return _MD_SPECIAL.sub(r"\\\1", _one_line(text))
+    return _MD_SPECIAL.sub(r"\\\1", one_line(text))
 
 
 def md_code(text: str, cell: bool = False) -> str:
@@ -52,7 +54,7 @@ def md_code(text: str, cell: bool = False) -> str:
     padded with a space when the text starts or ends with a backtick. In a table
     cell (`cell=True`) a pipe is escaped as the table syntax requires (the table
     reads `\\|` inside a code span as a literal pipe)."""
-    text = _one_line(text)
+    text = one_line(text)
     if cell:
         text = text.replace("|", "\\|")
     longest = max((len(m) for m in _BACKTICKS.findall(text)), default=0)
@@ -64,7 +66,7 @@ def md_code(text: str, cell: bool = False) -> str:
 def md_cell(text: str) -> str:
     """A table cell written by the reporter itself (status words, numbers): one
     line, pipes escaped. User text in a cell goes through `md_code` or `md_text`."""
-    return _one_line(text).replace("\\", "\\\\").replace("|", "\\|")
+    return one_line(text).replace("\\", "\\\\").replace("|", "\\|")
 
 
 def md_fence(lines: list[str], info: str = "text") -> list[str]:

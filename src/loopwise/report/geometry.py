@@ -15,7 +15,7 @@ from ..results import BreakResult, LoopResponse
 from .summary import break_status as verdict_word  # the tables' word for a break's verdict
 
 __all__ = [
-    "Ring", "choose_ring", "closed_curve", "winding_number", "Crossing",
+    "Ring", "choose_ring", "closed_curve", "Crossing",
     "crossings", "unwrapped_phase_deg", "low_frequency_asymptote", "verdict_word", "bode_range",
     "decade_label",
     "gap_at_axis_poles", "Unmarked", "select_crossings", "Zoom", "zoom_near_critical",
@@ -48,9 +48,13 @@ class Ring:
 
     @property
     def outer(self) -> float:
+        """The ring's outer radius on the page: where |L| = infinity is drawn."""
         return self.inner + self.width
 
     def compress(self, z: np.ndarray) -> np.ndarray:
+        """Where points z of the true plane are drawn: unchanged inside the ring's inner
+        radius, beyond it at `inner + width d/(1 + d)` with d the decades past `inner`,
+        at the same angle (infinity on the outer edge, 0 stays 0)."""
         z = np.asarray(z, dtype=complex)
         r = np.abs(z)
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
@@ -75,6 +79,7 @@ class Ring:
         return float(np.abs(self.compress(np.array([r], dtype=complex)))[0])
 
     def note(self) -> str:
+        """The map in words, for the figure's note (`|L| > 2: radius drawn as ...`)."""
         return (f"|L| > {self.inner:g}: radius drawn as {self.inner:g} + {self.width:g}"
                 f"\u00b7d/(1+d), d = log10(|L|/{self.inner:g})")
 
@@ -100,16 +105,6 @@ def closed_curve(response: LoopResponse) -> tuple[np.ndarray, np.ndarray]:
     """(upper half, mirror half): the mirror is conj(L) reversed (negative frequencies)."""
     upper = np.asarray(response.L, dtype=complex)
     return upper, np.conj(upper[::-1])
-
-
-def winding_number(z: np.ndarray, about: complex = -1.0) -> int:
-    """Clockwise turns of the closed polyline z around `about` (sum of angle steps)."""
-    z = np.asarray(z, dtype=complex) - about
-    if z.size < 2:
-        return 0
-    z = np.append(z, z[0])
-    steps = np.angle(z[1:] / z[:-1])
-    return int(round(-steps.sum() / (2 * math.pi)))
 
 
 def low_frequency_asymptote(response: LoopResponse) -> tuple[int, int]:
@@ -318,6 +313,7 @@ class Zoom:
 
     @property
     def limits(self) -> tuple[float, float, float, float]:
+        """(x min, x max, y min, y max) of the inset: the square around -1."""
         return (-1.0 - self.half, -1.0 + self.half, -self.half, self.half)
 
 

@@ -13,19 +13,30 @@ import xml.etree.ElementTree as ET
 
 from ..results import CAUTION
 from .escape import xml_text
-from .summary import BreakSummary, ModelSummary, finding_text, summarise
+from .summary import LIBRARY_WORDS, BreakSummary, ModelSummary, finding_text, summarise
 
-__all__ = ["render", "testcase", "failure", "error_suite", "settings_suite", "finish"]
+__all__ = ["render", "testcase", "library_case", "failure", "error_suite", "settings_suite", "finish"]
 
 
 def testcase(suite, classname: str, name: str, file: str, line: int | None = None):
+    """A `testcase` in `suite` for `name` of `classname` (the model), at `file` and, when
+    given, `line`; every attribute made safe for XML."""
     attrs = {"classname": xml_text(classname), "name": xml_text(name), "file": xml_text(file)}
     if line:
         attrs["line"] = str(line)
     return ET.SubElement(suite, "testcase", attrs)
 
 
+def library_case(suite, model: str, file: str) -> None:
+    """A library of params and blocks: one skipped testcase, nothing to check on its own."""
+    case = testcase(suite, model, "library", file)
+    ET.SubElement(case, "skipped", {"message": LIBRARY_WORDS})
+    _counts(suite, 1, 0, 1)
+
+
 def failure(case, kind: str, message: str, details: list[str]) -> None:
+    """Mark `case` failed: `kind` (instability, requirement, warning), a one-line `message`,
+    and the detail lines as its text."""
     el = ET.SubElement(case, "failure", {"type": kind, "message": xml_text(message)})
     el.text = xml_text("\n".join(details))
 
@@ -61,9 +72,7 @@ def _model_suite(root, s: ModelSummary, fail_on_warnings: bool) -> None:
     ET.SubElement(props, "property", {"name": "model", "value": xml_text(s.model)})
     ET.SubElement(props, "property", {"name": "caution", "value": CAUTION})
     if s.is_library:
-        case = testcase(suite, s.model, "library", s.file)
-        ET.SubElement(case, "skipped", {"message": s.detail})
-        _counts(suite, 1, 0, 1)
+        library_case(suite, s.model, s.file)
         return
     failures = 0
     case = testcase(suite, s.model, "closed loop", s.file)
@@ -81,13 +90,15 @@ def _model_suite(root, s: ModelSummary, fail_on_warnings: bool) -> None:
         if problem:
             failure(case, *problem)
             failures += 1
-    notes = [n.text for n in s.notes]
+    notes = [n.logged for n in s.notes]  # each says its severity, as the text report does
     if notes:
         ET.SubElement(suite, "system-out").text = xml_text("\n".join(notes))
     _counts(suite, 1 + len(s.breaks), failures)
 
 
 def error_suite(root, file: str, errors) -> None:
+    """A suite for a file that could not be read: one testcase with an `error` per file,
+    its text every located error with source line and caret."""
     suite = ET.SubElement(root, "testsuite", {"name": xml_text(file), "tests": "1",
                                               "failures": "0", "errors": "1", "skipped": "0"})
     case = testcase(suite, file, "read model", file, errors[0].span.line or None)
@@ -128,6 +139,8 @@ def finish(root, run, fail_on_warnings: bool = False) -> str:
 
 
 def render(run, fail_on_warnings: bool = False) -> str:
+    """A check's results as JUnit XML: a suite per model file (a testcase for the closed
+    loop and one per break), a suite for the run's own warnings, one per unreadable file."""
     root = ET.Element("testsuites", {"name": "loopwise check"})
     for m in run.models:
         _model_suite(root, summarise(m, fail_on_warnings), fail_on_warnings)

@@ -67,10 +67,16 @@ def _details(s: ModelSummary) -> list[str]:
 
 
 def render(run, fail_on_warnings: bool = False) -> str:
+    """A check's results as Markdown for a pull-request comment: a heading that says what
+    the exit code says, the tally, a row per model, each model's breaks, unmet
+    requirements and warnings, the settings' warnings, unreadable files, the caution."""
     t = tally(run, fail_on_warnings)
     summaries = [summarise(m, fail_on_warnings) for m in run.models]
     failing = t.failed + t.unreadable
-    head = "all models pass" if not failing else f"{failing} of {t.models + t.unreadable} models need attention"
+    parts = [f"{failing} of {t.models + t.unreadable} models need attention"] if failing else []
+    if t.run_fails:  # with fail_on_warnings, a warning about the run fails it (the exit code says 1)
+        parts.append(f"{t.run_warnings} settings warning{'s fail' if t.run_warnings != 1 else ' fails'} the run")
+    head = "; ".join(parts) or "all models pass"
     out = [f"### loopwise check: {head}", "", t.sentence() + ".", ""]
     out += _summary_table(summaries, run)
     out.append("")

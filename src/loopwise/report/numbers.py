@@ -15,6 +15,7 @@ _TIME_UNITS = ((3600.0, "h"), (60.0, "min"), (1.0, "s"), (1e-3, "ms"), (1e-6, "u
 
 
 def finite(x) -> bool:
+    """Whether `x` is a number that is neither None, infinite nor NaN."""
     return x is not None and math.isfinite(x)
 
 

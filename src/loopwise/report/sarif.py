@@ -31,7 +31,8 @@ from urllib.parse import quote
 
 from .. import __version__
 from ..diagnostics import CODES
-from ..results import CAUTION
+from ..language.source import repository_root as work_tree
+from ..results import CAUTION, is_library
 from ..run import exit_status
 from .escape import json_dumps
 from .summary import ModelSummary, summarise, waiver_note
@@ -46,12 +47,9 @@ _LEVEL = {"error": "error", "warning": "warning", "note": "note"}
 
 
 def repository_root(start: Path | None = None) -> Path | None:
-    """The nearest folder from `start` (default: the working directory) up that holds `.git`."""
-    here = (start or Path.cwd()).resolve()
-    for folder in (here, *here.parents):
-        if (folder / ".git").exists():
-            return folder
-    return None
+    """The git work tree holding `start` (default: the working directory), links followed
+    first: the one walk up to a `.git` entry (`language.source.repository_root`)."""
+    return work_tree((start or Path.cwd()).resolve())
 
 
 class SarifLog:
@@ -91,6 +89,9 @@ class SarifLog:
     def add(self, code: str, message: str, file: str, line: int = 0, col: int = 0,
             end_col: int | None = None, level: str | None = None, kind: str = "fail",
             waived: str | None = None, properties: dict | None = None) -> None:
+        """One result: rule `code` (registered, so its rule is listed), the message, where (file,
+        line, columns; none given: the file itself), its level (default: the code's
+        severity) and kind; `waived` makes it a suppressed result with that justification."""
         index = self.rules.setdefault(code, len(self.rules))
         result: dict = {"ruleId": code, "ruleIndex": index, "kind": kind,
                         "level": level or _LEVEL[CODES[code].severity],
@@ -103,11 +104,15 @@ class SarifLog:
         self.results.append(result)
 
     def finding(self, f, waived: str | None = None, prefix: str = "") -> None:
+        """A located `Finding` as a result at its own place, its hint in the message after
+        `prefix`; `waived` as for `add`."""
         message = prefix + f.message + (f" (hint: {f.hint})" if f.hint else "")
         self.add(f.code, message, f.span.file, f.span.line, f.span.col, f.span.end_col,
                  level=_LEVEL.get(f.severity, "error"), waived=waived)
 
     def log(self, exit_code: int, properties: dict) -> dict:
+        """The whole log (a dict): the tool with the rules the results use, the repository
+        root, the invocation's `exit_code`, the results, and `properties` with the caution."""
         rules = []
         for code in self.rules:
             entry = CODES[code]
@@ -161,6 +166,7 @@ def check_log(run, fail_on_warnings: bool = False, root: Path | None = None) -> 
 
 
 def render_check(run, fail_on_warnings: bool = False) -> str:
+    """A check's results as a SARIF 2.1.0 log (`check_log`), as JSON text."""
     return json_dumps(check_log(run, fail_on_warnings))
 
 
@@ -224,6 +230,7 @@ def diff_log(result, root: Path | None = None) -> dict:
 
 
 def render_diff(result) -> str:
+    """A diff as a SARIF 2.1.0 log (`diff_log`), as JSON text."""
     return json_dumps(diff_log(result))
 
 
@@ -255,7 +262,8 @@ def sweep_log(run, fail_on_warnings: bool = False, root: Path | None = None) -> 
 
     log = SarifLog(root if root is not None else repository_root())
     for m in run.models:
-        _sweep_results(log, m)
+        if not is_library(m):  # nothing to sweep, as check gives it no result
+            _sweep_results(log, m)
     for f in run.findings:  # about the run itself: a settings waiver that matched nothing
         log.finding(f, waiver_note(f))
     for e in run.errors:
@@ -266,4 +274,5 @@ def sweep_log(run, fail_on_warnings: bool = False, root: Path | None = None) -> 
 
 
 def render_sweep(run, fail_on_warnings: bool = False) -> str:
+    """A sweep's results as a SARIF 2.1.0 log (`sweep_log`), as JSON text."""
     return json_dumps(sweep_log(run, fail_on_warnings))

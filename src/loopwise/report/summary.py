@@ -14,10 +14,12 @@ import math
 from dataclasses import dataclass
 from typing import Callable
 
+from ..results import LIBRARY_NOTE, is_library
 from .numbers import finite, fmt_quantity, fmt_time
 
 __all__ = [
-    "LIBRARY_NOTE", "is_library", "break_status", "model_status", "model_passes", "Tally", "tally",
+    "LIBRARY_NOTE", "LIBRARY_WORDS", "is_library", "break_status", "model_status", "model_passes", "run_warnings_fail",
+    "run_warnings_words", "Tally", "tally",
     "count_met", "requirement_place", "requirement_text", "finding_text", "waiver_note",
     "BREAK_COLUMNS", "break_row", "Note", "RequirementLine", "BreakSummary", "ModelSummary",
     "summarise", "stabilising_text", "GM_DOWN_HEAD",
@@ -25,12 +27,8 @@ __all__ = [
 
 # --- verdicts ---------------------------------------------------------------------------
 
-#: the analysis's note for a file of params and blocks only (brought in with `use`)
-LIBRARY_NOTE = "LW491"
-
-
-def is_library(m) -> bool:
-    return not m.breaks and any(f.code == LIBRARY_NOTE for f in m.findings)
+#: what every format says of a library (`results.is_library`), for check and sweep alike
+LIBRARY_WORDS = "library of params and blocks for `use`: nothing to check on its own"
 
 
 def break_status(b) -> str:
@@ -41,6 +39,8 @@ def break_status(b) -> str:
 
 
 def model_status(m) -> str:
+    """A model's verdict word: LIBRARY, STABLE, MARGINAL (a closed-loop pole on the
+    imaginary axis) or UNSTABLE."""
     if is_library(m):
         return "LIBRARY"
     if m.stable:
@@ -54,8 +54,23 @@ def model_passes(m, fail_on_warnings: bool = False) -> bool:
     return m.ok and not (fail_on_warnings and m.open_warnings)
 
 
+def run_warnings_fail(run, fail_on_warnings: bool = False) -> bool:
+    """Whether the run's own warnings (a settings waiver that matched nothing) fail it:
+    with fail_on_warnings, one that counts (`Finding.counts`). The exit rules of check
+    and sweep apply the same test, so every format's overall verdict says it too."""
+    return fail_on_warnings and any(f.counts for f in run.findings)
+
+
+def run_warnings_words(count: int, fail: bool) -> str:
+    """`1 settings warning`, and when they fail the run (`run_warnings_fail`), that too."""
+    words = f"{count} settings warning{'s' if count != 1 else ''}"
+    return words + (" (fail_on_warnings: the run fails)" if fail else "")
+
+
 @dataclass(frozen=True)
 class Tally:
+    """A check run in numbers, and whether it passes as its exit code says."""
+
     models: int      # models checked (library files not counted)
     passed: int
     failed: int
@@ -63,8 +78,16 @@ class Tally:
     libraries: int = 0
     waived: int = 0          # warnings and notes accepted by a waiver (shown, not counted)
     run_warnings: int = 0    # warnings about the run itself (a settings waiver that matched nothing)
+    run_fails: bool = False  # those warnings fail the run (`run_warnings_fail`)
+
+    @property
+    def passes(self) -> bool:
+        """The run passes (exit code 0): every model passes, all were read, and no
+        warning about the run itself fails it."""
+        return not (self.failed or self.unreadable or self.run_fails)
 
     def sentence(self) -> str:
+        """`7 models checked, 6 passed, 1 failed, ...`: the run in one sentence."""
         parts = [f"{self.models} model{'s' if self.models != 1 else ''} checked",
                  f"{self.passed} passed", f"{self.failed} failed"]
         if self.unreadable:
@@ -75,20 +98,23 @@ class Tally:
         if self.waived:
             parts.append(f"{self.waived} finding{'s' if self.waived != 1 else ''} waived")
         if self.run_warnings:
-            parts.append(f"{self.run_warnings} settings warning{'s' if self.run_warnings != 1 else ''}")
+            parts.append(run_warnings_words(self.run_warnings, self.run_fails))
         return ", ".join(parts)
 
 
 def tally(run, fail_on_warnings: bool = False) -> Tally:
+    """The `Tally` of a check's `RunResult` under the same rules as its exit code."""
     models = [m for m in run.models if not is_library(m)]
     passed = sum(model_passes(m, fail_on_warnings) for m in models)
     unreadable = len({e.span.file for e in run.errors})
     waived = sum(f.waiver is not None for m in run.models for f in m.every_finding)
     return Tally(len(models), passed, len(models) - passed, unreadable,
-                 len(run.models) - len(models), waived, sum(f.counts for f in run.findings))
+                 len(run.models) - len(models), waived, sum(f.counts for f in run.findings),
+                 run_warnings_fail(run, fail_on_warnings))
 
 
 def count_met(b) -> tuple[int, int]:
+    """(requirements met, requirements) of a break."""
     return sum(r.met for r in b.requirements), len(b.requirements)
 
 
@@ -202,6 +228,7 @@ BREAK_COLUMNS: tuple[tuple[str, Callable, bool], ...] = (
 
 
 def break_row(b) -> list[str]:
+    """A break's cells of the table, in `BREAK_COLUMNS` order, as every format shows them."""
     return [cell(b) for _, cell, _ in BREAK_COLUMNS]
 
 
@@ -229,9 +256,21 @@ class Note:
             return self.line
         return finding_text(self.finding)
 
+    @property
+    def logged(self) -> str:
+        """As a log shows it, its severity always said: a break's on one line after its
+        severity (`warning: break b: LW383 ...`), a model's as `text` (`file:line:col:
+        warning LW281 ...`, the source line, a caret)."""
+        if self.break_name is not None:
+            return f"{self.finding.severity}: {self.line}"
+        return self.text
+
 
 @dataclass(frozen=True)
 class RequirementLine:
+    """One requirement of a model as the formats list it: its break, where it is written,
+    the requirement with its value in words, and whether it is met."""
+
     break_name: str
     place: str          # file:line of the `require` statement (or the settings file)
     text: str           # `requirement_text`, with the reason when it has no value
@@ -241,6 +280,9 @@ class RequirementLine:
 
 @dataclass(frozen=True)
 class BreakSummary:
+    """One break as the formats show it: its verdict word, its table cells, how many of its
+    requirements are met, and what would stabilise it when it is unstable."""
+
     name: str
     at: str
     line: int
@@ -254,6 +296,9 @@ class BreakSummary:
 
 @dataclass(frozen=True)
 class ModelSummary:
+    """One model as every format shows it (`summarise`): its verdict in words, whether it
+    passes, its breaks, requirements and the warnings and notes to show."""
+
     file: str
     model: str
     status: str                 # STABLE | UNSTABLE | MARGINAL | LIBRARY
@@ -268,18 +313,22 @@ class ModelSummary:
 
     @property
     def verdict(self) -> str:
+        """PASS or FAIL, by the exit rule (`model_passes`)."""
         return "PASS" if self.passes else "FAIL"
 
     @property
     def is_library(self) -> bool:
+        """Whether the model is a library of params and blocks (nothing to check on its own)."""
         return self.status == "LIBRARY"
 
     @property
     def unmet(self) -> tuple[RequirementLine, ...]:
+        """The requirements that are not met."""
         return tuple(r for r in self.requirements if not r.met)
 
     @property
     def requirements_words(self) -> str:
+        """`requirements 4/5 met`, or `no requirements`."""
         return f"requirements {self.met}/{self.total} met" if self.total else "no requirements"
 
     @property
@@ -290,7 +339,7 @@ class ModelSummary:
 
 def _detail(m, status: str) -> str:
     if status == "LIBRARY":
-        return "library of params and blocks for `use`: nothing to check on its own"
+        return LIBRARY_WORDS
     if status == "STABLE":
         return "no closed-loop poles in the right half plane"
     if status == "MARGINAL":

@@ -10,11 +10,12 @@ from __future__ import annotations
 
 import xml.etree.ElementTree as ET
 
-from ..results import CAUTION
+from ..results import CAUTION, is_library
 from .escape import xml_text
-from .junit import failure, finish, testcase
+from .junit import failure, finish, library_case, testcase
 from .summary import finding_text, requirement_text
-from .sweep_summary import EVIDENCE, boundary_words, evidence_words, format_at, requirement_words, unstable_words
+from .sweep_summary import (EVIDENCE, boundary_words, evidence_words, format_at, requirement_words, shown_findings,
+                            unstable_words)
 
 __all__ = ["render"]
 
@@ -44,14 +45,20 @@ def _model_suite(root, m, fail_on_warnings: bool) -> None:
     for name, value in (("model", m.model), ("evidence", f"{evidence_words(m)}; {EVIDENCE}"),
                         ("caution", CAUTION)):
         ET.SubElement(props, "property", {"name": name, "value": xml_text(value)})
+    if is_library(m):  # nothing to sweep, as check says
+        library_case(suite, m.model, m.file)
+        return
     failures = sum(_break_case(suite, m, b, fail_on_warnings) for b in m.breaks)
-    if m.findings:
-        ET.SubElement(suite, "system-out").text = xml_text("\n".join(finding_text(f) for f in m.findings))
+    if shown_findings(m):
+        ET.SubElement(suite, "system-out").text = xml_text("\n".join(finding_text(f) for f in shown_findings(m)))
     for key, value in (("tests", len(m.breaks)), ("failures", failures), ("errors", 0), ("skipped", 0)):
         suite.set(key, str(value))
 
 
 def render(run, fail_on_warnings: bool = False) -> str:
+    """A sweep's results as JUnit XML: a suite per model with a testcase per break over the
+    box (a library's one skipped case), then check's suites for the run's own warnings
+    and the unreadable files (`junit.finish`)."""
     root = ET.Element("testsuites", {"name": "loopwise sweep"})
     for m in run.models:
         _model_suite(root, m, fail_on_warnings)

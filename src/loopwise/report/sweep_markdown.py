@@ -4,12 +4,12 @@ boundaries, and the caution. Tables and escaping as in check's Markdown form: us
 text in code spans (`md_code`) or escaped (`md_text`), findings in fenced blocks."""
 from __future__ import annotations
 
-from ..results import CAUTION
+from ..results import CAUTION, is_library
 from .escape import md_cell, md_code, md_fence, md_text
 from .markdown import table
 from .summary import finding_text
 from .sweep_summary import (EVIDENCE, WORST_HEADER, boundary_words, break_state, evidence_words, params_words,
-                            requirement_words, tally, unmet, verdict_words, worst_rows)
+                            requirement_words, shown_findings, tally, unmet, verdict_words, worst_rows)
 
 __all__ = ["render"]
 
@@ -20,9 +20,19 @@ def _worst_table(b) -> list[str]:
     return table(list(WORST_HEADER), rows, [False, True, True, False])
 
 
+def _findings(m) -> list[str]:
+    if not shown_findings(m):
+        return []
+    return ["Notes and warnings:", "", *md_fence([line for f in shown_findings(m)
+                                                  for line in finding_text(f).splitlines()]), ""]
+
+
 def _model(m, fail_on_warnings: bool) -> list[str]:
     word = "PASS" if m.passes(fail_on_warnings) else "**FAIL**"
-    out = [f"#### {word} {md_code(m.model)} ({md_code(m.file)}): {verdict_words(m)}", "",
+    head = f"#### {word} {md_code(m.model)} ({md_code(m.file)}): {verdict_words(m)}"
+    if is_library(m):  # nothing to sweep, as check says
+        return [head, "", *_findings(m)]
+    out = [head, "",
            f"{md_text(params_words(m))}.", "", f"Evidence: {md_text(evidence_words(m))}; {EVIDENCE}.", ""]
     for b in m.breaks:
         state = break_state(b)
@@ -35,15 +45,20 @@ def _model(m, fail_on_warnings: bool) -> list[str]:
     if unmet(m):
         out += ["Unmet requirements (judged at the worst plant found):", ""]
         out += [f"- {md_code(requirement_words(m, b, r))}" for b, r in unmet(m)] + [""]
-    if m.findings:
-        out += ["Notes and warnings:", "", *md_fence([line for f in m.findings
-                                                      for line in finding_text(f).splitlines()]), ""]
-    return out
+    return out + _findings(m)
 
 
 def render(run, fail_on_warnings: bool = False) -> str:
+    """A sweep's results as Markdown for a pull-request comment: a heading that says what
+    the exit code says, the tally, each model's box, evidence and worst margins, the
+    settings' warnings and errors, the caution."""
     t = tally(run, fail_on_warnings)
-    head = "every model passes over its box" if not (t.failed or run.errors) else "models need attention"
+    if t.passes:
+        head = "every model passes over its box"
+    elif t.failed or t.errors:
+        head = "models need attention"
+    else:  # with fail_on_warnings, a warning about the run fails it (the exit code says 1)
+        head = f"{t.run_warnings} settings warning{'s fail' if t.run_warnings != 1 else ' fails'} the run"
     out = [f"### loopwise sweep: {head}", "", t.sentence() + ".", ""]
     for m in run.models:
         out += _model(m, fail_on_warnings)

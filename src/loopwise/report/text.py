@@ -4,12 +4,12 @@ Plain text that reads the same in a CI log and a terminal; colour is only an
 extra on top of words (STABLE, UNSTABLE, MARGINAL, PASS, FAIL), never the only
 signal. Columns are padded on the plain text, so colour codes never shift them.
 Every string from the user's files (file names, names, messages) passes through
-`printable`, so the only escape sequences in the output are the colours.
+`escape.one_line` (or, with its source line and caret, `errors.render`), so the only escape sequences in the output are the colours.
 """
 from __future__ import annotations
 
-from ..errors import printable
 from ..results import CAUTION
+from .escape import one_line
 from .summary import BREAK_COLUMNS, ModelSummary, finding_text, summarise, tally
 
 __all__ = ["render"]
@@ -17,10 +17,6 @@ __all__ = ["render"]
 _STYLE = {"STABLE": "32", "PASS": "32", "UNSTABLE": "1;31", "FAIL": "1;31",
           "MARGINAL": "1;33", "ERROR": "1;31", "warning": "33", "dim": "2"}
 
-
-def _s(text) -> str:
-    """A user-controlled string on one line, safe for the terminal."""
-    return printable(str(text), keep="")
 
 
 def _paint(text: str, word: str, colour: bool) -> str:
@@ -30,7 +26,7 @@ def _paint(text: str, word: str, colour: bool) -> str:
 
 def _table(s: ModelSummary, colour: bool, indent: str = "  ") -> list[str]:
     header = [h for h, _, _ in BREAK_COLUMNS]
-    rows = [[_s(c) for c in b.cells] for b in s.breaks]
+    rows = [[one_line(c) for c in b.cells] for b in s.breaks]
     widths = [max(len(r[i]) for r in [header, *rows]) for i in range(len(header))]
     verdict = header.index("verdict")
 
@@ -48,8 +44,8 @@ def _table(s: ModelSummary, colour: bool, indent: str = "  ") -> list[str]:
 
 def _verdict_line(s: ModelSummary, colour: bool) -> str:
     if s.is_library:
-        return f"{_paint('PASS', 'PASS', colour)}  {_s(s.file)}  {s.detail}"
-    return (f"{_paint(s.verdict, s.verdict, colour)}  {_s(s.file)}  model {_s(s.model)}: "
+        return f"{_paint('PASS', 'PASS', colour)}  {one_line(s.file)}  {s.detail}"
+    return (f"{_paint(s.verdict, s.verdict, colour)}  {one_line(s.file)}  model {one_line(s.model)}: "
             f"{_paint(s.status, s.status, colour)} ({s.detail}); {s.requirements_words}")
 
 
@@ -61,17 +57,21 @@ def _model_block(s: ModelSummary, colour: bool) -> list[str]:
         out.append("  (no breaks: margins are measured at `break <name> at <signal>` lines)")
     if s.unmet:
         out.append("  unmet requirements:")
-        out += [f"    {_s(r.place)}: break {_s(r.break_name)}: {_s(r.text)}" for r in s.unmet]
-    out += [f"  break {_s(name)}: {_s(words)}" for name, words in s.stabilising]
+        out += [f"    {one_line(r.place)}: break {one_line(r.break_name)}: {one_line(r.text)}" for r in s.unmet]
+    out += [f"  break {one_line(name)}: {one_line(words)}" for name, words in s.stabilising]
     for n in s.notes:
         if n.break_name is not None:  # a waived one is dimmed; its note says why
-            out.append(f"  {_paint('warning', 'warning' if n.finding.counts else 'dim', colour)}: {_s(n.line)}")
+            out.append(f"  {_paint('warning', 'warning' if n.finding.counts else 'dim', colour)}: {one_line(n.line)}")
         else:  # already terminal-safe, several lines (source line, caret, hint)
             out += ["  " + line for line in n.text.splitlines()]
     return out
 
 
 def render(run, colour: bool = False, fail_on_warnings: bool = False) -> str:
+    """A check's results as aligned plain text: per model a verdict line and a table of
+    its breaks, unmet requirements, what would stabilise an unstable loop and the
+    warnings; the run's warnings, unreadable files, the tally and the caution.
+    `colour` adds terminal colours on top of the words."""
     out: list[str] = []
     for m in run.models:
         out += _model_block(summarise(m, fail_on_warnings), colour)
@@ -81,7 +81,7 @@ def render(run, colour: bool = False, fail_on_warnings: bool = False) -> str:
     if run.errors:
         files = list(dict.fromkeys(e.span.file for e in run.errors))
         for name in files:
-            out.append(f"{_paint('ERROR', 'ERROR', colour)}  {_s(name)}: errors stop the check")
+            out.append(f"{_paint('ERROR', 'ERROR', colour)}  {one_line(name)}: errors stop the check")
             for e in run.errors:
                 if e.span.file == name:
                     out += ["  " + line for line in finding_text(e).splitlines()]

@@ -5,8 +5,9 @@ One module per step: `design` (which points first), `evaluate` (the engine seam:
 parameter vectors in, light per-break records out), `search` (local search for the worst
 margins, bisection for stability boundaries), `aggregate` (worst values and requirements),
 `results` (frozen results, the JSON contract), `execute` (local processes or a Dask
-cluster) and `driver` (one model, many models). The submodules load on first use, so
-that `loopwise sweep --help` stays light.
+cluster), `driver` (one model, many models) and `band` (the plants the HTML report
+draws around the nominal curve). The submodules load on first use, so that
+`loopwise sweep --help` stays light.
 """
 from __future__ import annotations
 

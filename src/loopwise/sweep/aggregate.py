@@ -32,9 +32,11 @@ class Box:
         self.hi = np.asarray(hi, float)
 
     def values(self, unit) -> np.ndarray:
+        """Param values (one row per point) of points of the unit cube (one row each)."""
         return to_values(np.atleast_2d(unit), self.lo, self.hi)
 
     def at(self, unit) -> tuple[tuple[str, float], ...]:
+        """(name, value) of each swept param at one point of the unit cube."""
         return tuple(zip(self.names, (float(v) for v in self.values(unit)[0])))
 
 

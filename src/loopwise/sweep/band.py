@@ -1,5 +1,7 @@
 """Plants for the report's Nyquist band: a few analysed plants checked again in full,
-with their responses, so that their curves can be drawn around the nominal one.
+with their responses, so that their curves can be drawn around the nominal one. They
+resolve from the parsed model the sweep kept (`SweepModelResult.parsed`): nothing is
+read or parsed again, and the nominal point is the sweep's own (`.nominal`).
 
 Only the report needs this (in the parent process, after the sweep): the sweep itself
 never moves response arrays (see evaluate.py).
@@ -35,22 +37,22 @@ def band_points(result: SweepModelResult, limit: int = BAND_PLANTS) -> np.ndarra
     return table.values[chosen[:limit]]
 
 
-def band_results(path: str, settings, result: SweepModelResult, limit: int = BAND_PLANTS,
-                 root=None) -> list:
+def band_results(result: SweepModelResult, limit: int = BAND_PLANTS) -> list:
     """Full `ModelResult`s (with responses) of the band's plants; plants that cannot be
-    analysed are left out. `root`: as for the sweep (`driver.sweep_files`)."""
+    analysed are left out. The plants resolve from the parsed model the sweep kept
+    (`result.parsed`, its includes' trees with it), with the sweep's `--set` values: the
+    model is neither read nor parsed again, and its nominal point (`result.nominal`) is
+    not checked again."""
     from ..analysis import check_model
     from ..errors import LoopwiseError
     from ..language.resolve import resolve_parsed
-    from .driver import prepare_sweep
 
-    parsed, _, _ = prepare_sweep(path, settings, root)
-    fixed = dict(settings.overrides)
+    fixed = dict(result.fixed)
     out = []
     for row in band_points(result, limit):
         overrides = {**fixed, **dict(zip(result.plants.names, map(float, row)))}
         try:
-            out.append(check_model(resolve_parsed(parsed, overrides)))
+            out.append(check_model(resolve_parsed(result.parsed, overrides)))
         except LoopwiseError:
             continue
     return out

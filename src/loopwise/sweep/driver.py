@@ -9,6 +9,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import Finding, Span
+from ..results import is_library
 from . import DEFAULT_SAMPLES
 from .aggregate import Box, break_results, plant_table, sample_errors, sample_warnings
 from .design import corners, describe, space_filling, spacing
@@ -22,6 +23,8 @@ __all__ = ["DEFAULT_SAMPLES", "SweepOptions", "prepare_sweep", "sweep_model", "s
 
 @dataclass(frozen=True)
 class SweepOptions:
+    """How a sweep samples the box: the size of the space-filling set and the design's seed."""
+
     samples: int = DEFAULT_SAMPLES
     seed: int = 0
 
@@ -46,7 +49,10 @@ def sweep_model(parsed, model, nominal, fixed: dict, options: SweepOptions, run_
     `run_batch(parsed, names, values, fixed)` evaluates plants (see execute.py).
     Returns the result and the errors of plants that could not be analysed.
     """
-    ranged = [(n, lo, hi) for n, (lo, hi) in model.ranges.items() if hi > lo and n not in fixed]
+    # a library of params and blocks has nothing to sweep (as it has nothing to check)
+    library = is_library(nominal)
+    ranged = [] if library else [(n, lo, hi) for n, (lo, hi) in model.ranges.items()
+                                 if hi > lo and n not in fixed]
     box = Box([n for n, _, _ in ranged], [lo for _, lo, _ in ranged], [hi for _, _, hi in ranged])
     dim = len(ranged)
 
@@ -71,8 +77,9 @@ def sweep_model(parsed, model, nominal, fixed: dict, options: SweepOptions, run_
         brackets = boundaries(evidence, len(nominal.breaks))
     else:
         brackets = [[] for _ in nominal.breaks]
-        findings.append(Finding("note", "LW691", "no param has a range (`param x = v in [lo, hi]`): "
-                                "checked at its nominal point only", Span(model.file, 1, 1)))
+        if not library:
+            findings.append(Finding("note", "LW691", "no param has a range (`param x = v in [lo, hi]`): "
+                                    "checked at its nominal point only", Span(model.file, 1, 1)))
     if stopped:
         findings.append(Finding("note", "LW692", "the local search for the worst margins stopped at its "
                                 "budget: a worse plant may lie near the worst found", Span(model.file, 0, 0),
@@ -88,7 +95,7 @@ def sweep_model(parsed, model, nominal, fixed: dict, options: SweepOptions, run_
         breaks=break_results(nominal, model, evidence, box, brackets),
         findings=tuple(findings) + sample_warnings(model.file, evidence),
         search_stopped=stopped, failed_samples=failed, plants=plant_table(evidence, box, len(nominal.breaks)),
-        nominal=nominal,
+        nominal=nominal, parsed=parsed,
     )
     return result, errors
 

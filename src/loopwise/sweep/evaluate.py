@@ -48,9 +48,11 @@ class BreakSample:
     warnings: tuple[str, ...] = ()  # codes of the break's warnings that count (not waived) at this plant
 
     def value(self, metric: str) -> float | None:
+        """The metric's value at this plant (`judge.metric_value`'s unit; None: absent)."""
         return self.values[METRIC_NAMES.index(metric)]
 
     def note(self, metric: str) -> str | None:
+        """Why the metric has no value at this plant (None when it has one)."""
         return self.notes[METRIC_NAMES.index(metric)]
 
 
@@ -64,6 +66,7 @@ class SampleOutcome:
 
     @property
     def stable(self) -> bool:
+        """Whether the plant was analysed and every break's closed loop is stable."""
         return self.error is None and all(b.stable for b in self.breaks)
 
 

@@ -39,12 +39,15 @@ def _at(at: tuple[tuple[str, float], ...] | None) -> dict | None:
 
 @dataclass(frozen=True)
 class SweepParam:
+    """One swept param: its nominal value and its range [lo, hi]."""
+
     name: str
     nominal: float
     lo: float
     hi: float
 
     def to_dict(self) -> dict:
+        """The param as the sweep contract writes it."""
         return {"name": self.name, "nominal": json_number(self.nominal), "lo": json_number(self.lo), "hi": json_number(self.hi)}
 
 
@@ -61,6 +64,7 @@ class Worst:
     nominal: float | None
 
     def to_dict(self) -> dict:
+        """The worst value as the sweep contract writes it (unbounded: null)."""
         return {"value": json_number(self.value), "at": _at(self.at), "nominal": json_number(self.nominal)}
 
 
@@ -73,6 +77,7 @@ class Boundary:
     unstable_at: tuple[tuple[str, float], ...]
 
     def to_dict(self) -> dict:
+        """The boundary as the sweep contract writes it."""
         return {"stable_at": _at(self.stable_at), "unstable_at": _at(self.unstable_at)}
 
 
@@ -84,11 +89,16 @@ class SweepRequirement:
     at: tuple[tuple[str, float], ...] | None
 
     def to_dict(self) -> dict:
+        """The requirement as check's contract writes it, with the plant it was judged at."""
         return {**self.result.to_dict(), "note": self.result.note, "at": _at(self.at)}
 
 
 @dataclass(frozen=True, eq=False)
 class BreakSweep:
+    """One break over the box: how many plants were analysed there and how many were not
+    stable, the worst of each margin and where, where stability is lost, each
+    requirement at the worst plant for its metric, and the warnings plants gave."""
+
     name: str
     at: str
     line: int
@@ -102,16 +112,20 @@ class BreakSweep:
 
     @property
     def stable_everywhere(self) -> bool:
+        """Whether every plant analysed at this break was stable (and there was one)."""
         return self.unstable_samples == 0 and self.samples > 0
 
     @property
     def requirements_met(self) -> bool:
+        """Whether every requirement holds at the worst plant found for its metric."""
         return all(r.result.met for r in self.requirements)
 
     def worst_of(self, key: str) -> Worst:
+        """The `Worst` of one margin (a `WORST_KEYS` key)."""
         return dict(self.worst)[key]
 
     def to_dict(self) -> dict:
+        """The break as the sweep contract writes it."""
         return {
             "name": self.name, "at": self.at, "line": self.line,
             "stable_everywhere": self.stable_everywhere,
@@ -136,9 +150,11 @@ class SampleCounts:
 
     @property
     def total(self) -> int:
+        """Every plant evaluated."""
         return self.nominal + self.corners + self.space_filling + self.local_search + self.boundary
 
     def to_dict(self) -> dict:
+        """The counts as the sweep contract writes them (`design`)."""
         return {"nominal": self.nominal, "corners": self.corners, "space_filling": self.space_filling,
                 "local_search": self.local_search, "boundary": self.boundary}
 
@@ -161,6 +177,10 @@ class PlantTable:
 
 @dataclass(frozen=True, eq=False)
 class SweepModelResult:
+    """One model over its box: the swept and the fixed params, what was sampled, each
+    break over the box and the model's findings; for pictures and the report, every
+    plant in numbers, the nominal point's full result and the parsed model."""
+
     file: str
     model: str
     params: tuple[SweepParam, ...]          # the swept (ranged) params
@@ -174,21 +194,27 @@ class SweepModelResult:
     failed_samples: int = 0                 # plants that could not be analysed (see the run's errors)
     plants: PlantTable | None = None        # every plant in numbers (for pictures)
     nominal: object | None = None           # the nominal plant's full ModelResult (not in the JSON contract)
+    parsed: object | None = None            # the parsed model with its includes' trees (`language.resolve.Parsed`),
+                                            # which resolves any plant without the disk (not in the JSON contract)
 
     @property
     def samples(self) -> int:
+        """Every plant evaluated (the nominal one included)."""
         return self.counts.total
 
     @property
     def stable_everywhere(self) -> bool:
+        """Whether every plant was analysed and stable at every break."""
         return self.failed_samples == 0 and all(b.stable_everywhere for b in self.breaks)
 
     @property
     def requirements_met(self) -> bool:
+        """Whether every requirement holds at the worst plant found for its metric."""
         return all(b.requirements_met for b in self.breaks)
 
     @property
     def ok(self) -> bool:
+        """Stable at every plant, every requirement met: the model passes (warnings aside)."""
         return self.stable_everywhere and self.requirements_met
 
     @property
@@ -203,6 +229,7 @@ class SweepModelResult:
         return self.ok and not (fail_on_warnings and self.open_warnings)
 
     def to_dict(self) -> dict:
+        """The model as the sweep contract writes it (docs/results.md, docs/sweep.schema.json)."""
         return {
             "file": self.file, "model": self.model, "stable_everywhere": self.stable_everywhere,
             "params": [p.to_dict() for p in self.params],
@@ -221,6 +248,9 @@ class SweepModelResult:
 
 @dataclass(frozen=True, eq=False)
 class SweepRun:
+    """A whole sweep: every model swept, the errors of files and plants that could not be
+    read or analysed, and the warnings about the run itself."""
+
     models: tuple[SweepModelResult, ...]
     errors: tuple[Finding, ...]
     version: str = ""
@@ -228,6 +258,7 @@ class SweepRun:
 
     @property
     def exit_code(self) -> int:
+        """The exit code without fail_on_warnings (`exit_status`)."""
         return self.exit_status()
 
     def exit_status(self, fail_on_warnings: bool = False) -> int:
@@ -240,6 +271,7 @@ class SweepRun:
         return 0 if all(m.passes(fail_on_warnings) for m in self.models) and not run_warned else 1
 
     def to_dict(self) -> dict:
+        """The sweep as its JSON contract (`"sweep_schema": 1`)."""
         return {
             "sweep_schema": SWEEP_SCHEMA, "tool": "loopwise", "command": "sweep", "version": self.version,
             "caution": CAUTION,

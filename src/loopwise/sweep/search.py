@@ -69,6 +69,7 @@ class Evidence:
         return np.asarray(p, float).round(15).tobytes()
 
     def new_points(self, unit: np.ndarray) -> list[np.ndarray]:
+        """The points of `unit` not evaluated before, each once, in order."""
         fresh, keys = [], set()
         for p in np.asarray(unit, float).reshape(-1, self.dim):
             k = self._key(p)
@@ -99,11 +100,15 @@ class Evidence:
         self.phases.append(phase)
 
     def count(self, phase: str) -> int:
+        """How many plants the step `phase` chose (`nominal`, `corners`, ...)."""
         return self.phases.count(phase)
 
 
 @dataclass(frozen=True)
 class Target:
+    """What the local search drives towards its worst: one metric at one break, and which
+    way is worse."""
+
     brk: int     # break index in model order
     metric: str
     sense: int   # -1: smallest is worst; +1: largest is worst

@@ -34,6 +34,9 @@ _MAKERS = {"nyquist": nyquist_figure, "bode": bode_figure, "sensitivity": sensit
 
 
 def make_figure(result: BreakResult, kind: str, *, model: str | None = None, hz: bool = False):
+    """One view of a break (`kind`: nyquist, bode or sensitivity) as a matplotlib figure,
+    drawn from the samples the check recorded; `model` names it in the title, `hz`
+    puts frequency axes in Hz."""
     return _MAKERS[kind](result, model=model, hz=hz)
 
 

@@ -54,6 +54,9 @@ def matplotlib_headless():
 
 @contextmanager
 def style(salt: str = "loopwise"):
+    """A context in which figures are drawn alike: the house style (fonts, greys, grid),
+    real text in SVG, ids salted with `salt`, no path simplification (the lines are
+    thinned by `thin_lines`) and no math-text parsing of names. Yields matplotlib."""
     mpl = matplotlib_headless()
     rc = {
         "font.family": "DejaVu Sans", "font.size": 8.5, "axes.titlesize": 10,
@@ -93,9 +96,11 @@ class Panel:
         self.transform = BboxTransformTo(self.bbox)
 
     def text(self, x: float, y: float, text: str, **kw):
+        """Text at (x, y) in the panel's own coordinates (0..1 across its rectangle)."""
         return self.fig.text(x, y, text, transform=self.transform, **kw)
 
     def legend(self, handles, labels, **kw):
+        """A key for `handles` with `labels`, anchored at the panel's lower left."""
         return self.fig.legend(handles, labels, loc="lower left", bbox_to_anchor=self.rect,
                                bbox_transform=self.fig.transFigure, borderaxespad=0,
                                fontsize=KEY_SIZE, handlelength=2.6, **kw)
@@ -150,6 +155,7 @@ def unmarked_lines(groups, hz: bool) -> list[str]:
 
 
 def need_response(result: BreakResult):
+    """The frequency response a break's check recorded; a usage error when there is none."""
     if result.response is None or len(result.response.L) == 0:
         from ...errors import UsageError
 
@@ -283,6 +289,7 @@ def marker_box(ax, xy, size_pt: float) -> tuple:
 
 
 def display_points(ax, x, y) -> np.ndarray:
+    """The finite points (x, y) of data coordinates in `ax`, in display coordinates (pixels)."""
     pts = ax.transData.transform(np.column_stack([np.asarray(x, float), np.asarray(y, float)]))
     return pts[np.all(np.isfinite(pts), axis=1)]
 
