@@ -12,13 +12,23 @@ across machines:
   (`loopwise.analysis.prepare_text`), for the demo model, to put parsing in
   proportion to the rest of reading a model.
 
-    python bench/parse.py [--repeat R] [--lines N]
+Start-up (fresh interpreters, median of `--starts`): from importing the parser
+module to the first parsed line, with the LALR tables that ship in the package
+(`shipped`), against two references measured the same way: the tables built
+from the grammar at every start (`built`), and lark's own pickle cache, warm,
+in a private temporary folder (`lark cache`: what loopwise did before it
+shipped the tables, minus the shared-folder risk).
+
+    python bench/parse.py [--repeat R] [--lines N] [--starts K]
 """
 from __future__ import annotations
 
 import argparse
 import re
 import statistics
+import subprocess
+import sys
+import tempfile
 import time
 from pathlib import Path
 
@@ -81,11 +91,47 @@ def measure(name: str, text: str, file: str, repeat: int, with_read: bool) -> No
         print(f"  read (prepare_text) {t_read * 1e3:8.2f} ms   parse share = {t_parse / t_read:5.1%}")
 
 
+START = {  # the same imports and the same first parse; only the parser's tables differ
+    "shipped": "",
+    "built": "P.load_parser = build_parser\n",
+    "lark cache": ("P.load_parser = lambda: Lark(grammar_text(), parser='lalr', propagate_positions=True,"
+                   " maybe_placeholders=False, cache=CACHE)\n"),
+}
+PROLOGUE = ("from lark import Lark\nimport loopwise.language.parse as P\n"
+            "from loopwise.language.tables import build_parser, grammar_text\n")
+
+
+def start_up(kind: str, starts: int, cache: str) -> float:
+    """Median seconds from the first import to the first parse, in fresh interpreters."""
+    code = ("import time\nt0 = time.perf_counter()\nCACHE = " + repr(cache) + "\n" + PROLOGUE + START[kind] +
+            "P.parse_text('x = y')\nprint(time.perf_counter() - t0)")
+    times = []
+    for _ in range(starts):
+        out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+        times.append(float(out.stdout))
+    return statistics.median(times)
+
+
+def measure_start_up(starts: int) -> None:
+    with tempfile.TemporaryDirectory(prefix="loopwise-bench-") as private:
+        cache = str(Path(private) / "tables.lark-cache")
+        start_up("lark cache", 1, cache)  # warm the reference's cache
+        t = {kind: start_up(kind, starts, cache) for kind in START}
+    print(f"start-up, import to first parse (median of {starts} fresh interpreters)")
+    print(f"  shipped tables {t['shipped'] * 1e3:8.1f} ms")
+    print(f"  built          {t['built'] * 1e3:8.1f} ms   shipped / built      = {t['shipped'] / t['built']:5.2f}")
+    print(f"  lark cache     {t['lark cache'] * 1e3:8.1f} ms   shipped / lark cache = "
+          f"{t['shipped'] / t['lark cache']:5.2f}")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=20, help="timings per figure (median)")
     ap.add_argument("--lines", type=int, default=1000, help="lines of the generated model")
+    ap.add_argument("--starts", type=int, default=9, help="fresh interpreters per start-up figure")
     args = ap.parse_args()
+
+    measure_start_up(args.starts)
 
     demos = sorted((ROOT / "models").glob("*.loop"), key=lambda p: p.stat().st_size)
     largest = demos[-1]

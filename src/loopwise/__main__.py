@@ -1,3 +1,4 @@
+"""`python -m loopwise`: the command line, as the `loopwise` command."""
 from .cli import main
 
 raise SystemExit(main())

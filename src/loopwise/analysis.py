@@ -7,13 +7,15 @@ negative feedback around one loop transfer (used by the reference tests).
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from contextlib import contextmanager
+from dataclasses import dataclass, replace
 
 import numpy as np
 
+from . import arguments as arg
 from .engine.diagram import Diagram, build_diagram
-from .errors import Finding, Span
-from .language.resolve import Model, resolve_file, resolve_text
+from .errors import Finding, ModelError, ModelErrors, Span
+from .language.resolve import Model, Parsed, parse_file, parse_model, resolve_parsed
 from .engine.reduce import Reduction, reduce_diagram
 from .results import BreakResult, Margins, ModelResult
 from .engine.hidden import cancelled_modes, structural_modes
@@ -21,9 +23,10 @@ from .verdicts import (check_not_zero, counted_modes, hidden_from_loop, mode_fin
                        verdict_adjustment)
 from .engine.stability import count, nyquist_counts
 from .judge import SEPARATION_WARNING, judge
+from .waivers import apply_waivers, settings_waivers_for
 
-__all__ = ["PreparedModel", "check_prepared", "check_many", "analyse_loops", "prepare_text", "prepare_file",
-           "check_text", "check_file", "analyse_loop",
+__all__ = ["PreparedModel", "parse_for_check", "prepare_model", "prepare_text", "prepare_file", "check_model",
+           "check_text", "check_file", "check_prepared", "check_many", "analyse_loop", "analyse_loops",
            "nyquist_verdict"]
 
 
@@ -56,29 +59,82 @@ def _settings_requirements(settings) -> tuple[str, ...]:
     return tuple(getattr(settings, "requirements", ()) or ()) if settings is not None else ()
 
 
-def _prepare(model: Model) -> PreparedModel:
+def _overrides(settings) -> dict[str, float]:
+    return dict(getattr(settings, "overrides", ()) or ()) if settings is not None else {}
+
+
+def _with_settings(parsed: Parsed, settings) -> Parsed:
+    """The settings' waivers for this file go with the parsed model, so that it resolves
+    alike anywhere (a sweep's worker on another machine has neither the settings file
+    nor the working directory that the waivers' globs are relative to)."""
+    return replace(parsed, waivers=settings_waivers_for(settings, parsed.file))
+
+
+def parse_for_check(path, settings=None, root=None) -> Parsed:
+    """A model file parsed once with what the settings add to it (default requirements,
+    waivers for this file); `resolve_parsed(parsed, overrides)` then gives the model at
+    any param values, as `check_file` would resolve it. `root`: see `prepare_file`."""
+    return _with_settings(parse_file(path, _settings_requirements(settings),
+                                     getattr(settings, "source", None) or "<settings>", root), settings)
+
+
+def prepare_model(model: Model) -> PreparedModel:
+    """The loop graph and the reduction of a resolved model."""
     diagram = build_diagram(model)
     return PreparedModel(model, diagram, reduce_diagram(diagram))
 
 
 def prepare_text(text: str, file: str = "<text>", settings=None) -> PreparedModel:
-    return _prepare(resolve_text(text, file, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>"))
+    text, file, settings = arg.model_text(text), arg.file_label(file), arg.settings_or_none(settings)
+    parsed = parse_model(text, file, _settings_requirements(settings),
+                         getattr(settings, "source", None) or "<settings>")
+    return prepare_model(resolve_parsed(_with_settings(parsed, settings), _overrides(settings)))
 
 
-def prepare_file(path, settings=None) -> PreparedModel:
-    return _prepare(resolve_file(path, _settings_requirements(settings),
-                                 getattr(settings, "source", None) or "<settings>"))
+def prepare_file(path, settings=None, root=None) -> PreparedModel:
+    """`root`: the checked models' common folder; outside git, includes must stay inside it."""
+    path, settings = arg.model_path(path), arg.settings_or_none(settings)
+    root = None if root is None else arg.model_path(root, "root")
+    return prepare_model(resolve_parsed(parse_for_check(path, settings, root), _overrides(settings)))
+
+
+def check_model(model: Model, indent: str = "right") -> ModelResult:
+    """The verdict of a resolved model, its findings marked by the waivers that accept
+    them (the model's own and the settings' it carries). `check_file` and every plant
+    of a sweep go through here."""
+    return _waived_verdict(prepare_model(model), indent)
+
+
+def _waived_verdict(prep: PreparedModel, indent: str) -> ModelResult:
+    return apply_waivers(check_prepared(prep, indent), prep.model.waivers)
+
+
+@contextmanager
+def _unreadable():
+    """Every unreadable model leaves as one ModelError carrying all its located errors
+    (a ModelErrors, so that the older `except ModelErrors` still catches it)."""
+    try:
+        yield
+    except ModelErrors:
+        raise
+    except ModelError as exc:
+        raise ModelErrors(exc.errors) from None
 
 
 def check_text(text: str, file: str = "<text>", settings=None, indent: str = "right") -> ModelResult:
-    """Check one model given as text; raises ModelErrors when it cannot be read."""
-    return check_prepared(prepare_text(text, file, settings), indent)
+    """Check one model given as text; raises loopwise.ModelError when it cannot be read."""
+    indent = arg.check_indent(indent)
+    with _unreadable():
+        return _waived_verdict(prepare_text(text, file, settings), indent)
 
 
-def check_file(path, settings=None, indent: str = "right") -> ModelResult:
-    """Check one model file; raises ModelError(s) when it cannot be read."""
-    return check_prepared(prepare_file(path, settings), indent)
+def check_file(path, settings=None, indent: str = "right", root=None) -> ModelResult:
+    """Check one model file; raises loopwise.ModelError when it cannot be read. Includes
+    must stay in the git work tree holding the model, outside git in `root` (default: the
+    model's folder); see docs/language.md, `use`."""
+    indent = arg.check_indent(indent)
+    with _unreadable():
+        return _waived_verdict(prepare_file(path, settings, root), indent)
 
 
 def check_prepared(prep: PreparedModel, indent: str = "right") -> ModelResult:
@@ -224,7 +280,9 @@ def _finish(prep: PreparedModel, plan: _Plan, margins: dict, gain_ranges: dict) 
             name=name, at=cut.stmt.at, line=cut.stmt.span.line, stable=stable, open_loop_rhp_poles=P,
             encirclements=c.N, closed_loop_rhp_poles=Zk, marginal=marginal, marginal_freq=marginal_freq,
             margins=m, requirements=judge(reqs, m, separation, verdict),
-            warnings=tuple(Finding("warning", code, message, cut.stmt.span) for code, message in warnings),
+            # the loop graph's warnings about the cut itself (LW384) come first, with their hints
+            warnings=cut.findings() + tuple(Finding("warning", code, message, cut.stmt.span, about=(name,))
+                                            for code, message in warnings),
             stabilising_gains=() if stable else gains, enclosed_by=cut.enclosed_by, separation=separation,
             response=c.response, marginal_cause=cause,
         ))
@@ -274,13 +332,15 @@ def _gain_ranges(red: Reduction, counts, names: list[str]) -> dict[str, tuple]:
 
 def nyquist_verdict(L, indent: str = "right"):
     """P, N, Z (a stability.NyquistCount) of unity negative feedback around L, without margins."""
-    prep = _single_loop(L, "loop")
+    indent = arg.check_indent(indent)
+    prep = _single_loop(arg.loop_transfer(L), "loop")
     return nyquist_counts(prep.reduction, indent).counts["loop"]
 
 
 def analyse_loop(L, name: str = "loop", indent: str = "right") -> BreakResult:
     """Unity negative feedback around the loop transfer L (a Transfer)."""
-    return check_prepared(_single_loop(L, name), indent).breaks[0]
+    indent = arg.check_indent(indent)
+    return check_prepared(_single_loop(arg.loop_transfer(L), arg.break_name(name)), indent).breaks[0]
 
 
 def analyse_loops(Ls, indent: str = "right") -> list[BreakResult]:
@@ -301,4 +361,4 @@ def _single_loop(L, name: str) -> PreparedModel:
         equations={"e": (Term("r", 1.0, None, span), Term("y", -1.0, None, span)), "y": (Term("e", 1.0, app, span),)},
         breaks=(ast.BreakStmt(span, name, "y", span),), requirements=(), findings=(),
     )
-    return _prepare(model)
+    return prepare_model(model)

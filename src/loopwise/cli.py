@@ -1,9 +1,17 @@
-"""The command line: parse arguments, call the library, pick a reporter.
+"""The command line: find the subcommand, parse its arguments, run it, map
+failures to exit codes.
 
 Each subcommand lives in `loopwise.commands.<name>` and exposes
-``add_parser(subparsers)`` and ``run(args) -> int``. `main(argv) -> int` returns
-the exit code: 0 all good, 1 an instability or an unmet requirement or a
-regression, 2 input that could not be read or a usage mistake.
+``add_parser(subparsers, help_text)`` and ``run(args) -> int``; only the module
+of the command being run is imported (the others are listed by name), so
+`loopwise --help` stays fast. Options shared by the commands are defined once
+in `loopwise.commands.options`; output goes through `loopwise.output`.
+
+`main(argv) -> int` returns the exit code: 0 all good; 1 an instability, an
+unmet requirement or a regression; 2 input that could not be read or a usage
+mistake (one line on stderr, never a traceback); 130 interrupted (Ctrl-C);
+143 terminated (SIGTERM; worker processes are ended first, and an output
+being written is left as it was).
 """
 from __future__ import annotations
 
@@ -19,12 +27,14 @@ for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
 
 from . import __version__  # noqa: E402
 from .errors import LoopwiseError, UsageError  # noqa: E402
+from .pool import Terminated, sigterm_raises  # noqa: E402
 
 __all__ = ["main", "entry", "COMMANDS"]
 
 #: subcommand name -> module under loopwise.commands (imported only when used)
 COMMANDS = {
     "check": "Check the stability and margins of every break in models.",
+    "sweep": "Find the worst verdict and margins over the params' ranges.",
     "graph": "Print a model's structure: signals, loops, breaks, nesting.",
     "diff": "Compare stability between two revisions of models.",
     "plot": "Draw Nyquist, Bode and sensitivity views of a break.",
@@ -44,7 +54,8 @@ def _build_parser(command: str | None) -> argparse.ArgumentParser:
         prog="loopwise",
         description="Stability checks for multi-loop feedback-control models.",
         epilog="Exit codes: 0 all stable and all requirements met; 1 an instability, an unmet "
-               "requirement or a regression; 2 input that could not be read.",
+               "requirement or a regression; 2 input that could not be read; 130 interrupted; "
+               "143 terminated.",
     )
     parser.add_argument("--version", action="version", version=f"loopwise {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
@@ -58,8 +69,25 @@ def _build_parser(command: str | None) -> argparse.ArgumentParser:
     return parser
 
 
+def _tolerant_stdout() -> None:
+    # a model's own text (names, an echoed source line) may hold characters the
+    # console's encoding lacks: replace them rather than fail after the whole run
+    # (stderr already escapes what it cannot show)
+    if hasattr(sys.stdout, "reconfigure"):
+        try:
+            sys.stdout.reconfigure(errors="replace")
+        except (ValueError, OSError):
+            pass
+
+
 def main(argv: list[str] | None = None) -> int:
+    """Run `loopwise ARGS` (default: the process's arguments) and return the exit code.
+
+    0 all good; 1 an instability, an unmet requirement or a regression; 2 input that
+    could not be read or a usage mistake (one line on stderr, never a traceback);
+    130 interrupted; 143 terminated."""
     argv = list(sys.argv[1:] if argv is None else argv)
+    _tolerant_stdout()
     command = next((a for a in argv if not a.startswith("-")), None)
     if command not in COMMANDS:
         command = None
@@ -73,14 +101,20 @@ def main(argv: list[str] | None = None) -> int:
             parser.print_help()
             return 2
         module = importlib.import_module(f"loopwise.commands.{args.command}")
-        return int(module.run(args))
+        with sigterm_raises():
+            return int(module.run(args))
     except UsageError as exc:
         print(f"loopwise: {exc}", file=sys.stderr)
         return 2
     except LoopwiseError as exc:
         print(f"loopwise: {exc}", file=sys.stderr)
         return 2
+    except Terminated:
+        _exiting()
+        print("loopwise: terminated", file=sys.stderr)
+        return 143
     except KeyboardInterrupt:
+        _exiting()
         print("loopwise: interrupted", file=sys.stderr)
         return 130
     except BrokenPipeError:
@@ -93,5 +127,16 @@ def main(argv: list[str] | None = None) -> int:
         return 2
 
 
+def _exiting() -> None:
+    """The command is stopping: a further Ctrl-C (users press it again) must not
+    turn the orderly exit into a traceback."""
+    import signal
+    import threading
+
+    if threading.current_thread() is threading.main_thread():
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
 def entry() -> None:
+    """The `loopwise` console script: exit with `main()`'s code."""
     raise SystemExit(main())

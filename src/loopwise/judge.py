@@ -52,15 +52,19 @@ def metric_value(metric: str, m: Margins, separation: float | None) -> tuple[flo
 
 def judge(requirements: tuple[Requirement, ...], margins: Margins | None, separation: float | None,
           verdict: str) -> tuple[RequirementResult, ...]:
+    """Each requirement of a break judged against its margins (None: the closed loop is not
+    stable, `verdict` says how, and no requirement is met) and its separation from the
+    break around it; one `RequirementResult` each, in order, with the value in the
+    metric's own unit and a note where there is no value."""
     out = []
     for req in requirements:
         if margins is None:
             out.append(RequirementResult(req.metric, req.op, req.limit, None, False, req.span.line,
                                          req.span.file, f"closed loop {verdict}: no margins",
-                                         METRICS[req.metric].unit))
+                                         METRICS[req.metric].unit, req.limit_text))
             continue
         value, note = metric_value(req.metric, margins, separation)
         met = value is not None and req.holds(value)
         out.append(RequirementResult(req.metric, req.op, req.limit, value, met, req.span.line,
-                                     req.span.file, note, METRICS[req.metric].unit))
+                                     req.span.file, note, METRICS[req.metric].unit, req.limit_text))
     return tuple(out)

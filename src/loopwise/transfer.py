@@ -249,6 +249,9 @@ class Transfer:
         num_a = self.gain * np.polymul(_poly(self.zeros), _poly(only_b))
         num_b = other.gain * np.polymul(_poly(other.zeros), _poly(only_a))
         num = np.polyadd(num_a, num_b)
+        if not (np.all(np.isfinite(num_a)) and np.all(np.isfinite(num_b)) and np.all(np.isfinite(num))):
+            # e.g. 1/(s + 1e20)^16 + 1/(s + 1): the common numerator's coefficients pass 1e308
+            raise OverflowError("the sum's coefficients are beyond double precision")
         num = np.real_if_close(num, tol=1e6)
         # the size of what each coefficient was summed from: a cancellation leaves rounding
         # noise of about eps times that, while a small coefficient written as such is kept

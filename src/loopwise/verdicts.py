@@ -6,6 +6,8 @@ the findings (docs/method.md: hidden modes, hints about the wiring).
 """
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 
 from .engine.hidden import applications
@@ -21,12 +23,18 @@ __all__ = ["counted_modes", "verdict_adjustment", "mode_findings", "hidden_from_
 def counted_modes(modes: list[HiddenMode], model: Model) -> list[HiddenMode]:
     """The hidden modes with `counted` set: every one, unless a waiver accepts it.
 
-    Waivers (`waive CODE at NAME "reason"`) are wired in here: a mode whose code is
-    waived for one of its blocks gets `counted=False` (dataclasses.replace(mode,
-    counted=False)) and is then left out of Z and of the marginal verdict by
-    `verdict_adjustment`; nothing else needs to change.
+    A mode whose code is waived (`waive CODE "reason"`, or `waive CODE at NAME` for
+    one of the blocks whose pole or zero it is) gets `counted=False` and is then left
+    out of Z and of the marginal verdict by `verdict_adjustment`; its finding is still
+    reported, marked with the waiver.
     """
-    return list(modes)
+    return [replace(h, counted=False) if model.waivers.waiver_for(h.code, _mode_subject(h)) else h
+            for h in modes]
+
+
+def _mode_subject(h: HiddenMode) -> tuple[str, ...]:
+    """The named blocks a hidden mode is about (inline `[..]` transfers have no name)."""
+    return tuple(dict.fromkeys(b for b in (*h.pole_blocks, *h.zero_blocks) if not b.startswith("[")))
 
 
 def verdict_adjustment(modes: list[HiddenMode]) -> tuple[int, list[float]]:
@@ -62,14 +70,14 @@ def mode_findings(red: Reduction, modes: list[HiddenMode]) -> list[Finding]:
                 "warning", "LW488", f"closed-loop pole {where}, within 1e-9 (relative) of the pole of {blocks} "
                 "on the imaginary axis: on the axis as far as double precision can resolve (marginal)", span,
                 "check the model's numbers: a closed-loop pole this close to an open-loop one is not a "
-                "robust design"))
+                "robust design", _mode_subject(h)))
         elif h.code == "LW488":
             out.append(Finding(
                 "warning", "LW488", f"closed-loop pole {where} on the imaginary axis, hidden by a cancellation: "
                 f"pole of {blocks}, zero of " + (", ".join(f"`{b}`" for b in h.zero_blocks) or "the wiring")
                 + "; the mode never decays and no loop transfer shows it (marginal)", span,
                 "remove the cancellation (e.g. a PI integrator against a plant zero at s = 0) or model the "
-                "mode's damping"))
+                "mode's damping", _mode_subject(h)))
         elif h.code == "LW484":
             n_rhp = h.rhp_count
             grows = (f"has {n_rhp} pole(s) in the right half plane" if n_rhp else
@@ -79,7 +87,9 @@ def mode_findings(red: Reduction, modes: list[HiddenMode]) -> list[Finding]:
                 "warning", "LW484", f"{blocks} is driven by the input {inputs} only and {grows}: its output "
                 "does not settle whatever the loops do (it counts in the verdict, the same at every break, "
                 "though no loop transfer shows it)", span,
-                "a filter on an input path cannot be stabilised by feedback; check the model"))
+                "a filter on an input path cannot be stabilised by feedback; check the model",
+                _mode_subject(h) + tuple(dict.fromkeys(t.source for t in red.exogenous
+                                                       if t.app.label in h.pole_blocks))))
     return out
 
 

@@ -55,7 +55,8 @@ def test_unmet_requirement_exits_1_and_names_its_line(tmp_path, cli):
     code, out, _ = cli("check", "m.loop")
     assert code == 1
     assert "FAIL  m.loop" in out
-    assert re.search(r"m\.loop:7: break b: phase_margin >= 70 deg \(value 55\.\d+ deg\)", out)
+    # the limit as the model wrote it, the value in the metric's unit
+    assert re.search(r"m\.loop:7: break b: phase_margin >= 70deg \(value 55\.\d+ deg\)", out)
 
 
 def test_instability_exits_1(tmp_path, cli):
@@ -138,7 +139,7 @@ def test_json_output_validates_and_carries_the_figures(tmp_path):
     assert (b["stable"], b["open_loop_rhp_poles"], b["encirclements"]) == (True, 0, 0)
     assert b["phase_margin_deg"] == pytest.approx(GOOD_PM_DEG, abs=0.05)
     assert b["requirements"] == [{"metric": "phase_margin", "op": ">=",
-                                  "limit": pytest.approx(30.0, rel=1e-12),
+                                  "limit": pytest.approx(30.0, rel=1e-12), "limit_text": "30deg",
                                   "value": pytest.approx(GOOD_PM_DEG, abs=0.05), "met": True,
                                   "line": 7}]
     assert tip["stable"] is False and tip["closed_loop_rhp_poles"] == 1
@@ -300,16 +301,7 @@ def test_glob_matching(path, pattern, hit):
 
 # --- the demo models --------------------------------------------------------------------------
 
-def test_demo_models_pass_as_their_headers_say():
-    models = ROOT / "models"
-    if not any(models.glob("*.loop")):
-        pytest.fail("the demo models are missing from models/")
-    proc = loopwise("check", "models", "--format", "json", "--jobs", "2", cwd=ROOT)
-    doc = json.loads(proc.stdout)
-    jsonschema.Draft202012Validator(SCHEMA).validate(doc)
-    unstable = [m["file"] for m in doc["models"] if not m["stable"]]
-    assert proc.returncode == 0, (unstable, doc["errors"])
-    assert all(b["stable"] for m in doc["models"] for b in m["breaks"])
+# the demo models' verdicts and header figures: tests/cli/test_demo_models.py
 
 
 # --- the progress bar ---------------------------------------------------------------------
@@ -329,7 +321,7 @@ class _Stream:
     (True, {"TERM": "dumb"}, False),
 ])
 def test_progress_only_on_an_interactive_terminal(monkeypatch, tty, env, wanted):
-    from loopwise.run import wants_progress
+    from loopwise.progress import wants_progress
 
     monkeypatch.delenv("CI", raising=False)
     monkeypatch.setenv("TERM", "xterm")
@@ -339,24 +331,34 @@ def test_progress_only_on_an_interactive_terminal(monkeypatch, tty, env, wanted)
 
 
 def test_a_run_with_the_progress_bar_gives_the_same_result(tmp_path):
-    from loopwise.run import PROGRESS_MIN_MODELS, check_paths
+    from loopwise.progress import PROGRESS_MIN_ITEMS
+    from loopwise.run import check_paths
 
-    for i in range(PROGRESS_MIN_MODELS):
+    for i in range(PROGRESS_MIN_ITEMS):
         write(tmp_path, f"d/m{i}.loop", GOOD)
     with_bar = check_paths([tmp_path / "d"], Settings(), jobs=1, progress=True)
     without = check_paths([tmp_path / "d"], Settings(), jobs=1, progress=False)
     assert with_bar.to_dict() == without.to_dict()
-    assert len(with_bar.models) == PROGRESS_MIN_MODELS
+    assert len(with_bar.models) == PROGRESS_MIN_ITEMS
 
 
-def test_an_error_in_a_shared_file_is_reported_once(tmp_path, cli):
+def test_an_error_in_a_shared_file_is_reported_once_and_each_model_it_stops_is_named(tmp_path, cli):
     write(tmp_path, "lib/shared.loop", "param k = 2*\n")
-    for name in ("a", "b"):
-        write(tmp_path, f"{name}.loop", f'model {name}\nuse "lib/shared.loop"\n' + GOOD.split("\n", 1)[1])
-    code, out, _ = cli("check", "a.loop", "b.loop", "--format", "json")
+    for name in ("a", "b", "c"):
+        write(tmp_path, f"{name}.loop", f'model {name}\n# invented\nuse "lib/shared.loop"\n'
+              + GOOD.split("\n", 1)[1])
+    code, out, _ = cli("check", "a.loop", "b.loop", "c.loop", "--format", "json")
     assert code == 2
     errors = json.loads(out)["errors"]
-    assert len(errors) == 1 and errors[0]["file"].endswith("shared.loop"), errors
+    shared = [e for e in errors if e["file"].endswith("shared.loop")]
+    assert len(shared) == 1 and shared[0]["code"] == "LW101", errors
+    named = [(e["file"], e["line"], e["col"], e["code"]) for e in errors if e not in shared]
+    # each model at its own `use` line (line 3, column 1)
+    assert named == [(f"{n}.loop", 3, 1, "LW003") for n in "abc"], errors
+    code, out, _ = cli("check", "a.loop", "b.loop", "c.loop")
+    for n in "abc":
+        assert f"{n}.loop:3:1: error LW003" in out
+    assert out.count('    use "lib/shared.loop"\n') == 3 and "4 could not be read" in out
 
 
 def test_a_default_requirement_error_points_into_the_settings_file(tmp_path, capsys):
@@ -372,3 +374,22 @@ def test_a_default_requirement_error_points_into_the_settings_file(tmp_path, cap
     text = out.out + out.err
     assert "pyproject.toml:2:47: error LW243 unknown metric `delay_margn`" in text
     assert "did you mean `delay_margin`" in text
+
+
+def test_a_symlink_loop_in_a_folder_is_a_located_problem_and_the_rest_is_checked(tmp_path, cli):
+    write(tmp_path, "models/good.loop", GOOD)
+    (tmp_path / "models" / "a.loop").symlink_to("b.loop")
+    (tmp_path / "models" / "b.loop").symlink_to("a.loop")
+    (tmp_path / "models" / "sub").mkdir()
+    (tmp_path / "models" / "sub" / "up").symlink_to("..")  # a folder loop: not followed
+    code, out, err = cli("check", "models", "--format", "json")
+    assert code == 2, err
+    data = json.loads(out)
+    assert [m["model"] for m in data["models"]] == ["m"]
+    assert data["models"][0]["breaks"][0]["stable"] is True
+    located = sorted((Path(e["file"]).name, e["code"]) for e in data["errors"])
+    assert located == [("a.loop", "LW001"), ("b.loop", "LW001")]
+    assert all("symbolic links" in e["message"] for e in data["errors"])
+    # a looping link named on the command line is checked like any other file
+    code, out, _ = cli("check", "models/a.loop", "models/good.loop")
+    assert code == 2 and "PASS  models/good.loop" in out and "models/a.loop" in out

@@ -138,7 +138,10 @@ def test_gain_doubled_between_revisions(repo, capsys):
         assert m[key]["before"] == pytest.approx(before[key], rel=1e-3), key
         assert m[key]["after"] == pytest.approx(after[key], rel=1e-3), key
         assert m[key]["delta"] == pytest.approx(after[key] - before[key], rel=1e-3, abs=1e-6), key
-    assert m["phase_margin_deg"]["regression"] and m["delay_margin_s"]["regression"]
+    # the phase margin ends below 60 deg (the default relevance level): a regression; the
+    # delay margin loses 76 % but nothing requires it and it has no relevance level: information
+    assert "below 60 deg (common practice)" in m["phase_margin_deg"]["regression"]
+    assert m["delay_margin_s"]["regression"] is None and m["delay_margin_s"]["direction"] == "worse"
     (req,) = plant["breaks"][0]["requirements"]
     assert (req["met_before"], req["met_after"], req["status"]) == (True, False, "stopped being met")
     assert models(data)["models/steady.loop"]["status"] == "unchanged"
@@ -154,7 +157,7 @@ def test_working_tree_against_revision_in_text(repo, capsys):
     gm10, gm20 = gm_analytic(10), gm_analytic(20)  # analytic, see the module docstring
     line = rf"\n +gain margin up +{gm10:.2f} dB -> +{gm20:.2f} dB  \({gm20 - gm10:+.2f}, worse\)  REGRESSION"
     assert re.search(line, out), out
-    assert "requirement gain_margin >= 6.00 dB: met -> NOT MET" in out
+    assert "requirement gain_margin >= 6dB: met -> NOT MET" in out  # the limit as written
     assert "1 model unchanged" in out and "HEAD -> working tree" in out
     assert CAUTION in out
 
@@ -164,9 +167,9 @@ def test_unchanged_models_are_checked_once(repo, capsys, monkeypatch):
     calls = []
     real = analysis.check_file
 
-    def counting(path, settings=None):
+    def counting(path, settings=None, **options):
         calls.append(Path(path).name)
-        return real(path, settings=settings)
+        return real(path, settings=settings, **options)
     monkeypatch.setattr(analysis, "check_file", counting)
     commit(repo, model_set(K=10), "K = 10")
     commit(repo, model_set(K=20), "K = 20")
@@ -282,20 +285,40 @@ def test_gain_margin_down_moving_towards_0_db(tmp_path, monkeypatch, capsys):
     capsys.readouterr()
 
 
-def test_policy_from_settings_and_options_that_win(repo, capsys):
+def test_policy_comes_from_the_base_revision_and_options_win(repo, capsys):
     # K 10 -> 12 (python-control stability_margins): PM 25.4 -> 20.9 deg, GM 9.54 -> 7.96 dB,
-    # delay margin 0.361 -> 0.267 s (-26 %): only the delay margin passes a default threshold
+    # delay margin 0.361 -> 0.267 s (-26 %): only the delay margin passes a default threshold,
+    # and it matters because the base settings make delay margins below 1 s relevant
     ref10, ref12 = reference(10), reference(12)
     assert 0.2 < 1 - ref12["delay_margin_s"] / ref10["delay_margin_s"] < 0.5
     assert 4 < ref10["phase_margin_deg"] - ref12["phase_margin_deg"] < 5
-    commit(repo, model_set(K=10), "K = 10")
-    write(repo, model_set(K=12))
+    assert ref12["delay_margin_s"] < 1.0
+    base = PYPROJECT + "[tool.loopwise.regression]\nrelevant_delay_margin_s = 1.0\n"
+    relaxed = base + "delay_margin_loss_fraction = 0.5\n"
+    models12 = {k: v for k, v in model_set(K=12).items() if k != "pyproject.toml"}
+    commit(repo, {**model_set(K=10), "pyproject.toml": base}, "K = 10")
+    write(repo, models12)
     assert main(["diff", "--rev", "HEAD"]) == 1
-    (repo / "pyproject.toml").write_text(PYPROJECT + "[tool.loopwise.regression]\n"
-                                                    "delay_margin_loss_fraction = 0.5\n")
+    # the change under review loosens its own gate: the working tree's settings are not used
+    (repo / "pyproject.toml").write_text(relaxed)
+    assert main(["diff", "--rev", "HEAD"]) == 1
+    out = capsys.readouterr().out
+    assert "settings: pyproject.toml at HEAD (the base revision; the other side's settings " \
+           "are not used)" in out
+    assert "delay margin loss > 20%" in out
+    # named on purpose with --config, a file is used as it is
+    assert main(["diff", "--rev", "HEAD", "--config", "pyproject.toml"]) == 0
+    assert "settings: pyproject.toml (--config)" in capsys.readouterr().out
+    # once the base revision holds the looser threshold, it is the gate
+    commit(repo, {**model_set(K=10), "pyproject.toml": relaxed}, "looser delay threshold")
+    write(repo, models12)
     assert main(["diff", "--rev", "HEAD"]) == 0
     assert main(["diff", "--rev", "HEAD", "--max-delay-loss", "20%"]) == 1
     assert main(["diff", "--rev", "HEAD", "--max-phase-loss", "4"]) == 1
+    # two revisions: the first is the base
+    commit(repo, {"pyproject.toml": PYPROJECT}, "K = 12, default thresholds again")
+    assert main(["diff", "--rev", "HEAD~1", "--rev", "HEAD"]) == 0
+    assert main(["diff", "--rev", "HEAD~2", "--rev", "HEAD"]) == 1
     capsys.readouterr()
 
 
@@ -357,3 +380,90 @@ def test_installed_command_in_a_subprocess(repo):
     assert "### loopwise diff: `HEAD~1` -> `working tree`" in done.stdout
     assert "requirement" in done.stdout and CAUTION in done.stdout
     assert done.stderr == ""
+
+
+def _git_out(root: Path, *argv: str, stdin: str | None = None) -> str:
+    return subprocess.run(["git", *argv], cwd=root, input=stdin, capture_output=True, text=True,
+                          check=True).stdout.strip()
+
+
+def _crafted_commit(root: Path, top_entries: str) -> str:
+    """A commit whose top tree is `top_entries` (git mktree input lines)."""
+    tree = _git_out(root, "mktree", stdin=top_entries)
+    return _git_out(root, "commit-tree", tree, "-m", "crafted")
+
+
+def test_a_tree_with_dot_dot_entries_is_refused_and_nothing_lands_outside(repo, tmp_path, capsys,
+                                                                          monkeypatch):
+    import tempfile
+
+    scratch = tmp_path / "scratch"
+    scratch.mkdir()
+    monkeypatch.setattr(tempfile, "tempdir", str(scratch))  # where diff makes its folder
+    commit(repo, model_set(K=10), "K = 10")
+    blob = _git_out(repo, "hash-object", "-w", "--stdin", stdin="model pwned\n")
+    escaped = _git_out(repo, "mktree", stdin=f"100644 blob {blob}\tPWNED.loop\n")
+    inner = _git_out(repo, "mktree", stdin=f"040000 tree {escaped}\tescaped\n")
+    # ../../escaped/PWNED.loop from <scratch>/loopwise-diff-*/side0 is <scratch>/escaped
+    up_one = _git_out(repo, "mktree", stdin=f"040000 tree {inner}\t..\n")
+    evil = _crafted_commit(repo, f"040000 tree {up_one}\t..\n100644 blob {blob}\tok.loop\n")
+    assert "../../escaped/PWNED.loop" in _git_out(repo, "ls-tree", "-r", "--name-only", evil)
+    for argv in (["--rev", evil], ["--rev", "HEAD", "--rev", evil]):
+        code = main(["diff", *argv])
+        out, err = capsys.readouterr()
+        assert code == 2 and out == "", err
+        assert err.startswith(f"loopwise: revision {evil[:12]} holds an unsafe path "
+                              "'../../escaped/PWNED.loop'") and err.count("\n") == 1, err
+    assert sorted(p.name for p in scratch.rglob("*")) == []  # nothing written, temp folder gone
+    assert not (tmp_path / "escaped").exists() and not (repo.parent / "escaped").exists()
+
+
+@pytest.mark.parametrize("name", [".", ".git", ".GIT"])
+def test_a_tree_with_dot_or_git_entries_is_refused(repo, capsys, name):
+    commit(repo, model_set(K=10), "K = 10")
+    blob = _git_out(repo, "hash-object", "-w", "--stdin", stdin="model pwned\n")
+    inner = _git_out(repo, "mktree", stdin=f"100644 blob {blob}\tx.loop\n")
+    evil = _crafted_commit(repo, f"040000 tree {inner}\t{name}\n")
+    assert main(["diff", "--rev", evil]) == 2
+    assert "unsafe path" in capsys.readouterr().err
+
+
+def test_safe_paths_and_targets(tmp_path):
+    from loopwise.errors import UsageError
+    from loopwise.revisions import _target, safe_relative
+
+    for good in ("a.loop", "models/common/plant.loop", "a..b/c.loop", "..x.loop", "a\\..\\x.loop"):
+        assert safe_relative(good), good
+    for bad in ("", "/etc/x.loop", "../x.loop", "a/../../x.loop", "a/./x.loop", "a//x.loop",
+                "a/", ".git/config", "a\0b.loop", "."):
+        assert not safe_relative(bad), bad
+    with pytest.raises(UsageError):
+        _target(tmp_path, "../etc/passwd")
+    # a path that is safe as text but would pass through a link out of the folder
+    (tmp_path / "into").mkdir()
+    (tmp_path / "outside").mkdir()
+    (tmp_path / "into" / "link").symlink_to(tmp_path / "outside")
+    with pytest.raises(UsageError, match="outside"):
+        _target(tmp_path / "into", "link/x.loop")
+    assert _target(tmp_path / "into", "a/x.loop") == tmp_path / "into" / "a" / "x.loop"
+    # the refusal quotes the path through the one sanitiser: a control character or a
+    # byte that was not UTF-8 cannot reach the terminal
+    with pytest.raises(UsageError) as info:
+        _target(tmp_path, "../\x1b[2Jx\udcff.loop")
+    assert "'../?[2Jx\ufffd.loop'" in str(info.value) and "\x1b" not in str(info.value)
+
+
+def test_an_included_file_with_another_suffix_comes_out_of_the_revision(repo, capsys):
+    # the language takes any file name after `use`; a revision must hold its own copy
+    def files(b):
+        plant = PLANT.replace('use "common/plant.loop"', 'use "common/plant.inc"')
+        return {"models/common/plant.inc": PLANT_LIB.format(b=b),
+                "models/plant.loop": plant.format(K=10, name="loop")}
+    commit(repo, files(5), "plant pole at 5")
+    commit(repo, files(10), "plant pole at 10")
+    code, data, err = run_json(capsys, "--rev", "HEAD~1", "--rev", "HEAD")
+    m = by_metric(models(data)["models/plant.loop"], "loop")
+    # analytic: GM = b (1 + b) / K (module docstring)
+    assert m["gain_margin_up_db"]["before"] == pytest.approx(gm_analytic(10, 5), abs=1e-3)
+    assert m["gain_margin_up_db"]["after"] == pytest.approx(gm_analytic(10, 10), abs=1e-3)
+    assert code == 0, err

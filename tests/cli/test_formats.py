@@ -95,7 +95,7 @@ def test_text_table_shows_every_figure_in_aligned_columns(mixed_run):
     header = next(l for l in lines if l.lstrip().startswith("break") and "PM deg" in l)
     row = next(l for l in lines if l.lstrip().startswith("outer "))
     # numeric columns are right-aligned: each value ends where its header ends
-    for head, value in [("PM deg", "52.5"), ("GM up dB", "14.0"), ("GM down dB", "-7.5"),
+    for head, value in [("PM deg", "52.5"), ("GM up dB", "14.0"), ("GM down dB (<0)", "-7.5"),
                         ("delay margin", "2.5 us"), ("disk alpha", "0.710"), ("Ms", "1.62"),
                         ("crossover rad/s", "3.25")]:
         assert row.index(value) + len(value) == header.index(head) + len(head), head
@@ -179,10 +179,21 @@ def test_junit_counts_warnings_only_when_asked(mixed_run):
     assert "never used" in warn.find("system-out").text
 
 
+def test_junit_system_out_says_the_severity_of_every_note(mixed_run):
+    # regression: a break's warning came out as `break b: LW481 ...`, without the
+    # `warning:` that the model's findings and the text report carry
+    root = ET.fromstring(render(mixed_run, "junit"))
+    warn = next(s for s in root.findall("testsuite") if s.get("name") == "warn.loop")
+    lines = warn.find("system-out").text.splitlines()
+    assert "warning: break b: LW481 the loop gain is neutral" in lines
+    assert "warn.loop:3:7: warning LW281 block `K` is never used" in lines
+
+
 def test_junit_survives_control_characters_in_messages():
     run = run_of(errors=[replace(syntax_error("x.loop"), message="bad \x01 byte")])
     root = ET.fromstring(render(run, "junit"))
-    assert "\ufffd" in root.find("testsuite/testcase/error").get("message")
+    # one sanitiser for every format (loopwise.errors.printable): a control character is "?"
+    assert root.find("testsuite/testcase/error").get("message") == "LW101 bad ? byte"
 
 
 # --- Markdown -----------------------------------------------------------------------------

@@ -34,7 +34,7 @@ def probe(argv: list[str]) -> tuple[dict, str]:
     return json.loads(proc.stderr.strip().splitlines()[-1]), proc.stdout
 
 
-@pytest.mark.parametrize("argv", [["--help"], ["check", "--help"]])
+@pytest.mark.parametrize("argv", [["--help"], ["check", "--help"], ["sweep", "--help"]])
 def test_help_does_not_import_the_numerical_stack(argv):
     result, out = probe(argv)
     assert result["code"] == 0
@@ -69,3 +69,13 @@ def test_library_api_is_lazy_and_works():
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert proc.returncode == 0, proc.stderr
     assert proc.stdout.split() == ["True", "b", "55.9"]
+
+
+@pytest.mark.parametrize("command", ["check", "graph", "diff", "plot", "report"])
+def test_every_command_takes_config_and_output(command, capsys):
+    from loopwise.cli import main
+
+    with pytest.raises(SystemExit):
+        main([command, "--help"])
+    text = capsys.readouterr().out
+    assert "--config FILE" in text and "--output" in text

@@ -1,4 +1,4 @@
-"""`loopwise.diff` on hand-built results: directions, deltas, the regression policy.
+"""`loopwise.compare` on hand-built results: directions, deltas, the regression policy.
 
 The margin values below are invented inputs, not claims about any loop; what is
 checked is the comparison (after - before, better/worse, thresholds).
@@ -9,8 +9,9 @@ import dataclasses
 
 import pytest
 
-from loopwise.diff import Unreadable, compare
+from loopwise.compare import Unreadable, compare
 from loopwise.errors import Finding, Span
+from loopwise.language.requirements import METRICS
 from loopwise.report import diff_text
 from loopwise.results import (CAUTION, BreakResult, DiskMargin, GainCrossover, Margins, ModelResult,
                               Peak, PhaseCrossover, RequirementResult)
@@ -40,8 +41,8 @@ def model(*breaks, file="m.loop", name="m") -> ModelResult:
     return ModelResult(file=file, model=name, stable=z == 0, closed_loop_rhp_poles=z, breaks=breaks)
 
 
-def req(met, value=9.5, limit=6.0, metric="gain_margin") -> RequirementResult:
-    return RequirementResult(metric, ">=", limit, value, met, 9)
+def req(met, value=9.5, limit=6.0, metric="gain_margin", text="") -> RequirementResult:
+    return RequirementResult(metric, ">=", limit, value, met, 9, unit=METRICS[metric].unit, limit_text=text)
 
 
 def one(before: BreakResult, after: BreakResult, policy=None):
@@ -51,7 +52,7 @@ def one(before: BreakResult, after: BreakResult, policy=None):
 
 def change(result, key):
     (d,) = result.models[0].breaks
-    (c,) = [m for m in d.margins if m.key == key]
+    (c,) = [m for m in d.margins if m.metric == key]
     return c
 
 
@@ -92,10 +93,14 @@ def test_policy_thresholds_are_honoured():
 
 
 def test_gain_margin_up_from_unbounded_to_finite_is_reported_in_words():
+    # unbounded -> 20 dB: a loss of unbounded size, but 20 dB is above the 12 dB relevance
+    # level and nothing requires it, so it is information
     result, _ = one(brk(m=margins(up=None)), brk(m=margins(up=20.0)))
     c = change(result, "gain_margin_up_db")
     assert c.delta is None and c.before is None and c.after == 20.0
-    assert "unbounded" in c.words and c.direction == "worse" and c.regression
+    assert "unbounded" in c.words and c.direction == "worse" and c.regression is None
+    result, _ = one(brk(m=margins(up=None)), brk(m=margins(up=8.0)))
+    assert "below 12 dB (common practice)" in change(result, "gain_margin_up_db").regression
     result, _ = one(brk(m=margins(up=20.0)), brk(m=margins(up=None)))
     c = change(result, "gain_margin_up_db")
     assert c.direction == "better" and c.regression is None and "now unbounded" in c.words
@@ -115,11 +120,17 @@ def test_gain_margin_down_towards_0_db_is_a_loss():
 
 
 def test_delay_margin_fraction():
-    result, _ = one(brk(m=margins(delay=0.10)), brk(m=margins(delay=0.07)))
+    # -30 % where a requirement of 60 ms is within 20 % (70 ms <= 1.2 * 60 ms): a regression
+    near = [req(True, 0.07, 0.06, "delay_margin")]
+    result, _ = one(brk(m=margins(delay=0.10)), brk(m=margins(delay=0.07), reqs=near))
     c = change(result, "delay_margin_s")
     assert c.regression and c.delta == pytest.approx(-0.03)
+    assert "within 20% of `delay_margin >= 0.06 s`" in c.regression
     assert "(-30 ms, -30%, worse)" in diff_text.render(result)
-    result, _ = one(brk(m=margins(delay=0.10)), brk(m=margins(delay=0.09)))
+    result, _ = one(brk(m=margins(delay=0.10)), brk(m=margins(delay=0.09), reqs=near))
+    assert change(result, "delay_margin_s").regression is None  # -10 %: below the threshold
+    # the same loss far from any requirement, with no relevance level for delay: information
+    result, _ = one(brk(m=margins(delay=0.10)), brk(m=margins(delay=0.07)))
     assert change(result, "delay_margin_s").regression is None
 
 

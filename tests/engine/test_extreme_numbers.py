@@ -108,3 +108,18 @@ def test_verdicts_over_16_decades_match_the_characteristic_roots(seed):
             assert b.stable, (text, roots)
         checked += 1
     assert checked >= 5
+
+
+def test_a_sum_whose_common_numerator_overflows_is_refused_at_the_sum(tmp_path):
+    """1/(s + 1e20)^16 + 1/(s + 1): over the common denominator the numerator holds
+    (s + 1e20)^16, whose coefficients reach 1e320 (beyond double precision, numpy.poly
+    gives inf). It was silently read as 1/((s + 1e20)^16 (s + 1)), whose loop is ~0 at
+    every frequency; it must be a located LW106 at the sum instead."""
+    from loopwise.analysis import check_text
+    from loopwise.errors import ModelError
+
+    text = "input r\nblock G = 1/(s+1e20)^16 + 1/(s+1)\ne = r - y\ny = G(e)\nbreak b at y\n"
+    with pytest.raises(ModelError) as info:
+        check_text(text, "m.loop")
+    err = info.value.errors[0]  # (followed by LW228 where the block is applied)
+    assert err.code == "LW106" and err.span.line == 2

@@ -4,7 +4,7 @@ Each fact is common knowledge of the trade (stated as such in its docstring);
 where a number is involved it is re-derived in a comment and, where a closed
 loop is claimed stable or unstable, confirmed with python-control 0.10.2's
 `feedback(L, 1).poles()`.
-Conventions (docs RULES 11): N counts clockwise encirclements of -1, Z = N + P,
+Conventions (docs/method.md): N counts clockwise encirclements of -1, Z = N + P,
 P counts open-loop poles in the open RHP, axis poles are indented to the right.
 """
 from __future__ import annotations

@@ -344,7 +344,17 @@ def test_two_statements_on_one_line_are_refused():
 # The grammar never takes a statement word or `at`/`in` for a name; `s` and `exp` are
 # refused as declared names by the resolver (LW201, tests in test_errors.py).
 
-STATEMENT_WORDS = ["model", "use", "param", "input", "block", "break", "require"]
+STATEMENT_WORDS = ["model", "use", "param", "input", "block", "break", "require", "waive"]
+
+
+def test_the_reserved_words_are_read_from_the_grammar():
+    # one list, in the grammar's NAME rule; the parser reads it from there
+    from loopwise.language import parse as parse_module
+    from loopwise.language import resolve as resolve_module
+
+    assert parse_module.STATEMENT_WORDS == tuple(STATEMENT_WORDS)
+    assert parse_module.RESERVED == frozenset(STATEMENT_WORDS) | {"at", "in"}
+    assert not hasattr(resolve_module, "RESERVED")
 
 
 @pytest.mark.parametrize("word", STATEMENT_WORDS)

@@ -6,9 +6,9 @@ hand with python-control 0.10.2 (`control.tf` per block application,
 `control.summing_junction`, `control.interconnect`), independently of our parser
 and reducer. Compared:
 * every break's loop transfer L_k(jw) (other loops closed) with
-  `Prepared.loop_transfer`, and with the engine's own `Prepared.loop_state_space`;
+  `PreparedModel.loop_transfer`, and with the engine's own `PreparedModel.loop_state_space`;
 * the whole closed loop's poles: eigenvalues of python-control's interconnected
-  state matrix vs `Prepared.closed_loop_poles()` (paired one to one), leaving out
+  state matrix vs `PreparedModel.closed_loop_poles()` (paired one to one), leaving out
   blocks driven only by exogenous inputs (their poles are the input's, not a loop's).
 
 Parameters below are copied from the model files; a change there must be
@@ -198,8 +198,8 @@ def _compare(prep, wiring: Wiring, label: str):
         _assert_same_response(_ss_response(*(np.atleast_2d(m) for m in (A, B, C, D)), GRID), ref,
                               f"{label}/{name} (engine state space)", floor=1e-14)
     # blocks driven only by an exogenous input (greenhouse: the outside-temperature
-    # filter) are outside every loop; the engine leaves their poles out (see
-    # /work/notes/engine-findings.md), so the reference does too
+    # filter) are outside every loop; the state-space form leaves their poles out (they
+    # count in Z separately, docs/method.md "Blocks on input paths"), so the reference does too
     _assert_same_poles(prep.closed_loop_poles(), wiring.closed_loop(input_filters=False).poles(),
                        label)
 
@@ -238,7 +238,7 @@ def test_generated_cascade_vs_python_control(n, separation):
 
 @pytest.mark.parametrize("n, separation", [(3, 3.0), (6, 1.5)])
 def test_generated_cascade_verdict_at_every_break(n, separation):
-    """The same Z from every break (ARCHITECTURE: det(I - A) = det(I - A_k)(1 + L_k)), equal
+    """The same Z from every break (docs/method.md: det(I - A) = det(I - A_k)(1 + L_k)), equal
     to python-control's closed-loop RHP count; P_k = RHP eigenvalues of the loop's state space."""
     cascade = nested_cascade(n, seed=31, separation=separation)
     text = cascade.text()

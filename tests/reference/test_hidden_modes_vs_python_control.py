@@ -210,3 +210,47 @@ def test_a_waived_mode_is_not_counted():
     assert verdict_adjustment([dataclasses.replace(axis, counted=False)]) == (0, [])
     rhp = dataclasses.replace(mode, code="LW487")  # already in the count: a waiver takes it off
     assert verdict_adjustment([dataclasses.replace(rhp, counted=False)]) == (-1, [])
+
+
+# --- waivers: a team that knows a hidden mode is not there accepts it with a reason ---------
+
+@pytest.mark.parametrize("waiver, counted", [
+    ('waive LW488 at C "the drift is reset by the sequence controller"', False),
+    ('waive LW488 at G "the drift is reset by the sequence controller"', False),
+    ('waive LW488 "accepted for every block"', False),
+    ('waive LW487 at C "a different code accepts nothing here"', True),
+])
+def test_a_waived_axis_mode_leaves_the_verdict_to_the_other_poles(waiver, counted):
+    """Waiving the hidden mode takes it out of the verdict and nothing else: python-control's
+    eigenvalues other than the one at s = 0 are in the left half plane, so the model is then
+    stable; a waiver of another code changes nothing."""
+    eigs = _pi_zero_eigs(0.0)
+    others = np.delete(eigs, np.argmin(np.abs(eigs)))
+    assert np.all(others.real < -1e-3)
+    res = check_text(PI_ZERO.format(delay="") + waiver + "\n", "pi.loop")
+    assert res.stable is not counted
+    mode = next(h for h in res.hidden_modes if h.code == "LW488")
+    assert mode.counted is counted
+    finding = next(f for f in res.findings if f.code == "LW488")
+    assert (finding.waiver is None) is counted
+
+
+def test_a_waived_unstable_cancellation_inside_a_block_no_longer_counts():
+    """`C = (s - 1)/((s - 1)(s + 2))` hides s = 1 inside one block: it counts (Z = 1) until
+    waived. Reference: numpy.roots of the closed loop with the factor kept."""
+    base = """model inblock
+input r
+block C = (s - 1)/((s - 1)*(s + 2))
+block G = 3/(s + 1)
+e = r - y
+y = G(C(e))
+break b at y
+"""
+    # closed loop of the factors as written: (s-1) [(s+2)(s+1) + 3] -> roots 1 and those of s^2+3s+5
+    roots = np.roots(np.polymul([1, -1], np.polyadd(np.polymul([1, 2], [1, 1]), [3])))
+    assert np.sum(roots.real > 0) == 1
+    counted = check_text(base, "c.loop")
+    assert not counted.stable and counted.closed_loop_rhp_poles == 1
+    waived = check_text(base + 'waive LW281 at C "the factor is an artefact of the identification"\n', "c.loop")
+    assert waived.stable and waived.closed_loop_rhp_poles == 0
+    assert next(f for f in waived.findings if f.code == "LW281").waiver is not None

@@ -2,14 +2,17 @@
 
 Reference (python-control 0.10.2):
 * Z: the number of poles with positive real part of `control.feedback(L, 1).poles()`
-  (unity negative feedback; the roots of den + num). Cases with a closed-loop
-  pole within 1e-9 (relative to its magnitude) of the imaginary axis are too
-  close to call from computed roots and are skipped; the count is printed.
-* P: open-loop poles strictly in the RHP, counted from the zpk the case was
-  built from (exact: no root finding involved).
+  (unity negative feedback; the roots of den + num). Where a closed-loop pole
+  lies within 1e-9 (relative to its magnitude) of the imaginary axis, computed
+  roots cannot say on which side it is: there the engine's Z must lie between
+  the count of poles clearly to the right and the count including those near
+  the axis, and the case is listed in the terminal summary.
+* P: open-loop poles strictly in the RHP, counted independently from
+  python-control's `tf(num, den).poles()` (the roots of the expanded
+  denominator), poles within 1e-6 of the axis counted as axis poles.
 * `control.nyquist_response(L).count` is compared with Z - P but never asserted
-  on: where it disagrees the case goes to a findings list printed in the output
-  (those are python-control's miscounts, or ours if the closed-loop poles say so).
+  on: where it disagrees the case goes to the findings printed in the terminal
+  summary (tests/reference/findings.py): python-control's miscounts.
 
 The set (tests/reference/loopsets.py, fixed seeds): orders 1-10, RHP poles,
 integrators up to order 3, undamped pairs on the axis, lightly damped pairs
@@ -27,6 +30,7 @@ import pytest
 from loopwise.analysis import analyse_loop
 from loopwise.transfer import Transfer
 
+from .findings import record
 from .loopsets import closed_loop_rhp, delay_free_loops, near_axis
 
 
@@ -70,56 +74,44 @@ def test_generated_set_covers_the_brief():
     assert len({c.name for c in CASES}) == len(CASES)
 
 
+def _side_counts(poles: np.ndarray, rel: float) -> tuple[int, int]:
+    """(poles clearly right of the axis, poles right of or within rel of it; rel relative to
+    the pole's magnitude, at least 1)."""
+    poles = np.asarray(poles, complex)
+    tol = rel * np.maximum(np.abs(poles), 1.0)
+    return int(np.sum(poles.real > tol)), int(np.sum(poles.real >= -tol))
+
+
 @pytest.mark.parametrize("name", [c.name for c in CASES])
 def test_verdict_matches_closed_loop_poles(name):
     case = _BY_NAME[name]
     res = _engine(name)
-    assert res.open_loop_rhp_poles == case.rhp_poles, (name, "P", case.rhp_poles,
-                                                       res.open_loop_rhp_poles)
+    # P against python-control's own roots of the denominator (not the zpk we were given)
+    p_right, _ = _side_counts(case.to_control().poles(), 1e-6)
+    assert res.open_loop_rhp_poles == p_right, (name, "P", p_right, res.open_loop_rhp_poles)
     assert res.closed_loop_rhp_poles == res.encirclements + res.open_loop_rhp_poles
-    z_ref, too_close, _ = _reference(name)
+    z_ref, too_close, count = _reference(name)
+    if count != z_ref - p_right and not too_close:
+        record("nyquist vs python-control", f"{name}: nyquist_response.count={count}, "
+               f"Z-P={z_ref - p_right} (Z={z_ref}, P={p_right}) from its own closed-loop poles")
     if too_close:
-        return  # counted and printed by test_findings_report
+        # a closed-loop pole within 1e-9 of the axis: only bounds can be asserted
+        z_lo, z_hi = _side_counts(closed_loop_rhp(case)[1], 1e-9)
+        record("nyquist vs python-control", f"{name}: closed-loop pole within 1e-9 of the axis; "
+               f"engine Z={res.closed_loop_rhp_poles} marginal={res.marginal}, reference {z_lo}..{z_hi}")
+        assert z_lo <= res.closed_loop_rhp_poles <= z_hi, (name, z_lo, z_hi, res.closed_loop_rhp_poles)
+        assert res.stable == (z_hi == 0 and not res.marginal), name
+        return
     assert res.closed_loop_rhp_poles == z_ref, (name, "Z", z_ref, res.closed_loop_rhp_poles,
                                                 res.warnings)
     assert res.stable == (z_ref == 0), (name, "stable", z_ref == 0, res.stable)
     assert not res.marginal, (name, "marginal without an axis pole", res.marginal_freq)
 
 
-def test_findings_report(capsys):
-    """Print skipped cases and python-control's disagreements (no assertion on the latter)."""
-    skipped, miscounts, engine_off = [], [], []
-    for case in CASES:
-        z_ref, too_close, count = _reference(case.name)
-        try:
-            res = _engine(case.name)
-        except Exception as exc:  # reported here, failed in test_verdict_matches_closed_loop_poles
-            res = None
-            engine_off.append(f"{case.name} (error {type(exc).__name__})")
-        if too_close:
-            skipped.append(f"{case.name}: engine " + ("error" if res is None else
-                           f"Z={res.closed_loop_rhp_poles} marginal={res.marginal} "
-                           f"at {res.marginal_freq}"))
-            continue
-        if count != z_ref - case.rhp_poles:
-            miscounts.append(f"{case.name}: nyquist_response.count={count}, "
-                             f"Z-P={z_ref - case.rhp_poles} (Z={z_ref}, P={case.rhp_poles})")
-        if res is not None and res.closed_loop_rhp_poles != z_ref:
-            engine_off.append(f"{case.name} (Z expected {z_ref}, got {res.closed_loop_rhp_poles})")
-    with capsys.disabled():
-        print(f"\n[nyquist vs python-control] {len(CASES)} loops, {len(skipped)} skipped "
-              f"(closed-loop pole within 1e-9 of the axis):")
-        for line in skipped:
-            print("  skipped", line)
-        print(f"[nyquist vs python-control] python-control's nyquist_response.count disagrees "
-              f"with its own closed-loop poles on {len(miscounts)} loops:")
-        for line in miscounts:
-            print("  ", line)
-        print(f"[nyquist vs python-control] engine disagreements: {len(engine_off)}")
-        for line in engine_off:
-            print("  ", line)
-    # the skip rule must stay a rare exception, not a way round hard cases
-    assert len(skipped) <= len(CASES) // 50
+def test_near_axis_cases_stay_rare():
+    """The bounds-only rule above must stay a rare exception, not a way round hard cases."""
+    close = [c.name for c in CASES if _reference(c.name)[1]]
+    assert len(close) <= len(CASES) // 50, close
 
 
 @pytest.mark.parametrize("delta", [1e-4, 1e-6, 1e-8, -1e-4, -1e-6, -1e-8])
@@ -131,7 +123,7 @@ def test_zero_next_to_an_axis_pole_never_gives_a_wrong_count(delta):
     s - j = -r/(1 + L_rest(j)) = delta (0.36 + 0.48j): right of the axis for delta > 0.
     The engine must either count it right (python-control `feedback(L, 1).poles()` as the
     reference) or refuse with a located model error; a silent wrong Z is the one thing
-    not allowed (RULES 6)."""
+    not allowed."""
     from loopwise.errors import ModelError
     zeros = [1j * (1 + delta), -1j * (1 + delta)]
     poles = [1j, -1j, -1.0, -2.0]

@@ -6,6 +6,7 @@ and delay, for tests that compare the drawing with a formula.
 """
 from __future__ import annotations
 
+import numpy as np
 import pytest
 
 from loopwise.analysis import check_text
@@ -57,6 +58,36 @@ e = r - y
 y = [0.5*(s+1)/((s^2+4)*(s+2))](e)
 break loop at y
 """, ([-1], [2j, -2j, -2], 0.5, 0.0), True),
+    # invented: a triple integrator with a double lead, stable only for a range of gains
+    # (Routh on 0.1 s^4 + s^3 + 4 s^2 + 3.2 s + 0.64: first column 0.1, 1, 3.68, 3.03, 0.64)
+    "type_three": ("""model type_three
+input r
+e = r - y
+y = [4*(s+0.4)^2/(s^3*(0.1*s+1))](e)
+break loop at y
+""", ([-0.4, -0.4], [0, 0, 0, -10], 40.0, 0.0), True),
+    # invented: a negative loop gain, L(0) = -0.5; closed-loop pole s = -0.5
+    "negative_gain": ("""model negative_gain
+input r
+e = r - y
+y = [-0.5/(s+1)](e)
+break loop at y
+""", ([], [-1], -0.5, 0.0), False),
+    # invented: a lag and a lightly damped pair; stable with a small margin
+    # (s^3 + 1.8 s^2 + 1.8 s + 3: 1.8 * 1.8 = 3.24 > 3), min |1 + L| about 0.068
+    "small_margin": ("""model small_margin
+input r
+e = r - y
+y = [2/((s+1)*(s^2+0.8*s+1))](e)
+break loop at y
+""", ([], [-1, -0.4 + 0.9165j, -0.4 - 0.9165j], 2.0, 0.0), False),
+    # invented: the same loop with a little more gain barely encircles -1 (1.8 * 1.8 < 3.5)
+    "barely_unstable": ("""model barely_unstable
+input r
+e = r - y
+y = [2.5/((s+1)*(s^2+0.8*s+1))](e)
+break loop at y
+""", ([], [-1, -0.4 + 0.9165j, -0.4 - 0.9165j], 2.5, 0.0), False),
 }
 
 
@@ -81,3 +112,13 @@ def write_models(folder):
 def model_files(tmp_path):
     """The loops written as model files in a temporary folder."""
     return write_models(tmp_path / "models")
+
+
+def drawn_line(fig, gid: str) -> np.ndarray:
+    """The drawn points of the one line with this gid, as complex numbers; NaN gaps
+    (lines broken at axis poles) dropped."""
+    found = [l for ax in fig.axes for l in ax.get_lines() if l.get_gid() == gid]
+    assert len(found) == 1, gid
+    x, y = found[0].get_data()
+    z = np.asarray(x, float) + 1j * np.asarray(y, float)
+    return z[np.isfinite(z)]

@@ -4,10 +4,11 @@ from __future__ import annotations
 import re
 import xml.etree.ElementTree as ET
 
+import numpy as np
 import pytest
 
 from loopwise.cli import main
-from loopwise.report import BREAK_COLUMNS, break_row
+from loopwise.report.summary import BREAK_COLUMNS, break_row
 from loopwise.results import CAUTION
 from loopwise.run import check_paths
 
@@ -121,3 +122,21 @@ def test_the_page_is_the_same_drawn_in_one_process_or_two(tmp_path):
         assert main(["report", str(model), "-o", str(out), "--jobs", jobs]) == 0
         pages.append(out.read_bytes())
     assert pages[0] == pages[1]
+
+
+def test_inline_nyquist_curves_are_thinned_and_wind_as_the_engine_counts(report):
+    """The page's inline SVG (re-read from the page text) turns around -1 exactly
+    N times for every break (page y points down: the count there is -N)."""
+    from .test_plots import _ray_crossings, _svg_polyline
+
+    _, page, _, run = report
+    for n, m in enumerate(run.models):
+        for k, b in enumerate(m.breaks):
+            prefix = f"m{n}b{k}n-"
+            curve = np.concatenate([_svg_polyline(page, prefix + "nyquist-positive"),
+                                    _svg_polyline(page, prefix + "nyquist-negative")])
+            use = re.search(rf'<g id="{prefix}critical-point">.*?<use [^>]*x="([-\d.]+)" '
+                            r'y="([-\d.]+)"', page, re.S)
+            critical = float(use.group(1)) + 1j * float(use.group(2))
+            assert _ray_crossings(curve - critical - 1.0) == -b.encirclements, (m.model, b.name)
+            assert curve.size < b.response.L.size

@@ -1,72 +1,49 @@
 """`loopwise check PATH...`: the verdict and margins of every break, in a format
-for people (text, markdown) or machines (json, junit).
+for people (text, markdown) or machines (json, junit, sarif): the choices come
+from the reporter registry (`loopwise.report.formats("check")`).
 
-This module is imported for `loopwise check --help`, so it imports nothing
-heavy at module level: the runner and the reporters load inside `run`.
+Thin: the shared options and settings (`commands/options.py`), the runner
+(`loopwise.run.check_files`), a reporter written by `options.write_report`. This
+module is imported for `loopwise check --help`, so it imports nothing heavy at
+module level: the runner and the reporters load inside `run`.
 """
 from __future__ import annotations
 
 import argparse
 import os
 import sys
-from pathlib import Path
 
-from ..errors import UsageError
+from ..report import formats
+from .options import (add_config, add_fail_on_warnings, add_jobs, add_no_progress, add_output, add_set,
+                      load_settings_for, progress_wanted, write_report)
 
 __all__ = ["add_parser", "run"]
 
-_FORMATS = ("text", "json", "junit", "markdown")
-
-
-def _jobs(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number of processes, got {text!r}")
-    if value < 0:
-        raise argparse.ArgumentTypeError("must be 0 (one per CPU) or more")
-    return value
-
 
 def add_parser(subparsers, help_text: str) -> argparse.ArgumentParser:
+    """Add `loopwise check` and its options to the subcommands."""
     p = subparsers.add_parser(
         "check", help=help_text, description=help_text + " Folders are searched for *.loop files.",
         epilog="Exit codes: 0 every model stable with all requirements met; 1 an instability, "
                "an unmet requirement, or a warning with --fail-on-warnings; 2 a model or path "
-               "could not be read (the other models are still checked and reported).",
+               "could not be read (the other models are still checked and reported); "
+               "130 interrupted (Ctrl-C); 143 terminated (SIGTERM).",
     )
     p.add_argument("paths", nargs="+", metavar="PATH", help="model files or folders of models")
-    p.add_argument("-f", "--format", choices=_FORMATS, default="text",
+    p.add_argument("-f", "--format", choices=formats("check"), default="text",
                    help="report format (default: text)")
-    p.add_argument("-o", "--output", metavar="FILE",
-                   help="write the report to FILE; a text summary still goes to stdout "
-                        "unless --quiet")
+    add_output(p, "write the report to FILE; a text summary still goes to stdout unless --quiet")
     p.add_argument("-q", "--quiet", action="store_true",
                    help="with --output, print nothing to stdout")
-    p.add_argument("--config", metavar="FILE",
-                   help="settings file (loopwise.toml or pyproject.toml); default: the nearest "
-                        "one from the working directory up to the repository root")
-    p.add_argument("-j", "--jobs", type=_jobs, default=1, metavar="N",
-                   help="check models in N processes (0: one per CPU; default 1)")
-    p.add_argument("--fail-on-warnings", action=argparse.BooleanOptionalAction, default=None,
-                   help="exit 1 when a model has warnings (overrides the settings file)")
+    add_config(p)
+    add_jobs(p)
+    add_fail_on_warnings(p)
     p.add_argument("--color", "--colour", dest="color", choices=("auto", "always", "never"),
                    default="auto",
                    help="colour the text report: auto (a terminal without NO_COLOR), always, never")
-    p.add_argument("--no-progress", action="store_true",
-                   help="never draw a progress bar (it is drawn only on a terminal anyway)")
+    add_no_progress(p)
+    add_set(p)
     return p
-
-
-def _settings(args):
-    from dataclasses import replace
-
-    from ..settings import load_settings, load_settings_file
-
-    settings = load_settings_file(args.config) if args.config else load_settings()
-    if args.fail_on_warnings is not None:
-        settings = replace(settings, fail_on_warnings=args.fail_on_warnings)
-    return settings
 
 
 def _colour(choice: str, stream) -> bool:
@@ -80,36 +57,20 @@ def _colour(choice: str, stream) -> bool:
         return False
 
 
-def _write(path: str, text: str) -> None:
-    try:
-        Path(path).write_text(text, encoding="utf-8")
-    except OSError as exc:
-        raise UsageError(f"cannot write {path}: {exc.strerror or exc}") from None
-
-
 def run(args) -> int:
-    from ..report import render
-    from ..run import check_paths, exit_status, wants_progress
+    """Check the models named on the command line and write the report; the exit code
+    (`run.exit_status`: 2 a model could not be read, 1 an instability, an unmet
+    requirement or a counted warning, else 0)."""
+    from ..language.source import common_root
+    from ..output import guard_inputs
+    from ..run import check_files, discover, exit_status
 
-    # a model's own text (names, an echoed source line) may hold characters the
-    # console's encoding lacks: replace them rather than fail after the whole run
-    if hasattr(sys.stdout, "reconfigure"):
-        sys.stdout.reconfigure(errors="replace")
-    settings = _settings(args)
-    if args.output and not Path(args.output).resolve().parent.is_dir():
-        # fail before a long run rather than after it
-        raise UsageError(f"cannot write {args.output}: its folder does not exist")
-    progress = not args.no_progress and wants_progress(sys.stderr)
-    result = check_paths(args.paths, settings, jobs=args.jobs, progress=progress)
+    settings = load_settings_for(args)  # with --fail-on-warnings and --set
+    files = discover(args.paths, settings)
+    protected = guard_inputs(args.output, files, settings)  # fail before a long run, not after it
+    # includes stay inside the folder tree of the paths named (outside git)
+    result = check_files(files, settings, jobs=args.jobs, progress=progress_wanted(args),
+                         root=common_root(args.paths))
     fail = settings.fail_on_warnings
-    if args.output:
-        _write(args.output, render(result, args.format, fail_on_warnings=fail))
-        if not args.quiet:
-            sys.stdout.write(render(result, "text", colour=_colour(args.color, sys.stdout),
-                                    fail_on_warnings=fail))
-            sys.stdout.write(f"{args.format} report written to {args.output}\n")
-    else:
-        sys.stdout.write(render(result, args.format, colour=_colour(args.color, sys.stdout),
-                                fail_on_warnings=fail))
-    sys.stdout.flush()
+    write_report(args, result, "check", protected, colour=_colour(args.color, sys.stdout), fail_on_warnings=fail)
     return exit_status(result, fail)

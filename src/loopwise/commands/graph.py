@@ -4,16 +4,21 @@ from __future__ import annotations
 import argparse
 import sys
 
-from ..errors import LoopwiseError, ModelError, ModelErrors, render
+from ..errors import ModelError, ModelErrors, render
+from .options import add_config, add_output, load_settings_for
 
 __all__ = ["add_parser", "run", "structure_text", "structure_dot"]
 
 
 def add_parser(sub, help_text: str) -> None:
-    p = sub.add_parser("graph", help=help_text, description=help_text)
+    """Add `loopwise graph` and its options to the subcommands."""
+    p = sub.add_parser("graph", help=help_text, description=help_text,
+                       epilog="Exit codes: 0 the structure was printed; 2 the model could not "
+                              "be read or a usage mistake.")
     p.add_argument("file", help="a .loop model file")
     p.add_argument("--dot", action="store_true", help="write Graphviz DOT (an open format) instead of text")
-    p.add_argument("--output", "-o", help="write to this file instead of standard output")
+    add_output(p, "write to FILE instead of standard output")
+    add_config(p, " (its requirements are resolved with the model)")
 
 
 def _display(name, model) -> str:
@@ -21,6 +26,9 @@ def _display(name, model) -> str:
 
 
 def structure_text(diagram) -> str:
+    """A model's loop graph (`engine.diagram.Diagram`) as text: inputs, signals, loops,
+    breaks with the break that encloses each, the nesting as a tree, and the
+    structural findings."""
     model = diagram.model
     lines = [f"model {model.name}  ({model.file})", ""]
     shown = [s for s in model.signals if s not in model.hidden]
@@ -50,7 +58,7 @@ def structure_text(diagram) -> str:
 
         for r in roots:
             walk(r, 0)
-    for f in diagram.findings:
+    for f in (*diagram.findings, *(f for b in diagram.breaks for f in b.findings())):
         lines.append("")
         lines.append(render(f))
     return "\n".join(lines) + "\n"
@@ -61,8 +69,12 @@ def _q(name: str) -> str:
 
 
 def structure_dot(diagram) -> str:
+    """A model's loop graph as Graphviz DOT: signals as nodes, wiring terms as labelled
+    edges, each cut wire dashed and labelled with its break (and the break around it)."""
     model = diagram.model
-    cut = {e: b.stmt.name for b in diagram.breaks for e in b.edges}
+    # each cut wire is labelled with its break and, for an enclosed break, the break around it
+    cut = {e: b.stmt.name + (f" (inside {b.enclosed_by})" if b.enclosed_by else "")
+           for b in diagram.breaks for e in b.edges}
     out = [f"digraph {_q(model.name)} {{", "  rankdir=LR;", "  node [fontname=Helvetica];"]
     for name in model.inputs:
         out.append(f"  {_q(name)} [shape=plaintext];")
@@ -85,10 +97,15 @@ def structure_dot(diagram) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
+    """Print the structure of one model (text, or DOT with `--dot`); 0, or 2 when the
+    model cannot be read."""
     from ..analysis import prepare_file
+    from ..output import emit, guard_inputs
 
+    settings = load_settings_for(args)
+    protected = guard_inputs(args.output, [args.file], settings)
     try:
-        prep = prepare_file(args.file)
+        prep = prepare_file(args.file, settings)
     except ModelErrors as exc:
         for e in exc.errors:
             print(render(e.as_finding()), file=sys.stderr)
@@ -97,12 +114,5 @@ def run(args: argparse.Namespace) -> int:
         print(render(exc.as_finding()), file=sys.stderr)
         return 2
     text = structure_dot(prep.diagram) if args.dot else structure_text(prep.diagram)
-    if args.output:
-        try:
-            with open(args.output, "w", encoding="utf-8") as fh:
-                fh.write(text)
-        except OSError as exc:
-            raise LoopwiseError(f"cannot write {args.output}: {exc.strerror}") from None
-    else:
-        sys.stdout.write(text)
+    emit(text, args.output, protected)
     return 0

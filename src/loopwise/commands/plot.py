@@ -9,23 +9,24 @@ import sys
 from pathlib import Path
 
 from ..errors import UsageError
+from .options import add_config, add_no_progress, load_settings_for, progress_wanted
 
 __all__ = ["add_parser", "run", "output_paths"]
 
 KINDS = ("nyquist", "bode", "sensitivity")
 SUFFIXES = (".svg", ".png", ".pdf")
-#: below this many figures a progress bar is more flicker than help
-PROGRESS_MIN_FIGURES = 6
 
 
 def add_parser(subparsers, help_text: str):
+    """Add `loopwise plot` and its options to the subcommands."""
     p = subparsers.add_parser(
         "plot", help=help_text,
         description=help_text + " Figures are drawn from the same samples the check used.",
         epilog="Without --output the files are named <model>-<break>-<kind>.svg in the current "
                "folder. With --output the suffix picks the format (.svg, .png, .pdf); when several "
                "figures are drawn, -<break> (without --break and with more than one break) and "
-               "-<kind> (with --kind all) are added before the suffix. Exit codes: 0 figures "
+               "-<kind> (with --kind all) are added before the suffix. Each file is written "
+               "atomically and never over the model or a file it uses. Exit codes: 0 figures "
                "written; 2 the model could not be read or a usage mistake.")
     p.add_argument("file", metavar="FILE", help="a model file (.loop)")
     p.add_argument("--break", dest="break_name", metavar="NAME",
@@ -35,8 +36,8 @@ def add_parser(subparsers, help_text: str):
     p.add_argument("-o", "--output", metavar="PATH",
                    help="output file; its suffix picks the format: .svg, .png or .pdf")
     p.add_argument("--hz", action="store_true", help="frequency axes in Hz instead of rad/s")
-    p.add_argument("--config", metavar="FILE", help="settings file (default: the nearest one)")
-    p.add_argument("--no-progress", action="store_true", help="never draw a progress bar")
+    add_config(p)
+    add_no_progress(p)
     return p
 
 
@@ -63,7 +64,7 @@ def output_paths(model: str, breaks: list[str], kinds: list[str], output: str | 
 
 
 def _model(path: str, settings):
-    from ..report import finding_text
+    from ..report.summary import finding_text
     from ..run import check_one
 
     if not Path(path).is_file():
@@ -90,10 +91,13 @@ def _select(model, name: str | None, file: str):
 
 
 def run(args) -> int:
-    from ..settings import load_settings, load_settings_file
+    """Check one model and draw the chosen views of its breaks, each to its own file;
+    0 when every figure is written, 2 when the model cannot be read."""
+    from ..output import guard_output, protected_inputs
+    from ..progress import progress_bar
 
     _check_suffix(args.output)
-    settings = load_settings_file(args.config) if args.config else load_settings()
+    settings = load_settings_for(args)
     model = _model(args.file, settings)
     if model is None:
         return 2
@@ -101,40 +105,22 @@ def run(args) -> int:
     kinds = list(KINDS) if args.kind == "all" else [args.kind]
     jobs = output_paths(model.model, [b.name for b in breaks], kinds, args.output,
                         many_breaks=args.break_name is None and len(breaks) > 1)
+    protected = protected_inputs([args.file], settings)
+    for _, _, path in jobs:  # every name refused before the first figure is drawn
+        guard_output(path, protected)
     by_name = {b.name: b for b in breaks}
-    from ..run import wants_progress
-
-    bar = None
-    if not args.no_progress and len(jobs) >= PROGRESS_MIN_FIGURES and wants_progress(sys.stderr):
-        bar = _progress(len(jobs))
-    try:
+    with progress_bar("drawing", len(jobs), enabled=progress_wanted(args)) as tick:
         for name, kind, path in jobs:
-            _draw(by_name[name], kind, path, model.model, args.hz)
+            _draw(by_name[name], kind, path, model.model, args.hz, protected)
             print(f"wrote {path}")
-            if bar is not None:
-                bar[1]()
-    finally:
-        if bar is not None:
-            bar[0].stop()
+            tick()
     return 0
 
 
-def _draw(result, kind: str, path: Path, model: str, hz: bool) -> None:
+def _draw(result, kind: str, path: Path, model: str, hz: bool, protected) -> None:
+    from ..output import atomic_file
     from ..report.plots import make_figure, save_figure
 
     fig = make_figure(result, kind, model=model, hz=hz)
-    try:
-        save_figure(fig, path, salt=f"{model}-{result.name}-{kind}")
-    except OSError as exc:
-        raise UsageError(f"cannot write {path}: {exc.strerror or exc}") from None
-
-
-def _progress(total: int):
-    from rich.console import Console
-    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn
-
-    bar = Progress(TextColumn("drawing"), BarColumn(), MofNCompleteColumn(),
-                   console=Console(stderr=True), transient=True)
-    task = bar.add_task("figures", total=total)
-    bar.start()
-    return bar, (lambda: bar.advance(task))
+    with atomic_file(path, protected) as tmp:
+        save_figure(fig, tmp, salt=f"{model}-{result.name}-{kind}")

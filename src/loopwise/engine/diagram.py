@@ -1,4 +1,4 @@
-"""Resolved model -> the loop graph (engine/graph.py) and its structural checks.
+"""Resolved model -> the loop graph (networkx) and its structural checks.
 
 Signals are nodes; each wiring term is an edge from its source signal into the
 signal whose equation uses it, carrying the term (a gain, or one block
@@ -6,23 +6,21 @@ application). Checks: unused inputs, algebraic loops (ill-posed or merely
 present), loops that no break opens, breaks that open nothing or name a wire
 that does not exist, and the cascade nesting of the breaks.
 
-Nesting rule: a break *opens* the simple cycles that contain one of its cut
-edges; its loop is the set of signals on those cycles. Break B is enclosed by
-break A when B's loop is a strict subset of A's loop; B's enclosing break is
-the smallest such A. Loops that only partly overlap are not nested.
+Which cycles each break opens, the nesting of the breaks and the cuts that open
+more than one loop (LW384) are worked out in `nesting.py`.
 """
 from __future__ import annotations
 
-import difflib
-import itertools
 from dataclasses import dataclass
 
+import networkx as nx
 import numpy as np
 
 from ..errors import Finding, ModelError, ModelErrors, Span
 from ..language.ast import BreakStmt
+from ..language.hints import did_you_mean as _hint  # the one "did you mean" rule
 from ..language.resolve import Model, Term
-from .graph import MultiGraph, simple_cycles, strongly_connected_components
+from .nesting import cycle_wires, enclosing, loop_text, opened_by, own_cycles, wide_cut_warning
 from .solve import nonsingular
 
 __all__ = ["Diagram", "BreakCut", "build_diagram", "MAX_CYCLES"]
@@ -33,30 +31,40 @@ MAX_CYCLES = 20000
 
 @dataclass(frozen=True, eq=False)
 class BreakCut:
-    """The wires one break cuts: (source signal, equation signal) pairs."""
+    """The wires one break cuts: (source signal, equation signal) pairs.
+
+    `loop` holds the signals on every cycle the break opens; `cycles` the
+    break's own cycles (those it is the most specific opener of, see
+    nesting.own_cycles), from which the nesting follows; `warnings` its
+    structural warnings as (code, message, hint).
+    """
 
     stmt: BreakStmt
     signal: str
     edges: tuple[tuple[str, str], ...]
     loop: frozenset[str]
     enclosed_by: str | None = None
+    cycles: tuple[tuple[str, ...], ...] = ()
+    warnings: tuple[tuple[str, str, str | None], ...] = ()
+
+    def findings(self) -> tuple[Finding, ...]:
+        """The structural warnings as findings located at the break statement."""
+        return tuple(Finding("warning", code, message, self.stmt.span, hint, (self.stmt.name,))
+                     for code, message, hint in self.warnings)
 
 
 @dataclass(frozen=True, eq=False)
 class Diagram:
     model: Model
-    graph: MultiGraph
+    graph: nx.MultiDiGraph
     signals: tuple[str, ...]  # the state of the wiring, in a fixed order (inputs excluded)
     cycles: tuple[tuple[str, ...], ...]
     breaks: tuple[BreakCut, ...]
     findings: tuple[Finding, ...]
     cycles_complete: bool = True
 
-
-
-def _hint(name: str, options) -> str | None:
-    m = difflib.get_close_matches(name, list(options), n=1, cutoff=0.6)
-    return f"did you mean `{m[0]}`?" if m else None
+    def index(self) -> dict[str, int]:
+        return {n: i for i, n in enumerate(self.signals)}
 
 
 def _feeds(term: Term) -> bool:
@@ -68,7 +76,7 @@ def _feeds(term: Term) -> bool:
 
 
 def build_diagram(model: Model) -> Diagram:
-    g = MultiGraph()
+    g = nx.MultiDiGraph()
     for name in model.inputs:
         g.add_node(name, kind="input")
     for name in model.signals:
@@ -87,7 +95,7 @@ def build_diagram(model: Model) -> Diagram:
     for name, span in model.inputs.items():
         if name not in used:
             findings.append(Finding("warning", "LW381", f"input `{name}` is never used", span,
-                                    "use it in a signal equation or remove it"))
+                                    "use it in a signal equation or remove it", (name,)))
     signals = tuple(n for n in model.signals)  # defined order: equations, then hidden ones
     findings.extend(_algebraic_loops(model, g, signals, errors))
     cycles, complete = _cycles(g, model)
@@ -100,7 +108,7 @@ def build_diagram(model: Model) -> Diagram:
                                      ("breaks: " + ", ".join(sorted(names)) if names else "the model has no breaks")))
     if errors:
         raise ModelErrors(errors)
-    cuts = _loops_and_nesting(cuts, cycles)
+    cuts = _loops_and_nesting(cuts, cycles, model, g)
     findings.extend(_unbroken(cycles, cuts, model))
     for cut in cuts:
         if not cut.loop:
@@ -120,15 +128,16 @@ def _display(name: str, model: Model) -> str:
 
 
 def _algebraic_loops(model: Model, g, signals, errors) -> list[Finding]:
-    direct: dict[str, list[str]] = {n: [] for n in signals}
+    direct = nx.DiGraph()
+    direct.add_nodes_from(signals)
     for u, v, data in g.edges(data=True):
         if u in model.signals and _feeds(data["term"]):
-            direct[u].append(v)
+            direct.add_edge(u, v)
     out = []
-    for comp in strongly_connected_components(signals, direct):
+    for comp in nx.strongly_connected_components(direct):
         if len(comp) == 1:
             (n,) = comp
-            if n not in direct[n]:
+            if not direct.has_edge(n, n):
                 continue
         names = sorted({_display(n, model) for n in comp})
         # well-posedness: I - A(inf) restricted to the loop must be invertible
@@ -151,7 +160,8 @@ def _algebraic_loops(model: Model, g, signals, errors) -> list[Finding]:
                                      "the signals are not determined; add dynamics or change a gain"))
         else:
             out.append(Finding("note", "LW391", "algebraic loop (no dynamics) through "
-                               + ", ".join(f"`{n}`" for n in names) + "; it is well-posed", span, None))
+                               + ", ".join(f"`{n}`" for n in names) + "; it is well-posed", span, None,
+                               tuple(names)))
     return out
 
 
@@ -162,10 +172,11 @@ def _cycles(g, model: Model):
     hashes vary between runs), so they are put in a fixed order here.
     """
     order = {n: i for i, n in enumerate(model.signals)}
-    succ = {n: [v for v in g.successors(n) if v in model.signals] for n in model.signals}
+    sub = g.subgraph(model.signals)
+    simple = nx.DiGraph(sub)
     cycles = []
     complete = True
-    for cyc in simple_cycles(list(model.signals), succ):
+    for cyc in nx.simple_cycles(simple):
         k = min(range(len(cyc)), key=lambda i: order[cyc[i]])
         cycles.append(tuple(cyc[k:] + cyc[:k]))
         if len(cycles) >= MAX_CYCLES:
@@ -213,22 +224,18 @@ def _breaks(model: Model, g, errors) -> list[BreakCut]:
     return cuts
 
 
-def _loops_and_nesting(cuts: list[BreakCut], cycles) -> list[BreakCut]:
-    loops = []
-    for cut in cuts:
-        edges = set(cut.edges)
-        nodes: set[str] = set()
-        for cyc in cycles:
-            pairs = zip(cyc, (*cyc[1:], cyc[0]))
-            if any(p in edges for p in pairs):
-                nodes.update(cyc)
-        loops.append(frozenset(nodes))
+def _loops_and_nesting(cuts: list[BreakCut], cycles, model: Model, g) -> list[BreakCut]:
+    wires = cycle_wires(cycles)
+    opened = {c.stmt.name: opened_by(c.edges, wires) for c in cuts}
+    own = own_cycles(opened)
+    outer = enclosing(g, cycles, own)
     out = []
-    for cut, loop in zip(cuts, loops):
-        parents = [(len(other), c.stmt.name) for c, other in zip(cuts, loops)
-                   if c is not cut and loop and loop < other]
-        enclosed_by = min(parents)[1] if parents else None
-        out.append(BreakCut(cut.stmt, cut.signal, cut.edges, loop, enclosed_by))
+    for cut in cuts:
+        name = cut.stmt.name
+        loop = frozenset(n for i in opened[name] for n in cycles[i])
+        warning = wide_cut_warning(cut, own, cycles, wires, model, g)
+        out.append(BreakCut(cut.stmt, cut.signal, cut.edges, loop, outer[name] if loop else None,
+                            tuple(cycles[i] for i in own[name]), (warning,) if warning else ()))
     return out
 
 
@@ -244,10 +251,9 @@ def _unbroken(cycles, cuts: list[BreakCut], model: Model) -> list[Finding]:
         if key in reported:
             continue
         reported.add(key)
-        names = [_display(n, model) for n in cyc]
-        names = [n for n, _ in itertools.groupby(names)]
         first = next((n for n in cyc if n not in model.hidden), cyc[0])
-        out.append(Finding("warning", "LW382", "loop " + " -> ".join(names + [names[0]])
-                           + " is not opened by any break", model.signals[first],
-                           f"add e.g. `break <name> at {first}` to check its stability margins"))
+        about = tuple(dict.fromkeys(_display(n, model) for n in cyc))
+        out.append(Finding("warning", "LW382", f"loop {loop_text(cyc, model, first)} is not opened by any break",
+                           model.signals[first], f"add e.g. `break <name> at {first}` to check its stability margins",
+                           about))
     return out

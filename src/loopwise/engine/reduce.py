@@ -27,12 +27,12 @@ from __future__ import annotations
 from dataclasses import dataclass
 from functools import cached_property
 
+import networkx as nx
 import numpy as np
 
 from ..language.resolve import Term
 from .blocks import Bank
 from .diagram import Diagram
-from .graph import strongly_connected_components
 from .program import Program, build_program
 
 __all__ = ["Instance", "Component", "Reduction", "reduce_diagram", "ComponentValues", "CANCEL"]
@@ -331,12 +331,18 @@ def reduce_diagram(diagram: Diagram) -> Reduction:
 def _components(signals, instances, cut_sets, diagram) -> tuple[tuple[Component, ...], tuple[int, ...]]:
     n = len(signals)
     succ: dict[int, list[int]] = {i: [] for i in range(n)}
+    flow = nx.DiGraph()
+    flow.add_nodes_from(range(n))
     for inst in instances:
         succ[inst.col].append(inst.row)
+        flow.add_edge(inst.col, inst.row)
     comps = []
     inside: set[int] = set()
-    for members in reversed(strongly_connected_components(list(range(n)), succ)):
-        members = sorted(members)
+    # components upstream first (a topological order of the condensation), so that a
+    # loop's signals are known before the loops they feed
+    condensed = nx.condensation(flow)
+    for c in nx.lexicographical_topological_sort(condensed, key=lambda c: min(condensed.nodes[c]["members"])):
+        members = sorted(condensed.nodes[c]["members"])
         if len(members) == 1 and members[0] not in succ[members[0]]:
             continue  # no loop through this signal
         member_set = set(members)

@@ -1,1 +1,3 @@
-"""The `.loop` language: parsing and name resolution."""
+"""The `.loop` language: reading model files (`source`), parsing (`parse`, `tables`),
+the included files (`includes`) and name resolution (`resolve`, `evaluate`) into a
+resolved `model`."""

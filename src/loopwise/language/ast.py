@@ -6,9 +6,9 @@ from dataclasses import dataclass
 from ..errors import Span
 
 __all__ = [
-    "Expr", "Number", "Name", "Laplace", "BinOp", "Neg", "Power", "Call", "Inline",
+    "Expr", "Number", "Name", "BinOp", "Neg", "Power", "Call", "Inline",
     "Statement", "ModelStmt", "UseStmt", "ParamStmt", "InputStmt", "BlockStmt",
-    "EquationStmt", "BreakStmt", "RequireStmt", "ModelFile",
+    "EquationStmt", "BreakStmt", "RequireStmt", "WaiveStmt", "ModelFile",
 ]
 
 
@@ -16,6 +16,8 @@ __all__ = [
 
 @dataclass(frozen=True)
 class Expr:
+    """An expression; every node knows where it stands in the file."""
+
     span: Span
 
 
@@ -36,12 +38,9 @@ class Name(Expr):
 
 
 @dataclass(frozen=True)
-class Laplace(Expr):
-    """The Laplace variable `s` (only made by the resolver, never parsed)."""
-
-
-@dataclass(frozen=True)
 class BinOp(Expr):
+    """`left op right` for `+`, `-`, `*` and `/`."""
+
     op: str  # + - * /
     left: Expr
     right: Expr
@@ -49,11 +48,15 @@ class BinOp(Expr):
 
 @dataclass(frozen=True)
 class Neg(Expr):
+    """`-operand`."""
+
     operand: Expr
 
 
 @dataclass(frozen=True)
 class Power(Expr):
+    """`base ^ exponent` (the exponent a constant whole number, checked later)."""
+
     base: Expr
     exponent: Expr
 
@@ -79,21 +82,29 @@ class Inline(Expr):
 
 @dataclass(frozen=True)
 class Statement:
+    """A statement of a `.loop` file; `span` is where it starts."""
+
     span: Span
 
 
 @dataclass(frozen=True)
 class ModelStmt(Statement):
+    """`model <name>`: the model's name (first statement, once)."""
+
     name: str
 
 
 @dataclass(frozen=True)
 class UseStmt(Statement):
+    """`use "<path>"`: bring in the params and blocks of another file."""
+
     path: str
 
 
 @dataclass(frozen=True)
 class ParamStmt(Statement):
+    """`param <name> = <value>`, optionally `in [<low>, <high>]` (the range a sweep samples)."""
+
     name: str
     value: Expr
     low: Expr | None = None
@@ -102,11 +113,15 @@ class ParamStmt(Statement):
 
 @dataclass(frozen=True)
 class InputStmt(Statement):
+    """`input a, b`: signals driven from outside, each with its place."""
+
     names: tuple[tuple[str, Span], ...]
 
 
 @dataclass(frozen=True)
 class BlockStmt(Statement):
+    """`block <name> = <transfer>`: a named transfer function."""
+
     name: str
     transfer: Expr
 
@@ -121,6 +136,9 @@ class EquationStmt(Statement):
 
 @dataclass(frozen=True)
 class BreakStmt(Statement):
+    """`break <name> at <signal>` (every use of the signal cut) or `at <signal> -> <target>`
+    (only the wire into the target's equation)."""
+
     name: str
     signal: str
     signal_span: Span
@@ -129,6 +147,7 @@ class BreakStmt(Statement):
 
     @property
     def at(self) -> str:
+        """Where the break cuts, as written: `y` or `y -> e`."""
         return self.signal if self.target is None else f"{self.signal} -> {self.target}"
 
 
@@ -145,8 +164,21 @@ class RequireStmt(Statement):
 
 
 @dataclass(frozen=True)
+class WaiveStmt(Statement):
+    """`waive <code> [at <name>] "<reason>"`: an accepted warning or note."""
+
+    code: str
+    code_span: Span
+    at: str | None
+    at_span: Span | None
+    reason: str | None  # None: not written (reported by the resolver)
+    reason_span: Span | None
+
+
+@dataclass(frozen=True)
 class ModelFile:
     """One parsed file, before includes are resolved."""
 
     path: str
     statements: tuple[Statement, ...]
+    tokens: int = 0  # what the file spent of the model's token budget

@@ -6,6 +6,7 @@ from dataclasses import dataclass, field
 from ..errors import Finding, Span
 from ..transfer import Transfer
 from . import ast
+from ..waivers import Waivers
 from .requirements import Requirement
 
 __all__ = ["Quantity", "Block", "Application", "Term", "Model"]
@@ -21,6 +22,8 @@ class Quantity:
 
 @dataclass(frozen=True, eq=False)
 class Block:
+    """A named block: its transfer function (exact, delays kept) and where it is defined."""
+
     name: str
     transfer: Transfer
     span: Span
@@ -47,6 +50,11 @@ class Term:
 
 @dataclass(frozen=True, eq=False)
 class Model:
+    """A resolved model: its params, blocks, inputs and signals (hidden ones for nested
+    applications included), every signal's equation as wiring terms, its breaks,
+    requirements, findings and waivers, the params' ranges, and the trees of the files
+    it `use`s."""
+
     name: str
     file: str
     params: dict[str, Quantity]
@@ -60,3 +68,6 @@ class Model:
     findings: tuple[Finding, ...]
     block_uses: dict[str, int] = field(default_factory=dict)
     hidden_owner: dict[str, str] = field(default_factory=dict)  # hidden signal -> its equation
+    waivers: Waivers = field(default_factory=Waivers)  # `waive` statements, then the settings'
+    ranges: dict[str, tuple[float, float]] = field(default_factory=dict)  # param -> [lo, hi]
+    sources: dict = field(default_factory=dict)  # `use` statement -> (path, parsed file)

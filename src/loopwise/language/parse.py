@@ -8,53 +8,71 @@ from __future__ import annotations
 import functools
 import math
 import re
-from importlib import resources
-from pathlib import Path
 
 from lark import Lark, Token, Transformer, Tree, v_args
 from lark.exceptions import UnexpectedCharacters, UnexpectedInput, UnexpectedToken
 
 from ..errors import ModelError, Span
 from . import ast
+from .hints import closest
+from .source import MAX_MODEL_BYTES
+from .tables import grammar_text, load_parser
 from .units import to_si
 
-__all__ = ["parse_text", "grammar_text", "MAX_MODEL_BYTES", "MAX_NESTING", "RESERVED"]
-
-#: a model larger than this is refused before parsing (a clear refusal, never a hang)
-MAX_MODEL_BYTES = 4 * 1024 * 1024
+__all__ = ["parse_text", "grammar_text", "MAX_MODEL_BYTES", "MAX_NESTING", "MAX_TOKENS", "RESERVED",
+           "STATEMENT_WORDS", "count_tokens"]
 
 #: deeper expressions are refused: the tree walks below recurse once per level
 MAX_NESTING = 200
 
-#: words the grammar never accepts as a name (keep in step with NAME in the grammar)
-RESERVED = frozenset({"model", "use", "param", "input", "block", "break", "require", "at", "in"})
+#: a model and the files it uses may hold at most this many tokens together (names,
+#: numbers, operators, quoted paths, comments and line ends; about 2,000 lines of a dense
+#: model), counted before parsing: it bounds the time and memory of reading any input
+MAX_TOKENS = 20_000
+
+
+def _reserved_words(grammar: str) -> tuple[str, ...]:
+    """The words the grammar's NAME never matches: read from the grammar, the one place
+    they are listed (a statement word added to the grammar is reserved here too)."""
+    m = re.search(r"^NAME:\s*/\(\?!\(\?:([\w|]+)\)", grammar, flags=re.M)
+    if m is None:
+        raise RuntimeError("grammar/loopwise.lark: NAME no longer lists the reserved words")
+    return tuple(m.group(1).split("|"))
+
+
+#: words the grammar never accepts as a name: the statement words and `at`, `in`
+RESERVED = frozenset(_reserved_words(grammar_text()))
+#: the words that start a statement, in the grammar's order (a misspelt one gets a hint)
+STATEMENT_WORDS = tuple(w for w in _reserved_words(grammar_text()) if w not in ("at", "in"))
 
 _UNITS = ("ns", "us", "ms", "min", "h", "Hz", "kHz", "deg", "rad", "dB")
-_GENERIC_HINT = ("one statement per line: model, use, param, input, block, break, require "
-                 "or `signal = ...`; see docs/language.md")
+_GENERIC_HINT = ("one statement per line: " + ", ".join(STATEMENT_WORDS) +
+                 " or `signal = ...`; see docs/language.md")
 
 _NUMBER = re.compile(
     r"(?P<num>(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?)(?P<unit>kHz|Hz|min|ms|us|ns|h|deg|rad|dB|%)?$"
 )
+#: a plain number at the end of a text (what a unit or a `*` would follow)
+_TRAILING_NUMBER = re.compile(r"(?<![\w.])((\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?)$")
 
-
-def grammar_text() -> str:
-    """The grammar, from the installed package or from the source tree."""
-    try:
-        return resources.files("loopwise").joinpath("grammar/loopwise.lark").read_text("utf-8")
-    except (FileNotFoundError, OSError, ModuleNotFoundError):
-        here = Path(__file__).resolve()
-        for parent in here.parents:
-            candidate = parent / "grammar" / "loopwise.lark"
-            if candidate.is_file():
-                return candidate.read_text("utf-8")
-        raise
+#: what the token budget counts: every lexeme the parser sees, comments and line ends too
+_LEXEME = re.compile(r'#[^\n]*|"[^"\n]*"?|(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?[\w%]*|\w+|->|>=|<=|\n|\S')
 
 
 @functools.lru_cache(maxsize=1)
 def _parser() -> Lark:
-    # cache=True keeps the built LALR tables in the temp folder: later start-ups skip the build
-    return Lark(grammar_text(), parser="lalr", propagate_positions=True, maybe_placeholders=False, cache=True)
+    # the LALR tables ship in the package (tables.py): no cache file is read from a shared folder
+    return load_parser()
+
+
+def count_tokens(text: str, limit: int) -> tuple[int, int | None]:
+    """(tokens counted, offset of the first token past `limit` or None); stops there."""
+    n = 0
+    for m in _LEXEME.finditer(text):
+        if n == limit:
+            return n, m.start()
+        n += 1
+    return n, None
 
 
 class _ToAst(Transformer):
@@ -162,6 +180,17 @@ class _ToAst(Transformer):
             self._span(metric), str(op), value,
         )
 
+    @v_args(meta=True)
+    def waive_stmt(self, meta, children):
+        code, rest = children[0], list(children[1:])
+        reason = rest.pop() if rest and rest[-1].type == "STRING" else None
+        at = rest[0] if rest else None
+        return ast.WaiveStmt(
+            self._span(meta), str(code), self._span(code),
+            None if at is None else str(at), None if at is None else self._span(at),
+            None if reason is None else str(reason)[1:-1], None if reason is None else self._span(reason),
+        )
+
     def start(self, children):
         return tuple(children)
 
@@ -171,17 +200,53 @@ _TOKEN_WORDS = {
     "RPAR": "`)`", "LSQB": "`[`", "RSQB": "`]`", "EQUAL": "`=`", "PLUS": "`+`",
     "MINUS": "`-`", "TIMES": "`*`", "DIVIDE": "`/`", "CARET": "`^`", "COMMA": "`,`",
     "STRING": "a quoted path", "COMPARE": "a comparison (>= <= > <)", "ARROW": "`->`",
-    "STAR": "`*`", "_IN": "`in`", "$END": "end of file", "AT": "`at`", "MODEL": "`model`",
-    "USE": "`use`", "PARAM": "`param`", "INPUT": "`input`", "BLOCK": "`block`", "BREAK": "`break`",
-    "REQUIRE": "`require`",
+    "STAR": "`*`", "_IN": "`in`", "$END": "end of file",
 }
 
 
+def _token_word(name: str) -> str:
+    if name in _TOKEN_WORDS:
+        return _TOKEN_WORDS[name]
+    word = name.lower().lstrip("_")
+    return f"`{word}`" if word in RESERVED else word
+
+
 def _expected(names) -> str:
-    words = sorted({_TOKEN_WORDS.get(n, n.lower()) for n in names})
+    words = sorted({_token_word(n) for n in names})
     if len(words) > 6:
         return ""
     return "expected " + ", ".join(words)
+
+
+def _statement_word(text: str) -> str:
+    m = re.match(r"\s*([A-Za-z_]\w*)", text)
+    return m.group(1) if m else ""
+
+
+def _misspelt_statement(prev: str, span: Span) -> ModelError | None:
+    """`blok B = ...`: a first word close to a statement word, and the parse failed right after it."""
+    m = re.fullmatch(r"(\s*)([A-Za-z_]\w*)\s*", prev)
+    if m is None or m.group(2) in RESERVED:
+        return None
+    word = m.group(2)
+    match = closest(word, STATEMENT_WORDS)
+    if match is None:
+        return None
+    col = len(m.group(1)) + 1
+    return ModelError("LW101", f"unknown statement `{word}`", Span(span.file, span.line, col, col + len(word)),
+                      f"did you mean `{match}`?")
+
+
+def _no_s_unit(number: str, suffix: str, span: Span) -> ModelError:
+    """`param Td = 5e-3 s`: in a constant, `s` can only have been meant as seconds."""
+    forms = [f"`{number}`"]
+    value = float(number)
+    for scale, unit in ((1e-3, "ms"), (1e-6, "us"), (1e-9, "ns")):
+        if scale <= value < 1:
+            forms.append(f"`{value / scale:.12g}{unit}`")
+            break
+    return ModelError("LW103", f"there is no unit `{suffix}`", span,
+                      "plain numbers are seconds: write " + " or ".join(forms))
 
 
 def _unexpected_token(tok: Token, prev: str, exc, span: Span) -> ModelError:
@@ -189,13 +254,18 @@ def _unexpected_token(tok: Token, prev: str, exc, span: Span) -> ModelError:
     if word in RESERVED:
         return ModelError("LW101", f"`{word}` is a reserved word", span,
                           f"`{word}` cannot name a param, block, signal or break; choose another name")
-    if tok.type == "NAME" and word in _UNITS and re.search(r"\d$", prev):
-        number = prev.split()[-1]
-        return ModelError("LW102", f"a space between `{number}` and its unit `{word}`", span,
-                          f"write the unit right after the number: `{number}{word}`")
+    misspelt = _misspelt_statement(prev, span)
+    if misspelt is not None:
+        return misspelt
+    number = _TRAILING_NUMBER.search(prev)
+    if tok.type == "NAME" and word == "s" and number and _statement_word(prev) in ("param", "require"):
+        return _no_s_unit(number.group(1), word, span)
+    if tok.type == "NAME" and word in _UNITS and number:
+        return ModelError("LW102", f"a space between `{number.group(1)}` and its unit `{word}`", span,
+                          f"write the unit right after the number: `{number.group(1)}{word}`")
     operand_done = bool({"TIMES", "DIVIDE", "PLUS", "MINUS", "CARET"} & set(exc.expected))
     if operand_done and tok.type in ("NAME", "NUMBER", "LPAR", "LSQB") and re.search(r"[\w.)\]]$", prev):
-        m = re.search(r"([\w.]+|\))$", prev)
+        m = number or re.search(r"([\w.]+|\))$", prev)
         left = m.group(1) if m else ""
         right = {"(": "(...)", "[": "[...]"}.get(word, word)
         return ModelError("LW102", f"missing operator before `{word}`", span,
@@ -252,6 +322,8 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str) -> ModelError:
                 return ModelError("LW103", f"malformed number `{m.group(0)}`",
                                   Span(file, line, col, col + len(m.group(0))),
                                   "numbers look like 12, 0.5, 1e-3 or 150us (no `_` separators, no hex)")
+            if suffix.startswith("s") and _statement_word(src) in ("param", "require"):
+                return _no_s_unit(number, suffix, Span(file, line, col, col + len(m.group(0))))
             if suffix == "s" or suffix.startswith("s"):
                 hint = f"write `{number}*{suffix}`: `s` is the Laplace variable, not a unit (plain numbers are seconds)"
                 return ModelError("LW102", f"missing `*` between `{number}` and `{suffix}`", Span(file, line, col, col + len(m.group(0))), hint)
@@ -266,8 +338,12 @@ def _syntax_error(exc: UnexpectedInput, text: str, file: str) -> ModelError:
     return ModelError("LW101", "syntax error", Span(file, line, col), _GENERIC_HINT)
 
 
-def parse_text(text: str, file: str = "<text>") -> ast.ModelFile:
-    """Parse one model file's text into its syntax tree (includes unresolved)."""
+def parse_text(text: str, file: str = "<text>", tokens_left: int | None = None) -> ast.ModelFile:
+    """Parse one model file's text into its syntax tree (includes unresolved).
+
+    `tokens_left` is what remains of the token budget of a model that includes
+    this file (None: a file on its own, `MAX_TOKENS`).
+    """
     if len(text) > MAX_MODEL_BYTES:
         raise ModelError(
             "LW105", f"the model is too large ({len(text) // 1024} KiB; the limit is {MAX_MODEL_BYTES // 1024 // 1024} MiB)",
@@ -278,6 +354,9 @@ def parse_text(text: str, file: str = "<text>") -> ast.ModelFile:
         raise ModelError("LW104", "the file holds binary data, not model text", Span(file, line, 1),
                          "a model is plain UTF-8 text")
     text = text.removeprefix("\ufeff")  # a byte-order mark some editors write
+    tokens, over = count_tokens(text, MAX_TOKENS if tokens_left is None else max(tokens_left, 0))
+    if over is not None:
+        raise _too_many_tokens(text, over, file, tokens_left is not None)
     try:
         tree = _parser().parse(text + "\n")
     except UnexpectedInput as exc:
@@ -292,7 +371,17 @@ def parse_text(text: str, file: str = "<text>") -> ast.ModelFile:
         if not math.isfinite(stmt.value) or (stmt.value == 0.0 and re.match(r"[0.]*[1-9]", stmt.text)):
             raise ModelError("LW106", f"the number `{stmt.text}` is out of range", stmt.span,
                              "numbers must be finite and within about 1e-300 to 1e300")
-    return ast.ModelFile(file, statements)
+    return ast.ModelFile(file, statements, tokens)
+
+
+def _too_many_tokens(text: str, offset: int, file: str, included: bool) -> ModelError:
+    line = text.count("\n", 0, offset) + 1
+    col = offset - (text.rfind("\n", 0, offset) + 1) + 1
+    whose = "the model and the files it uses hold" if included else "the file holds"
+    return ModelError("LW108", f"too large to read: {whose} more than {MAX_TOKENS:,} tokens",
+                      Span(file, line, col),
+                      f"a model with its included files may hold {MAX_TOKENS:,} tokens (names, numbers, "
+                      "operators, comments and line ends); check its loops as separate models")
 
 
 def _too_deep(tree: Tree) -> Tree | None:

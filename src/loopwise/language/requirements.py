@@ -12,12 +12,16 @@ from dataclasses import dataclass
 
 from ..errors import ModelError, Span
 from . import ast
+from .hints import did_you_mean
 
 __all__ = ["Metric", "METRICS", "Requirement", "make_requirement"]
 
 
 @dataclass(frozen=True)
 class Metric:
+    """A metric a requirement can bound: its name, its own unit, the unit kinds its limit
+    may be written in, and what it measures."""
+
     name: str
     unit: str  # the metric's own unit, for display
     kinds: tuple[str, ...]  # unit kinds a limit may carry besides none
@@ -42,6 +46,9 @@ METRICS: dict[str, Metric] = {m.name: m for m in [
 
 @dataclass(frozen=True)
 class Requirement:
+    """A checked requirement: the break it applies to (`*`: every break), the metric, the
+    operator, the limit in the metric's own unit, and where and how it is written."""
+
     target: str  # a break name or "*"
     metric: str
     op: str
@@ -49,6 +56,7 @@ class Requirement:
     span: Span
     target_span: Span
     text: str
+    limit_text: str = ""  # the limit as the model wrote it (`6dB`, `0.5Hz`); "" for an expression
 
     def holds(self, value: float | None) -> bool:
         """Whether a value meets the limit; None means unbounded (inf) or absent."""
@@ -79,15 +87,17 @@ def _to_metric_unit(metric: Metric, value: float, kind: str | None, span: Span) 
 
 
 def make_requirement(stmt: ast.RequireStmt, const) -> Requirement:
+    """A `require` statement checked: a known metric, a constant limit in a unit that fits
+    it, converted to the metric's own unit (`const` evaluates the limit with the
+    model's params); a located error otherwise."""
     metric = METRICS.get(stmt.metric)
     if metric is None:
-        import difflib
-        match = difflib.get_close_matches(stmt.metric, list(METRICS), n=1, cutoff=0.5)
-        hint = f"did you mean `{match[0]}`?" if match else "metrics: " + ", ".join(METRICS)
+        hint = did_you_mean(stmt.metric, METRICS) or "metrics: " + ", ".join(METRICS)
         raise ModelError("LW243", f"unknown metric `{stmt.metric}`", stmt.metric_span, hint)
     q = const(stmt.value, f"the limit of `{stmt.metric}`")
     limit = _to_metric_unit(metric, q.value, q.kind, stmt.value.span)
     # 30deg -> rad -> deg must read 30, not 29.999999999999996
     limit = float(f"{limit:.12g}")
+    written = stmt.value.text if isinstance(stmt.value, ast.Number) else ""
     return Requirement(stmt.target, stmt.metric, stmt.op, limit, stmt.span, stmt.target_span,
-                       f"{stmt.target} {stmt.metric} {stmt.op} {limit:g}{metric.unit}")
+                       f"{stmt.target} {stmt.metric} {stmt.op} {limit:g}{metric.unit}", written)

@@ -27,10 +27,13 @@ UNITS: dict[str, tuple[str, object]] = {
 
 
 def to_si(value: float, unit: str | None) -> float:
+    """A number written with a unit suffix (`5ms`, `3dB`, `2Hz`) in SI: seconds, a gain
+    ratio, radians, rad/s; a plain number as it is."""
     if unit is None:
         return value
     return UNITS[unit][1](value)  # type: ignore[operator]
 
 
 def unit_kind(unit: str | None) -> str | None:
+    """What a unit measures (`time`, `gain`, `angle`, `frequency`, `ratio`); None for none."""
     return None if unit is None else UNITS[unit][0]

@@ -1,205 +1,91 @@
-"""Reporters: one module per output format, each with `render(run, ...) -> str`.
+"""The reporter registry: which output formats exist for which kind of result.
 
-This package module holds what the formats share: the status words, the table
-of per-break figures, the number formats, and the pass/fail tally. It imports
-only the standard library (the command line loads it at start-up); plots live
-in `report/plots.py`, loaded only by the commands that draw.
+A reporter is a module under `loopwise.report` with a function that takes one
+result (a `RunResult` from `check`, a `DiffResult` from `diff`, or any other
+kind a command registers, such as a sweep's) and returns text. Commands take
+their `--format` choices from `formats(kind)` and write with `render`.
+
+Only the standard library is imported here (the commands read the choices for
+`--help`); a reporter's module loads when it is used. Shared helpers live in
+`report.summary` (the per-model summary every format renders), `report.numbers`
+(quantities and times) and `report.escape` (one sanitiser per format);
+plots live in the `report/plots` package, loaded only by the commands that draw.
 """
 from __future__ import annotations
 
 import importlib
-import math
-import re
+import inspect
 from dataclasses import dataclass
-from typing import Callable
 
-__all__ = [
-    "FORMATS", "render", "is_library", "LIBRARY_NOTE", "break_status", "model_status", "model_passes", "Tally", "tally",
-    "BREAK_COLUMNS", "break_row", "unmet_requirements", "requirement_place", "finding_text",
-    "fmt_time", "count_met", "printable",
-]
-
-#: --format name -> module under loopwise.report
-FORMATS = {"text": "text", "json": "json_report", "junit": "junit", "markdown": "markdown"}
-
-
-def render(run, fmt: str, *, colour: bool = False, fail_on_warnings: bool = False) -> str:
-    """The run in one format (`FORMATS`); only the text format knows colour."""
-    module = importlib.import_module(f"loopwise.report.{FORMATS[fmt]}")
-    if fmt == "text":
-        return module.render(run, colour=colour, fail_on_warnings=fail_on_warnings)
-    if fmt == "json":
-        return module.render(run)
-    return module.render(run, fail_on_warnings=fail_on_warnings)
-
-
-# --- verdicts -----------------------------------------------------------------------
-
-#: the analysis's note for a file of params and blocks only (brought in with `use`)
-LIBRARY_NOTE = "LW491"
-
-
-def is_library(m) -> bool:
-    return not m.breaks and any(f.code == LIBRARY_NOTE for f in m.findings)
-
-
-def break_status(b) -> str:
-    """STABLE, UNSTABLE or MARGINAL (a closed-loop pole on the imaginary axis)."""
-    if b.marginal:
-        return "MARGINAL"
-    return "STABLE" if b.stable else "UNSTABLE"
-
-
-def model_status(m) -> str:
-    if is_library(m):
-        return "LIBRARY"
-    if m.stable:
-        return "STABLE"
-    return "MARGINAL" if any(b.marginal for b in m.breaks) else "UNSTABLE"
-
-
-def _has_warnings(m) -> bool:
-    return any(b.warnings for b in m.breaks) or any(f.severity == "warning" for f in m.findings)
-
-
-def model_passes(m, fail_on_warnings: bool = False) -> bool:
-    """The same rule as the exit status (`loopwise.run.exit_status`), per model."""
-    return m.ok and not (fail_on_warnings and _has_warnings(m))
+__all__ = ["Reporter", "REPORTERS", "register", "formats", "reporter", "render"]
 
 
 @dataclass(frozen=True)
-class Tally:
-    models: int      # models checked (library files not counted)
-    passed: int
-    failed: int
-    unreadable: int
-    libraries: int = 0
+class Reporter:
+    """One `--format` of one kind of result."""
 
-    def sentence(self) -> str:
-        parts = [f"{self.models} model{'s' if self.models != 1 else ''} checked",
-                 f"{self.passed} passed", f"{self.failed} failed"]
-        if self.unreadable:
-            parts.append(f"{self.unreadable} could not be read")
-        if self.libraries:
-            parts.append(f"{self.libraries} librar{'ies' if self.libraries != 1 else 'y'} "
-                         f"for `use` not checked on {'their' if self.libraries != 1 else 'its'} own")
-        return ", ".join(parts)
+    kind: str          # the result it renders: "check", "diff", "sweep", ...
+    name: str          # the --format name
+    module: str        # module path, absolute or relative to loopwise.report
+    function: str = "render"
+    description: str = ""
+
+    def load(self):
+        """The reporter's function, its module imported now (not before it is used)."""
+        module = self.module if "." in self.module else f"loopwise.report.{self.module}"
+        return getattr(importlib.import_module(module), self.function)
 
 
-def tally(run, fail_on_warnings: bool = False) -> Tally:
-    models = [m for m in run.models if not is_library(m)]
-    passed = sum(model_passes(m, fail_on_warnings) for m in models)
-    unreadable = len({e.span.file for e in run.errors})
-    return Tally(len(models), passed, len(models) - passed, unreadable,
-                 len(run.models) - len(models))
+#: (kind, format name) -> Reporter, in registration order (the order of --help)
+REPORTERS: dict[tuple[str, str], Reporter] = {}
 
 
-def count_met(b) -> tuple[int, int]:
-    return sum(r.met for r in b.requirements), len(b.requirements)
+def register(kind: str, name: str, module: str, function: str = "render", description: str = "") -> Reporter:
+    """Add (or replace) the reporter of format `name` for results of `kind`.
+
+    `module` is a module of `loopwise.report` by its short name (`"text"`) or any
+    module by its full name; its `function(result, **options)` returns text and
+    may accept any of the keyword options `render` passes (`colour`,
+    `fail_on_warnings`); options it does not take are not passed."""
+    entry = Reporter(kind, name, module, function, description)
+    REPORTERS[(kind, name)] = entry
+    return entry
 
 
-def unmet_requirements(m) -> list:
-    """(break, requirement) for every unmet requirement of a model, in break order."""
-    return [(b, r) for b in m.breaks for r in b.requirements if not r.met]
+def formats(kind: str) -> tuple[str, ...]:
+    """The --format choices for a kind of result, in registration order."""
+    return tuple(name for (k, name) in REPORTERS if k == kind)
 
 
-def requirement_place(m, r) -> str:
-    """`file:line` of a requirement (a settings requirement names its own file)."""
-    return f"{r.file or m.file}:{r.line}"
+def reporter(kind: str, name: str) -> Reporter:
+    """The registered reporter of format `name` for results of `kind`; a ValueError naming
+    the formats there are when there is none."""
+    try:
+        return REPORTERS[(kind, name)]
+    except KeyError:
+        raise ValueError(f"no {name!r} format for {kind} results; formats: "
+                         f"{', '.join(formats(kind)) or 'none'}") from None
 
 
-#: control characters (other than tab and newline) that a model file may hold: a
-#: source line echoed under an error must not drive the terminal it is printed on
-_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f]")
+def render(result, fmt: str, kind: str = "check", **options) -> str:
+    """`result` in format `fmt`; options the reporter does not take are left out
+    (only the text format knows colour)."""
+    function = reporter(kind, fmt).load()
+    accepted = inspect.signature(function).parameters
+    return function(result, **{k: v for k, v in options.items() if k in accepted})
 
 
-def printable(text: str) -> str:
-    return _CONTROL.sub("\ufffd", text)
-
-
-def finding_text(f) -> str:
-    """A finding with its line and caret, or a single line when it has no location."""
-    from ..errors import render as render_finding
-
-    if f.span.line > 0:
-        return printable(render_finding(f))
-    text = f"{f.span.file}: {f.severity} {f.code} {f.message}"
-    return printable(text + (f"\n    hint: {f.hint}" if f.hint else ""))
-
-
-# --- the per-break table ---------------------------------------------------------------
-
-def _finite(x) -> bool:
-    return x is not None and math.isfinite(x)
-
-
-def _margin(b, get: Callable, fmt: str, unbounded: str = "inf") -> str:
-    """`-` when margins are not claimed (closed loop not stable); `inf` when unbounded."""
-    if b.margins is None:
-        return "-"
-    value = get(b.margins)
-    return format(value, fmt) if _finite(value) else unbounded
-
-
-def fmt_time(seconds) -> str:
-    if not _finite(seconds):
-        return "inf"
-    for scale, unit in ((1.0, "s"), (1e-3, "ms"), (1e-6, "us")):
-        if abs(seconds) >= scale:
-            return f"{seconds / scale:.3g} {unit}"
-    return f"{seconds / 1e-9:.3g} ns"
-
-
-def _delay(b) -> str:
-    if b.margins is None:
-        return "-"
-    return fmt_time(b.margins.delay_margin_s)
-
-
-def _disk(b) -> str:
-    if b.margins is None or b.margins.disk_margin is None:
-        return "-"
-    alpha = b.margins.disk_margin.alpha
-    return f"{alpha:.3f}" if _finite(alpha) else "inf"
-
-
-def _peak(b) -> str:
-    if b.margins is None or b.margins.sensitivity_peak is None:
-        return "-"
-    value = b.margins.sensitivity_peak.value
-    return f"{value:.3g}" if _finite(value) else "inf"
-
-
-def _crossover(b) -> str:
-    if b.margins is None:
-        return "-"
-    w = b.margins.crossover_freq
-    return f"{w:.4g}" if _finite(w) else "none"
-
-
-def _requirements(b) -> str:
-    met, total = count_met(b)
-    return f"{met}/{total}" if total else "-"
-
-
-#: (header, cell of a BreakResult, right-aligned?) in table order
-BREAK_COLUMNS: tuple[tuple[str, Callable, bool], ...] = (
-    ("break", lambda b: b.name, False),
-    ("at", lambda b: b.at, False),
-    ("verdict", break_status, False),
-    ("P", lambda b: str(b.open_loop_rhp_poles), True),
-    ("N", lambda b: str(b.encirclements), True),
-    ("Z", lambda b: str(b.closed_loop_rhp_poles), True),
-    ("PM deg", lambda b: _margin(b, lambda m: m.phase_margin_deg, ".1f"), True),
-    ("GM up dB", lambda b: _margin(b, lambda m: m.gain_margin_up_db, ".1f"), True),
-    ("GM down dB", lambda b: _margin(b, lambda m: m.gain_margin_down_db, ".1f", "-inf"), True),
-    ("delay margin", _delay, True),
-    ("disk alpha", _disk, True),
-    ("Ms", _peak, True),
-    ("crossover rad/s", _crossover, True),
-    ("req met", _requirements, True),
-)
-
-
-def break_row(b) -> list[str]:
-    return [cell(b) for _, cell, _ in BREAK_COLUMNS]
+register("check", "text", "text", description="aligned plain text for a terminal or a CI log")
+register("check", "json", "json_report", description="the results contract (docs/results.md)")
+register("check", "junit", "junit", description="JUnit XML for CI test views")
+register("check", "markdown", "markdown", description="a pull-request comment")
+register("check", "sarif", "sarif", "render_check", description="SARIF 2.1.0 for code-review annotations")
+register("diff", "text", "diff_text")
+register("diff", "markdown", "diff_markdown")
+register("diff", "json", "diff_json")
+register("diff", "sarif", "sarif", "render_diff")
+register("sweep", "text", "sweep_text", description="the worst margins over the box and where, for a terminal")
+register("sweep", "json", "json_report", description="the sweep contract (docs/results.md, docs/sweep.schema.json)")
+register("sweep", "junit", "sweep_junit", description="JUnit XML: one testcase per break over the box")
+register("sweep", "markdown", "sweep_markdown", description="a pull-request comment")
+register("sweep", "sarif", "sarif", "render_sweep", description="SARIF 2.1.0 at the break and require lines")

@@ -5,22 +5,16 @@ unbounded or absent are ``null``; the change is then also given in words.
 """
 from __future__ import annotations
 
-import json
-import math
+import dataclasses
 
 from .. import __version__
-from ..diff import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
-from ..errors import Finding
-from ..results import CAUTION
+from ..compare import BreakDiff, DiffResult, MarginChange, ModelDiff, RequirementChange, VerdictChange
+from ..results import CAUTION, error_to_dict, json_number
+from .escape import json_dumps
 
 __all__ = ["DIFF_SCHEMA_VERSION", "to_dict", "render"]
 
 DIFF_SCHEMA_VERSION = 1
-
-
-def _num(x: float | None) -> float | None:
-    """JSON has no infinity: a non-finite number is written as null (unbounded)."""
-    return None if x is None or not math.isfinite(x) else float(x)
 
 
 def _verdict(v: VerdictChange | None) -> dict | None:
@@ -33,29 +27,27 @@ def _verdict(v: VerdictChange | None) -> dict | None:
 
 
 def _margin(c: MarginChange) -> dict:
-    return {"metric": c.key, "label": c.label, "unit": c.unit, "before": _num(c.before),
-            "after": _num(c.after), "delta": _num(c.delta), "direction": c.direction,
+    return {"metric": c.metric, "label": c.label, "unit": c.unit, "before": json_number(c.before),
+            "after": json_number(c.after), "delta": json_number(c.delta), "direction": c.direction,
             "words": c.words, "regression": c.regression}
 
 
 def _requirement(r: RequirementChange) -> dict:
-    return {"metric": r.metric, "op": r.op, "limit_before": _num(r.limit_before),
-            "limit_after": _num(r.limit_after), "value_before": _num(r.value_before),
-            "value_after": _num(r.value_after), "met_before": r.met_before,
-            "met_after": r.met_after, "status": r.status, "regression": r.regression}
+    return {"metric": r.metric, "op": r.op, "unit": r.unit, "limit_before": json_number(r.limit_before),
+            "limit_after": json_number(r.limit_after), "limit_text_before": r.limit_text_before,
+            "limit_text_after": r.limit_text_after, "value_before": json_number(r.value_before),
+            "value_after": json_number(r.value_after), "met_before": r.met_before,
+            "met_after": r.met_after, "status": r.status, "regression": r.regression,
+            "line": r.line}
 
 
 def _break(d: BreakDiff) -> dict:
-    return {"name": d.name, "status": d.status, "at_before": d.at_before, "at_after": d.at_after,
+    return {"name": d.name, "status": d.status, "line": d.line,
+            "at_before": d.at_before, "at_after": d.at_after,
             "stable_before": d.stable_before, "stable_after": d.stable_after,
             "verdict": _verdict(d.verdict), "margins": [_margin(c) for c in d.margins],
             "requirements": [_requirement(r) for r in d.requirements],
             "regressions": list(d.regressions)}
-
-
-def _error(f: Finding) -> dict:
-    return {"file": f.span.file, "line": f.span.line, "col": f.span.col, "code": f.code,
-            "message": f.message, "hint": f.hint}
 
 
 def _model(m: ModelDiff) -> dict:
@@ -63,12 +55,14 @@ def _model(m: ModelDiff) -> dict:
             "model_after": m.model_after, "stable_after": m.stable_after,
             "verdict": _verdict(m.verdict), "breaks": [_break(d) for d in m.breaks],
             "breaks_unchanged": m.breaks_unchanged,
-            "errors_before": [_error(e) for e in m.errors_before],
-            "errors_after": [_error(e) for e in m.errors_after],
+            "errors_before": [error_to_dict(e) for e in m.errors_before],
+            "errors_after": [error_to_dict(e) for e in m.errors_after],
             "regressions": list(m.regressions)}
 
 
 def to_dict(result: DiffResult) -> dict:
+    """A diff as its JSON contract (`"kind": "diff"`, docs/diff.md): the policy, the
+    settings, a summary with the exit code, the regressions and every model's changes."""
     p = result.policy
     statuses = ("changed", "unchanged", "added", "removed", "errors appeared",
                 "errors disappeared", "still unreadable")
@@ -76,11 +70,8 @@ def to_dict(result: DiffResult) -> dict:
         "schema": DIFF_SCHEMA_VERSION, "kind": "diff", "tool": "loopwise", "version": __version__,
         "caution": CAUTION,
         "old": result.old_label, "new": result.new_label,
-        "policy": {"phase_margin_loss_deg": p.phase_margin_loss_deg,
-                   "gain_margin_loss_db": p.gain_margin_loss_db,
-                   "delay_margin_loss_fraction": p.delay_margin_loss_fraction,
-                   "verdict_to_unstable": p.verdict_to_unstable,
-                   "requirement_stops_being_met": p.requirement_stops_being_met},
+        "policy": dataclasses.asdict(p),
+        "settings": result.settings,
         "summary": {"models": len(result.models),
                     **{s.replace(" ", "_"): result.count(s) for s in statuses},
                     "regressions": len(result.regressions), "exit_code": result.exit_code},
@@ -90,4 +81,5 @@ def to_dict(result: DiffResult) -> dict:
 
 
 def render(result: DiffResult) -> str:
-    return json.dumps(to_dict(result), indent=2, allow_nan=False) + "\n"
+    """A diff as indented JSON (`to_dict`), every control character escaped."""
+    return json_dumps(to_dict(result))

@@ -12,11 +12,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..results import BreakResult, LoopResponse
+from .summary import break_status as verdict_word  # the tables' word for a break's verdict
 
 __all__ = [
-    "Ring", "choose_ring", "closed_curve", "winding_number", "Crossing",
-    "crossings", "unwrapped_phase_deg", "verdict_word", "bode_range", "decade_label",
-    "gap_at_axis_poles",
+    "Ring", "choose_ring", "closed_curve", "Crossing",
+    "crossings", "unwrapped_phase_deg", "low_frequency_asymptote", "verdict_word", "bode_range",
+    "decade_label",
+    "gap_at_axis_poles", "Unmarked", "select_crossings", "Zoom", "zoom_near_critical",
+    "ZOOM_BELOW", "densify_ring_arcs", "simplify_mask",
 ]
 
 #: radius of the true-scale disk when a ring is drawn: -1 and the unit circle
@@ -45,9 +48,13 @@ class Ring:
 
     @property
     def outer(self) -> float:
+        """The ring's outer radius on the page: where |L| = infinity is drawn."""
         return self.inner + self.width
 
     def compress(self, z: np.ndarray) -> np.ndarray:
+        """Where points z of the true plane are drawn: unchanged inside the ring's inner
+        radius, beyond it at `inner + width d/(1 + d)` with d the decades past `inner`,
+        at the same angle (infinity on the outer edge, 0 stays 0)."""
         z = np.asarray(z, dtype=complex)
         r = np.abs(z)
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
@@ -72,6 +79,7 @@ class Ring:
         return float(np.abs(self.compress(np.array([r], dtype=complex)))[0])
 
     def note(self) -> str:
+        """The map in words, for the figure's note (`|L| > 2: radius drawn as ...`)."""
         return (f"|L| > {self.inner:g}: radius drawn as {self.inner:g} + {self.width:g}"
                 f"\u00b7d/(1+d), d = log10(|L|/{self.inner:g})")
 
@@ -99,19 +107,50 @@ def closed_curve(response: LoopResponse) -> tuple[np.ndarray, np.ndarray]:
     return upper, np.conj(upper[::-1])
 
 
-def winding_number(z: np.ndarray, about: complex = -1.0) -> int:
-    """Clockwise turns of the closed polyline z around `about` (sum of angle steps)."""
-    z = np.asarray(z, dtype=complex) - about
-    if z.size < 2:
-        return 0
-    z = np.append(z, z[0])
-    steps = np.angle(z[1:] / z[:-1])
-    return int(round(-steps.sum() / (2 * math.pi)))
+def low_frequency_asymptote(response: LoopResponse) -> tuple[int, int]:
+    """(n, sign): L ~ c / s^n with sign(c) = sign, read off the lowest axis samples.
+
+    n is the net number of integrators at s = 0 (negative for zeros there), from
+    the slope of log|L| against log w between the lowest axis sample and the
+    first sample at least 1.5 times higher; c = L(jw) (jw)^n is then real up to
+    the phase of the dynamics above, and its sign is that of the loop gain.
+    """
+    w, L = response.freq, response.axis_L
+    ok = (w > 0) & np.isfinite(L) & (L != 0)
+    w, L = w[ok], L[ok]
+    if w.size < 2:
+        return 0, 1
+    j = int(np.searchsorted(w, 1.5 * w[0]))
+    j = min(max(j, 1), w.size - 1)
+    slope = math.log(abs(L[j]) / abs(L[0])) / math.log(w[j] / w[0])
+    n = -int(round(slope))
+    c = L[0] * (1j * w[0]) ** n
+    return n, (1 if c.real >= 0 else -1)
 
 
 def unwrapped_phase_deg(response: LoopResponse) -> np.ndarray:
-    """Phase of L on the axis, continuous along ascending frequency (np.unwrap)."""
-    return np.degrees(np.unwrap(np.angle(response.axis_L)))
+    """Phase of L on the axis (deg), continuous along the whole contour and
+    anchored on the low-frequency asymptote.
+
+    The unwrapping runs along the contour in traversal order, indentations
+    included, so the phase steps by -180 m deg across an indented axis pole of
+    order m as the contour really turns (np.unwrap on the axis samples alone
+    cannot tell +180 from -180 there). The branch is then chosen so that the
+    lowest frequency sits nearest to -90 n deg for n integrators, 180 deg lower
+    for a negative gain: a type-3 loop starts at -270 deg, and its critical
+    line is -180 deg.
+    """
+    L = np.asarray(response.L, complex)
+    ok = np.isfinite(L) & (L != 0)
+    phase = np.full(L.size, np.nan)
+    phase[ok] = np.degrees(np.unwrap(np.angle(L[ok])))
+    axis = phase[response.on_axis]
+    first = np.flatnonzero(np.isfinite(axis) & (response.freq > 0))
+    if first.size == 0:
+        return axis
+    n, sign = low_frequency_asymptote(response)
+    target = -90.0 * n - (180.0 if sign < 0 else 0.0)
+    return axis + 360.0 * round((target - axis[first[0]]) / 360.0)
 
 
 @dataclass(frozen=True)
@@ -131,21 +170,75 @@ class Crossing:
     exact: bool
 
 
-#: phase crossovers further than this from 0 dB are not marked (a delay makes
-#: endless ones far below 0 dB that say nothing about a margin)
-FAR_DB = 40.0
 MAX_MARKS = 4
 
 
+@dataclass(frozen=True)
+class Unmarked:
+    """Crossovers left unmarked, summarised by one line of the key.
+
+    kind: 'gain' or 'phase'; side: 'above' or 'below' the marked stretch, or
+    'among' the marked ones; `freq` the edge they lie beyond (rad/s); `closest`
+    the smallest |gain margin| (dB) or phase margin (deg) among them; `sign` +1
+    when every one of them has |L| below 0 dB there, -1 above, 0 mixed.
+    """
+
+    kind: str
+    side: str
+    count: int
+    freq: float
+    closest: float
+    sign: int
+
+
 def crossings(result: BreakResult) -> tuple[Crossing, ...]:
-    """The crossovers worth marking: every gain crossover (up to MAX_MARKS, smallest
-    phase margin first) and the phase crossovers within FAR_DB of 0 dB (up to
-    MAX_MARKS, smallest |gain margin| first), in frequency order."""
-    every = _all_crossings(result)
-    gain = sorted((c for c in every if c.kind == "gain"), key=lambda c: c.margin)[:MAX_MARKS]
-    phase = sorted((c for c in every if c.kind == "phase" and abs(c.margin) <= FAR_DB),
-                   key=lambda c: abs(c.margin))[:MAX_MARKS]
-    return tuple(sorted(gain + phase, key=lambda c: c.freq))
+    """The crossovers to mark, in frequency order (see `select_crossings`)."""
+    return select_crossings(result)[0]
+
+
+def select_crossings(result: BreakResult) -> tuple[tuple[Crossing, ...], tuple[Unmarked, ...]]:
+    """(marked, unmarked groups): what the views mark and what the key summarises.
+
+    Marked: every gain crossover (up to MAX_MARKS, smallest phase margin first);
+    the phase crossovers between the lowest and the highest marked gain crossover
+    (up to MAX_MARKS, smallest |gain margin| first); and on each side beyond
+    them, the phase crossover nearest to them and the one with the smallest
+    |gain margin| on that side (the one that sets the margin). A delay adds
+    endless phase crossovers above the last gain crossover, ever further below
+    0 dB: they say nothing about a margin and are only counted in the key.
+    """
+    every = sorted(_all_crossings(result), key=lambda c: c.freq)
+    gains = [c for c in every if c.kind == "gain"]
+    phases = [c for c in every if c.kind == "phase"]
+    marked = sorted(gains, key=lambda c: c.margin)[:MAX_MARKS]
+    groups = []
+    if len(gains) > len(marked):
+        rest = [c for c in gains if c not in marked]
+        groups.append(Unmarked("gain", "among", len(rest), rest[0].freq,
+                               min(c.margin for c in rest), 0))
+    lo = min((c.freq for c in marked), default=math.inf)
+    hi = max((c.freq for c in marked), default=-math.inf)
+    # with no gain crossover every phase crossover counts as lying above
+    below = [c for c in phases if c.freq < lo] if marked else []
+    above = [c for c in phases if c.freq > hi] if marked else phases
+    among = sorted((c for c in phases if lo <= c.freq <= hi), key=lambda c: abs(c.margin))
+    marked += among[:MAX_MARKS]
+    groups += _summary(among[MAX_MARKS:], "among", lo)
+    for side, group in (("below", below[::-1]), ("above", above)):
+        if not group:
+            continue
+        keep = {id(group[0]), id(min(group, key=lambda c: abs(c.margin)))}
+        marked += [c for c in group if id(c) in keep]
+        groups += _summary([c for c in group if id(c) not in keep], side, group[0].freq)
+    return tuple(sorted(marked, key=lambda c: c.freq)), tuple(groups)
+
+
+def _summary(rest: list[Crossing], side: str, edge: float) -> list[Unmarked]:
+    if not rest:
+        return []
+    signs = {1 if c.margin > 0 else -1 for c in rest}
+    sign = signs.pop() if len(signs) == 1 else 0
+    return [Unmarked("phase", side, len(rest), edge, min(abs(c.margin) for c in rest), sign)]
 
 
 def _all_crossings(result: BreakResult) -> tuple[Crossing, ...]:
@@ -199,10 +292,127 @@ def _crossings_from_samples(response: LoopResponse) -> tuple[Crossing, ...]:
     return tuple(out)
 
 
-def verdict_word(result: BreakResult) -> str:
-    if result.marginal:
-        return "MARGINAL"
-    return "STABLE" if result.stable else "UNSTABLE"
+#: the Nyquist view gets an inset around -1 when the curve comes closer than this
+#: (|1 + L| below 0.3, i.e. a sensitivity peak above 3.3 or 10.5 dB)
+ZOOM_BELOW = 0.3
+#: the inset shows at least this far around -1, and at least 2.5x the closest distance
+ZOOM_MIN_HALF = 0.05
+
+
+@dataclass(frozen=True)
+class Zoom:
+    """The neighbourhood of -1 shown in the inset: a square of half-side `half`
+    centred on -1 that holds the sample `closest` (distance |1 + L| = `distance`,
+    at contour point `s`)."""
+
+    half: float
+    closest: complex
+    distance: float
+    s: complex
+    index: int
+
+    @property
+    def limits(self) -> tuple[float, float, float, float]:
+        """(x min, x max, y min, y max) of the inset: the square around -1."""
+        return (-1.0 - self.half, -1.0 + self.half, -self.half, self.half)
+
+
+def zoom_near_critical(response: LoopResponse) -> Zoom | None:
+    """The inset to draw, or None when no sample of L comes within ZOOM_BELOW of -1."""
+    L = np.asarray(response.L, complex)
+    d = np.abs(1.0 + L)
+    d = np.where(np.isfinite(d), d, np.inf)
+    if d.size == 0:
+        return None
+    i = int(np.argmin(d))
+    if not d[i] < ZOOM_BELOW:
+        return None
+    return Zoom(max(2.5 * float(d[i]), ZOOM_MIN_HALF), complex(L[i]), float(d[i]),
+                complex(response.s[i]), i)
+
+
+def densify_ring_arcs(z: np.ndarray, ring: Ring, step_deg: float = 1.0,
+                      max_deg: float = 30.0) -> np.ndarray:
+    """Points added between neighbours that both lie on the ring (drawn radius
+    beyond `ring.inner`) so the drawn curve follows an arc, not a polygon.
+
+    Around an axis pole L ~ c / (s - jw)^m: along the indentation |L| is constant
+    and its angle turns evenly, so the curve there is an arc of the ring; the
+    engine's samples are spaced for the winding count, not for the eye. The
+    added points interpolate angle and drawn radius linearly (steps of at most
+    `step_deg`); only steps under `max_deg` are filled. Between two points at
+    radius >= 3 an arc of less than 30 deg and its chord enclose nothing within
+    3 cos(15 deg) > 2 of the origin, so -1 (and the winding about it) is untouched.
+    """
+    z = np.asarray(z, complex)
+    if z.size < 2:
+        return z
+    r, a = np.abs(z), np.angle(z)
+    da = np.angle(z[1:] / np.where(z[:-1] != 0, z[:-1], 1))
+    fill = ((r[:-1] > ring.inner) & (r[1:] > ring.inner) & np.isfinite(da)
+            & (np.abs(np.degrees(da)) > step_deg) & (np.abs(np.degrees(da)) < max_deg))
+    extra = np.where(fill, np.ceil(np.abs(np.degrees(da)) / step_deg).astype(int) - 1, 0)
+    if not extra.any():
+        return z
+    seg = np.repeat(np.arange(z.size - 1), extra)
+    k = np.concatenate([np.arange(1, e + 1) for e in extra if e]) / np.repeat(extra + 1, extra)
+    new = (r[seg] + k * (r[seg + 1] - r[seg])) * np.exp(1j * (a[seg] + k * da[seg]))
+    pos = np.repeat(np.arange(1, z.size), extra)
+    return np.insert(z, pos, new)
+
+
+def simplify_mask(p: np.ndarray, tol: float, guard: np.ndarray | None = None) -> np.ndarray:
+    """Points of a polyline to keep so that every dropped point lies within `tol`
+    of the segment that replaces it (Ramer-Douglas-Peucker on (n, 2) display
+    coordinates, every open segment split at once per pass). Non-finite points
+    (gaps) and their neighbours are kept.
+
+    With `guard` (the critical point -1 in the same coordinates), a segment that
+    replaces dropped points must also pass further than `tol` from it. The dropped
+    stretch and its replacement then lie in the convex tol-neighbourhood of the
+    segment, which does not hold the guard: the turns around it are unchanged.
+    """
+    p = np.asarray(p, float)
+    n = len(p)
+    finite = np.all(np.isfinite(p), axis=1)
+    keep = ~finite
+    keep[:1] = keep[-1:] = True
+    keep[:-1] |= ~finite[1:]
+    keep[1:] |= ~finite[:-1]
+    q = np.where(finite[:, None], p, 0.0)
+    g = None if guard is None else np.asarray(guard, float)[None]
+    open_ = np.flatnonzero(~keep)  # points whose segment is not settled yet
+    while open_.size:
+        kept = np.flatnonzero(keep)
+        seg = np.searchsorted(kept, open_) - 1  # the kept point before each open point
+        a, b = kept[seg], kept[seg + 1]
+        d = _segment_distance(q[open_], q[a], q[b])
+        worst = np.full(kept.size, -1.0)
+        np.maximum.at(worst, seg, d)
+        split = worst > tol
+        if g is not None:
+            starts = np.unique(seg)
+            near = _segment_distance(np.repeat(g, starts.size, axis=0), q[kept[starts]],
+                                     q[kept[starts + 1]]) <= tol
+            split[starts[near]] = True
+        if not split.any():
+            break
+        hit = split[seg] & (d == worst[seg])
+        first = np.flatnonzero(hit)
+        _, at = np.unique(seg[first], return_index=True)
+        keep[open_[first[at]]] = True
+        open_ = open_[split[seg] & ~keep[open_]]  # settled segments drop out
+    return keep
+
+
+def _segment_distance(q: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Distance of each point q[i] to the segment a[i]-b[i] (rows broadcast)."""
+    ab = b - a
+    n = np.einsum("ij,ij->i", ab, ab) if ab.ndim == 2 else np.full(len(q), float(ab @ ab))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        t = np.einsum("ij,ij->i", q - a, np.broadcast_to(ab, q.shape)) / n
+    t = np.clip(np.nan_to_num(t), 0.0, 1.0)
+    return np.hypot(*(q - a - t[:, None] * ab).T)
 
 
 def bode_range(response: LoopResponse, marks: tuple[Crossing, ...]) -> np.ndarray:

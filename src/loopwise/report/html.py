@@ -13,10 +13,10 @@ from html import escape
 from typing import Callable
 
 from ..results import CAUTION
-from . import (BREAK_COLUMNS, break_row, break_status, count_met, finding_text, model_passes,
-               model_status, requirement_place, tally)
+from .escape import html_text, xml_text
+from .summary import BREAK_COLUMNS, ModelSummary, finding_text, summarise, tally
 
-__all__ = ["render_html", "figure_count", "draw_svg", "CSS"]
+__all__ = ["render_html", "figure_count", "draw_svg", "inline_svg", "status_word", "CSS"]
 
 VIEWS = ("nyquist", "bode", "sensitivity")
 _CAPTIONS = {
@@ -73,15 +73,18 @@ _WORD_CLASS = {"STABLE": "ok", "PASS": "ok", "MET": "ok", "UNSTABLE": "bad", "FA
                "NOT MET": "bad", "ERROR": "bad", "MARGINAL": "warn", "WARNING": "warn"}
 
 
-def _word(word: str) -> str:
+def status_word(word: str) -> str:
+    """A status word (STABLE, FAIL, NOT MET, ...) as the page marks it: the word itself,
+    with a colour that only repeats it."""
     return f'<span class="word {_WORD_CLASS.get(word, "")}">{escape(word)}</span>'
 
 
 def _e(text) -> str:
-    return escape(str(text), quote=True)
+    return html_text(text)
 
 
 def figure_count(run) -> int:
+    """How many figures the page draws: three views for each break with a recorded response."""
     return sum(len(VIEWS) for m in run.models for b in m.breaks if b.response is not None)
 
 
@@ -113,39 +116,39 @@ def _unique_ids(svg: str, prefix: str) -> str:
 def draw_svg(job) -> str:
     """One figure as inline SVG: job = (BreakResult, kind, model name, hz, id prefix).
     A top-level function so a process pool can run it."""
-    from .plots import make_figure, svg_text
+    from .plots import make_figure
 
     result, kind, model, hz, prefix = job
-    svg = svg_text(make_figure(result, kind, model=model, hz=hz), salt=prefix)
+    return inline_svg(make_figure(result, kind, model=model, hz=hz), prefix)
+
+
+def inline_svg(fig, prefix: str) -> str:
+    """A figure as inline SVG for this page: no metadata, ids unique to `prefix`."""
+    from .plots import svg_text
+
+    svg = svg_text(fig, salt=prefix)
     svg = re.sub(r"<metadata>.*?</metadata>\s*", "", svg, flags=re.S)  # no URLs, no dates
     return _unique_ids(svg, prefix)
 
 
+def _samples(job) -> int:
+    return len(job[0].response.s)
+
+
 def _draw_all(run, hz: bool, jobs: int, tick: Callable[[], None]) -> dict:
     """Every figure of the run, keyed (model index, break index, kind); in `jobs`
-    processes when more than one. The pages are the same either way."""
+    processes when more than one (`loopwise.pool`, the most densely sampled
+    first). The pages are the same either way."""
+    from ..pool import run_pool
+
     keys, work = [], []
     for n, m in enumerate(run.models):
         for k, b in enumerate(m.breaks):
             if b.response is not None:
                 for kind in VIEWS:
                     keys.append((n, k, kind))
-                    work.append((b, kind, m.model, hz, f"m{n}b{k}{kind[0]}-"))
-    if jobs <= 1 or len(work) < 2:
-        out = {}
-        for key, job in zip(keys, work):
-            out[key] = draw_svg(job)
-            tick()
-        return out
-    from concurrent.futures import ProcessPoolExecutor, as_completed
-
-    with ProcessPoolExecutor(max_workers=min(jobs, len(work))) as pool:
-        futures = {pool.submit(draw_svg, job): key for key, job in zip(keys, work)}
-        out = {}
-        for future in as_completed(futures):
-            out[futures[future]] = future.result()
-            tick()
-    return out
+                    work.append((b, kind, xml_text(m.model), hz, f"m{n}b{k}{kind[0]}-"))  # a title in the SVG
+    return dict(zip(keys, run_pool(draw_svg, work, jobs, cost=_samples, tick=tick)))
 
 
 def _break_figures(b, index: str, svgs: dict, key) -> list[str]:
@@ -159,93 +162,88 @@ def _break_figures(b, index: str, svgs: dict, key) -> list[str]:
     return out
 
 
-def _table(m) -> list[str]:
+def _table(s: ModelSummary) -> list[str]:
     head = "".join(f'<th scope="col">{_e(h)}</th>' for h, _, _ in BREAK_COLUMNS)
     rows = []
-    for b in m.breaks:
+    for b in s.breaks:
         cells = []
-        for (header, _, right), cell in zip(BREAK_COLUMNS, break_row(b)):
-            body = _word(cell) if header == "verdict" else _e(cell)
+        for (header, _, right), cell in zip(BREAK_COLUMNS, b.cells):
+            body = status_word(cell) if header == "verdict" else _e(cell)
             cells.append(f'<td class="num">{body}</td>' if right else f"<td>{body}</td>")
         rows.append("<tr>" + "".join(cells) + "</tr>")
     return ['<div class="wrap"><table>',
-            f"<caption>Breaks of model {_e(m.model)} ('-': margins not claimed for an "
+            f"<caption>Breaks of model {_e(s.model)} ('-': margins not claimed for an "
             "unstable closed loop; inf: unbounded)</caption>",
             f"<thead><tr>{head}</tr></thead><tbody>", *rows, "</tbody></table></div>"]
 
 
-def _requirements(m) -> list[str]:
-    items = []
-    for b in m.breaks:
-        for r in b.requirements:
-            word = "MET" if r.met else "NOT MET"
-            note = f" ({_e(r.note)})" if r.note else ""
-            items.append(f"<li>{_word(word)} break {_e(b.name)}: {_e(r.describe())}{note} "
-                         f"<small>{_e(requirement_place(m, r))}</small></li>")
+def _requirements(s: ModelSummary) -> list[str]:
+    items = [f"<li>{status_word('MET' if r.met else 'NOT MET')} break {_e(r.break_name)}: {_e(r.text)} "
+             f"<small>{_e(r.place)}</small></li>" for r in s.requirements]
     if not items:
         return ["<p>No requirements apply to this model.</p>"]
-    met = sum(count_met(b)[0] for b in m.breaks)
-    total = sum(count_met(b)[1] for b in m.breaks)
-    return [f"<p>Requirements: {met} of {total} met.</p>", '<ul class="plain">', *items, "</ul>"]
+    return [f"<p>Requirements: {s.met} of {s.total} met.</p>", '<ul class="plain">', *items, "</ul>"]
 
 
-def _warnings(m) -> list[str]:
-    items = [f"<li>{_word('WARNING')} break {_e(b.name)}: {_e(w.code)} {_e(w.message)}</li>"
-             for b in m.breaks for w in b.warnings]
-    for b in m.breaks:
-        if not b.stable and b.stabilising_gains:
-            ranges = ", ".join(f"[{lo:.3g}, {hi:.3g}]" for lo, hi in b.stabilising_gains)
-            items.append(f"<li>break {_e(b.name)}: the closed loop would be stable with L scaled "
-                         f"by a factor in {_e(ranges)}</li>")
+def _warnings(s: ModelSummary) -> list[str]:
+    items = [f"<li>{status_word('WARNING' if n.waived is None else 'WAIVED')} {_e(n.line)}</li>"
+             for n in s.notes if n.break_name is not None]
+    items += [f"<li>break {_e(name)}: {_e(words)}</li>" for name, words in s.stabilising]
     out = ['<ul class="plain">', *items, "</ul>"] if items else []
-    for f in m.findings:
-        out.append(f"<pre>{_e(finding_text(f))}</pre>")
+    out += [f"<pre>{_e(n.text)}</pre>" for n in s.notes if n.break_name is None]
     return out
 
 
-def _model_section(m, n: int, fail: bool, svgs: dict) -> list[str]:
-    status = model_status(m)
-    verdict = "PASS" if model_passes(m, fail) else "FAIL"
+def _model_section(s: ModelSummary, n: int, svgs: dict, extra: list[str] = ()) -> list[str]:
     out = [f'<section id="model-{n}">',
-           f"<h2>{_word(verdict)} model {_e(m.model)} {_word(status)}</h2>",
-           f'<p class="lede">{_e(m.file)}: {m.closed_loop_rhp_poles} closed-loop pole(s) in '
+           f"<h2>{status_word(s.verdict)} model {_e(s.model)} {status_word(s.status)}</h2>",
+           f'<p class="lede">{_e(s.file)}: {s.result.closed_loop_rhp_poles} closed-loop pole(s) in '
            "the right half plane</p>"]
-    if not m.breaks:
+    if not s.breaks:
         out.append("<p>No breaks: add <code>break &lt;name&gt; at &lt;signal&gt;</code> to see "
                    "margins.</p>")
     else:
-        out += _table(m)
-    out += _requirements(m) + _warnings(m)
-    for k, b in enumerate(m.breaks):
+        out += _table(s)
+    out += _requirements(s) + _warnings(s)
+    for k, b in enumerate(s.breaks):
         out.append(f'<h3 id="model-{n}-break-{k}">break {_e(b.name)} at {_e(b.at)} '
-                   f"{_word(break_status(b))}</h3>")
-        out += _break_figures(b, f"m{n}b{k}", svgs, (n, k))
+                   f"{status_word(b.status)}</h3>")
+        out += _break_figures(b.result, f"m{n}b{k}", svgs, (n, k))
+    out += extra  # e.g. the sweep section (report/sweep_html.py)
     out.append("</section>")
     return out
+
+
+def _settings(run) -> list[str]:
+    if not run.findings:
+        return []
+    return ['<section id="settings">', f"<h2>{status_word('WARNING')} settings</h2>",
+            *[f"<pre>{_e(finding_text(f))}</pre>" for f in run.findings], "</section>"]
 
 
 def _errors(run) -> list[str]:
     if not run.errors:
         return []
-    out = ['<section id="unreadable">', f"<h2>{_word('ERROR')} models that could not be read</h2>"]
+    out = ['<section id="unreadable">', f"<h2>{status_word('ERROR')} models that could not be read</h2>"]
     out += [f"<pre>{_e(finding_text(e))}</pre>" for e in run.errors]
     return out + ["</section>"]
 
 
 def _summary(run, fail: bool) -> list[str]:
     t = tally(run, fail)
-    overall = "PASS" if t.failed == 0 and not t.unreadable else "FAIL"
+    overall = "PASS" if t.passes else "FAIL"
     breaks = sum(len(m.breaks) for m in run.models)
-    cells = [("result", _word(overall)), ("models", t.models), ("passed", t.passed),
+    cells = [("result", status_word(overall)), ("models", t.models), ("passed", t.passed),
              ("failed", t.failed), ("could not be read", t.unreadable), ("breaks", breaks)]
     body = "".join(f"<div>{_e(k)}<b>{v if k == 'result' else _e(v)}</b></div>" for k, v in cells)
     return [f'<div class="summary">{body}</div>', f"<p>{_e(t.sentence())}.</p>"]
 
 
 def render_html(run, *, hz: bool = False, fail_on_warnings: bool = False, jobs: int = 1,
-                tick: Callable[[], None] = lambda: None) -> str:
+                tick: Callable[[], None] = lambda: None, extra: dict | None = None) -> str:
     """The whole report as one string; figures drawn in `jobs` processes, and
-    `tick` called once per figure drawn."""
+    `tick` called once per figure drawn. `extra` maps a model's file to more of its
+    section (HTML lines), such as its sweep."""
     svgs = _draw_all(run, hz, jobs, tick)
     version = f" {run.version}" if run.version else ""
     out = ['<!DOCTYPE html>', '<html lang="en">', "<head>",
@@ -257,12 +255,13 @@ def render_html(run, *, hz: bool = False, fail_on_warnings: bool = False, jobs: 
            "Frequencies in " + ("Hz" if hz else "rad/s") + " in the plots, rad/s in the tables.</p>",
            f'<p class="caution"><strong>Caution.</strong> {_e(CAUTION)}</p>', "</header>", "<main>"]
     out += _summary(run, fail_on_warnings)
-    if run.models:
+    summaries = [summarise(m, fail_on_warnings) for m in run.models]
+    if summaries:
         out.append('<nav><ul class="plain">' + "".join(
-            f'<li><a href="#model-{n}">{_e(m.model)}</a> ({_e(m.file)}) {_word(model_status(m))}</li>'
-            for n, m in enumerate(run.models)) + "</ul></nav>")
-    for n, m in enumerate(run.models):
-        out += _model_section(m, n, fail_on_warnings, svgs)
-    out += _errors(run)
+            f'<li><a href="#model-{n}">{_e(s.model)}</a> ({_e(s.file)}) {status_word(s.status)}</li>'
+            for n, s in enumerate(summaries)) + "</ul></nav>")
+    for n, s in enumerate(summaries):
+        out += _model_section(s, n, svgs, (extra or {}).get(s.file, []))
+    out += _settings(run) + _errors(run)
     out += ["</main>", f"<footer><p>{_e(CAUTION)}</p></footer>", "</body>", "</html>"]
     return "\n".join(out) + "\n"

@@ -2,12 +2,13 @@
 the schema in docs/results.schema.json), with keys in the contract's order."""
 from __future__ import annotations
 
-import json
+from .escape import json_dumps
 
 __all__ = ["render"]
 
 
 def render(run) -> str:
-    # allow_nan=False: to_dict already maps inf/nan to null, and a slip must fail
-    # loudly here rather than write JSON that strict parsers reject
-    return json.dumps(run.to_dict(), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    """A check's results as indented JSON: exactly `RunResult.to_dict()` (docs/results.md)."""
+    # json_dumps refuses nan: to_dict already maps inf/nan to null, and a slip must
+    # fail loudly here rather than write JSON that strict parsers reject
+    return json_dumps(run.to_dict())

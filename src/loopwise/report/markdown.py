@@ -1,93 +1,95 @@
 """A Markdown summary for a pull-request comment: the verdict first, one row per
-model, then each model's breaks, unmet requirements and errors, then the caution."""
+model, then each model's breaks, unmet requirements, what would stabilise an
+unstable loop, warnings and errors, then the caution.
+
+User text goes into code spans (`md_code`) or is escaped (`md_text`), and
+located findings into fenced blocks (`md_fence`): a file name cannot make a
+heading, a link, an image or raw HTML.
+"""
 from __future__ import annotations
 
-import re
-
 from ..results import CAUTION
-from . import (BREAK_COLUMNS, is_library, break_row, count_met, finding_text, model_passes, model_status,
-               requirement_place, tally, unmet_requirements)
+from .escape import md_cell, md_code, md_fence, md_text
+from .summary import BREAK_COLUMNS, ModelSummary, finding_text, summarise, tally
 
-__all__ = ["render"]
+__all__ = ["render", "table"]
 
-_BACKTICKS = re.compile("`+")
-
-
-def _cell(text: str) -> str:
-    # a pipe or newline would end the table cell early
-    return text.replace("\\", "\\\\").replace("|", "\\|").replace("\n", " ")
+#: table columns that hold user text (break name, signal): shown as code
+_USER_COLUMNS = {"break", "at"}
 
 
-def _code(text: str) -> str:
-    return f"`{text}`" if "`" not in text else f"`` {text} ``"
-
-
-def _fenced(lines: list[str]) -> list[str]:
-    """A code block whose fence is longer than any backtick run inside it."""
-    ticks = max(3, max((len(m) for line in lines for m in _BACKTICKS.findall(line)), default=0) + 1)
-    fence = "`" * ticks
-    return [fence + "text", *lines, fence]
-
-
-def _table(header: list[str], rows: list[list[str]], right: list[bool]) -> list[str]:
+def table(header: list[str], rows: list[list[str]], right: list[bool]) -> list[str]:
+    """A table whose cells are already Markdown (made safe by the caller)."""
     rule = ["---:" if r else "---" for r in right]
-    return ["| " + " | ".join(_cell(h) for h in header) + " |",
-            "| " + " | ".join(rule) + " |"] + [
-        "| " + " | ".join(_cell(c) for c in row) + " |" for row in rows]
+    return ["| " + " | ".join(md_cell(h) for h in header) + " |",
+            "| " + " | ".join(rule) + " |"] + ["| " + " | ".join(row) + " |" for row in rows]
 
 
-def _summary(run, fail_on_warnings: bool) -> list[str]:
+def _summary_table(summaries: list[ModelSummary], run) -> list[str]:
     rows = []
-    for m in run.models:
-        met = sum(count_met(b)[0] for b in m.breaks)
-        total = sum(count_met(b)[1] for b in m.breaks)
-        verdict = "PASS" if model_passes(m, fail_on_warnings) else "**FAIL**"
-        status = model_status(m)
-        rows.append([verdict, _code(m.file), m.model,
-                     status if status in ("STABLE", "LIBRARY") else f"**{status}**",
-                     str(m.closed_loop_rhp_poles), f"{met}/{total}" if total else "-"])
+    for s in summaries:
+        verdict = "PASS" if s.passes else "**FAIL**"
+        status = s.status if s.status in ("STABLE", "LIBRARY") else f"**{s.status}**"
+        rows.append([verdict, md_code(s.file, cell=True), md_text(s.model), status,
+                     str(s.result.closed_loop_rhp_poles), f"{s.met}/{s.total}" if s.total else "-"])
     for file in dict.fromkeys(e.span.file for e in run.errors):
-        rows.append(["**ERROR**", _code(file), "-", "not read", "-", "-"])
-    return _table(["result", "file", "model", "verdict", "Z", "requirements met"], rows,
-                  [False, False, False, False, True, True])
+        rows.append(["**ERROR**", md_code(file, cell=True), "-", "not read", "-", "-"])
+    return table(["result", "file", "model", "verdict", "Z", "requirements met"], rows,
+                 [False, False, False, False, True, True])
 
 
-def _details(m, fail_on_warnings: bool) -> list[str]:
-    out = [f"#### {_cell(m.model)} ({_code(m.file)})", ""]
-    if m.breaks:
-        rows = [break_row(b) for b in m.breaks]
-        for row in rows:
-            row[2] = row[2] if row[2] == "STABLE" else f"**{row[2]}**"
-        out += _table([h for h, _, _ in BREAK_COLUMNS], rows, [r for _, _, r in BREAK_COLUMNS])
+def _break_cell(header: str, cell: str) -> str:
+    if header in _USER_COLUMNS:
+        return md_code(cell, cell=True)
+    if header == "verdict" and cell != "STABLE":
+        return f"**{cell}**"
+    return md_cell(cell)
+
+
+def _details(s: ModelSummary) -> list[str]:
+    out = [f"#### {md_text(s.model)} ({md_code(s.file)})", ""]
+    if s.breaks:
+        rows = [[_break_cell(h, c) for (h, _, _), c in zip(BREAK_COLUMNS, b.cells)] for b in s.breaks]
+        out += table([h for h, _, _ in BREAK_COLUMNS], rows, [r for _, _, r in BREAK_COLUMNS])
         out.append("")
     else:
         out += ["No breaks in this model.", ""]
-    unmet = unmet_requirements(m)
-    if unmet:
+    if s.unmet:
         out.append("Unmet requirements:")
-        out += [f"- {_code(requirement_place(m, r))} break {_code(b.name)}: {_code(r.describe())}"
-                for b, r in unmet]
+        out += [f"- {md_code(r.place)} break {md_code(r.break_name)}: {md_code(r.text)}" for r in s.unmet]
         out.append("")
-    notes = [f"break {b.name}: {w.code} {w.message}" for b in m.breaks for w in b.warnings]
-    notes += [finding_text(f) for f in m.findings]
-    if notes:
-        out += ["Warnings:", "", *_fenced(notes), ""]
+    if s.stabilising:
+        out += [f"- break {md_code(name)}: {words}" for name, words in s.stabilising]
+        out.append("")
+    if s.notes:
+        out += ["Warnings:", "", *md_fence([line for n in s.notes for line in n.text.splitlines()]), ""]
     return out
 
 
 def render(run, fail_on_warnings: bool = False) -> str:
+    """A check's results as Markdown for a pull-request comment: a heading that says what
+    the exit code says, the tally, a row per model, each model's breaks, unmet
+    requirements and warnings, the settings' warnings, unreadable files, the caution."""
     t = tally(run, fail_on_warnings)
+    summaries = [summarise(m, fail_on_warnings) for m in run.models]
     failing = t.failed + t.unreadable
-    head = "all models pass" if not failing else f"{failing} of {t.models + t.unreadable} models need attention"
+    parts = [f"{failing} of {t.models + t.unreadable} models need attention"] if failing else []
+    if t.run_fails:  # with fail_on_warnings, a warning about the run fails it (the exit code says 1)
+        parts.append(f"{t.run_warnings} settings warning{'s fail' if t.run_warnings != 1 else ' fails'} the run")
+    head = "; ".join(parts) or "all models pass"
     out = [f"### loopwise check: {head}", "", t.sentence() + ".", ""]
-    out += _summary(run, fail_on_warnings)
+    out += _summary_table(summaries, run)
     out.append("")
-    for m in run.models:
-        if not is_library(m):
-            out += _details(m, fail_on_warnings)
+    for s in summaries:
+        if not s.is_library:
+            out += _details(s)
+    if run.findings:  # about the run itself: a settings waiver that matched nothing
+        out += ["#### Settings", ""]
+        out += md_fence([line for f in run.findings for line in finding_text(f).splitlines()])
+        out.append("")
     if run.errors:
         out += ["#### Models that could not be read", ""]
-        out += _fenced([line for e in run.errors for line in finding_text(e).splitlines()])
+        out += md_fence([line for e in run.errors for line in finding_text(e).splitlines()])
         out.append("")
     out.append(f"> **Caution:** {CAUTION}")
     return "\n".join(out) + "\n"

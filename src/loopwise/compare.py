@@ -1,33 +1,29 @@
 """Compare two sets of check results: what got better, what got worse.
 
 Pure: takes the results of both sides (already checked, keyed by the model's
-path relative to its root) and returns frozen records; reading files, git and
-printing live in `loopwise.commands.diff` and the `report.diff_*` modules.
-
-``None`` in a margin means "unbounded / no crossover" (see `loopwise.results`);
-here it is ordered as the best possible value of that margin, so a change from
-``None`` to a number is a loss (and reported in words, never as a number).
+path relative to its root), matches models by path and breaks by name, and
+returns frozen records. How one margin is compared and when its loss counts as a
+regression is `loopwise.regression`; reading files, git and printing live in
+`loopwise.sides` (the two sides: files, folders, git revisions),
+`loopwise.commands.diff` and the `report.diff_*` modules.
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from typing import Mapping, Union
 
 from .errors import Finding
-from .results import BreakResult, Margins, ModelResult, RequirementResult
+# the margin rules, re-exported: `loopwise.compare` is where a diff's records are found
+from .regression import MARGINS, MarginChange, MarginSpec, compare_margins, matters, requirement_words, same
+from .results import BreakResult, ModelResult, RequirementResult
 from .settings import Regression
 
 __all__ = [
     "Unreadable", "MarginSpec", "MARGINS", "MarginChange", "VerdictChange",
     "RequirementChange", "BreakDiff", "ModelDiff", "DiffResult", "compare",
     "compare_models", "compare_breaks", "compare_margins", "compare_requirements", "Side",
+    "matters", "requirement_words",
 ]
-
-#: relative tolerance below which two margin values count as equal
-#: (re-checking the same loop is deterministic; this only absorbs round-off)
-REL_TOL = 1e-6
-ABS_TOL = 1e-9
 
 
 @dataclass(frozen=True)
@@ -43,54 +39,10 @@ Side = Union[ModelResult, Unreadable, None]
 
 
 @dataclass(frozen=True)
-class MarginSpec:
-    """How one margin is read: its label, unit, which way is better, what None means."""
-
-    key: str             # the key in BreakResult.to_dict() / the JSON contract
-    label: str
-    unit: str
-    higher_is_better: bool | None  # None: neither (informational, e.g. crossover frequency)
-    none_means: str      # words for a None value
-
-    def value(self, margins: Margins) -> float | None:
-        if self.key == "disk_margin_alpha":
-            return margins.disk_margin.alpha if margins.disk_margin else None
-        if self.key == "sensitivity_peak_db":
-            return margins.sensitivity_peak.db if margins.sensitivity_peak else None
-        if self.key == "complementary_peak_db":
-            return margins.complementary_peak.db if margins.complementary_peak else None
-        return getattr(margins, self.key)
-
-
-MARGINS: tuple[MarginSpec, ...] = (
-    MarginSpec("phase_margin_deg", "phase margin", "deg", True, "unbounded (no gain crossover)"),
-    MarginSpec("gain_margin_up_db", "gain margin up", "dB", True, "unbounded (no phase crossover)"),
-    # a down margin is a negative dB value: more negative is better, so "higher is better"
-    # is False and None (any gain reduction keeps the loop stable) is the best value
-    MarginSpec("gain_margin_down_db", "gain margin down", "dB", False, "unbounded (no phase crossover)"),
-    MarginSpec("delay_margin_s", "delay margin", "s", True, "unbounded (no gain crossover)"),
-    MarginSpec("disk_margin_alpha", "disk margin alpha", "", True, "not available"),
-    MarginSpec("sensitivity_peak_db", "sensitivity peak Ms", "dB", False, "not available"),
-    MarginSpec("complementary_peak_db", "complementary peak Mt", "dB", False, "not available"),
-    MarginSpec("crossover_freq", "crossover", "rad/s", None, "none (no gain crossover)"),
-)
-
-
-@dataclass(frozen=True)
-class MarginChange:
-    key: str
-    label: str
-    unit: str
-    before: float | None
-    after: float | None
-    delta: float | None       # after - before; None when either side is None
-    direction: str            # "better" | "worse" | "changed" (no better/worse for this metric)
-    words: str | None         # the change in words when a side is None
-    regression: str | None    # why this counts as a regression under the policy, else None
-
-
-@dataclass(frozen=True)
 class VerdictChange:
+    """How a verdict changed: stable or not, the closed-loop RHP pole count Z, and
+    whether a closed-loop pole sits on the imaginary axis (marginal), before and after."""
+
     stable_before: bool
     stable_after: bool
     z_before: int
@@ -100,6 +52,7 @@ class VerdictChange:
 
     @property
     def direction(self) -> str:
+        """`better` or `worse`: stability first, then fewer RHP poles, then leaving the axis."""
         if self.stable_before != self.stable_after:
             return "better" if self.stable_after else "worse"
         if self.z_before != self.z_after:
@@ -109,6 +62,10 @@ class VerdictChange:
 
 @dataclass(frozen=True)
 class RequirementChange:
+    """How one requirement changed: its limit, value and whether it was met, before and
+    after (None where it did not exist), in words (`status`) and, when it counts as
+    one, the regression it makes."""
+
     metric: str
     op: str
     limit_before: float | None  # None: the requirement did not exist before
@@ -119,10 +76,18 @@ class RequirementChange:
     met_after: bool | None
     status: str                 # "stopped being met" | "now met" | "added" | "removed" | "changed"
     regression: str | None
+    unit: str = ""              # the metric's own unit (limits and values are in it)
+    limit_text_before: str = ""  # the limit as the model wrote it ("" for an expression)
+    limit_text_after: str = ""
+    file: str = ""              # where the requirement is written (new side, else old); "" = the model
+    line: int = 0
 
 
 @dataclass(frozen=True)
 class BreakDiff:
+    """What changed at one break (matched by name): its place, verdict, margins and
+    requirements, and the regressions among them; or that it was added or removed."""
+
     name: str
     status: str                 # "changed" | "added" | "removed"
     at_before: str | None
@@ -133,10 +98,15 @@ class BreakDiff:
     regressions: tuple[str, ...]
     stable_after: bool | None = None   # for added/removed breaks: their verdict on their side
     stable_before: bool | None = None
+    line: int = 0                      # the `break` line (new side, else old)
 
 
 @dataclass(frozen=True)
 class ModelDiff:
+    """What changed in one model (matched by its path relative to its side's root):
+    its verdict, its breaks (the unchanged ones only counted), its errors on either
+    side, and the regressions among all of it."""
+
     file: str
     status: str   # "changed" | "unchanged" | "added" | "removed" | "errors appeared"
                   # | "errors disappeared" | "still unreadable"
@@ -154,22 +124,29 @@ class ModelDiff:
 
     @property
     def unreadable_after(self) -> bool:
+        """Whether the model cannot be read on the new side (the diff then exits 2)."""
         return self.status in ("errors appeared", "still unreadable")
 
 
 @dataclass(frozen=True)
 class DiffResult:
+    """A whole diff: every model of both sides, the policy that judged it, and where the
+    settings came from."""
+
     old_label: str
     new_label: str
     models: tuple[ModelDiff, ...]
     policy: Regression
+    settings: str = ""  # which settings judged both sides and set the policy, in words
 
     @property
     def regressions(self) -> tuple[str, ...]:
+        """Every regression of every model, each prefixed with the model's path."""
         return tuple(f"{m.file}: {r}" for m in self.models for r in m.regressions)
 
     @property
     def unreadable(self) -> tuple[ModelDiff, ...]:
+        """The models that cannot be read on the new side."""
         return tuple(m for m in self.models if m.unreadable_after)
 
     @property
@@ -180,81 +157,8 @@ class DiffResult:
         return 1 if self.regressions else 0
 
     def count(self, status: str) -> int:
+        """How many models have this `status` (`changed`, `added`, ...)."""
         return sum(1 for m in self.models if m.status == status)
-
-
-# --------------------------------------------------------------------------- margins
-
-def _same(a: float | None, b: float | None) -> bool:
-    if a is None or b is None:
-        return a is None and b is None
-    return math.isclose(a, b, rel_tol=REL_TOL, abs_tol=ABS_TOL)
-
-
-def _as_number(spec: MarginSpec, x: float | None) -> float:
-    """None as the best value of the metric (unbounded), for ordering only."""
-    if x is not None:
-        return x
-    return math.inf if spec.higher_is_better else -math.inf
-
-
-def _direction(spec: MarginSpec, before: float | None, after: float | None) -> str:
-    if spec.higher_is_better is None:
-        return "changed"
-    b, a = _as_number(spec, before), _as_number(spec, after)
-    if spec.none_means == "not available" and (before is None or after is None):
-        return "changed"  # a missing value is not a better or worse one
-    improved = a > b if spec.higher_is_better else a < b
-    return "better" if improved else "worse"
-
-
-def _words(spec: MarginSpec, before: float | None, after: float | None) -> str | None:
-    if before is None and after is None:
-        return None
-    if before is None:
-        return f"was {spec.none_means}, now finite"
-    if after is None:
-        return f"now {spec.none_means}"
-    return None
-
-
-def _margin_regression(spec: MarginSpec, before: float | None, after: float | None,
-                       policy: Regression) -> str | None:
-    """The policy's loss thresholds; unbounded -> finite is an unbounded loss."""
-    if spec.key == "phase_margin_deg":
-        loss = _as_number(spec, before) - _as_number(spec, after)
-        if loss > policy.phase_margin_loss_deg:
-            return f"phase margin loss above {policy.phase_margin_loss_deg:g} deg"
-    elif spec.key == "gain_margin_up_db":
-        loss = _as_number(spec, before) - _as_number(spec, after)
-        if loss > policy.gain_margin_loss_db:
-            return f"gain margin up loss above {policy.gain_margin_loss_db:g} dB"
-    elif spec.key == "gain_margin_down_db":
-        # moving towards 0 dB (less room to reduce the gain) is the loss
-        loss = _as_number(spec, after) - _as_number(spec, before)
-        if loss > policy.gain_margin_loss_db:
-            return f"gain margin down loss above {policy.gain_margin_loss_db:g} dB"
-    elif spec.key == "delay_margin_s":
-        b, a = _as_number(spec, before), _as_number(spec, after)
-        if b > 0 and a < b:
-            fraction = 1.0 if math.isinf(b) else (b - a) / b
-            if fraction > policy.delay_margin_loss_fraction:
-                return f"delay margin loss above {policy.delay_margin_loss_fraction:.0%}"
-    return None
-
-
-def compare_margins(before: Margins, after: Margins, policy: Regression) -> tuple[MarginChange, ...]:
-    """Every margin that differs between two stable versions of one break."""
-    changes = []
-    for spec in MARGINS:
-        b, a = spec.value(before), spec.value(after)
-        if _same(b, a):
-            continue
-        delta = None if b is None or a is None else a - b
-        changes.append(MarginChange(
-            spec.key, spec.label, spec.unit, b, a, delta, _direction(spec, b, a),
-            _words(spec, b, a), _margin_regression(spec, b, a, policy)))
-    return tuple(changes)
 
 
 # --------------------------------------------------------------------------- requirements
@@ -273,7 +177,7 @@ def _req_key(reqs: tuple[RequirementResult, ...]) -> dict[tuple[str, str, int], 
 def _requirement_change(b: RequirementResult | None, a: RequirementResult | None,
                         policy: Regression) -> RequirementChange | None:
     if b is not None and a is not None:
-        if b.met == a.met and _same(b.limit, a.limit) and _same(b.value, a.value):
+        if b.met == a.met and same(b.limit, a.limit) and same(b.value, a.value, a.unit):
             return None
         status = ("stopped being met" if b.met and not a.met else
                   "now met" if a.met and not b.met else "changed")
@@ -288,12 +192,14 @@ def _requirement_change(b: RequirementResult | None, a: RequirementResult | None
         r.metric, r.op, b.limit if b else None, a.limit if a else None,
         b.value if b else None, a.value if a else None,
         b.met if b else None, a.met if a else None, status,
-        None if regression is None else f"{regression}: {r.metric} {r.op} "
-                                        f"{(a or b).limit:.4g}")
+        None if regression is None else f"{regression}: {requirement_words(r)}",
+        r.unit, b.limit_text if b else "", a.limit_text if a else "", r.file, r.line)
 
 
 def compare_requirements(before: tuple[RequirementResult, ...], after: tuple[RequirementResult, ...],
                          policy: Regression) -> tuple[RequirementChange, ...]:
+    """The requirements that changed between two versions of a break (matched by metric,
+    operator and their order among equals), with the regression each makes under `policy`."""
     kb, ka = _req_key(before), _req_key(after)
     keys = list(kb) + [k for k in ka if k not in kb]
     changes = (_requirement_change(kb.get(k), ka.get(k), policy) for k in keys)
@@ -323,7 +229,7 @@ def compare_breaks(before: BreakResult, after: BreakResult, policy: Regression) 
                        after.closed_loop_rhp_poles, before.marginal, after.marginal)
     margins: tuple[MarginChange, ...] = ()
     if before.margins is not None and after.margins is not None:
-        margins = compare_margins(before.margins, after.margins, policy)
+        margins = compare_margins(before.margins, after.margins, policy, after.requirements)
     reqs = compare_requirements(before.requirements, after.requirements, policy)
     if verdict is None and not margins and not reqs and before.at == after.at:
         return None
@@ -331,7 +237,8 @@ def compare_breaks(before: BreakResult, after: BreakResult, policy: Regression) 
     regressions += [f"break {after.name}: {m.regression}" for m in margins if m.regression]
     regressions += [f"break {after.name}: {r.regression}" for r in reqs if r.regression]
     return BreakDiff(after.name, "changed", before.at, after.at, verdict, margins, reqs,
-                     tuple(regressions), stable_after=after.stable, stable_before=before.stable)
+                     tuple(regressions), stable_after=after.stable, stable_before=before.stable,
+                     line=after.line)
 
 
 def _added_break(after: BreakResult, policy: Regression) -> BreakDiff:
@@ -343,12 +250,12 @@ def _added_break(after: BreakResult, policy: Regression) -> BreakDiff:
                            f"(Z {after.closed_loop_rhp_poles})")
     regressions += [f"break {after.name}: {r.regression}" for r in reqs if r.regression]
     return BreakDiff(after.name, "added", None, after.at, None, (), reqs, tuple(regressions),
-                     stable_after=after.stable)
+                     stable_after=after.stable, line=after.line)
 
 
 def _removed_break(before: BreakResult) -> BreakDiff:
     return BreakDiff(before.name, "removed", before.at, None, None, (), (), (),
-                     stable_before=before.stable)
+                     stable_before=before.stable, line=before.line)
 
 
 # --------------------------------------------------------------------------- models
@@ -416,9 +323,11 @@ def compare_models(file: str, before: Side, after: Side, policy: Regression) -> 
 
 
 def compare(old: Mapping[str, Side], new: Mapping[str, Side], policy: Regression | None = None,
-            old_label: str = "old", new_label: str = "new") -> DiffResult:
-    """Compare two sets of results keyed by the model's relative path (sorted output)."""
+            old_label: str = "old", new_label: str = "new", settings: str = "") -> DiffResult:
+    """Compare two sets of results keyed by the model's relative path (sorted output).
+
+    `settings` says in words where the settings (and so the policy) came from."""
     policy = policy or Regression()
     files = sorted(set(old) | set(new))
     models = tuple(compare_models(f, old.get(f), new.get(f), policy) for f in files)
-    return DiffResult(old_label, new_label, models, policy)
+    return DiffResult(old_label, new_label, models, policy, settings)
