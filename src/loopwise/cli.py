@@ -20,9 +20,14 @@ import importlib
 import os
 import sys
 
-from . import __version__
-from .errors import LoopwiseError, UsageError
-from .pool import Terminated, sigterm_raises
+# The engine works on many small matrices: BLAS threads cost more than they save, and
+# --jobs runs processes side by side. Set before numpy loads; a user's own setting wins.
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
+
+from . import __version__  # noqa: E402
+from .errors import LoopwiseError, UsageError  # noqa: E402
+from .pool import Terminated, sigterm_raises  # noqa: E402
 
 __all__ = ["main", "entry", "COMMANDS"]
 

@@ -6,9 +6,9 @@ hand with python-control 0.10.2 (`control.tf` per block application,
 `control.summing_junction`, `control.interconnect`), independently of our parser
 and reducer. Compared:
 * every break's loop transfer L_k(jw) (other loops closed) with
-  `Prepared.loop_transfer`, and with the engine's own `Prepared.loop_state_space`;
+  `PreparedModel.loop_transfer`, and with the engine's own `PreparedModel.loop_state_space`;
 * the whole closed loop's poles: eigenvalues of python-control's interconnected
-  state matrix vs `Prepared.closed_loop_poles()` (paired one to one), leaving out
+  state matrix vs `PreparedModel.closed_loop_poles()` (paired one to one), leaving out
   blocks driven only by exogenous inputs (their poles are the input's, not a loop's).
 
 Parameters below are copied from the model files; a change there must be

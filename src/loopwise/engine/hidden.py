@@ -32,7 +32,7 @@ import numpy as np
 
 from ..results import HiddenMode
 from .reduce import Reduction
-from .winding import indentation_radius
+from .winding import axis_orders, indentation_radius
 
 __all__ = ["cancelled_modes", "structural_modes", "applications"]
 
@@ -76,12 +76,15 @@ def cancelled_modes(red: Reduction) -> list[HiddenMode]:
     return [HiddenMode(p, m, "LW281", (label,), (label,)) for (label, p), m in found.items()]
 
 
-def _winding(red: Reduction, p: complex, radius: float) -> tuple[int, float]:
-    """Winding number of det(I - A) round the circle |s - p| = radius, and its rounding error."""
+def _order(red: Reduction, p: complex, m: int, radius: float) -> tuple[int, float]:
+    """The order of chi at p: the winding number of det(I - A) (s - p)^m round the circle
+    |s - p| = radius (that of det(I - A) plus m; the factor takes det's pole of order up
+    to m off, so few samples resolve it), and its rounding error."""
     n = 64
     while True:
         theta = np.linspace(0.0, 2 * math.pi, n + 1)
         phase, logabs = red.characteristic(p + radius * np.exp(1j * theta))
+        phase = phase + m * theta
         steps = np.diff(phase)
         steps = (steps + math.pi) % (2 * math.pi) - math.pi
         if np.all(np.isfinite(steps)) and (np.max(np.abs(steps)) < math.pi / 4 or n >= 4096):
@@ -113,13 +116,13 @@ def structural_modes(red: Reduction) -> list[HiddenMode]:
         elif p.real == 0:
             # nothing cancels it, but a closed-loop pole inside the contour's indentation is
             # excluded from the count whichever side it lies: say so rather than call it stable
-            axis = poles[poles.real == 0]
-            radius = indentation_radius(abs(p.imag), axis, roots)
+            orders = axis_orders(t.app.transfer for t in terms)
+            radius = indentation_radius(abs(p.imag), orders.get(abs(p.imag), 1), roots)
         else:
             continue  # in the right half plane and not cancelled: the count sees it
-        k, err = _winding(red, p, radius)
-        if err > 0.1 or m + k <= 0:
+        order, err = _order(red, p, m, radius)
+        if err > 0.1 or order <= 0:
             continue
         code = "LW484" if exogenous_only else ("LW488" if p.real == 0 else "LW487")
-        out.append(HiddenMode(p, m + k, code, tuple(dict.fromkeys(_label(t) for t in pole_terms)), zero_blocks))
+        out.append(HiddenMode(p, order, code, tuple(dict.fromkeys(_label(t) for t in pole_terms)), zero_blocks))
     return out

@@ -1,28 +1,54 @@
-"""The interconnection matrix A(s) and, for each break, the loop transfer L_k.
+"""The wiring reduced once per model: loop components, kept signals, loop transfers.
 
-Signals x obey ``x = A(s) x + B(s) u``. Cutting break k removes its wires from A
-(giving A_k) and injects a test signal v in their place through the vector b_k;
-the value returned to the cut signal is y = x[sig], and ``L_k = -y / v``. Every
-evaluation is batched over whole arrays of s (one linear solve per point, done
-by numpy in one call). ``det(I - A) = det(I - A_k) * (1 + L_k)`` holds exactly.
+Signals x obey ``x = A(s) x + B(s) u``. A is reduced once, structurally:
 
-For delay-free models a rational state-space form of each L_k (and of the whole
-closed loop) is built from per-application realisations: used to find unstable
-modes hidden by cancellations, and by the reference tests.
+* **Components.** The strongly connected components of the signal graph that hold a
+  loop. With the signals ordered by component, I - A is block triangular, so
+  ``det(I - A) = prod_c det(I - A_c)``: each component is counted on its own (and a
+  break, whose cut wires lie inside one component, belongs to one). Terms outside
+  every component (on a path between loops, from an input, to an output) have states
+  but no part in any determinant.
+* **Kept signals.** In each component a set K of signals is kept - every break's
+  signal and enough others that no loop is left among the rest, H (a feedback vertex
+  set, chosen greedily). H is then acyclic: ordered topologically, I - A_HH is unit
+  triangular, and the Schur complement
+  ``S = A_KK + A_KH (I - A_HH)^-1 A_HK`` has ``det(I - A_c) = det(I - S)``.
+  S is formed at each frequency by propagating through H in topological order (one
+  vectorised operation per wiring term, all frequencies at once); a series chain or a
+  signal that carries no loop of its own never reaches a matrix solve.
+* **Breaks.** Cutting break k is a rank-one change A_k = A - u_k e_sig^T (u_k: the cut
+  terms, all from the break's signal). The same propagation carries u_k into the kept
+  signals (U[:, k]); with g_k = e_sig^T (I - S)^-1 U[:, k] (Sherman-Morrison),
+  ``det(I - A_k) = det(I - A)(1 + g_k)`` and ``L_k = -g_k / (1 + g_k)``. One solve of the
+  |K| x |K| system per frequency serves every break of the component.
 """
 from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import cached_property
 
+import networkx as nx
 import numpy as np
 
-from .diagram import Diagram
 from ..language.resolve import Term
-from ..transfer import Transfer
-from .solve import nonsingular
+from .blocks import Bank
+from .diagram import Diagram
+from .program import Program, build_program
 
-__all__ = ["Instance", "Reduction", "reduce_diagram", "LoopEvaluation", "ImproperLoop", "Uncertified"]
+__all__ = ["Instance", "Component", "Reduction", "reduce_diagram", "ComponentValues", "CANCEL"]
+
+#: 1 + g_k smaller than this (relative to max(1, |g_k|)) is solved with the break's wires cut
+CANCEL = 1e-3
+#: points closer to a pole in Re s >= 0 than this fraction of its distance to the nearest
+#: other root are evaluated with the outputs of the terms with that pole kept
+NEAR = 1e-3
+#: a term with a pole in Re s >= 0 larger than this at a point sends it to the safe program
+SAFE_LEVEL = 1e16
+#: the safe program lets this many such terms multiply on one path: their values stay below
+#: about 1e75 each at the smallest indentation (radius >= 1e-250^(1/order) scaled), 1e300 together
+SAFE_PER_PATH = 4
+#: complex values one batch of points may hold in a propagation (about 64 MB)
+CHUNK = 4_000_000
 
 
 @dataclass(frozen=True, eq=False)
@@ -38,41 +64,190 @@ class Instance:
         return None if self.term.app is None else self.term.app.transfer
 
 
-class ImproperLoop(Exception):
-    """A loop of the wiring whose gain grows without bound at high frequency (the instances on it)."""
+@dataclass(frozen=True, eq=False)
+class ComponentValues:
+    """A component at an array of s: phase and log|.| of det(I - A_c), and g_k for its breaks
+    (columns in the order of `Component.breaks`)."""
 
-    def __init__(self, instances: tuple[Instance, ...]):
-        super().__init__(instances)
-        self.instances = instances
-
-
-class Uncertified(Exception):
-    """No radius certifies the count: `reason` is "neutral" (high-frequency gain through
-    delays >= 1; `rho` holds it), "ill-posed" (I - A(inf) singular) or "range" (the gains
-    need a radius beyond double precision)."""
-
-    def __init__(self, reason: str, rho: float = float("nan")):
-        super().__init__(reason, rho)
-        self.reason = reason
-        self.rho = rho
-
-
-def _relative_degree(inst: Instance) -> int:
-    tf = inst.transfer
-    return 0 if tf is None or tf.is_zero else tf.relative_degree
+    det_phase: np.ndarray
+    det_log: np.ndarray
+    g: np.ndarray
 
 
 @dataclass(frozen=True, eq=False)
-class LoopEvaluation:
-    """Values at an array of s: phase and log-magnitude of det(I - A_k), and L_k."""
+class Component:
+    """One strongly connected part of the wiring that holds a loop, reduced to kept signals.
 
-    det_k_phase: np.ndarray
-    det_k_log: np.ndarray
-    L: np.ndarray
+    `signals` and `instances` are global indices; `bank` holds the values of its terms
+    (one position per instance, in the order of `instances`), `entries` their (global
+    row, global column, gain, transfer or None); `program` the elimination used at most
+    points (program.py). `safe` lets at most SAFE_PER_PATH terms with a pole in Re s >= 0
+    multiply along a path through the eliminated signals; points within `near` (pole, radius) of such a
+    pole, or where such a term exceeds SAFE_LEVEL, use it, so the values that are huge
+    there meet the pivoted solve rather than being multiplied together.
+    """
+
+    signals: tuple[int, ...]
+    instances: tuple[int, ...]
+    breaks: tuple[str, ...]
+    bank: Bank
+    cut_positions: tuple[tuple[int, ...], ...]  # per break: bank positions of its cut terms
+    entries: tuple[tuple[int, int, float, object], ...]
+    program: Program
+    safe: Program | None = None
+    near: tuple[tuple[complex, float], ...] = ()
+    big: tuple[int, ...] = ()  # bank positions of the terms with a pole in Re s >= 0
+
+    @property
+    def kept(self) -> tuple[int, ...]:
+        return self.program.kept
+
+    def _groups(self, s: np.ndarray, V: np.ndarray) -> list[tuple[np.ndarray | slice, Program]]:
+        """Which program evaluates which points: next to a pole in Re s >= 0, or where a
+        term with such a pole is huge, the safe one."""
+        if self.safe is None:
+            groups = [(np.arange(s.size), self.program)]
+        else:
+            with np.errstate(all="ignore"):
+                risky = ~(np.max(np.abs(V[:, list(self.big)]), axis=1) < SAFE_LEVEL)
+            for p, r in self.near:
+                risky |= (np.abs(s - p) <= r) | (np.abs(s - np.conj(p)) <= r)
+            groups = [(np.nonzero(~risky)[0], self.program), (np.nonzero(risky)[0], self.safe)]
+        # bounded memory: a propagation holds (points, nodes, kept + breaks) values
+        out = []
+        for idx, prog in groups:
+            per_point = len(prog.feeds) * (prog.n_kept + len(self.breaks) + 1) + prog.n_kept ** 2
+            step = max(64, int(CHUNK / per_point))
+            out += [(idx[i:i + step], prog) for i in range(0, idx.size, step)]
+        if len(out) == 1 and out[0][0].size == s.size:
+            return [(slice(None), out[0][1])]
+        return out
+
+    def values(self, s: np.ndarray) -> ComponentValues:
+        """det(I - A_c) and every break's g_k at the points s (one propagation, one solve)."""
+        s = np.asarray(s, dtype=complex).ravel()
+        with np.errstate(all="ignore"):
+            V = self.bank.values(s)
+            groups = self._groups(s, V)
+            if len(groups) == 1:
+                return ComponentValues(*groups[0][1].values(V))
+            phase, logabs = np.zeros(s.size), np.zeros(s.size)
+            g = np.zeros((s.size, len(self.breaks)), complex)
+            for idx, prog in groups:
+                phase[idx], logabs[idx], g[idx] = prog.values(V[idx])
+        return ComponentValues(phase, logabs, g)
+
+    def terms(self, s: np.ndarray, breaks: int | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """log det(I - A_c), log(1 + g_k) and L_k (columns: the first `breaks` breaks) at s.
+
+        Where 1 + g_k cancels (|1 + g_k| < CANCEL max(1, |g_k|): |L_k| large, e.g. next to
+        a double integrator), break k is solved with its wires cut instead, so that
+        neither L_k nor det(I - A_k) = det(I - A)(1 + g_k) loses digits.
+        """
+        s = np.asarray(s, dtype=complex).ravel()
+        v = self.values(s)
+        g = v.g[:, :breaks]
+        with np.errstate(all="ignore"):
+            one_g = 1.0 + g
+            L = -g / one_g
+            log_det = v.det_log + 1j * v.det_phase
+            log_one_g = np.log(one_g + 0j)
+            bad = ~(np.abs(one_g) > CANCEL * np.maximum(1.0, np.abs(g)))
+            for k in np.nonzero(bad.any(axis=0))[0]:
+                rows = np.nonzero(bad[:, k])[0]
+                ph, lg, Lk = self.direct(int(k), s[rows])
+                log_one_g[rows, k] = (lg + 1j * ph) - log_det[rows]
+                L[rows, k] = Lk
+        return log_det, log_one_g, L
+
+    def loops(self, s: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        """L of break cols[j] (position in `breaks`) at s[j]: the margins' evaluator.
+
+        Sherman-Morrison with one right-hand side per point; where 1 + g cancels (|L|
+        large) that break is solved with its wires cut."""
+        s = np.asarray(s, dtype=complex).ravel()
+        cols = np.broadcast_to(np.asarray(cols, dtype=int), s.shape).ravel()
+        g = np.empty(s.size, complex)
+        with np.errstate(all="ignore"):
+            V = self.bank.values(s)
+            for idx, prog in self._groups(s, V):
+                g[idx] = prog.selected(V[idx], cols[idx])
+            L = -g / (1.0 + g)
+            bad = ~(np.abs(1.0 + g) > CANCEL * np.maximum(1.0, np.abs(g)))
+            for k in np.unique(cols[bad]):
+                rows = np.nonzero(bad & (cols == k))[0]
+                L[rows] = self.direct(int(k), s[rows])[2]
+        return L
+
+    def direct(self, b: int, s: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Break b solved with its wires cut: phase and log|.| of det(I - A_k), and L_k
+        (accurate where L_k is far below or far above 1; see Program.direct)."""
+        s = np.asarray(s, dtype=complex).ravel()
+        phase, logabs, L = np.zeros(s.size), np.zeros(s.size), np.zeros(s.size, complex)
+        with np.errstate(all="ignore"):
+            V = self.bank.values(s)
+            for idx, prog in self._groups(s, V):
+                phase[idx], logabs[idx], L[idx] = prog.direct(V[idx], b)
+        return phase, logabs, L
+
+    @cached_property
+    def _delayed(self) -> tuple[np.ndarray, Bank | None]:
+        """The delays and a bank of the component's delayed terms alone (for step_ok)."""
+        pos = np.nonzero(self.bank.delay > 0)[0]
+        if pos.size == 0:
+            return np.zeros(0), None
+        return self.bank.delay[pos], Bank([self.entries[p][2] for p in pos], [self.entries[p][3] for p in pos])
+
+    @property
+    def has_delay(self) -> bool:
+        return self.bank.has_delay
+
+    def step_ok(self, sa: np.ndarray, sb: np.ndarray) -> np.ndarray:
+        """Whether each interval [sa, sb] is short enough for the delays that matter there.
+
+        The sum of the delays of the terms that are not negligible at either end
+        (|term| > 1e-6) times the interval's length must stay below pi/4: three samples
+        cannot tell a whole number of turns of exp(-j w T) from none.
+        """
+        delays, bank = self._delayed
+        if bank is None:
+            return np.ones(sa.shape, bool)
+        with np.errstate(all="ignore"):
+            big = np.maximum(np.abs(bank.values(sa)), np.abs(bank.values(sb)))
+        rate = np.where(~(big < 1e-6), delays[None, :], 0.0).sum(axis=1)
+        return np.abs(sb - sa) * rate <= np.pi / 4
+
+    def phase_at(self, V: np.ndarray, b: int | None = None) -> np.ndarray:
+        """arg det(I - A_c) (or A_k with break b cut) for given term values V (rows: points)."""
+        with np.errstate(all="ignore"):
+            return self.program.values(V)[0] if b is None else self.program.direct(V, b)[0]
+
+    def dense(self, s: np.ndarray, cut: frozenset[int] = frozenset()) -> np.ndarray:
+        """The component's own block A_c (or A_k with the bank positions in `cut` removed),
+        shape (len(s), n_c, n_c), rows and columns in the order of `signals`."""
+        s = np.asarray(s, dtype=complex).ravel()
+        with np.errstate(all="ignore"):
+            V = self.bank.values(s)
+        n = len(self.signals)
+        A = np.zeros((s.size, n, n), complex)
+        order = {g: i for i, g in enumerate(self.signals)}
+        for p, (row, col, _, _) in enumerate(self.entries):
+            if p not in cut:
+                A[:, order[row], order[col]] += V[:, p]
+        return A
+
+    def roots(self) -> tuple[np.ndarray, np.ndarray]:
+        """Poles and zeros of the component's terms."""
+        tfs = [t for _, _, _, t in self.entries if t is not None]
+        empty = np.zeros(0, complex)
+        return (np.concatenate([t.poles for t in tfs]) if tfs else empty,
+                np.concatenate([t.zeros for t in tfs]) if tfs else empty)
 
 
 @dataclass(frozen=True, eq=False)
 class Reduction:
+    """A model's wiring, reduced once: its terms, components and breaks."""
+
     diagram: Diagram
     signals: tuple[str, ...]
     instances: tuple[Instance, ...]
@@ -80,6 +255,9 @@ class Reduction:
     #: applications driven by an input only: outside A, but their states are part of the
     #: system, so their poles belong in prod(den_b) (and an unstable one in Z)
     exogenous: tuple[Term, ...] = ()
+    components: tuple[Component, ...] = ()
+    #: instances on no loop (between loops, on output paths): states outside every determinant
+    outside: tuple[int, ...] = ()
 
     # --- structural facts ------------------------------------------------------------
     @property
@@ -100,299 +278,30 @@ class Reduction:
     def has_delay(self) -> bool:
         return any(i.transfer is not None and i.transfer.delay > 0 for i in self.instances)
 
-    def open_rhp_poles(self) -> int:
-        p = self.block_poles()
-        return int(np.sum(p.real > 0))
-
-    # --- evaluation --------------------------------------------------------------------
-    def matrix(self, s: np.ndarray, cut: frozenset[int] = frozenset()) -> np.ndarray:
-        """A(s) (or A_k with the instances in `cut` removed), shape (len(s), n, n)."""
-        s = np.asarray(s, dtype=complex)
-        A = np.zeros((s.size, self.n, self.n), dtype=complex)
-        for k, inst in enumerate(self.instances):
-            if k in cut:
-                continue
-            A[:, inst.row, inst.col] += self._term_values(inst, s)
-        return A
-
-    @staticmethod
-    def _term_values(inst: Instance, s: np.ndarray) -> np.ndarray:
-        tf = inst.transfer
-        if tf is None:
-            return np.full(s.shape, inst.term.gain, dtype=complex)
-        with np.errstate(all="ignore"):
-            return inst.term.gain * tf.evaluate(s)
-
-    def characteristic(self, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Phase and log|.| of det(I - A(s)) (the whole closed loop)."""
-        s = np.asarray(s, dtype=complex).ravel()
-        step = _chunk(self.n)
-        if s.size > step:
-            parts = [self.characteristic(s[i:i + step]) for i in range(0, s.size, step)]
-            return np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts])
-        M = np.eye(self.n)[None, :, :] - self.matrix(s)
-        with np.errstate(all="ignore"):
-            sign, logabs = np.linalg.slogdet(M)
-        return np.angle(sign), logabs
-
-    def loop(self, name: str, s: np.ndarray) -> LoopEvaluation:
-        """det(I - A_k) and L_k at every point of s, in batched solves of bounded memory."""
-        s = np.asarray(s, dtype=complex).ravel()
-        step = _chunk(self.n)
-        if s.size > step:
-            parts = [self._loop(name, s[i:i + step]) for i in range(0, s.size, step)]
-            return LoopEvaluation(*(np.concatenate([getattr(p, f) for p in parts])
-                                    for f in ("det_k_phase", "det_k_log", "L")))
-        return self._loop(name, s)
-
-    def _loop(self, name: str, s: np.ndarray) -> LoopEvaluation:
-        cut = self.cut_sets[name]
-        M = np.eye(self.n)[None, :, :] - self.matrix(s, cut)
-        b = np.zeros((s.size, self.n), dtype=complex)
-        for k in cut:
-            inst = self.instances[k]
-            b[:, inst.row] += self._term_values(inst, s)
-        with np.errstate(all="ignore"):
-            sign, logabs = np.linalg.slogdet(M)
-            x = _solve(M, b)
-        sig = self.signals.index(self._cut_signal(name))
-        return LoopEvaluation(np.angle(sign), logabs, -x[:, sig])
-
-    def all_loops(self, s: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """det(I - A) (phase, log|.|) and, for every break k, g_k = e_k^T (I - A)^-1 u_k.
-
-        Cutting break k is a rank-one change, A_k = A - u_k e_k^T, so one
-        factorisation of I - A per point serves every break (Sherman-Morrison):
-        det(I - A_k) = det(I - A) (1 + g_k) and L_k = -g_k / (1 + g_k).
-        """
-        s = np.asarray(s, dtype=complex).ravel()
-        names = list(self.cut_sets)
-        step = _chunk(self.n + len(names))
-        if s.size > step:
-            parts = [self.all_loops(s[i:i + step]) for i in range(0, s.size, step)]
-            return tuple(np.concatenate([p[j] for p in parts]) for j in range(3))
-        M = np.eye(self.n)[None, :, :] - self.matrix(s)
-        U = np.zeros((s.size, self.n, len(names)), dtype=complex)
-        for k, name in enumerate(names):
-            for i in self.cut_sets[name]:
-                inst = self.instances[i]
-                U[:, inst.row, k] += self._term_values(inst, s)
-        with np.errstate(all="ignore"):
-            sign, logabs = np.linalg.slogdet(M)
-            X = _solve_many(M, U)
-        rows = [self.signals.index(self._cut_signal(n)) for n in names]
-        g = X[:, rows, np.arange(len(names))]
-        return np.angle(sign), logabs, g
-
-    def loop_transfer(self, name: str, s) -> np.ndarray:
-        return self.loop(name, np.atleast_1d(s)).L
-
-    def _cut_signal(self, name: str) -> str:
+    def cut_signal(self, name: str) -> str:
+        """The signal break `name` cuts (and measures)."""
         return next(b.signal for b in self.diagram.breaks if b.stmt.name == name)
 
-    def delay_step_ok(self, sa: np.ndarray, sb: np.ndarray, cut: frozenset[int] = frozenset()) -> np.ndarray:
-        """Whether each interval [sa, sb] is short enough for the delays that matter there.
-
-        Sum of the delays of the instances that are not negligible at either end
-        (|term| > 1e-6) times the interval's length must stay below pi/4.
-        """
-        rate = np.zeros(sa.shape)
-        for k, inst in enumerate(self.instances):
-            tf = inst.transfer
-            if tf is None or tf.delay == 0.0:
-                continue
-            with np.errstate(all="ignore"):
-                big = np.maximum(np.abs(self._term_values(inst, sa)), np.abs(self._term_values(inst, sb)))
-            rate += np.where(~(big < 1e-6), tf.delay, 0.0)
-        return np.abs(sb - sa) * rate <= np.pi / 4
-
-    # --- high-frequency certificate ----------------------------------------------------------
     @cached_property
-    def scaling(self) -> np.ndarray:
-        """Integer exponents d (one per signal) that make every entry of the similar matrix
-        D(s)^-1 A(s) D(s), D = diag(s^d), proper; all zero without improper blocks.
+    def component_of(self) -> dict[str, int]:
+        """Break name -> index of its component."""
+        return {b: i for i, c in enumerate(self.components) for b in c.breaks}
 
-        Entry (i, j) becomes A_ij s^(d_j - d_i), proper when d_j - d_i <= r_ij (its
-        relative degree): a system of difference constraints, solved by Bellman-Ford.
-        It has a solution iff no loop of the wiring has a negative total relative
-        degree, i.e. iff no loop gain grows without bound (ImproperLoop otherwise).
-        det(I - A) and every L_k are unchanged by the similarity (docs/method.md).
-        """
-        edges = [(inst.row, inst.col, _relative_degree(inst), k) for k, inst in enumerate(self.instances)]
-        d = np.zeros(self.n, dtype=int)
-        if all(r >= 0 for _, _, r, _ in edges):
-            return d
-        pred: dict[int, int] = {}
-        for _ in range(self.n + 1):
-            changed = None
-            for i, j, r, k in edges:
-                if d[i] + r < d[j]:
-                    d[j] = d[i] + r
-                    pred[j] = k
-                    changed = j
-            if changed is None:
-                return d
-        # still relaxing after n rounds: walk back to a negative cycle
-        node = changed
-        for _ in range(self.n):
-            node = self.instances[pred[node]].row
-        cycle, at = [], node
-        while True:
-            k = pred[at]
-            cycle.append(k)
-            at = self.instances[k].row
-            if at == node:
-                break
-        raise ImproperLoop(tuple(self.instances[k] for k in reversed(cycle)))
+    # --- evaluation --------------------------------------------------------------------
+    def characteristic(self, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Phase and log|.| of det(I - A(s)) = prod over components of det(I - A_c)."""
+        s = np.asarray(s, dtype=complex).ravel()
+        phase, logabs = np.zeros(s.size), np.zeros(s.size)
+        for c in self.components:
+            v = c.values(s)
+            phase, logabs = phase + v.det_phase, logabs + v.det_log
+        return np.angle(np.exp(1j * phase)), logabs
 
-    def scaled_transfer(self, k: int):
-        """Instance k's term in the scaled matrix: gain * transfer * s^(d_col - d_row) (a Transfer)."""
-        inst = self.instances[k]
-        tf = inst.transfer if inst.transfer is not None else Transfer.constant(1.0)
-        e = int(self.scaling[inst.col] - self.scaling[inst.row])
-        if e:
-            tf = tf * (Transfer.laplace() ** e)
-        return tf
-
-    def scaled_matrix(self, s: np.ndarray, cut: frozenset[int] = frozenset()) -> np.ndarray:
-        """D^-1 A D (or A_k) at the points s: the same determinant, entries bounded at infinity."""
-        A = self.matrix(s, cut)
-        d = self.scaling
-        if np.any(d):
-            s = np.asarray(s, dtype=complex).reshape(-1, 1, 1)
-            A = A * s ** (d[None, None, :] - d[None, :, None])
-        return A
-
-    def feedthrough_split(self, cut: frozenset[int] = frozenset()):
-        """For the scaled matrix: A0 (delay-free limit at infinity), |limit of the delayed
-        terms|, per-instance data (row, col, |gain|, scaled transfer) for the remainders, and
-        the magnitudes I - A0 is summed from (for `solve.nonsingular`)."""
-        A0 = np.zeros((self.n, self.n))
-        Dd = np.zeros((self.n, self.n))
-        gross = np.eye(self.n)
-        rest = []
-        for k, inst in enumerate(self.instances):
-            if k in cut:
-                continue
-            tf = self.scaled_transfer(k)
-            g = inst.term.gain
-            d = g * tf.feedthrough
-            if tf.delay > 0:
-                Dd[inst.row, inst.col] += abs(d)
-            else:
-                A0[inst.row, inst.col] += d
-                gross[inst.row, inst.col] += abs(d)
-            if tf.poles.size or tf.zeros.size:
-                rest.append((inst.row, inst.col, abs(g), tf))
-        return A0, Dd, rest, gross
-
-
-def _chunk(n: int) -> int:
-    """Points per batch so that a batch of n x n complex matrices stays near 64 MB."""
-    return max(256, int(64e6 / (16.0 * max(n, 1) ** 2)))
-
-
-def _solve(M: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Batched solve; a point where I - A_k is singular (s on a pole) gives NaN, not an exception."""
-    try:
-        return np.linalg.solve(M, b[:, :, None])[:, :, 0]
-    except np.linalg.LinAlgError:
-        out = np.full(b.shape, np.nan + 0j)
-        for i in range(M.shape[0]):
-            try:
-                out[i] = np.linalg.solve(M[i], b[i])
-            except np.linalg.LinAlgError:
-                pass
-        return out
-
-
-def _solve_many(M: np.ndarray, U: np.ndarray) -> np.ndarray:
-    """Batched solve with several right-hand sides; NaN where I - A is singular."""
-    try:
-        return np.linalg.solve(M, U)
-    except np.linalg.LinAlgError:
-        out = np.full(U.shape, np.nan + 0j)
-        for i in range(M.shape[0]):
-            try:
-                out[i] = np.linalg.solve(M[i], U[i])
-            except np.linalg.LinAlgError:
-                pass
-        return out
-
-
-def _remainder_bound(gain: float, tf, r: float) -> float:
-    """An upper bound of |G(s) - G(inf) e^{-sT}| over |s| >= r, Re s >= 0 (needs r > max|p|).
-
-    G = k prod (s - z_i)/(s - p_i) prod 1/(s - p_j): each paired factor is
-    1 + (p_i - z_i)/(s - p_i); the bound decreases with r.
-    """
-    if tf.is_zero:
-        return 0.0
-    z, p = tf.zeros, tf.poles
-    m = z.size
-    prod = abs(tf.gain) * gain
-    pm = np.abs(p)
-    if np.any(pm >= r):
-        return np.inf
-    paired = np.prod(1.0 + np.abs(p[:m] - z) / (r - pm[:m]))
-    tail = np.prod(1.0 / (r - pm[m:])) if p.size > m else 1.0
-    if p.size == m:
-        return prod * (paired - 1.0)
-    return prod * paired * tail
-
-
-def certificate_radius(red: Reduction, cut: frozenset[int] = frozenset()) -> tuple[float, float]:
-    """The smallest tried radius R beyond which det(I - A(s)) (or A_k) has no zeros in Re s >= 0.
-
-    Sufficient condition (Perron-Frobenius bound on a structured perturbation), on the
-    scaled matrix (Reduction.scaling; the same determinant):
-    rho(|(I - A0)^-1| (|D_delay| + B(R))) < 1, where B bounds the strictly proper
-    remainders entrywise. Returns (R, rho_at_infinity). Raises Uncertified when the
-    condition fails even at infinity (neutral type: high-frequency loop gain through
-    delays of magnitude >= 1), when I - A0 is singular (ill-posed at high frequency), or
-    when the radius it needs lies beyond 1e250 (gains beyond double precision).
-    """
-    A0, Dd, rest, gross = red.feedthrough_split(cut)
-    M = np.eye(red.n) - A0
-    if red.n and not nonsingular(M, gross):
-        raise Uncertified("ill-posed")
-    Minv = np.abs(np.linalg.inv(M)) if red.n else M
-    if not np.all(np.isfinite(Minv)):
-        raise Uncertified("range")
-    rho_inf = float(np.max(np.abs(np.linalg.eigvals(Minv @ Dd)))) if red.n else 0.0
-    if rho_inf >= 1.0:
-        raise Uncertified("neutral", rho_inf)
-    roots = np.concatenate([red.block_poles(), red.block_zeros(), [1.0]])
-    r = 2.0 * float(np.max(np.abs(roots)))
-    while r < 1e250:
-        B = Dd.copy()
-        for row, col, g, tf in rest:
-            B[row, col] += _remainder_bound(g, tf, r)
-        if np.all(np.isfinite(B)):
-            rho = float(np.max(np.abs(np.linalg.eigvals(Minv @ B))))
-            if rho < 0.9:
-                return r, rho_inf
-        r *= 1.6 if r < 1e16 else 10.0
-    raise Uncertified("range")
-
-
-def closing_phase(red: Reduction, cut: frozenset[int], R: float) -> float:
-    """Continuous change of arg det(I - A_k) from s = jR to s = R along |s| >= R.
-
-    With X(s) = (I - A0)^-1 (A(s) - A0) and rho(X) < 1 there (A the scaled matrix,
-    whose determinant is the same), arg det(I - A) = arg det(I - A0) + sum Arg(1 - lambda_i(X))
-    is a continuous branch (each term stays within (-pi/2, pi/2)), so no sampling of the
-    arc is needed.
-    """
-    A0 = red.feedthrough_split(cut)[0]
-    Minv = np.linalg.inv(np.eye(red.n) - A0)
-
-    def branch(s: complex) -> float:
-        A = red.scaled_matrix(np.array([s]), cut)[0]
-        lam = np.linalg.eigvals(Minv @ (A - A0))
-        return float(np.sum(np.angle(1.0 - lam)))
-
-    return branch(complex(R, 0.0)) - branch(complex(0.0, R))
+    def loop_transfer(self, name: str, s) -> np.ndarray:
+        """L_k = -y/v at break `name` (other loops closed) at the points s."""
+        s = np.atleast_1d(np.asarray(s, dtype=complex)).ravel()
+        c = self.components[self.component_of[name]]
+        return c.direct(c.breaks.index(name), s)[2]
 
 
 def reduce_diagram(diagram: Diagram) -> Reduction:
@@ -415,4 +324,54 @@ def reduce_diagram(diagram: Diagram) -> Reduction:
         cut_sets[cut.stmt.name] = frozenset(
             k for k, inst in enumerate(instances)
             if (signals[inst.col], signals[inst.row]) in edges)
-    return Reduction(diagram, signals, tuple(instances), cut_sets, tuple(exogenous))
+    components, outside = _components(signals, instances, cut_sets, diagram)
+    return Reduction(diagram, signals, tuple(instances), cut_sets, tuple(exogenous), components, outside)
+
+
+def _components(signals, instances, cut_sets, diagram) -> tuple[tuple[Component, ...], tuple[int, ...]]:
+    n = len(signals)
+    succ: dict[int, list[int]] = {i: [] for i in range(n)}
+    flow = nx.DiGraph()
+    flow.add_nodes_from(range(n))
+    for inst in instances:
+        succ[inst.col].append(inst.row)
+        flow.add_edge(inst.col, inst.row)
+    comps = []
+    inside: set[int] = set()
+    # components upstream first (a topological order of the condensation), so that a
+    # loop's signals are known before the loops they feed
+    condensed = nx.condensation(flow)
+    for c in nx.lexicographical_topological_sort(condensed, key=lambda c: min(condensed.nodes[c]["members"])):
+        members = sorted(condensed.nodes[c]["members"])
+        if len(members) == 1 and members[0] not in succ[members[0]]:
+            continue  # no loop through this signal
+        member_set = set(members)
+        insts = tuple(k for k, i in enumerate(instances) if i.row in member_set and i.col in member_set)
+        inside.update(insts)
+        breaks = tuple(c.stmt.name for c in diagram.breaks if signals.index(c.signal) in member_set
+                       and any(k in insts for k in cut_sets[c.stmt.name]))
+        comps.append(_component(members, insts, breaks, instances, cut_sets, signals))
+    outside = tuple(k for k in range(len(instances)) if k not in inside)
+    return tuple(comps), outside
+
+
+def _component(members, insts, breaks, instances, cut_sets, signals) -> Component:
+    position = {k: p for p, k in enumerate(insts)}
+    ends = [(instances[k].row, instances[k].col) for k in insts]
+    measured = [instances[next(iter(cut_sets[name]))].col for name in breaks]
+    cuts = [frozenset(position[k] for k in cut_sets[name] if k in position) for name in breaks]
+    entries = tuple((instances[k].row, instances[k].col, instances[k].term.gain, instances[k].transfer)
+                    for k in insts)
+    tfs = [e[3] for e in entries]
+    big = {p for p, tf in enumerate(tfs) if tf is not None and np.any(tf.poles.real >= 0)}
+    program = build_program(members, ends, measured, cuts, big)
+    roots = np.concatenate([np.concatenate([t.poles, t.zeros]) for t in tfs if t is not None] or [np.zeros(0)])
+    near = []
+    for p in dict.fromkeys(complex(p) for t in tfs if t is not None for p in t.poles if p.real >= 0 <= p.imag):
+        others = roots[roots != p]
+        d = float(np.min(np.abs(others - p))) if others.size else max(1.0, abs(p))
+        near.append((p, NEAR * d))
+    safe = build_program(members, ends, measured, cuts, big, most=SAFE_PER_PATH) if big else None
+    bank = Bank([instances[k].term.gain for k in insts], [instances[k].transfer for k in insts])
+    return Component(tuple(members), tuple(insts), tuple(breaks), bank, tuple(tuple(sorted(c)) for c in cuts),
+                     entries, program, safe, tuple(near), tuple(sorted(big)))

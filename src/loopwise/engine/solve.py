@@ -6,23 +6,32 @@ from typing import Callable
 
 import numpy as np
 
-__all__ = ["illinois", "zoom_max", "nonsingular"]
+__all__ = ["illinois", "zoom_max", "zoom_max_many", "nonsingular"]
 
 
-def illinois(h: Callable[[np.ndarray], np.ndarray], a, b, xtol_rel: float = 1e-14,
-             max_iter: int = 100) -> tuple[np.ndarray, np.ndarray]:
-    """Roots of h in the brackets [a_i, b_i] at once (regula falsi, Illinois variant).
+def illinois(h: Callable, a, b, xtol_rel: float = 1e-14, max_iter: int = 100,
+             indexed: bool = False, fa=None, fb=None) -> tuple[np.ndarray, np.ndarray]:
+    """Roots of h in the brackets [a_i, b_i] at once (regula falsi, Anderson-Bjorck variant
+    of the Illinois rule: Anderson & Bjorck, BIT 13, 1973).
 
     Returns (x, ok): ok is False where the bracket holds no sign change.
-    Superlinear like the secant method, but never leaves its bracket.
+    Superlinear like the secant method, but never leaves its bracket. With `indexed`,
+    h is called as h(x, i): the points and the indices of their brackets (so one call
+    can serve brackets of different functions, e.g. the loop transfers of many breaks).
+    `fa`, `fb`: h at the bracket ends, when already known (saves an evaluation).
     """
     a = np.asarray(a, float).copy()
     b = np.asarray(b, float).copy()
+    idx = np.arange(a.size)
+    f = (lambda x, i: h(x, i)) if indexed else (lambda x, i: h(x))
     with np.errstate(all="ignore"):
-        fa, fb = h(a), h(b)
+        fa = f(a, idx) if fa is None else np.asarray(fa, float).copy()
+        fb = f(b, idx) if fb is None else np.asarray(fb, float).copy()
     ok = (fa * fb <= 0) & np.isfinite(fa) & np.isfinite(fb)
     x = np.where(fa == 0, a, b)
     tol = xtol_rel * np.maximum(np.abs(a), np.abs(b))
+    # a value this small is at the level of rounding: the root is found
+    ftol = 1e-14 * np.maximum(np.abs(fa), np.abs(fb))
     live = ok & (fa != 0) & (fb != 0)
     for _ in range(max_iter):
         if not live.any():
@@ -33,15 +42,23 @@ def illinois(h: Callable[[np.ndarray], np.ndarray], a, b, xtol_rel: float = 1e-1
         xs = np.where(bad, 0.5 * (a + b), xs)
         fx = np.zeros_like(xs)
         with np.errstate(all="ignore"):
-            fx[live] = h(xs[live])
+            fx[live] = f(xs[live], idx[live])
         flip = live & (fx * fb < 0)
         keep = live & ~flip
+        # Anderson-Bjorck: the end kept a second time has its value scaled by 1 - f(x)/f(b)
+        # (by 1/2 when that is not positive), which restores superlinear convergence
+        with np.errstate(all="ignore"):
+            m = 1.0 - fx / fb
+        m = np.where((m > 0) & np.isfinite(m), m, 0.5)
         a = np.where(flip, b, a)
-        fa = np.where(flip, fb, np.where(keep, fa / 2.0, fa))
+        fa = np.where(flip, fb, np.where(keep, fa * m, fa))
         b = np.where(live, xs, b)
         fb = np.where(live, fx, fb)
+        moved = np.abs(xs - x)
         x = np.where(live, xs, x)
-        live &= (fx != 0) & (np.abs(b - a) > tol)
+        # done when the bracket or the last step is within the tolerance (a secant step
+        # that small means the root is found to it; the bracket need not shrink as fast)
+        live &= (np.abs(fx) > ftol) & (np.abs(b - a) > tol) & (moved > 0.5 * tol)
     return x, ok
 
 
@@ -49,23 +66,40 @@ def zoom_max(f: Callable[[np.ndarray], np.ndarray], lo: float, hi: float, log: b
              points: int = 33, rounds: int = 11) -> tuple[float, float]:
     """Maximise a smooth f on [lo, hi] by zooming grids: each round one batched
     evaluation of `points` values and a window 16 times narrower around the best."""
-    if log and lo > 0:
-        u_lo, u_hi, to_x = np.log(lo), np.log(hi), np.exp
-    else:
-        u_lo, u_hi, to_x = lo, hi, (lambda u: u)
-    best_x, best_v = None, -np.inf
+    x, v = zoom_max_many(lambda x, i: f(x[0]).reshape(1, -1), [lo], [hi], [log], points, rounds)
+    return float(x[0]), float(v[0])
+
+
+def zoom_max_many(f: Callable[[np.ndarray, np.ndarray], np.ndarray], lo, hi, log,
+                  points: int = 33, rounds: int = 11) -> tuple[np.ndarray, np.ndarray]:
+    """zoom_max for many windows at once: f(x, i) takes points x of shape (windows, points)
+    and the window indices i, and returns values of the same shape."""
+    lo, hi = np.asarray(lo, float), np.asarray(hi, float)
+    uselog = np.asarray(log, bool) & (lo > 0)
+    with np.errstate(all="ignore"):
+        u_lo = np.where(uselog, np.log(np.where(uselog, lo, 1.0)), lo)
+        u_hi = np.where(uselog, np.log(np.where(uselog, hi, 1.0)), hi)
+    n = lo.size
+    best_x, best_v = np.full(n, np.nan), np.full(n, -np.inf)
+    live = np.ones(n, bool)
+    grid = np.linspace(0.0, 1.0, points)
     for _ in range(rounds):
-        u = np.linspace(u_lo, u_hi, points)
-        x = to_x(u)
-        with np.errstate(all="ignore"):
-            v = np.nan_to_num(np.asarray(f(x), float), nan=-np.inf)
-        i = int(np.argmax(v))
-        if v[i] > best_v:
-            best_x, best_v = float(x[i]), float(v[i])
-        step = u[1] - u[0]
-        u_lo, u_hi = max(u_lo, u[i] - step), min(u_hi, u[i] + step)
-        if u_hi - u_lo <= 1e-13 * max(abs(u_hi), 1.0):
+        idx = np.nonzero(live)[0]
+        if idx.size == 0:
             break
+        u = u_lo[idx, None] + (u_hi - u_lo)[idx, None] * grid[None, :]
+        x = np.where(uselog[idx, None], np.exp(u), u)
+        with np.errstate(all="ignore"):
+            v = np.nan_to_num(np.asarray(f(x, idx), float), nan=-np.inf)
+        j = np.argmax(v, axis=1)
+        rows = np.arange(idx.size)
+        better = v[rows, j] > best_v[idx]
+        best_x[idx[better]], best_v[idx[better]] = x[rows, j][better], v[rows, j][better]
+        step = (u_hi - u_lo)[idx] / (points - 1)
+        centre = u[rows, j]
+        u_lo[idx] = np.maximum(u_lo[idx], centre - step)
+        u_hi[idx] = np.minimum(u_hi[idx], centre + step)
+        live[idx] = (u_hi[idx] - u_lo[idx]) > 1e-13 * np.maximum(np.abs(u_hi[idx]), 1.0)
     return best_x, best_v
 
 
@@ -81,6 +115,11 @@ def nonsingular(M: np.ndarray, gross: np.ndarray, rel: float = 1e-12) -> bool:
     A = np.array(M, dtype=float)
     G = np.array(gross, dtype=float)
     n = A.shape[0]
+    with np.errstate(all="ignore"):
+        sign, logdet = np.linalg.slogdet(A)
+        hadamard = float(np.sum(np.log(np.linalg.norm(G, axis=1))))
+    if sign != 0 and np.isfinite(logdet) and logdet > hadamard + np.log(1e-6):
+        return True  # far from singular: no cancellation leaves that much
     with np.errstate(all="ignore"):
         for k in range(n):
             p = k + int(np.argmax(np.abs(A[k:, k])))

@@ -130,7 +130,7 @@ def loop_state_space(red: Reduction, name: str | None = None) -> StateSpace:
         raise ValueError("a state-space form exists only for delay-free models")
     n = red.n
     cut = red.cut_sets[name] if name is not None else frozenset()
-    sig = red.signals.index(red._cut_signal(name)) if name is not None else None
+    sig = red.signals.index(red.cut_signal(name)) if name is not None else None
     items = _items(red, cut, sig)
     blocks = [(x, *_realise(x.transfer)) for x in items if x.transfer is not None]
     ns = sum(b[1].shape[0] for b in blocks)

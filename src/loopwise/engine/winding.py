@@ -4,7 +4,7 @@ The contour runs up the imaginary axis with small semicircular indentations
 around every block pole on the axis (to the right by default), to s = jR, and
 closes along |s| = R back to the real axis. By conjugate symmetry only the upper
 half is traced; the count is -(change of arg f)/pi over it. R comes from a
-high-frequency certificate (reduce.certificate_radius) beyond which no zero can
+high-frequency certificate (certificate.certificate_radius) beyond which no zero can
 lie, and the arc's phase change is computed from that certificate, not sampled.
 
 Sampling is adaptive: an interval between two samples is accepted only when,
@@ -22,13 +22,20 @@ from typing import Callable
 
 import numpy as np
 
-__all__ = ["Piece", "Trace", "build_contour", "indentation_radius", "trace", "phase_change", "encirclements"]
+__all__ = ["Piece", "Trace", "build_contour", "axis_orders", "indentation_radius", "trace", "phase_change",
+           "encirclements"]
 
 CHORD = 0.35
 MIDPOINT = 0.2
+#: a function with a floor needs no resolving where it exceeds this at both ends of an
+#: interval (the loop transfer beyond 1e8: a gain change of more than 160 dB there is no
+#: margin; docs/margins.md)
+CEILING = 1e8
 MAX_ROUNDS = 70
 #: sample budget of one trace (the models of the test suite need under 10,000)
 MAX_SAMPLES = 100_000
+#: ... and of samples times traced functions (a model with many breaks stops sooner)
+MAX_WORK = 5_000_000
 
 
 @dataclass(frozen=True)
@@ -86,25 +93,42 @@ def _indent_radius(w0: float, roots: np.ndarray) -> float:
     return 1e-9 * min(d, max(1.0, w0))
 
 
-def indentation_radius(w0: float, axis_poles: np.ndarray, roots: np.ndarray) -> float:
-    """The radius of the indentation round the axis pole(s) at j w0."""
-    # m poles at one point make values of about eps^-m there: keep them below 1e250
-    m = int(np.sum(np.abs(axis_poles - 1j * w0) <= 1e-12 * np.maximum(np.abs(axis_poles), w0)))
-    return max(_indent_radius(w0, roots), 10.0 ** (-250.0 / max(m, 1)) * max(1.0, w0))
+def axis_orders(transfers) -> dict[float, int]:
+    """For each frequency w0 of a pole on the imaginary axis: the most poles at j w0 that
+    one transfer has (the engine never multiplies two terms' values where that matters:
+    program.py keeps the outputs of such terms)."""
+    out: dict[float, int] = {}
+    for tf in transfers:
+        if tf is None:
+            continue
+        axis = tf.poles[tf.poles.real == 0]
+        for w0 in {float(abs(p.imag)) for p in axis}:
+            m = int(np.sum(np.abs(np.abs(axis.imag) - w0) <= 1e-12 * max(w0, 1e-300)))
+            out[w0] = max(out.get(w0, 0), m)
+    return out
+
+
+def indentation_radius(w0: float, order: int, roots: np.ndarray) -> float:
+    """The radius of the indentation round the axis pole(s) at j w0; `order` is the most
+    poles one term has there (their value, about eps^-order, stays below 1e250)."""
+    return max(_indent_radius(w0, roots), 10.0 ** (-250.0 / max(order, 1)) * max(1.0, w0))
 
 
 def build_contour(axis_poles: np.ndarray, roots: np.ndarray, R: float, indent: str = "right",
-                  touching: tuple[float, ...] = ()) -> list[Piece]:
+                  touching: tuple[float, ...] = (), orders: dict[float, int] | None = None) -> list[Piece]:
     """Pieces of the upper half contour from the real axis near 0 up to jR.
 
     `touching` are frequencies where a closed-loop pole sits on the axis (a
     marginal case): they get an indentation to the right too, so that the count
-    is of poles strictly in the right half plane.
+    is of poles strictly in the right half plane. `orders` (axis_orders) bounds the
+    indentations' radii from below; without it every pole at a point counts.
     """
     marks: dict[float, tuple[float, bool]] = {}
     for p in axis_poles:
         w0 = float(abs(p.imag))
-        marks[w0] = (indentation_radius(w0, axis_poles, roots), indent == "right")
+        m = (orders or {}).get(w0) or int(np.sum(np.abs(axis_poles - 1j * w0)
+                                                <= 1e-12 * np.maximum(np.abs(axis_poles), w0)))
+        marks[w0] = (indentation_radius(w0, m, roots), indent == "right")
     for w0 in touching:
         w0 = float(abs(w0))
         if any(abs(w0 - m) <= 1e-6 * max(1.0, m) for m in marks):
@@ -164,9 +188,14 @@ class Trace:
     #: when the budget ran out: (frequency range still being refined, the traced functions that
     #: were not settled there (column indices), whether the delay step rule held intervals back)
     stuck: tuple[tuple[float, float], tuple[int, ...], bool] | None = None
+    pid: np.ndarray | None = None  # the piece of each sample
+    unresolved_pieces: tuple[int, ...] = ()  # the pieces of the unresolved frequencies
 
 
-def _seed(piece: Piece, features: np.ndarray) -> np.ndarray:
+def _seed(piece: Piece, features: np.ndarray, max_step: float | None = None) -> np.ndarray:
+    """The first grid of a piece: 30 points a decade and the features; with `max_step`
+    (rad/s), also no wider step on the axis than that (what the delay step rule would
+    otherwise reach by halving), unless that alone exceeds the sample budget."""
     if piece.kind == "indent":
         return np.linspace(0.0, 1.0, 9)
     if piece.log or piece.center is not None:
@@ -178,29 +207,48 @@ def _seed(piece: Piece, features: np.ndarray) -> np.ndarray:
     inside = features[(features > lo) & (features < hi)]
     if inside.size:
         u = np.concatenate([u, piece.u_of(inside)])
-    return np.unique(np.clip(u, 0.0, 1.0))
+    if max_step is not None and 2 < (hi - lo) / max_step < MAX_SAMPLES / 4:
+        with np.errstate(all="ignore"):
+            u = np.concatenate([u, piece.u_of(np.arange(lo, hi, max_step)[1:])])
+    return np.unique(np.clip(u[np.isfinite(u)], 0.0, 1.0))
 
 
-def _accept(la, lb, lm, floors) -> np.ndarray:
+def _accept(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT) -> np.ndarray:
     """Whether each interval (rows) is resolved for every function."""
-    return np.all(_accept_columns(la, lb, lm, floors), axis=1)
+    return np.all(_accept_columns(la, lb, lm, floors, shift, chord, midpoint), axis=1)
 
 
-def _accept_columns(la, lb, lm, floors) -> np.ndarray:
-    """Whether each interval (rows) is resolved for each function (columns)."""
+def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT) -> np.ndarray:
+    """Whether each interval (rows) is resolved for each function (columns).
+
+    A function without a floor is tested as f/|f|: it has the phase of f at every point
+    of the contour, and only phase counts in a winding number, so a change of |f| alone
+    (tens of loop gains multiplied in det(I - A) fall hundreds of dB a decade) asks for
+    no samples. `shift`, when given, holds for the interval's ends and midpoint the logs
+    of the factors the traced values carry (a traced f s^q stands for f; rows, columns
+    each): a floor applies to f, so the tests of a floored function take them off."""
+    phase_only = np.array([f is None for f in floors])
     with np.errstate(all="ignore"):
-        rb = np.exp(lb - la)
-        rm = np.exp(lm - la)
-        ok = (np.abs(rb - 1.0) <= CHORD) & (np.abs(1.0 / rb - 1.0) <= CHORD)
+        db, dm = lb - la, lm - la
+        db = np.where(phase_only[None, :], 1j * db.imag, db)
+        dm = np.where(phase_only[None, :], 1j * dm.imag, dm)
+        rb = np.exp(db)
+        rm = np.exp(dm)
+        ok = (np.abs(rb - 1.0) <= chord) & (np.abs(1.0 / rb - 1.0) <= chord)
         dev = np.abs(rm - 0.5 * (1.0 + rb))
-        ok &= dev <= MIDPOINT * np.minimum(1.0, np.minimum(np.abs(rb), np.abs(rm)))
+        ok &= dev <= midpoint * np.minimum(1.0, np.minimum(np.abs(rb), np.abs(rm)))
         # functions with a floor (the loop transfer itself) only need resolving while large
         for k, floor in enumerate(floors):
             if floor is None:
                 continue
-            fa, fb, fm = np.exp(la[:, k]), np.exp(lb[:, k]), np.exp(lm[:, k])
+            if shift is None:
+                fa, fb, fm = np.exp(la[:, k]), np.exp(lb[:, k]), np.exp(lm[:, k])
+            else:
+                fa, fb, fm = (np.exp(v[:, k] - sh[:, k]) for v, sh in zip((la, lb, lm), shift))
             scale = np.maximum(np.minimum(np.abs(fa), np.abs(fb)), floor)
-            ok_k = (np.abs(fb - fa) <= CHORD * scale) & (np.abs(fm - 0.5 * (fa + fb)) <= MIDPOINT * scale)
+            ok_k = (np.abs(fb - fa) <= chord * scale) & (np.abs(fm - 0.5 * (fa + fb)) <= midpoint * scale)
+            # ... and while not huge (CEILING at both ends)
+            ok_k |= np.minimum(np.abs(fa), np.abs(fb)) >= CEILING
             ok[:, k] = ok_k
         # a value that is NaN (a pole hit) or infinite settles nothing; an exact zero of a
         # function with a floor (the loop transfer, cancelled to 0.0 by rounding far below
@@ -212,24 +260,74 @@ def _accept_columns(la, lb, lm, floors) -> np.ndarray:
     return (ok | ~np.isfinite(rb)) & settled
 
 
-def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], features: np.ndarray,
+class _Table:
+    """The pieces as arrays: the points of many pieces at once (Piece.points, vectorised)."""
+
+    def __init__(self, pieces: list[Piece]):
+        self.kind = np.array([0 if p.kind == "indent" else 1 if p.center is not None else 2 if p.log else 3
+                              for p in pieces])
+        self.a = np.array([p.a for p in pieces], float)
+        self.b = np.array([p.b for p in pieces], float)
+        self.t0 = np.array([p.theta0 for p in pieces], float)
+        self.t1 = np.array([p.theta1 for p in pieces], float)
+        self.c = np.array([p.center if p.center is not None else 0.0 for p in pieces], float)
+        self.sg = np.array([p.sign for p in pieces], float)
+
+    def points(self, pid: np.ndarray, u: np.ndarray) -> np.ndarray:
+        k, a, b = self.kind[pid], self.a[pid], self.b[pid]
+        with np.errstate(all="ignore"):
+            ratio = (b / a) ** u
+            w = np.where(k == 1, self.c[pid] + self.sg[pid] * a * ratio,
+                         np.where(k == 2, a * ratio, a + (b - a) * u))
+            theta = self.t0[pid] + (self.t1[pid] - self.t0[pid]) * u
+            arc = 1j * a + b * np.exp(1j * theta)
+        return np.where(k == 0, arc, 1j * w)
+
+
+def _ends(table: _Table, pa: np.ndarray, ua: np.ndarray, ub: np.ndarray):
+    """The contour points at the ends of the intervals (piece ids pa, parameters ua, ub)."""
+    return table.points(pa, ua), table.points(pa, ub)
+
+
+def trace(pieces: list[Piece], evaluate: Callable, features,
           floors: tuple[float | None, ...], max_samples: int = MAX_SAMPLES,
-          step_ok: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None) -> Trace:
+          step_ok: Callable | None = None,
+          orders: np.ndarray | None = None, max_step=None,
+          chord: float = CHORD, midpoint: float = MIDPOINT, by_piece: bool = False,
+          max_work: int = MAX_WORK) -> Trace:
     """Adaptive sampling of `evaluate` (s -> (M, K) complex logs) along the pieces.
 
     `step_ok(s_a, s_b)` may refuse intervals that are too long whatever the
     samples say: a delay turns the curve by T*dw between two samples, and
-    three samples cannot tell a whole number of turns from none.
+    three samples cannot tell a whole number of turns from none. `orders` (one per
+    column): the traced values are those of f s^q (see stability._origin_orders); a
+    column's floor applies to f. `max_step` seeds the axis no coarser than that (a
+    delay's step rule: fewer halving rounds). `chord` and `midpoint` loosen the two
+    acceptance tests for a trace no count depends on (the margins' extension).
+
+    With `by_piece`, the pieces may belong to many contours (batch.py): `evaluate(s,
+    piece)` and `step_ok(s_a, s_b, piece)` get the piece index of every point, and
+    `features` and `max_step` may be lists with one entry per piece.
     """
+    q = None if orders is None or not np.any(orders) else np.asarray(orders, float)
+    per_piece = q is not None and q.ndim == 2  # one row of orders per piece (batch.py)
+    each = isinstance(features, list)
+    steps = max_step if isinstance(max_step, list) else [max_step] * len(pieces)
+    if by_piece:
+        call, check = evaluate, step_ok
+    else:
+        call = lambda x, _: evaluate(x)  # noqa: E731
+        check = None if step_ok is None else (lambda a, b, _: step_ok(a, b))
+    table = _Table(pieces)
     all_u, all_piece = [], []
     for i, p in enumerate(pieces):
-        u = _seed(p, features)
+        u = _seed(p, features[i] if each else features, steps[i])
         all_u.append(u)
         all_piece.append(np.full(u.size, i))
     u = np.concatenate(all_u)
     pid = np.concatenate(all_piece)
     s = np.concatenate([pieces[i].points(uu) for i, uu in enumerate(all_u)])
-    vals = evaluate(s)
+    vals = call(s, pid)
     # intervals between consecutive samples of the same piece
     pending = np.nonzero(pid[:-1] == pid[1:])[0]
     ia, ib = pending, pending + 1
@@ -239,6 +337,7 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
     sa, sb = s[ia], s[ib]
     out_s, out_v, out_pid, out_u = [s], [vals], [pid], [u]
     unresolved: list[float] = []
+    unresolved_pieces: list[int] = []
     total = s.size
     complete = True
     stuck = None
@@ -246,34 +345,35 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
         if ua.size == 0:
             break
         um = 0.5 * (ua + ub)
-        sm = np.empty(um.size, complex)
-        for i in np.unique(pa):
-            sel = pa == i
-            sm[sel] = pieces[i].points(um[sel])
-        lm = evaluate(sm)
+        sm = table.points(pa, um)
+        lm = call(sm, pa)
         total += sm.size
         out_s.append(sm)
         out_v.append(lm)
         out_pid.append(pa)
         out_u.append(um)
-        ok = _accept(la, lb, lm, floors)
-        if step_ok is not None:
-            sa = np.empty(um.size, complex)
-            sb = np.empty(um.size, complex)
-            for i in np.unique(pa):
-                sel = pa == i
-                sa[sel] = pieces[i].points(ua[sel])
-                sb[sel] = pieces[i].points(ub[sel])
-            ok &= step_ok(sa, sb)
+        shift = None
+        if q is not None:
+            ends_a, ends_b = _ends(table, pa, ua, ub)
+            qr = q[pa] if per_piece else q[None, :]
+            with np.errstate(all="ignore"):
+                shift = tuple(np.where(qr != 0, np.log(x)[:, None] * qr, 0.0) for x in (ends_a, ends_b, sm))
+        ok = _accept(la, lb, lm, floors, shift, chord, midpoint)
+        if check is not None:
+            sa, sb = _ends(table, pa, ua, ub)
+            ok &= check(sa, sb, pa)
         tiny = (ub - ua) < 1e-13
         if np.any(tiny & ~ok):
             unresolved.extend(float(x) for x in sm[tiny & ~ok].imag)
+            unresolved_pieces.extend(int(x) for x in pa[tiny & ~ok])
         redo = ~ok & ~tiny
-        if total > max_samples:
+        if total > max_samples or total * lm.shape[1] > max_work:
             complete = not np.any(redo)
             if not complete:
-                cols = ~_accept_columns(la[redo], lb[redo], lm[redo], floors)
-                by_delay = step_ok is not None and not np.all(step_ok(sa[redo], sb[redo])) \
+                cols = ~_accept_columns(la[redo], lb[redo], lm[redo], floors,
+                                        None if shift is None else tuple(x[redo] for x in shift), chord,
+                                        midpoint)
+                by_delay = check is not None and not np.all(check(sa[redo], sb[redo], pa[redo])) \
                     if sa.shape == um.shape else False
                 w = np.abs(sm[redo].imag)
                 stuck = ((float(w.min()), float(w.max())), tuple(int(c) for c in np.nonzero(cols.any(axis=0))[0]),
@@ -293,8 +393,9 @@ def trace(pieces: list[Piece], evaluate: Callable[[np.ndarray], np.ndarray], fea
     u = np.concatenate(out_u)
     order = np.lexsort((u, pid))
     s, vals, pid = s[order], vals[order], pid[order]
-    on_axis = np.array([pieces[i].kind == "axis" for i in pid], dtype=bool)
-    return Trace(s, vals, on_axis, tuple(sorted(set(unresolved))), complete, stuck)
+    on_axis = np.array([p.kind == "axis" for p in pieces], dtype=bool)[pid]
+    return Trace(s, vals, on_axis, tuple(sorted(set(unresolved))), complete, stuck, pid,
+                 tuple(sorted(set(unresolved_pieces))))
 
 
 def phase_change(values: np.ndarray) -> np.ndarray:

@@ -1,0 +1,484 @@
+"""One wiring in many parameter samples, evaluated and counted at once (the sweeps build on it).
+
+Contract
+--------
+`Batch(reductions)` takes the reductions (engine/reduce.py) of one model resolved with
+different parameter values: the same signals, the same wiring terms in the same order
+(each a gain times a block application or a plain gain), the same breaks. Only the
+values may differ: gains, poles, zeros, delays, even how many poles or zeros a term
+has. A reduction whose wiring differs raises ValueError. Then, for an array `s` of
+points (shape (M,)) shared by every sample:
+
+* `loop_transfer(name, s)` -> complex (samples, M): L_k = -y/v at break `name`;
+* `characteristic(s)` -> (phase, log|.|), each (samples, M): det(I - A(s));
+* `break_terms(name, s)` -> (phase, log|.|, L), each (samples, M): det(I - A_k(s))
+  with break k cut, and L_k (so that det(I - A) = det(I - A_k)(1 + L_k));
+* `open_loop(indent)` -> (P0, axis): per sample, the open right-half-plane poles of all
+  block applications (plus those on the imaginary axis with indent "left") and the
+  frequencies of the poles on the imaginary axis (the contour's indentations);
+* `radius()` -> (samples,): per sample, the certified radius R beyond which no
+  characteristic function of the model has a zero in Re s >= 0 (docs/method.md).
+
+These are the count's inputs: Z = P0 + wind(det(I - A)), P_k = P0 + wind(det(I - A_k)),
+N_k = wind(1 + L_k) on the indented contour up to R. `count()` does that count for every
+sample, certified as for one model: every sample's contour is traced adaptively, all
+samples' points evaluated in one batch per round (and `margins()` refines every
+sample's crossovers together). Values are exact (delays as exp(-sT)); a point on a
+pole gives NaN there. All of it is pure numpy.
+"""
+from __future__ import annotations
+
+from dataclasses import replace
+from typing import Sequence
+
+import numpy as np
+
+from ..results import LoopResponse
+from .blocks import Bank
+from .certificate import ScaledTerms, certificate_radius, scaling
+from .program import build_program
+from .reduce import CANCEL, CHUNK, SAFE_LEVEL, SAFE_PER_PATH, Reduction
+from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_LEVEL, ModelCount, NyquistCount, _dedupe,
+                        _open_rhp, count as count_one)
+from .winding import MAX_SAMPLES, MAX_WORK, Piece, encirclements, trace
+
+__all__ = ["Batch", "StackedBank"]
+
+
+class StackedBank:
+    """The terms of one wiring in many samples: `values(s, which)` gives, for points s[j] of
+    samples which[j], every term's value, shape (M, terms)."""
+
+    def __init__(self, banks: Sequence[Bank], transfers: Sequence[Sequence]):
+        # transfers[i][t]: sample i's term t as (gain, Transfer or None)
+        S, n = len(transfers), len(transfers[0])
+        self.samples, self.size = S, n
+        tfs = [[(g, tf) for g, tf in row] for row in transfers]
+        from ..transfer import Transfer
+        one = Transfer.constant(1.0)
+        full = [[(g, tf if tf is not None else one) for g, tf in row] for row in tfs]
+        q = max(min(tf.zeros.size, tf.poles.size) for row in full for _, tf in row)
+        qz = max(tf.zeros.size - min(tf.zeros.size, tf.poles.size) for row in full for _, tf in row)
+        qp = max(tf.poles.size - min(tf.zeros.size, tf.poles.size) for row in full for _, tf in row)
+        self.k = np.array([[g * tf.gain for g, tf in row] for row in full], float)
+        self.delay = np.array([[tf.delay for _, tf in row] for row in full], float)
+        self.pz, self.pp = np.zeros((S, n, q), complex), np.zeros((S, n, q), complex)
+        self.ez, self.ep = np.zeros((S, n, qz), complex), np.zeros((S, n, qp), complex)
+        self.mp = np.zeros((S, n, q), bool)
+        self.mz, self.mpl = np.zeros((S, n, qz), bool), np.zeros((S, n, qp), bool)
+        for i, row in enumerate(full):
+            for t, (_, tf) in enumerate(row):
+                c = min(tf.zeros.size, tf.poles.size)
+                self.pz[i, t, :c], self.pp[i, t, :c], self.mp[i, t, :c] = tf.zeros[:c], tf.poles[:c], True
+                self.ez[i, t, :tf.zeros.size - c], self.mz[i, t, :tf.zeros.size - c] = tf.zeros[c:], True
+                self.ep[i, t, :tf.poles.size - c], self.mpl[i, t, :tf.poles.size - c] = tf.poles[c:], True
+        self.has_delay = bool(np.any(self.delay > 0))
+
+    def values(self, s: np.ndarray, which: np.ndarray) -> np.ndarray:
+        s = np.asarray(s, complex).ravel()
+        x = s[:, None, None]
+        with np.errstate(all="ignore"):
+            out = self.k[which].astype(complex)
+            if self.pz.shape[2]:
+                out *= np.prod(np.where(self.mp[which], (x - self.pz[which]) / (x - self.pp[which]), 1.0), axis=2)
+            if self.ez.shape[2]:
+                out *= np.prod(np.where(self.mz[which], x - self.ez[which], 1.0), axis=2)
+            if self.ep.shape[2]:
+                out /= np.prod(np.where(self.mpl[which], x - self.ep[which], 1.0), axis=2)
+            if self.has_delay:
+                out *= np.exp(-s[:, None] * self.delay[which])
+        return out
+
+
+def _structure(red: Reduction):
+    return (red.signals, tuple((i.row, i.col, i.transfer is None) for i in red.instances),
+            tuple(sorted((k, tuple(sorted(v))) for k, v in red.cut_sets.items())),
+            tuple((c.signals, c.instances, c.breaks) for c in red.components))
+
+
+class _Stacked:
+    """One loop component in every sample: a shared elimination program over stacked values."""
+
+    def __init__(self, comps: list, big: set[int]):
+        first = comps[0]
+        self.comps, self.breaks = comps, first.breaks
+        self.bank = StackedBank([c.bank for c in comps], [[(g, tf) for _, _, g, tf in c.entries] for c in comps])
+        ends = [(row, col) for row, col, _, _ in first.entries]
+        measured = [first.entries[p[0]][1] if p else None for p in first.cut_positions]
+        cuts = [frozenset(p) for p in first.cut_positions]
+        members = list(first.signals)
+        self.program = build_program(members, ends, measured, cuts, big)
+        self.safe = build_program(members, ends, measured, cuts, big, most=SAFE_PER_PATH) if big else None
+        self.big = sorted(big)
+
+    def _groups(self, V):
+        groups = [(np.arange(V.shape[0]), self.program)]
+        if self.safe is not None:
+            with np.errstate(all="ignore"):
+                risky = ~(np.max(np.abs(V[:, self.big]), axis=1) < SAFE_LEVEL)
+            groups = [(np.nonzero(~risky)[0], self.program), (np.nonzero(risky)[0], self.safe)]
+        out = []
+        for idx, prog in groups:
+            per_point = len(prog.feeds) * (prog.n_kept + len(self.breaks) + 1) + prog.n_kept ** 2
+            step = max(64, int(CHUNK / per_point))
+            out += [(idx[i:i + step], prog) for i in range(0, idx.size, step)]
+        return [(i, p) for i, p in out if i.size]
+
+    def terms(self, s, which, breaks: int | None = None):
+        """log det(I - A_c), log(1 + g_k), L_k at points s of samples which (as Component.terms)."""
+        s = np.asarray(s, complex).ravel()
+        B = len(self.breaks) if breaks is None else breaks
+        log_det = np.zeros(s.size, complex)
+        g = np.zeros((s.size, len(self.breaks)), complex)
+        with np.errstate(all="ignore"):
+            V = self.bank.values(s, which)
+            for idx, prog in self._groups(V):
+                ph, lg, g[idx] = prog.values(V[idx])
+                log_det[idx] = lg + 1j * ph
+            g = g[:, :B]
+            one_g = 1.0 + g
+            L = -g / one_g
+            log_one_g = np.log(one_g + 0j)
+            bad = ~(np.abs(one_g) > CANCEL * np.maximum(1.0, np.abs(g)))
+            for k in np.nonzero(bad.any(axis=0))[0]:
+                rows = np.nonzero(bad[:, k])[0]
+                ph, lg, Lk = self.direct(int(k), s[rows], which[rows])
+                log_one_g[rows, k] = (lg + 1j * ph) - log_det[rows]
+                L[rows, k] = Lk
+        return log_det, log_one_g, L
+
+    def direct(self, b: int, s, which):
+        s = np.asarray(s, complex).ravel()
+        phase, logabs, L = np.zeros(s.size), np.zeros(s.size), np.zeros(s.size, complex)
+        with np.errstate(all="ignore"):
+            V = self.bank.values(s, which)
+            for idx, prog in self._groups(V):
+                phase[idx], logabs[idx], L[idx] = prog.direct(V[idx], b)
+        return phase, logabs, L
+
+    def loops(self, s, which, cols):
+        """L of break cols[j] at s[j] of sample which[j] (the margins' evaluator)."""
+        s = np.asarray(s, complex).ravel()
+        g = np.empty(s.size, complex)
+        with np.errstate(all="ignore"):
+            V = self.bank.values(s, which)
+            for idx, prog in self._groups(V):
+                g[idx] = prog.selected(V[idx], cols[idx])
+            L = -g / (1.0 + g)
+            bad = ~(np.abs(1.0 + g) > CANCEL * np.maximum(1.0, np.abs(g)))
+            for k in np.unique(cols[bad]):
+                rows = np.nonzero(bad & (cols == k))[0]
+                L[rows] = self.direct(int(k), s[rows], which[rows])[2]
+        return L
+
+    def phase_at(self, V, b):
+        with np.errstate(all="ignore"):
+            return self.program.values(V)[0] if b is None else self.program.direct(V, b)[0]
+
+
+class Batch:
+    """One wiring in many parameter samples (see the module text for the contract)."""
+
+    def __init__(self, reductions: Sequence[Reduction]):
+        if not reductions:
+            raise ValueError("a batch needs at least one sample")
+        shape = _structure(reductions[0])
+        for r in reductions[1:]:
+            if _structure(r) != shape:
+                raise ValueError("every sample of a batch must have the same wiring (signals, terms, breaks)")
+        self.reductions = tuple(reductions)
+        first = reductions[0]
+        self.breaks = tuple(b.stmt.name for b in first.diagram.breaks)
+        self.stacks = []
+        for c, comp in enumerate(first.components):
+            comps = [r.components[c] for r in reductions]
+            big = {p for cc in comps for p in cc.big}
+            self.stacks.append(_Stacked(comps, big))
+        self._where = {name: (c, st.breaks.index(name)) for c, st in enumerate(self.stacks) for name in st.breaks}
+
+    @property
+    def samples(self) -> int:
+        return len(self.reductions)
+
+    def _grid(self, s):
+        s = np.asarray(s, complex).ravel()
+        which = np.repeat(np.arange(self.samples), s.size)
+        return np.tile(s, self.samples), which, s.size
+
+    # --- the contract: values at shared points -------------------------------------
+    def loop_transfer(self, name: str, s) -> np.ndarray:
+        """L at break `name`, shape (samples, len(s))."""
+        c, k = self._where[name]
+        pts, which, m = self._grid(s)
+        return self.stacks[c].direct(k, pts, which)[2].reshape(self.samples, m)
+
+    def characteristic(self, s) -> tuple[np.ndarray, np.ndarray]:
+        """Phase and log|.| of det(I - A), each (samples, len(s))."""
+        pts, which, m = self._grid(s)
+        total = np.zeros(pts.size, complex)
+        for st in self.stacks:
+            total += st.terms(pts, which, 0)[0]
+        return np.angle(np.exp(1j * total.imag)).reshape(self.samples, m), total.real.reshape(self.samples, m)
+
+    def break_terms(self, name: str, s) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Phase and log|.| of det(I - A_k) (break `name` cut) and L_k, each (samples, len(s))."""
+        c, k = self._where[name]
+        pts, which, m = self._grid(s)
+        log_det = np.zeros(pts.size, complex)
+        for i, st in enumerate(self.stacks):
+            if i != c:
+                log_det += st.terms(pts, which, 0)[0]
+        ph, lg, L = self.stacks[c].direct(k, pts, which)
+        log_det += lg + 1j * ph
+        shape = (self.samples, m)
+        return np.angle(np.exp(1j * log_det.imag)).reshape(shape), log_det.real.reshape(shape), L.reshape(shape)
+
+    def open_loop(self, indent: str = "right") -> tuple[np.ndarray, list[np.ndarray]]:
+        """Per sample: P0 (open right-half-plane poles of every application) and the
+        frequencies of the poles on the imaginary axis."""
+        P0, axis = [], []
+        for r in self.reductions:
+            poles = r.block_poles()
+            P0.append(_open_rhp(poles, indent))
+            axis.append(np.unique(np.abs(poles[poles.real == 0].imag)))
+        return np.array(P0), axis
+
+    def radius(self) -> np.ndarray:
+        """Per sample, the certified radius R (the largest over the loop components)."""
+        out = np.zeros(self.samples)
+        for i, r in enumerate(self.reductions):
+            for comp in r.components:
+                d = scaling(comp)
+                out[i] = max(out[i], certificate_radius(comp, ScaledTerms(comp, d), [(), *comp.cut_positions])[0])
+        return out
+
+    # --- the certified count of every sample -----------------------------------------
+    def count(self, indent: str = "right", for_margins: bool = True) -> list[ModelCount]:
+        """Every sample's Z and break counts, as stability.count gives them for one model,
+        with every sample's contour traced in the same batched rounds."""
+        from .stability import prepare
+        contours = [prepare(r, indent, for_margins) for r in self.reductions]
+        Z = np.array([sum(_open_rhp(p, indent) for p in _outside_poles(r)) for r in self.reductions])
+        per = [dict() for _ in self.reductions]
+        redo: set[int] = set()
+        for c, st in enumerate(self.stacks):
+            cts = [cs[c] for cs in contours]
+            zc, counts, marginal = _count_stacked(st, cts)
+            Z += zc
+            redo |= marginal
+            for i in range(self.samples):
+                for name, cnt in counts[i].items():
+                    per[i][name] = (cnt, zc[i])
+        out = []
+        for i, r in enumerate(self.reductions):
+            if i in redo:  # a closed-loop pole on the axis: recount that sample alone
+                out.append(count_one(r, indent, for_margins))
+                continue
+            counts = {n: replace(cnt, P=cnt.P + Z[i] - zc, Z=cnt.Z + Z[i] - zc) for n, (cnt, zc) in per[i].items()}
+            out.append(ModelCount(int(Z[i]), (), counts))
+        return out
+
+    def evaluator(self, name_rows: list[tuple[int, str]]):
+        """The margins' evaluator for curves (sample, break name): evaluate(s, i) gives L of
+        curve i[j] at s[j]."""
+        comp_of = np.array([self._where[n][0] for _, n in name_rows])
+        col_of = np.array([self._where[n][1] for _, n in name_rows])
+        sample_of = np.array([i for i, _ in name_rows])
+
+        def evaluate(s, i):
+            s = np.asarray(s, complex).ravel()
+            i = np.broadcast_to(np.asarray(i, int), s.shape).ravel()
+            out = np.empty(s.size, complex)
+            for c in np.unique(comp_of[i]):
+                sel = np.nonzero(comp_of[i] == c)[0]
+                out[sel] = self.stacks[c].loops(s[sel], sample_of[i[sel]], col_of[i[sel]])
+            return out
+
+        return evaluate
+
+
+def _outside_poles(r: Reduction) -> list[np.ndarray]:
+    out = [r.instances[k].transfer.poles for k in r.outside if r.instances[k].transfer is not None]
+    return out + [t.app.transfer.poles for t in r.exogenous]
+
+
+def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set[int]]:
+    """One loop component in every sample: each sample's Z_c and break counts (P, N local to
+    the component, as stability._count_component gives them), and the samples with a
+    closed-loop pole on the axis (counted again alone by the caller)."""
+    S, B = len(cts), len(st.breaks)
+    pieces, owner = [], []
+    for i, ct in enumerate(cts):
+        pieces += list(ct.pieces)
+        owner += [i] * len(ct.pieces)
+    owner = np.array(owner)
+    q = _orders(st, cts)
+    features = [cts[i].features for i in owner]
+    steps = [_max_step(st, i) for i in owner]
+
+    def evaluate(s, pid):
+        which = owner[pid]
+        log_det, log_one_g, L = st.terms(s, which)
+        with np.errstate(all="ignore"):
+            v = np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
+            qq = q[which]
+            return v + np.where(qq != 0, np.log(s)[:, None] * qq, 0.0)
+
+    floors = (None,) * (1 + B) + (1e-2,) * B
+    tr = trace(pieces, evaluate, features, floors, MAX_SAMPLES * S, _step_ok(st, owner) if st.bank.has_delay
+               else None, orders=q[owner], max_step=steps, by_piece=True, max_work=MAX_WORK * S)
+    if not tr.complete:
+        return np.zeros(S, int), [dict() for _ in range(S)], set(range(S))
+    closes = _closing(st, cts)
+    ext = _extension(st, cts) if B else None
+    sample_of = owner[tr.pid]
+    ext_of = None if ext is None else ext[1][ext[0].pid]
+    zc, counts, redo = np.zeros(S, int), [], set()
+    # where sampling could not settle, the one-model count words the warnings
+    redo |= {int(owner[p]) for p in tr.unresolved_pieces}
+    if ext is not None:
+        if not ext[0].complete:
+            redo |= set(ext[1].tolist())
+        redo |= {int(ext[1][p]) for p in ext[0].unresolved_pieces}
+    for i, ct in enumerate(cts):
+        rows = np.nonzero(sample_of == i)[0]
+        vals, s0, on0 = tr.values[rows], tr.s[rows], tr.on_axis[rows]
+        turn = float(np.angle(s0[-1]) - np.angle(s0[0]))
+        with np.errstate(invalid="ignore"):
+            d = np.diff(vals, axis=0).imag
+        d = np.where(np.isfinite(d), (d + np.pi) % (2 * np.pi) - np.pi, 0.0)
+        stp = d.sum(axis=0) - q[i] * turn
+        close_full = closes[i][0]
+        wz, err = encirclements(stp[0] + close_full)
+        zc[i] = ct.P0 + wz
+        er = np.nonzero(ext_of == i)[0][1:] if ext is not None else np.zeros(0, int)
+        mine = {}
+        for k, name in enumerate(st.breaks):
+            close_k = closes[i][1 + k]
+            wk, err_k = encirclements(stp[0] + stp[1 + k] + close_k)
+            N, err_n = encirclements(-stp[1 + k] + close_full - close_k)
+            err = max(err, err_k, err_n)
+            qk = q[i, 1 + B + k]
+            with np.errstate(all="ignore"):
+                L = np.exp(vals[:, 1 + B + k] - (qk * np.log(s0) if qk else 0.0))
+            s, on_axis = s0, on0
+            if er.size:
+                s = np.concatenate([s0, ext[0].s[er]])
+                L = np.concatenate([L, np.exp(ext[0].values[er, k])])
+                on_axis = np.concatenate([on0, ext[0].on_axis[er]])
+            response = LoopResponse(*_dedupe(s, L, on_axis), ct.axis_freqs)
+            if _touches(response):
+                redo.add(i)
+            P = ct.P0 + wk
+            mine[name] = NyquistCount(P, N, P + N, False, None, (), response)
+        if err > 1e-3:
+            redo.add(i)  # a residual: the one-model count words the warning
+        counts.append(mine)
+    return zc, counts, redo
+
+
+def _touches(resp: LoopResponse) -> bool:
+    """A sample whose 1 + L comes near zero on the axis: the one-model count decides it."""
+    L = resp.axis_L
+    with np.errstate(invalid="ignore"):
+        rel = np.nan_to_num(np.abs(1.0 + L) / (1.0 + np.abs(L)), nan=1.0)
+    return bool(rel.size and rel.min() < 1e-3)
+
+
+def _orders(st: _Stacked, cts: list) -> np.ndarray:
+    """stability._origin_orders for every sample: (samples, columns)."""
+    B = len(st.breaks)
+    q = np.zeros((len(cts), 1 + 2 * B))
+    idx = [i for i, ct in enumerate(cts) if ct.pieces[0].kind == "indent" and ct.pieces[0].a == 0.0]
+    if not idx:
+        return q
+    eps = np.array([cts[i].pieces[0].b for i in idx])
+    th = np.array([cts[i].pieces[0].theta0 for i in idx])
+    s = np.concatenate([2.0 * eps * np.exp(1j * th), 20.0 * eps * np.exp(1j * th)])
+    which = np.concatenate([idx, idx])
+    log_det, log_one_g, L = st.terms(s, which)
+    with np.errstate(all="ignore"):
+        v = np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
+        n = len(idx)
+        slope = -(v[n:].real - v[:n].real) / np.log(10.0)
+        whole = np.round(slope)
+        ok = np.isfinite(slope) & (np.abs(slope - whole) < 0.05)
+    q[idx] = np.where(ok, whole, 0.0)
+    return q
+
+
+def _max_step(st: _Stacked, i: int) -> float | None:
+    total = float(st.bank.delay[i].sum())
+    return 0.3 / total if total > 0 else None
+
+
+def _step_ok(st: _Stacked, owner: np.ndarray):
+    """The delay step rule (Component.step_ok) for points of many samples."""
+    delayed = np.nonzero(np.any(st.bank.delay > 0, axis=0))[0]
+
+    def ok(sa, sb, pid):
+        which = owner[pid]
+        with np.errstate(all="ignore"):
+            big = np.maximum(np.abs(st.bank.values(sa, which)[:, delayed]),
+                             np.abs(st.bank.values(sb, which)[:, delayed]))
+        rate = np.where(~(big < 1e-6), st.bank.delay[which][:, delayed], 0.0).sum(axis=1)
+        return np.abs(sb - sa) * rate <= np.pi / 4
+
+    return ok
+
+
+def _closing(st: _Stacked, cts: list) -> list[list[float]]:
+    """certificate.closing_phase for every sample and cut, the t-samples of all samples in
+    one evaluation per cut; a sample whose steps are not fine enough is done alone."""
+    from .certificate import closing_phase
+    S, n = len(cts), 16
+    t = np.linspace(0.0, 1.0, n + 1)
+    rows, which = [], []
+    for i, ct in enumerate(cts):
+        terms, d = ct.terms, ct.scaling
+        s = np.array([complex(ct.R, 0.0), complex(0.0, ct.R)])
+        with np.errstate(all="ignore"):
+            V = st.bank.values(s, np.array([i, i]))
+            expo = (d[terms.rows] - d[terms.cols])[None, :]
+            V0 = np.where(terms.delayed, 0.0, terms.limit)[None, :] * s[:, None] ** expo
+        for k in range(2):
+            rows.append(V0[k][None, :] + t[:, None] * (V[k] - V0[k])[None, :])
+            which.append(i)
+    Vt = np.concatenate(rows)
+    out = [[0.0] * (1 + len(st.breaks)) for _ in range(S)]
+    for col, b in enumerate([None, *range(len(st.breaks))]):
+        phase = st.phase_at(Vt, b).reshape(S, 2, n + 1)
+        steps = (np.diff(phase, axis=2) + np.pi) % (2 * np.pi) - np.pi
+        for i in range(S):
+            if np.max(np.abs(steps[i])) < np.pi / 8:
+                out[i][col] = float(steps[i, 0].sum() - steps[i, 1].sum())
+            else:
+                comp = cts[i].component
+                out[i][col] = closing_phase(comp, cts[i].terms, cts[i].scaling, b, cts[i].R)
+    return out
+
+
+def _extension(st: _Stacked, cts: list):
+    """stability._extension for every sample: (trace, owner of each piece)."""
+    B = len(st.breaks)
+    pieces, owner = [], []
+    for i, ct in enumerate(cts):
+        if ct.reach > ct.R * (1 + 1e-12):
+            pieces.append(Piece("axis", ct.R, ct.reach, log=True))
+            owner.append(i)
+    if not pieces:
+        return None
+    owner = np.array(owner)
+
+    def evaluate(s, pid):
+        which = owner[pid]
+        _, _, L = st.terms(s, which)
+        with np.errstate(all="ignore"):
+            return np.log(L + 0j)
+
+    steps = [None if _max_step(st, i) is None else 2.0 * _max_step(st, i) for i in owner]
+    tr = trace(pieces, evaluate, [np.zeros(0)] * len(pieces), (REACH_LEVEL / 5,) * B,
+               EXTENSION_SAMPLES * len(pieces), _step_ok(st, owner) if st.bank.has_delay else None,
+               max_step=steps, chord=EXTENSION_CHORD, midpoint=0.3, by_piece=True,
+               max_work=MAX_WORK * len(pieces))
+    return tr, owner

@@ -1,0 +1,335 @@
+"""One component's elimination program: the kept signals, the order of the rest (reduce stage).
+
+Local node numbers put the kept signals K first (0 .. |K| - 1) and the eliminated
+ones H after, in topological order (H carries no loop). `feeds[node]` lists the terms
+(bank position, local source) of that node's equation; `inject[node]` the cut terms
+(bank position, break column) whose head it is. Propagating through H in that order
+gives the Schur complement S = A_KK + A_KH (I - A_HH)^-1 A_HK and every break's
+injection U at once (I - A_HH is unit triangular: det(I - A_c) = det(I - S)).
+
+Eliminating H needs no pivoting, but a term that is huge at s (next to its own pole)
+would then be multiplied into every path through it. So the outputs of the terms with
+a pole on or right of the imaginary axis are kept as well: next to such a pole the
+huge values sit in S, where the pivoted solve handles them, and no path multiplies
+two of them (tens of integrators in series would overflow near s = 0).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["Program", "build_program", "solve"]
+
+
+def solve(M: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Batched solve; a point where the matrix is singular (s on a pole) gives NaN there."""
+    try:
+        return np.linalg.solve(M, b)
+    except np.linalg.LinAlgError:
+        out = np.full(b.shape, np.nan + 0j)
+        for i in range(M.shape[0]):
+            try:
+                out[i] = np.linalg.solve(M[i], b[i])
+            except np.linalg.LinAlgError:
+                pass
+        return out
+
+
+def _logdet(M: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    if M.shape[1] == 1:
+        d = M[:, 0, 0]
+        return np.angle(d), np.log(np.abs(d))
+    sign, logabs = np.linalg.slogdet(M)
+    return np.angle(sign), logabs
+
+
+@dataclass(frozen=True, eq=False)
+class Program:
+    """Elimination order and propagation tables of one component (see the module text)."""
+
+    kept: tuple[int, ...]  # global signal indices, first in the local order
+    feeds: tuple[tuple[tuple[int, int], ...], ...]
+    inject: tuple[tuple[tuple[int, int], ...], ...]
+    measured: tuple[int, ...]  # per break: local node of its signal (kept or eliminated)
+    cuts: tuple[frozenset[int], ...]  # per break: bank positions of its cut terms
+    head: dict  # bank position -> local node it feeds
+
+    @property
+    def n_kept(self) -> int:
+        return len(self.kept)
+
+    # --- every break at once (Sherman-Morrison) -------------------------------------
+    def values(self, V: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Phase and log|.| of det(I - A_c), and g_k = e_sig^T (I - A_c)^-1 u_k for every break."""
+        m = V.shape[0]
+        S, U, Xm = self._reduced(V, m)
+        M = np.eye(self.n_kept)[None] - S
+        phase, logabs = _logdet(M)
+        if not U.shape[2]:
+            return phase, logabs, np.zeros((m, 0), complex)
+        X = U / M[:, :1, :1] if self.n_kept == 1 else solve(M, U)
+        g = self._measure(X, Xm)
+        if self.n_kept > 1:
+            # one step of iterative refinement where some g_k is small: where the loops'
+            # gains are huge (integrators at low frequency) the solve alone leaves noise
+            # far above a tiny g_k
+            idx = np.nonzero(np.any(np.abs(g) < 1e-6, axis=1))[0]
+            if idx.size:
+                X = X[idx] + solve(M[idx], U[idx] - M[idx] @ X[idx])
+                g[idx] = self._measure(X, [None if x is None else x[idx] for x in Xm])
+        return phase, logabs, g
+
+    def _measure(self, X: np.ndarray, Xm) -> np.ndarray:
+        """g_k from the kept values of every break's solution (X: points, kept, breaks)."""
+        g = np.empty((X.shape[0], X.shape[2]), complex)
+        for b, node in enumerate(self.measured):
+            g[:, b] = X[:, node, b] if Xm[b] is None else \
+                np.sum(Xm[b][:, :self.n_kept] * X[:, :, b], axis=1) + Xm[b][:, self.n_kept + b]
+        return g
+
+    def selected(self, V: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        """g_k of break cols[j] at point j: one injection column, chosen point by point."""
+        m = V.shape[0]
+        nk = self.n_kept
+        pick = [cols == b for b in range(len(self.measured))]
+        X: list[np.ndarray | None] = [None] * len(self.feeds)
+        rows = np.zeros((m, nk, nk + 1), complex)
+        for node in list(range(nk, len(self.feeds))) + list(range(nk)):
+            acc = rows[:, node] if node < nk else np.zeros((m, nk + 1), complex)
+            for p, src in self.feeds[node]:
+                if src < nk:
+                    acc[:, src] += V[:, p]
+                else:
+                    acc += V[:, p, None] * X[src]
+            for p, b in self.inject[node]:
+                acc[:, nk] += np.where(pick[b], V[:, p], 0.0)
+            if node >= nk:
+                X[node] = acc
+        M = np.eye(nk)[None] - rows[:, :, :nk]
+        x = self._solve_refined(M, rows[:, :, nk:])[:, :, 0]
+        g = np.empty(m, complex)
+        for b, node in enumerate(self.measured):
+            sel = pick[b]
+            if not sel.any():
+                continue
+            if node < nk:
+                g[sel] = x[sel, node]
+            else:
+                g[sel] = np.sum(X[node][sel, :nk] * x[sel], axis=1) + X[node][sel, nk]
+        return g
+
+    def _solve_refined(self, M: np.ndarray, B: np.ndarray) -> np.ndarray:
+        if self.n_kept == 1:
+            return B / M[:, :1, :1]
+        # one step of iterative refinement: where the loops' gains are huge (integrators at
+        # low frequency) the solve alone leaves noise far above a tiny g_k
+        X = solve(M, B)
+        return X + solve(M, B - M @ X)
+
+    def _reduced(self, V: np.ndarray, m: int):
+        """S (m, |K|, |K|), U (m, |K|, breaks) and, for each break whose signal is eliminated,
+        that signal's row [coefficients of x_K | injections] (None where it is kept)."""
+        nk = self.n_kept
+        width = nk + len(self.measured)
+        X: list[np.ndarray | None] = [None] * len(self.feeds)
+        rows = np.zeros((m, nk, width), complex)
+        for node in list(range(nk, len(self.feeds))) + list(range(nk)):
+            acc = rows[:, node] if node < nk else np.zeros((m, width), complex)
+            for p, src in self.feeds[node]:
+                if src < nk:
+                    acc[:, src] += V[:, p]
+                else:
+                    acc += V[:, p, None] * X[src]
+            for p, b in self.inject[node]:
+                acc[:, nk + b] += V[:, p]
+            if node >= nk:
+                X[node] = acc
+        Xm = [None if node < nk else X[node] for node in self.measured]
+        return rows[:, :, :nk], rows[:, :, nk:], Xm
+
+    # --- one break with its wires cut -------------------------------------------------
+    def direct(self, V: np.ndarray, b: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Phase and log|.| of det(I - A_k), and L_k, with break b's wires cut.
+
+        The cut terms only inject (no subtraction forms S_k), and one step of iterative
+        refinement with the residual of the whole, unreduced system (I - A_k) x = u_k
+        recovers what the reduction loses where L_k is many decades below its peak.
+        """
+        m = V.shape[0]
+        skip = self.cuts[b]
+        rhs = np.zeros((m, len(self.feeds)), complex)
+        for p in skip:
+            rhs[:, self.head[p]] += V[:, p]
+        X, S, c, const = self._propagate(V, m, skip, rhs)
+        M = np.eye(self.n_kept)[None] - S
+        phase, logabs = _logdet(M)
+        x = self._finish(X, M, c, const)
+        r = rhs - self._apply(V, skip, x)
+        _, _, dc, dconst = self._propagate(V, m, skip, r, X)
+        x = x + self._finish(X, M, dc, dconst)
+        return phase, logabs, -x[:, self.measured[b]]
+
+    def _propagate(self, V, m: int, skip, rhs, X=None):
+        """Each eliminated node as [coefficients of x_K | constant from `rhs`]; returns the
+        coefficient arrays X (reused when given), S_k, the reduced right-hand side c and
+        the constants."""
+        nk, nodes = self.n_kept, len(self.feeds)
+        fresh = X is None
+        if fresh:
+            X = [None] * nodes
+        const: list[np.ndarray | None] = [None] * nodes
+        S = np.zeros((m, nk, nk), complex)
+        c = rhs[:, :nk].copy()
+        for node in list(range(nk, nodes)) + list(range(nk)):
+            kept = node < nk
+            coef = S[:, node] if kept else (np.zeros((m, nk), complex) if fresh else None)
+            acc = c[:, node] if kept else rhs[:, node].copy()
+            for p, src in self.feeds[node]:
+                if p in skip:
+                    continue
+                if src < nk:
+                    if fresh or kept:
+                        coef[:, src] += V[:, p]
+                else:
+                    if fresh or kept:
+                        coef += V[:, p, None] * X[src]
+                    acc += V[:, p] * const[src]
+            if not kept:
+                if fresh:
+                    X[node] = coef
+                const[node] = acc
+        return X, S, c, const
+
+    def _finish(self, X, M, c, const) -> np.ndarray:
+        """Every node's value: x_K = M^-1 c, x_H = X x_K + constants."""
+        nk = self.n_kept
+        xk = c / M[:, 0, :1] if nk == 1 else solve(M, c[:, :, None])[:, :, 0]
+        out = np.zeros((c.shape[0], len(self.feeds)), complex)
+        out[:, :nk] = xk
+        for node in range(nk, len(self.feeds)):
+            out[:, node] = np.sum(X[node] * xk, axis=1) + const[node]
+        return out
+
+    def _apply(self, V, skip, x) -> np.ndarray:
+        """(I - A_k) x, node by node (the whole, unreduced system)."""
+        out = x.copy()
+        for node, fs in enumerate(self.feeds):
+            for p, src in fs:
+                if p not in skip:
+                    out[:, node] -= V[:, p] * x[:, src]
+        return out
+
+
+def _feedback_set(members: list[int], ends, keep: list[int]) -> list[int]:
+    """`keep` first, then a small set of signals whose removal leaves no loop.
+
+    The reductions of Levy and Low ("A contraction algorithm for finding small cycle
+    cutsets", J. Algorithms 9, 1988): a signal with a loop onto itself must be kept; one
+    with no predecessor or no successor lies on no loop; one with a single predecessor
+    (or successor) can be bypassed, its loops all pass that neighbour. When none applies,
+    the signal with the most loop edges is kept. A nested cascade reduces to one signal.
+    """
+    kept = list(dict.fromkeys(keep))
+    succ: dict[int, set[int]] = {m: set() for m in members if m not in kept}
+    pred: dict[int, set[int]] = {m: set() for m in succ}
+    for row, col in ends:
+        if col in succ and row in succ:
+            succ[col].add(row)
+            pred[row].add(col)
+
+    def remove(v: int) -> None:
+        for w in succ.pop(v):
+            pred[w].discard(v)
+        for u in pred.pop(v):
+            succ[u].discard(v)
+
+    while succ:
+        changed = False
+        for v in sorted(succ):
+            if v not in succ:
+                continue
+            if v in succ[v]:
+                kept.append(v)
+                remove(v)
+            elif not pred[v] or not succ[v]:
+                remove(v)
+            elif len(pred[v]) == 1 or len(succ[v]) == 1:
+                ins, outs = set(pred[v]), set(succ[v])
+                remove(v)
+                for u in ins:
+                    for w in outs:
+                        succ[u].add(w)
+                        pred[w].add(u)
+            else:
+                continue
+            changed = True
+        if not changed:
+            v = max(sorted(succ), key=lambda x: len(pred[x]) * len(succ[x]))
+            kept.append(v)
+            remove(v)
+    return kept
+
+
+def _topological(nodes: list[int], ends) -> list[int]:
+    node_set = set(nodes)
+    deps = {v: set() for v in nodes}
+    for row, col in ends:
+        if row in node_set and col in node_set:
+            deps[row].add(col)
+    out, done = [], set()
+    pending = sorted(nodes)
+    while pending:
+        ready = [v for v in pending if deps[v] <= done]
+        out.extend(ready)
+        done.update(ready)
+        pending = [v for v in pending if v not in done]
+    return out
+
+
+def _bound_paths(kept: list[int], order: list[int], ends, big: set[int], most: int) -> list[int]:
+    """Keep, in topological order, each eliminated signal that more than `most` big terms
+    reach along a path through the eliminated ones (so no product of more than `most`
+    huge values forms: tens of integrators in series would overflow near s = 0)."""
+    kept = list(kept)
+    depth: dict[int, int] = {}
+    into: dict[int, list[tuple[int, int]]] = {}
+    for p, (row, col) in enumerate(ends):
+        into.setdefault(row, []).append((p, col))
+    for v in order:
+        d = max((int(p in big) + (0 if col in kept else depth.get(col, 0)) for p, col in into.get(v, ())),
+                default=0)
+        if d > most:
+            kept.append(v)
+        else:
+            depth[v] = d
+    return kept
+
+
+#: at most this many terms with a pole on or right of the axis multiply along one path
+#: (points where one of them exceeds reduce.SAFE_LEVEL use a program that keeps them all)
+BIG_PER_PATH = 12
+
+
+def build_program(members: list[int], ends: list[tuple[int, int]], measured: list[int],
+                  cuts: list[frozenset[int]], big: set[int], keep_also: list[int] = (),
+                  most: int = BIG_PER_PATH) -> Program:
+    """The program for a component: `ends` (row, col) per bank position, `measured` the
+    global signals of its breaks, `cuts` their cut bank positions, `big` the positions of
+    the terms with a pole in Re s >= 0, `keep_also` signals to keep whatever, `most` the
+    big terms allowed on one path through the eliminated signals."""
+    kept = _feedback_set(members, ends, [k for k in keep_also if k in members])
+    order = _topological([m for m in members if m not in kept], ends)
+    kept = _bound_paths(kept, order, ends, big, most)
+    eliminated = [v for v in order if v not in kept]
+    local = {g: i for i, g in enumerate(kept + eliminated)}
+    feeds: list[list[tuple[int, int]]] = [[] for _ in local]
+    inject: list[list[tuple[int, int]]] = [[] for _ in local]
+    for p, (row, col) in enumerate(ends):
+        feeds[local[row]].append((p, local[col]))
+    for b, cut in enumerate(cuts):
+        for p in sorted(cut):
+            inject[local[ends[p][0]]].append((p, b))
+    head = {p: local[row] for p, (row, _) in enumerate(ends)}
+    return Program(tuple(kept), tuple(map(tuple, feeds)), tuple(map(tuple, inject)),
+                   tuple(local[g] for g in measured), tuple(cuts), head)
