@@ -63,9 +63,6 @@ class Diagram:
     findings: tuple[Finding, ...]
     cycles_complete: bool = True
 
-    def index(self) -> dict[str, int]:
-        return {n: i for i, n in enumerate(self.signals)}
-
 
 def _feeds(term: Term) -> bool:
     """Whether the term passes its input through at infinite frequency without delay."""
