@@ -79,6 +79,32 @@ def test_phase_at_the_lowest_drawn_frequency_sits_on_the_asymptote(loops, name, 
     assert start - 5.0 <= phase.imag[0] <= start + 5.0
 
 
+def test_loop_fallen_to_rounding_noise_at_low_frequency_still_draws():
+    """Inside a closed nested cascade an inner break's L has many zeros at s = 0: at
+    1e-10 rad/s |L| is rounding noise (about 1e-80, with exact zeros among it). The
+    asymptote is read where successive slopes agree, beyond the noise; reading it off
+    the lowest two samples gave 0.0 to a negative power (an internal error that lost
+    the whole `report`). The slope where it is read is checked against the phase the
+    view draws there: -90 deg per net integrator, i.e. +90 deg per zero at s = 0."""
+    import sys
+    sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+    from reference.loopsets import nested_cascade
+    from loopwise.analysis import check_text
+    from loopwise.report.geometry import _asymptote, unwrapped_phase_deg
+
+    result = check_text(nested_cascade(8).text())
+    for b in result.breaks:
+        n, _, i = _asymptote(b.response)
+        L = b.response.axis_L
+        assert abs(L[i]) > 0 and np.isfinite(L[i])
+        phase = unwrapped_phase_deg(b.response)
+        # the drawn branch at the anchor is -90 n deg (positive gain: every C and G here)
+        assert phase[i] == pytest.approx(-90.0 * n, abs=5.0)
+        drawn = drawn_line(plots.bode_figure(b), "bode-phase")
+        assert np.isfinite(drawn.imag).sum() > 10
+        plots.sensitivity_figure(b)  # raised the same internal error before
+
+
 @pytest.mark.parametrize("source", ["type_three", "conditionally_stable/elevation"])
 def test_the_critical_line_of_a_type_three_loop_is_minus_180(loops, demo, source):
     result = loops[source] if source in loops else demo[source][1]

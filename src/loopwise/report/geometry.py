@@ -111,21 +111,43 @@ def low_frequency_asymptote(response: LoopResponse) -> tuple[int, int]:
     """(n, sign): L ~ c / s^n with sign(c) = sign, read off the lowest axis samples.
 
     n is the net number of integrators at s = 0 (negative for zeros there), from
-    the slope of log|L| against log w between the lowest axis sample and the
-    first sample at least 1.5 times higher; c = L(jw) (jw)^n is then real up to
-    the phase of the dynamics above, and its sign is that of the loop gain.
+    the slope of log|L| against log w; c = L(jw) (jw)^n is then real up to the
+    phase of the dynamics above, and its sign is that of the loop gain.
+    """
+    n, sign, _ = _asymptote(response)
+    return n, sign
+
+
+def _asymptote(response: LoopResponse) -> tuple[int, int, int]:
+    """(n, sign, i): the asymptote and the axis sample it was read at.
+
+    The slope is read between samples a factor 1.5 apart, and trusted only where it
+    is near an integer and the next such step agrees: where a loop with zeros at
+    s = 0 has fallen to rounding noise (|L| about 1e-80 at 1e-10 rad/s, inside a
+    closed cascade), successive slopes are erratic and that stretch is skipped.
+    With no such stretch: n = 0 and the sign of the lowest sample.
     """
     w, L = response.freq, response.axis_L
-    ok = (w > 0) & np.isfinite(L) & (L != 0)
-    w, L = w[ok], L[ok]
-    if w.size < 2:
-        return 0, 1
-    j = int(np.searchsorted(w, 1.5 * w[0]))
-    j = min(max(j, 1), w.size - 1)
-    slope = math.log(abs(L[j]) / abs(L[0])) / math.log(w[j] / w[0])
-    n = -int(round(slope))
-    c = L[0] * (1j * w[0]) ** n
-    return n, (1 if c.real >= 0 else -1)
+    idx = np.flatnonzero((w > 0) & np.isfinite(L) & (L != 0))
+    if idx.size < 2:
+        return 0, 1, int(idx[0]) if idx.size else 0
+    w, L = w[idx], L[idx]
+    lw, lm = np.log(w), np.log(np.abs(L))
+    j = np.minimum(np.searchsorted(w, 1.5 * w), w.size - 1)
+    k = j[j]
+    with np.errstate(all="ignore"):
+        s1 = (lm[j] - lm) / (lw[j] - lw)
+        s2 = (lm[k] - lm[j]) / (lw[k] - lw[j])
+    good = (np.isfinite(s1) & np.isfinite(s2) & (k > j) & (j > np.arange(w.size))
+            & (np.abs(s1 - np.round(s1)) < 0.1) & (np.round(s1) == np.round(s2)))
+    hits = np.flatnonzero(good)
+    if hits.size == 0:
+        return 0, (1 if L[0].real >= 0 else -1), int(idx[0])
+    i = int(hits[0])
+    n = -int(round(float(s1[i])))
+    # the phase of c = L (jw)^n without the power (w^n under- or overflows for large n)
+    phase = float(np.angle(L[i])) + n * math.pi / 2
+    return n, (1 if math.cos(phase) >= 0 else -1), int(idx[i])
 
 
 def unwrapped_phase_deg(response: LoopResponse) -> np.ndarray:
@@ -135,9 +157,9 @@ def unwrapped_phase_deg(response: LoopResponse) -> np.ndarray:
     The unwrapping runs along the contour in traversal order, indentations
     included, so the phase steps by -180 m deg across an indented axis pole of
     order m as the contour really turns (np.unwrap on the axis samples alone
-    cannot tell +180 from -180 there). The branch is then chosen so that the
-    lowest frequency sits nearest to -90 n deg for n integrators, 180 deg lower
-    for a negative gain: a type-3 loop starts at -270 deg, and its critical
+    cannot tell +180 from -180 there). The branch is then chosen so that, where the
+    asymptote is read, the phase sits nearest to -90 n deg for n integrators, 180 deg
+    lower for a negative gain: a type-3 loop starts at -270 deg, and its critical
     line is -180 deg.
     """
     L = np.asarray(response.L, complex)
@@ -148,9 +170,10 @@ def unwrapped_phase_deg(response: LoopResponse) -> np.ndarray:
     first = np.flatnonzero(np.isfinite(axis) & (response.freq > 0))
     if first.size == 0:
         return axis
-    n, sign = low_frequency_asymptote(response)
+    n, sign, i = _asymptote(response)
+    anchor = i if np.isfinite(axis[i]) else first[0]
     target = -90.0 * n - (180.0 if sign < 0 else 0.0)
-    return axis + 360.0 * round((target - axis[first[0]]) / 360.0)
+    return axis + 360.0 * round((target - axis[anchor]) / 360.0)
 
 
 @dataclass(frozen=True)
