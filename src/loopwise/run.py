@@ -186,12 +186,14 @@ def guarded(path: str, work):
 
 
 def _name_the_model(path: str, errors: tuple[Finding, ...]) -> tuple[Finding, ...]:
-    """When every error lies in a file the model `use`s, add one located at the
-    model's own `use` line, so that each model a broken shared file stops is
-    named (the shared errors themselves are reported once for the run)."""
+    """When errors lie in a file the model `use`s, add one located at the model's own
+    `use` line, so that each model a broken shared file stops is named (the shared
+    errors themselves are reported once for the run). The model's own errors may be
+    follow-ups (a name the broken file would have defined is unknown): the `use` line
+    is named then too, first among the model's own errors."""
     own = _real(Path(path))
-    broken = {_real(Path(e.span.file)) for e in errors if e.span.file and e.span.line > 0}
-    if not broken or own in broken or any(e.span.line <= 0 for e in errors):
+    broken = {_real(Path(e.span.file)) for e in errors if e.span.file and e.span.line > 0} - {own}
+    if not broken or any(e.span.line <= 0 for e in errors):
         return errors
     from .sources import model_sources
 
@@ -208,8 +210,8 @@ def _name_the_model(path: str, errors: tuple[Finding, ...]) -> tuple[Finding, ..
     named = Finding("error", E_INCLUDED_ERRORS,
                     f"the model could not be checked: a file it uses has errors ({shown})",
                     Span(path, step.line, col, col + 3 if col else None),
-                    "fix the errors reported in that file")
-    return (*errors, named)
+                    "fix the errors reported in that file first: the names it defines are unknown until then")
+    return (named, *errors)
 
 
 def _use_column(path: Path, line: int) -> int:

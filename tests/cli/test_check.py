@@ -361,6 +361,17 @@ def test_an_error_in_a_shared_file_is_reported_once_and_each_model_it_stops_is_n
     assert out.count('    use "lib/shared.loop"\n') == 3 and "4 could not be read" in out
 
 
+def test_a_model_using_a_name_from_a_broken_file_is_named_at_its_use_line_first(tmp_path, cli):
+    """The model's own follow-up error (a block the broken file would have defined is
+    unknown) used to be all it got: the `use` line that explains it was left out."""
+    write(tmp_path, "lib.loop", "param k = 2 +\nblock G = 1/(s + 1)\n")
+    write(tmp_path, "m.loop", 'model m\nuse "lib.loop"\ninput r\ne = r - y\ny = G(k*e)\nbreak b at y\n')
+    code, out, _ = cli("check", "m.loop", "--format", "json")
+    assert code == 2
+    mine = [(e["line"], e["code"]) for e in json.loads(out)["errors"] if e["file"] == "m.loop"]
+    assert mine[0] == (2, "LW003") and (5, "LW227") in mine, mine
+
+
 def test_a_default_requirement_error_points_into_the_settings_file(tmp_path, capsys):
     # the located error shows the settings file's own line with a caret under the metric
     from loopwise.cli import main as cli_main
