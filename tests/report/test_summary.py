@@ -98,6 +98,7 @@ def test_register_replaces_an_entry(monkeypatch):
     (2.05e3, "34.2 min"), (135.0, "2.25 min"), (919.0, "15.3 min"), (5400.0, "1.5 h"),
     (1.04, "1.04 s"), (4.94e-3, "4.94 ms"), (2.16e-4, "216 us"), (2.5e-6, "2.5 us"),
     (3e-9, "3 ns"), (0.0, "0 s"), (float("inf"), "inf"), (3.6e7, "10000 h"),
+    (1.57e-16, "1.57e-16 s"),  # a tiny delay margin (a 1e16 loop gain) is not "0 ns"
 ])
 def test_times_in_natural_units(seconds, text):
     assert fmt_time(seconds) == text

@@ -32,8 +32,10 @@ def fmt_time(seconds, digits: int = 3) -> str:
             break
     if size == 0.0:
         scale, unit = 1.0, "s"
+    if 0.0 < size < _TIME_UNITS[-1][0]:  # below a nanosecond: seconds with an exponent, never "0 ns"
+        return f"{seconds:.{digits}g} s"
     text = f"{seconds / scale:.{digits}g}"
-    if "e" in text:  # beyond the largest unit (or below the smallest): no exponent in hours
+    if "e" in text:  # beyond the largest unit: no exponent in hours
         text = f"{seconds / scale:.{digits}f}".rstrip("0").rstrip(".")
     return f"{text} {unit}"
 
