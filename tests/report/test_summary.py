@@ -114,3 +114,18 @@ def test_quantities_keep_their_unit_and_time_goes_natural():
 def test_text_report_head_says_the_down_margin_is_negative():
     out = render(run_of(model(breaks=[stable_break(gm_down=-7.5)])), "text")
     assert GM_DOWN_HEAD in out and "(<0)" in GM_DOWN_HEAD
+
+
+def test_a_frequency_limit_written_in_hz_shows_its_value_in_hz():
+    """`crossover >= 0.5Hz (value 0.2882 rad/s)` made the reader convert; the value
+    now comes in the unit the limit was written in (0.2882 / (2 pi) = 0.04587 Hz)."""
+    from loopwise import check_text
+    from loopwise.report.summary import requirement_text
+
+    text = ("model hz\ninput r\nblock G = 0.3/(s*(s + 1))\ne = r - y\ny = G(e)\nbreak b at y\n"
+            "require b crossover >= 0.5Hz\nrequire b crossover <= 2\n")
+    reqs = check_text(text).breaks[0].requirements
+    words = [requirement_text(r) for r in reqs]
+    value = reqs[0].value
+    assert words[0] == f"crossover >= 0.5Hz (value {value / (2 * 3.141592653589793):.4g} Hz)"
+    assert words[1] == f"crossover <= 2 (value {value:.4g} rad/s)"

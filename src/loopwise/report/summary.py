@@ -127,9 +127,16 @@ def requirement_place(m, r) -> str:
 
 def requirement_text(r) -> str:
     """`phase_margin >= 45deg (value 38.2 deg)`: the limit as the model wrote it, the
-    value in the metric's unit (times in natural units)."""
+    value in the metric's unit (times in natural units), a frequency in the unit of a
+    limit written in Hz or kHz (`crossover >= 0.5Hz (value 0.0459 Hz)`)."""
     limit = getattr(r, "limit_text", "") or fmt_quantity(r.limit, r.unit)
-    return f"{r.metric} {r.op} {limit} (value {fmt_quantity(r.value, r.unit)})"
+    value = fmt_quantity(r.value, r.unit)
+    if r.unit == "rad/s" and r.value is not None and math.isfinite(r.value):
+        for suffix, scale in (("kHz", 2.0e3 * math.pi), ("Hz", 2.0 * math.pi)):
+            if limit.endswith(suffix):
+                value = fmt_quantity(r.value / scale, suffix)
+                break
+    return f"{r.metric} {r.op} {limit} (value {value})"
 
 
 def waiver_note(f) -> str | None:
