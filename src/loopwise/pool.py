@@ -185,12 +185,24 @@ def _stop(pool) -> None:
         for process in processes:
             if process.is_alive():
                 process.terminate()
-        pool.shutdown(wait=True, cancel_futures=True)
         for process in processes:
             process.join(_GRACE_S)
             if process.is_alive():
                 process.kill()
                 process.join()
+        # Every worker is gone. One ended while sending its result leaves the pool's
+        # manager thread reading the rest of that message from a pipe whose only other
+        # write end is this process's own: the read would never end, nor the shutdown
+        # that joins the thread (nor the interpreter's exit). Closing that end makes
+        # the read see end-of-file; the thread then marks the pool broken and stops.
+        queue = getattr(pool, "_result_queue", None)
+        writer = getattr(queue, "_writer", None)
+        if writer is not None:
+            try:
+                writer.close()
+            except OSError:
+                pass
+        pool.shutdown(wait=True, cancel_futures=True)
 
 
 def _worker_start(parent: int | None) -> None:

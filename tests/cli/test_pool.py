@@ -197,6 +197,9 @@ def _finish(proc: subprocess.Popen, workers: set[int]) -> tuple[int, str]:
         for p in workers:  # never leave the test's own strays behind
             if _alive(p):
                 os.kill(p, signal.SIGKILL)
+        if proc.poll() is None:  # nor a command that hung
+            proc.kill()
+            proc.communicate()
     return proc.returncode, err
 
 
@@ -299,3 +302,39 @@ def test_sigterm_to_a_serial_check_is_an_orderly_exit_143(slow_folder, tmp_path)
     code, err = _finish(proc, set())
     assert code == 143 and err.strip() == "loopwise: terminated", err
     assert list(tmp_path.glob("*out.json*")) == []
+
+
+_HALF_SENT = r'''
+import os, struct, sys, threading, time
+from loopwise import pool as lw_pool
+
+EXECUTOR = None
+
+def half_sent(_):
+    # as a worker ended in the middle of sending its result: a message header that
+    # promises 1,000 bytes, 10 of them written, then the worker is gone
+    fd = EXECUTOR._result_queue._writer.fileno()
+    os.write(fd, struct.pack("!i", 1000) + b"x" * 10)
+    os._exit(0)
+
+p = lw_pool.Pool(2)
+EXECUTOR = p._start()
+EXECUTOR.submit(half_sent, 0)
+time.sleep(1.0)  # the manager thread is now waiting for the other 990 bytes
+done = threading.Event()
+threading.Thread(target=lambda: (lw_pool._stop(EXECUTOR), done.set()), daemon=True).start()
+print("stopped" if done.wait(20) else "hung", flush=True)
+os._exit(0)
+'''
+
+
+def test_stopping_a_pool_whose_worker_died_while_sending_its_result_does_not_hang(tmp_path):
+    """A worker ended halfway through sending a result left the pool's manager thread
+    reading from a pipe whose other write end the command itself holds: Ctrl-C then
+    hung the command for good (seen under load in the signal tests above). Simulated
+    here exactly: a worker writes half a message and exits."""
+    script = tmp_path / "half_sent.py"
+    script.write_text(_HALF_SENT)
+    out = subprocess.run([sys.executable, str(script)], capture_output=True, text=True, timeout=60)
+    assert out.stdout.strip() == "stopped", out.stdout + out.stderr
+    assert "Traceback" not in out.stderr, out.stderr
