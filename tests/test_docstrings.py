@@ -16,7 +16,7 @@ import pytest
 PACKAGE = Path(__file__).resolve().parents[1] / "src" / "loopwise"
 
 #: modules (paths relative to src/loopwise; a folder ends in "/") not held to the rule yet
-NOT_YET_COVERED = ("engine/", "analysis.py", "transfer.py")
+NOT_YET_COVERED = ("engine/", "transfer.py")
 
 
 def _public(name: str) -> bool:

@@ -159,7 +159,7 @@ def test_in_a_transfer_the_s_is_a_missing_product():
 # --- one helper everywhere ------------------------------------------------------------------------
 
 def test_break_and_requirement_hints_use_the_same_rule():
-    from loopwise.analysis import prepare_text
+    from loopwise.testing import prepare_text
 
     text = "input r\nblock G = 1/(s+1)\ne = r - y\ny = G(e)\nbreak b at yy\nrequire b delay_margn >= 1ms\n"
     with pytest.raises((ModelError, ModelErrors)) as info:

@@ -3,8 +3,8 @@
 Each block application is realised on its own (a cascade of first- and
 second-order sections, which keeps high-order blocks well conditioned), and
 the wiring closes them up; an improper block (an ideal derivative) is realised
-together with the block it feeds. Used by the reference tests and tools (the
-check itself needs no state-space form).
+together with the block it feeds. Used by the reference tests and tools through
+`loopwise.testing` (the check itself needs no state-space form).
 """
 from __future__ import annotations
 
