@@ -19,6 +19,10 @@ __all__ = ["StateSpace", "loop_state_space", "closed_loop_poles"]
 
 @dataclass(frozen=True, eq=False)
 class StateSpace:
+    """A real state-space form (A, B, C, D) of the loop transfer L = -y/v at a break (from
+    the injected v to -y), or of the whole closed loop (then B, C and D are empty); the
+    states are the block applications' own, `owners` naming the application of each state."""
+
     A: np.ndarray
     B: np.ndarray
     C: np.ndarray
@@ -171,4 +175,7 @@ def loop_state_space(red: Reduction, name: str | None = None) -> StateSpace:
 
 
 def closed_loop_poles(red: Reduction) -> np.ndarray:
+    """The closed loop's poles (complex, rad/s, unordered): the eigenvalues of the whole state
+    matrix, including poles that an exact cancellation hides from every loop transfer.
+    Blocks on input paths are left out. ValueError for a model with a delay."""
     return np.linalg.eigvals(loop_state_space(red, None).A)
