@@ -39,7 +39,8 @@ sys.path.insert(0, str(ROOT / "bench"))
 import control  # noqa: E402  (test-time reference only; never imported by src/loopwise)
 import numpy as np  # noqa: E402
 
-from loopwise.analysis import analyse_loop, analyse_loops, check_file, prepare_text, check_prepared  # noqa: E402
+from loopwise.analysis import check_file, check_prepared  # noqa: E402
+from loopwise.testing import analyse_loop, analyse_loops, prepare_text  # noqa: E402
 from loopwise.transfer import Transfer  # noqa: E402
 from previous import DEFAULT_REVISION, previous_tree, run_in  # noqa: E402
 from reference.loopsets import closed_loop_rhp, delay_free_loops, near_axis, nested_cascade  # noqa: E402
@@ -67,6 +68,7 @@ def _grid(case) -> np.ndarray:
     return np.logspace(np.log10(lo) - 3, np.log10(hi) + 3, 1000)
 
 
+#: run in the previous revision's tree, whose analyse_loop was still in loopwise.analysis
 PREVIOUS_LOOPS = """
 import json, time, warnings, sys
 warnings.simplefilter("ignore")

@@ -32,7 +32,7 @@ sys.path.insert(0, str(ROOT / "tests"))
 
 from reference.loopsets import delay_free_loops  # noqa: E402
 
-from loopwise.analysis import analyse_loop  # noqa: E402
+from loopwise.testing import analyse_loop  # noqa: E402
 from loopwise.engine.margins import loop_margins  # noqa: E402
 from loopwise.transfer import Transfer  # noqa: E402
 

@@ -9,7 +9,7 @@ across machines:
 - `lex only`: one pass of a regular expression over the same text that splits
   it into tokens: a floor that no parser can beat.
 - `read`: parse + names, includes, transfers and the diagram
-  (`loopwise.analysis.prepare_text`), for the demo model, to put parsing in
+  (`loopwise.testing.prepare_text`), for the demo model, to put parsing in
   proportion to the rest of reading a model.
 
 Start-up (fresh interpreters, median of `--starts`): from importing the parser
@@ -86,7 +86,7 @@ def measure(name: str, text: str, file: str, repeat: int, with_read: bool) -> No
     print(f"  lark only    {t_lark * 1e3:8.2f} ms   parse_text / lark = {t_parse / t_lark:5.2f}")
     print(f"  lex only     {t_lex * 1e3:8.2f} ms   parse_text / lex  = {t_parse / t_lex:5.1f}")
     if with_read:
-        from loopwise.analysis import prepare_text
+        from loopwise.testing import prepare_text
         t_read = best(lambda: prepare_text(text, file), repeat)
         print(f"  read (prepare_text) {t_read * 1e3:8.2f} ms   parse share = {t_parse / t_read:5.1%}")
 

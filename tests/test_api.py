@@ -10,7 +10,8 @@ from pathlib import Path
 import pytest
 
 import loopwise
-from loopwise.analysis import analyse_loop, check_file, check_text, nyquist_verdict
+from loopwise.analysis import check_file, check_text
+from loopwise.testing import analyse_loop, nyquist_verdict
 from loopwise.errors import ModelError, ModelErrors
 from loopwise.run import check_paths
 from loopwise.settings import Settings

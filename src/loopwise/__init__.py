@@ -10,6 +10,10 @@ Library use::
 A model that cannot be read, for a mistake in its syntax or its meaning, raises
 `loopwise.ModelError`, whose `errors` list every located error.
 
+Helpers that only tests, benchmarks and tools need (one loop transfer checked
+without a model file, a model prepared from text, state-space forms) are in
+`loopwise.testing`, outside this API.
+
 The heavy modules are imported on first use, so `loopwise --help` starts fast;
 type checkers see every name below through the ``TYPE_CHECKING`` imports.
 """

@@ -1,9 +1,11 @@
 """The whole check of one model: parse -> graph -> reduce -> wind -> margins -> judge.
 
-`check_text` / `check_file` return a frozen ModelResult or raise ModelErrors
-(every error located). `prepare_text` stops before the verdict (for tests and
-tools that want the loop transfers themselves). `analyse_loop` checks unity
-negative feedback around one loop transfer (used by the reference tests).
+`check_text` / `check_file` return a frozen ModelResult or raise ModelError (every
+error located); `check_model` checks a model already resolved (a sweep's plants),
+`check_many` many models with the same wiring at once. `prepare_file` stops before
+the verdict (the graph command draws the loop graph from it). Helpers that only
+tests, benchmarks and tools need (a model prepared from text, single loops checked
+without a model file, state-space forms) are in `loopwise.testing`.
 """
 from __future__ import annotations
 
@@ -21,13 +23,12 @@ from .results import BreakResult, Margins, ModelResult
 from .engine.hidden import cancelled_modes, structural_modes
 from .verdicts import (check_not_zero, counted_modes, hidden_from_loop, mode_findings, positive_feedback,
                        verdict_adjustment)
-from .engine.stability import count, nyquist_counts
+from .engine.stability import count
 from .judge import SEPARATION_WARNING, judge
 from .waivers import apply_waivers, settings_waivers_for
 
-__all__ = ["PreparedModel", "parse_for_check", "prepare_model", "prepare_text", "prepare_file", "check_model",
-           "check_text", "check_file", "check_prepared", "check_many", "analyse_loop", "analyse_loops",
-           "nyquist_verdict"]
+__all__ = ["PreparedModel", "parse_for_check", "prepare_model", "prepare_file", "check_model",
+           "check_text", "check_file", "check_prepared", "check_many"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -40,19 +41,14 @@ class PreparedModel:
 
     @property
     def break_names(self) -> tuple[str, ...]:
+        """The model's break names, in the order the model declares them."""
         return tuple(b.stmt.name for b in self.diagram.breaks)
 
     def loop_transfer(self, name: str, s) -> np.ndarray:
+        """The loop transfer L = -y/v at break `name` (the signal cut there, v injected),
+        evaluated exactly (delays included) at the complex frequencies `s` (rad/s, any
+        shape); a 1-D complex array."""
         return self.reduction.loop_transfer(name, np.atleast_1d(np.asarray(s, complex)))
-
-    def closed_loop_poles(self) -> np.ndarray:
-        from .engine.statespace import closed_loop_poles
-        return closed_loop_poles(self.reduction)
-
-    def loop_state_space(self, name: str):
-        from .engine.statespace import loop_state_space
-        ss = loop_state_space(self.reduction, name)
-        return ss.A, ss.B, ss.C, ss.D
 
 
 def _settings_requirements(settings) -> tuple[str, ...]:
@@ -84,7 +80,9 @@ def prepare_model(model: Model) -> PreparedModel:
     return PreparedModel(model, diagram, reduce_diagram(diagram))
 
 
-def prepare_text(text: str, file: str = "<text>", settings=None) -> PreparedModel:
+def _prepare_text(text: str, file: str = "<text>", settings=None) -> PreparedModel:
+    """A model given as text, resolved with the settings' requirements, waivers and
+    overrides, its loop graph built and its wiring reduced (`check_text` before the verdict)."""
     text, file, settings = arg.model_text(text), arg.file_label(file), arg.settings_or_none(settings)
     parsed = parse_model(text, file, _settings_requirements(settings),
                          getattr(settings, "source", None) or "<settings>")
@@ -92,7 +90,9 @@ def prepare_text(text: str, file: str = "<text>", settings=None) -> PreparedMode
 
 
 def prepare_file(path, settings=None, root=None) -> PreparedModel:
-    """`root`: the checked models' common folder; outside git, includes must stay inside it."""
+    """A model file read, resolved with the settings' requirements, waivers and overrides,
+    its loop graph built and its wiring reduced: `check_file` before the verdict.
+    `root`: the checked models' common folder; outside git, includes must stay inside it."""
     path, settings = arg.model_path(path), arg.settings_or_none(settings)
     root = None if root is None else arg.model_path(root, "root")
     return prepare_model(resolve_parsed(parse_for_check(path, settings, root), _overrides(settings)))
@@ -125,7 +125,7 @@ def check_text(text: str, file: str = "<text>", settings=None, indent: str = "ri
     """Check one model given as text; raises loopwise.ModelError when it cannot be read."""
     indent = arg.check_indent(indent)
     with _unreadable():
-        return _waived_verdict(prepare_text(text, file, settings), indent)
+        return _waived_verdict(_prepare_text(text, file, settings), indent)
 
 
 def check_file(path, settings=None, indent: str = "right", root=None) -> ModelResult:
@@ -328,37 +328,3 @@ def _gain_ranges(red: Reduction, counts, names: list[str]) -> dict[str, tuple]:
                                         [counts[n].P for n in group])
         out.update(zip(group, found))
     return out
-
-
-def nyquist_verdict(L, indent: str = "right"):
-    """P, N, Z (a stability.NyquistCount) of unity negative feedback around L, without margins."""
-    indent = arg.check_indent(indent)
-    prep = _single_loop(arg.loop_transfer(L), "loop")
-    return nyquist_counts(prep.reduction, indent).counts["loop"]
-
-
-def analyse_loop(L, name: str = "loop", indent: str = "right") -> BreakResult:
-    """Unity negative feedback around the loop transfer L (a Transfer)."""
-    indent = arg.check_indent(indent)
-    return check_prepared(_single_loop(arg.loop_transfer(L), arg.break_name(name)), indent).breaks[0]
-
-
-def analyse_loops(Ls, indent: str = "right") -> list[BreakResult]:
-    """analyse_loop for many loop transfers at once (engine/batch.py: one batched count and
-    one batched refinement of every margin)."""
-    return [r.breaks[0] for r in check_many([_single_loop(L, "loop") for L in Ls], indent)]
-
-
-def _single_loop(L, name: str) -> PreparedModel:
-    from .language import ast
-    from .language.resolve import Application, Block, Term
-
-    span = Span("<loop>", 1, 1)
-    app = Application("L", L, span)
-    model = Model(
-        name=name, file="<loop>", params={}, blocks={"L": Block("L", L, span)}, inputs={"r": span},
-        signals={"e": span, "y": span}, hidden=frozenset(),
-        equations={"e": (Term("r", 1.0, None, span), Term("y", -1.0, None, span)), "y": (Term("e", 1.0, app, span),)},
-        breaks=(ast.BreakStmt(span, name, "y", span),), requirements=(), findings=(),
-    )
-    return prepare_model(model)

@@ -1,6 +1,6 @@
-"""Checks of the public API's arguments (check_text, check_file, check_paths,
-analyse_loop, nyquist_verdict): a wrong type is a TypeError and a wrong value a
-ValueError, each saying what was expected, before any work is done.
+"""Checks of the public API's arguments (check_text, check_file, check_paths, and
+loopwise.testing's analyse_loop, nyquist_verdict): a wrong type is a TypeError and a
+wrong value a ValueError, each saying what was expected, before any work is done.
 
 A value that slipped through would not fail loudly later: `indent="Right"` was
 read as "left" by the contour and gave wrong verdicts.
@@ -105,7 +105,8 @@ def flag(value, name: str) -> bool:
 
 
 def loop_transfer(L):
-    """A loop transfer function for `analyse_loop` / `nyquist_verdict`: a `loopwise.transfer.Transfer`."""
+    """A loop transfer function for `testing.analyse_loop` / `testing.nyquist_verdict`:
+    a `loopwise.transfer.Transfer`."""
     from .transfer import Transfer
 
     if not isinstance(L, Transfer):

@@ -20,10 +20,18 @@ import sys
 from contextlib import contextmanager
 from typing import Callable, Iterator
 
-__all__ = ["PROGRESS_MIN_ITEMS", "progress_bar", "wants_progress"]
+__all__ = ["PROGRESS_MIN_ITEMS", "progress_bar", "wants_progress", "is_terminal"]
 
 #: below this many items a progress bar is more flicker than help
 PROGRESS_MIN_ITEMS = 6
+
+
+def is_terminal(stream) -> bool:
+    """Whether `stream` is an interactive terminal (not a file, a pipe or a closed stream)."""
+    try:
+        return stream.isatty()
+    except (AttributeError, ValueError):
+        return False
 
 
 def wants_progress(stream=None) -> bool:
@@ -31,10 +39,7 @@ def wants_progress(stream=None) -> bool:
     stream = stream or sys.stderr
     if os.environ.get("CI") or os.environ.get("TERM") == "dumb":
         return False
-    try:
-        return stream.isatty()
-    except (AttributeError, ValueError):
-        return False
+    return is_terminal(stream)
 
 
 @contextmanager

@@ -113,22 +113,31 @@ class Transfer:
     # --- construction ---------------------------------------------------------
     @staticmethod
     def constant(value: float) -> "Transfer":
+        """A static gain `value`: no zeros, no poles, no delay."""
         return Transfer(float(value), np.zeros(0, complex), np.zeros(0, complex), 0.0)
 
     @staticmethod
     def laplace() -> "Transfer":
+        """The Laplace variable s itself: gain 1 and one zero at the origin."""
         return Transfer(1.0, np.zeros(1, complex), np.zeros(0, complex), 0.0)
 
     @staticmethod
     def pure_delay(T: float) -> "Transfer":
+        """exp(-T s): a dead time of T seconds with unit gain."""
         return Transfer(1.0, np.zeros(0, complex), np.zeros(0, complex), float(T))
 
     @staticmethod
     def from_zpk(zeros, poles, gain, delay: float = 0.0) -> "Transfer":
+        """gain * prod(s - zeros) / prod(s - poles) * exp(-delay s), from its roots (complex,
+        rad/s) and its delay in seconds. A real or imaginary part below AXIS_TOL times the
+        root's size is set to zero, and conjugate pairs are made exact."""
         return Transfer(float(gain), _clean_roots(zeros), _clean_roots(poles), float(delay))
 
     @staticmethod
     def from_coeffs(num, den, delay: float = 0.0) -> "Transfer":
+        """num(s) / den(s) * exp(-delay s) from polynomial coefficients in descending powers of s
+        (leading zeros dropped), factored into gain, zeros and poles. TransferError when the
+        denominator is zero or the coefficients span more than double precision holds."""
         num = np.trim_zeros(np.atleast_1d(np.asarray(num, dtype=float)), "f")
         den = np.trim_zeros(np.atleast_1d(np.asarray(den, dtype=float)), "f")
         if den.size == 0:
@@ -151,6 +160,8 @@ class Transfer:
 
     @property
     def is_proper(self) -> bool:
+        """Whether |G(s)| stays bounded as |s| -> inf: no more zeros than poles (the zero transfer
+        is proper)."""
         return self.is_zero or self.relative_degree >= 0
 
     @property
@@ -165,10 +176,14 @@ class Transfer:
 
     @property
     def rhp_poles(self) -> int:
+        """How many poles lie strictly in the right half plane (Re p > 0), with multiplicity;
+        poles on the imaginary axis are not counted."""
         return int(np.sum(self.poles.real > 0))
 
     @property
     def axis_poles(self) -> np.ndarray:
+        """The poles on the imaginary axis (Re p = 0 exactly, as construction tidies them), as
+        complex numbers with multiplicity."""
         return self.poles[self.poles.real == 0]
 
     def num_den(self) -> tuple[np.ndarray, np.ndarray]:
@@ -177,6 +192,9 @@ class Transfer:
 
     # --- evaluation -----------------------------------------------------------
     def evaluate(self, s) -> np.ndarray:
+        """G(s) at the complex points `s` (rad/s, any shape; s = j w on the frequency axis), as a
+        complex array of the same shape. Exact: the delay is exp(-T s), and each zero is paired
+        with a pole so that high orders neither overflow nor lose digits. On a pole: inf or nan."""
         s = np.asarray(s, dtype=complex)
         out = np.full(s.shape, self.gain, dtype=complex)
         if self.is_zero:
@@ -207,6 +225,8 @@ class Transfer:
     __rmul__ = __mul__
 
     def reciprocal(self) -> "Transfer":
+        """1/G: zeros and poles swapped, the gain inverted and the delay negated. TransferError
+        for the zero transfer."""
         if self.is_zero:
             raise TransferError("division by zero")
         gain = 1.0 / self.gain if self.gain != 0.0 else math.inf  # an underflowed gain: refused later

@@ -11,7 +11,7 @@ import warnings
 import numpy as np
 import pytest
 
-from loopwise.analysis import analyse_loop
+from loopwise.testing import analyse_loop
 from loopwise.engine.margins import loop_margins, stabilising_gains
 from loopwise.results import LoopResponse
 from loopwise.transfer import Transfer

@@ -7,6 +7,7 @@ import pytest
 
 from loopwise.errors import ModelError, render
 from loopwise.language.parse import parse_text
+from loopwise.language.resolve import resolve_text
 
 ROOT = Path(__file__).resolve().parents[2]
 MODELS = ROOT / "models"
@@ -39,6 +40,13 @@ def parse_error(text: str, file: str = "m.loop") -> tuple[ModelError, str]:
         parse_text(text, file)
     err = info.value
     return err, render(err.as_finding(), text)
+
+
+def resolve_errors(text: str, file: str = "m.loop") -> list[ModelError]:
+    """Every located error that resolving a snippet raises (it must raise one)."""
+    with pytest.raises(ModelError) as info:
+        resolve_text(text, file)
+    return list(info.value.errors)
 
 
 def assert_rendered(err: ModelError, text: str, *, file: str = "m.loop") -> list[str]:

@@ -281,7 +281,7 @@ def _check_text(text: str, file: str = "m.loop"):
 
 def _prepare_text(text: str, file: str = "m.loop"):
     """Parse, resolve and build the diagram: every model error, without the engine."""
-    from loopwise.analysis import prepare_text
+    from loopwise.testing import prepare_text
     return prepare_text(text, file)
 
 

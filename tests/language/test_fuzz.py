@@ -109,7 +109,7 @@ def test_parsing_a_mutated_model_raises_only_model_errors(case):
 @given(mutated_model())
 def test_reading_a_mutated_model_raises_only_model_errors(case):
     # parse, resolve names and includes, evaluate transfers, build the diagram
-    from loopwise.analysis import prepare_text
+    from loopwise.testing import prepare_text
     name, text = case
     _only_our_errors(lambda: prepare_text(text, str(MODELS / name)))
 

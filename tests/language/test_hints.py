@@ -13,7 +13,7 @@ from loopwise.language.hints import MAX_COMPARED, MAX_SEARCHES, closest, did_you
 from loopwise.language.parse import STATEMENT_WORDS, parse_text
 from loopwise.language.resolve import resolve_text
 
-from .conftest import assert_rendered, parse_error
+from .conftest import assert_rendered, parse_error, resolve_errors
 
 
 # --- the rule -------------------------------------------------------------------------------
@@ -101,17 +101,10 @@ def test_a_name_far_from_every_statement_word_keeps_the_grammar_hint():
 
 # --- `e^(-T*s)` for a delay ------------------------------------------------------------------
 
-def _errors(text: str) -> list[ModelError]:
-    with pytest.raises((ModelError, ModelErrors)) as info:
-        resolve_text(text, "m.loop")
-    exc = info.value
-    return list(exc.errors) if isinstance(exc, ModelErrors) else [exc]
-
-
 def test_power_of_e_points_to_the_delay_form():
     # regression: "unknown param `e`" with no word about exp(-T*s)
     text = "param Td = 5ms\ninput r\nblock D = e^(-Td*s)/(s+1)\ny = D(r)\n"
-    err = _errors(text)[0]  # then LW228 for the block that could not be evaluated
+    err = resolve_errors(text)[0]  # then LW228 for the block that could not be evaluated
     assert (err.code, err.span.line, err.span.col) == ("LW218", 3, 11)
     assert err.message == "unknown param `e`: a delay is not written as a power of `e`"
     assert err.hint == "write a pure delay as `exp(-Td*s)` (T >= 0 in seconds)"
@@ -119,12 +112,12 @@ def test_power_of_e_points_to_the_delay_form():
 
 
 def test_power_of_e_with_a_literal_time():
-    err = _errors("input r\nblock D = e^(-150us*s)\ny = D(r)\n")[0]
+    err = resolve_errors("input r\nblock D = e^(-150us*s)\ny = D(r)\n")[0]
     assert err.hint == "write a pure delay as `exp(-150us*s)` (T >= 0 in seconds)"
 
 
 def test_power_of_e_in_a_constant():
-    (err,) = _errors("param k = e^2\n")
+    (err,) = resolve_errors("param k = e^2\n")
     assert err.code == "LW218" and err.message == "unknown param `e`: the language has no constant `e`"
     assert "exp(-T*s)" in err.hint
 
@@ -159,7 +152,7 @@ def test_in_a_transfer_the_s_is_a_missing_product():
 # --- one helper everywhere ------------------------------------------------------------------------
 
 def test_break_and_requirement_hints_use_the_same_rule():
-    from loopwise.analysis import prepare_text
+    from loopwise.testing import prepare_text
 
     text = "input r\nblock G = 1/(s+1)\ne = r - y\ny = G(e)\nbreak b at yy\nrequire b delay_margn >= 1ms\n"
     with pytest.raises((ModelError, ModelErrors)) as info:

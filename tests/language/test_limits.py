@@ -20,16 +20,9 @@ from loopwise.language.parse import MAX_TOKENS, count_tokens, parse_text
 from loopwise.language.resolve import resolve_file, resolve_text
 from loopwise.language.source import MAX_MODEL_BYTES
 
-from .conftest import assert_rendered
+from .conftest import assert_rendered, resolve_errors
 
 ROOT = Path(__file__).resolve().parents[2]
-
-
-def errors(text: str) -> list[ModelError]:
-    with pytest.raises((ModelError, ModelErrors)) as info:
-        resolve_text(text, "m.loop")
-    exc = info.value
-    return list(exc.errors) if isinstance(exc, ModelErrors) else [exc]
 
 
 # --- tokens -----------------------------------------------------------------------------------
@@ -112,12 +105,12 @@ def test_includes_share_the_model_token_budget(tmp_path):
 # --- the order of a transfer --------------------------------------------------------------------
 
 def test_power_beyond_the_order_limit():
-    err = errors(f"block B = 1/(s+1)^{MAX_ORDER + 1}\n")[0]
+    err = resolve_errors(f"block B = 1/(s+1)^{MAX_ORDER + 1}\n")[0]
     assert err.code == "LW223" and err.message == f"powers of a transfer must be whole numbers (at most {MAX_ORDER})"
 
 
 def test_power_of_a_sum_beyond_the_order_limit_is_refused_before_it_is_computed():
-    err = errors(f"block B = (1/(s+1) + 1/(s+2))^{MAX_ORDER}\n")[0]
+    err = resolve_errors(f"block B = (1/(s+1) + 1/(s+2))^{MAX_ORDER}\n")[0]
     assert (err.code, err.span.col) == ("LW233", 11)
     assert err.message == f"the transfer would have {2 * MAX_ORDER} poles or zeros (the limit is {MAX_ORDER})"
 
@@ -131,13 +124,13 @@ def test_sum_of_high_order_transfers_is_refused():
     # regression: 973 tokens took 3 s and 165 MB, then a numpy LinAlgError escaped
     k = MAX_ORDER // 2
     text = f"block B = (1/(s+1)+1/(s+2))^{k // 2} * (1/(s+3)+1/(s+4))^{k // 2} + 1/(s+5)^{k}\n"
-    err = errors(text)[0]
+    err = resolve_errors(text)[0]
     assert err.code == "LW233"
 
 
 def test_transfer_whose_coefficients_overflow():
     # regression: numpy's LinAlgError ("Array must not contain infs or NaNs") escaped
-    err = errors("block B = 1/(s+1e200)^16 + 1/(s+1)\n")[0]
+    err = resolve_errors("block B = 1/(s+1e200)^16 + 1/(s+1)\n")[0]
     assert (err.code, err.span.line, err.span.col) == ("LW106", 1, 11)  # one code for every overflow
     assert "overflow" in err.message
 
@@ -154,7 +147,7 @@ def test_transfer_whose_coefficients_overflow():
     ("input e\nblock G = 1e300*1e300/(s+1)\ny = G(e)\n", 2, 11),
 ])
 def test_constant_overflow_is_a_located_error(text, line, col):
-    err = errors(text)[0]
+    err = resolve_errors(text)[0]
     assert (err.code, err.span.line, err.span.col) == ("LW106", line, col)
     assert err.message == "the value overflows: it is not a finite number"
     assert_rendered(err, text)

@@ -124,7 +124,7 @@ def _metric_table() -> dict[str, set[str]]:
 
 
 def test_requirement_units_match_the_reference():
-    from loopwise.analysis import prepare_text
+    from loopwise.testing import prepare_text
     from loopwise.errors import ModelError, ModelErrors
     from loopwise.language.requirements import METRICS
 

@@ -10,7 +10,8 @@ import control as ct
 import numpy as np
 import pytest
 
-from loopwise.analysis import analyse_loop, analyse_loops, check_many, check_text, prepare_text
+from loopwise.analysis import check_many, check_text
+from loopwise.testing import analyse_loop, analyse_loops, prepare_text
 from loopwise.engine.batch import Batch
 from loopwise.transfer import Transfer
 

@@ -6,9 +6,9 @@ hand with python-control 0.10.2 (`control.tf` per block application,
 `control.summing_junction`, `control.interconnect`), independently of our parser
 and reducer. Compared:
 * every break's loop transfer L_k(jw) (other loops closed) with
-  `PreparedModel.loop_transfer`, and with the engine's own `PreparedModel.loop_state_space`;
+  `PreparedModel.loop_transfer`, and with the engine's own `loopwise.testing.loop_state_space`;
 * the whole closed loop's poles: eigenvalues of python-control's interconnected
-  state matrix vs `PreparedModel.closed_loop_poles()` (paired one to one), leaving out
+  state matrix vs `loopwise.testing.closed_loop_poles` (paired one to one), leaving out
   blocks driven only by exogenous inputs (their poles are the input's, not a loop's).
 
 Parameters below are copied from the model files; a change there must be
@@ -24,7 +24,8 @@ import numpy as np
 import pytest
 from scipy.optimize import linear_sum_assignment
 
-from loopwise.analysis import check_file, prepare_file, prepare_text
+from loopwise.analysis import check_file, prepare_file
+from loopwise.testing import closed_loop_poles, loop_state_space, prepare_text
 
 from .loopsets import Wiring, nested_cascade, strip_delays
 
@@ -194,13 +195,13 @@ def _compare(prep, wiring: Wiring, label: str):
     for name in prep.break_names:
         ref = wiring.loop_response(name, GRID)
         _assert_same_response(prep.loop_transfer(name, GRID), ref, f"{label}/{name}")
-        A, B, C, D = prep.loop_state_space(name)
+        A, B, C, D = loop_state_space(prep, name)
         _assert_same_response(_ss_response(*(np.atleast_2d(m) for m in (A, B, C, D)), GRID), ref,
                               f"{label}/{name} (engine state space)", floor=1e-14)
     # blocks driven only by an exogenous input (greenhouse: the outside-temperature
     # filter) are outside every loop; the state-space form leaves their poles out (they
     # count in Z separately, docs/method.md "Blocks on input paths"), so the reference does too
-    _assert_same_poles(prep.closed_loop_poles(), wiring.closed_loop(input_filters=False).poles(),
+    _assert_same_poles(closed_loop_poles(prep), wiring.closed_loop(input_filters=False).poles(),
                        label)
 
 

@@ -28,7 +28,7 @@ import control
 import numpy as np
 import pytest
 
-from loopwise.analysis import analyse_loop
+from loopwise.testing import analyse_loop
 from loopwise.transfer import Transfer
 
 from .loopsets import LoopCase, closed_loop_rhp, delay_free_loops, near_axis

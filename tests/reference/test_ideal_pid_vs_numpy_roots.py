@@ -151,11 +151,11 @@ def test_state_space_forms_through_an_ideal_pid():
     # the engine's state-space forms (used by tools and the cascade references) realise the
     # ideal PID together with the plant it feeds: closed-loop eigenvalues = numpy.roots(chi),
     # chi = s (s + 1)^2 + (0.5 s^2 + 2 s + 1); L's state space = L evaluated exactly
-    from loopwise.analysis import prepare_text
+    from loopwise.testing import closed_loop_poles, loop_state_space, prepare_text
     prep = prepare_text(SINGLE.format(kp=2.0, ki=1.0, kd=0.5, g="1/(s + 1)^2"))
     chi = np.polyadd(np.polymul([1.0, 0.0], [1, 2, 1]), [0.5, 2.0, 1.0])
-    assert np.allclose(np.sort_complex(prep.closed_loop_poles()), np.sort_complex(np.roots(chi)), atol=1e-9)
-    A, B, C, D = prep.loop_state_space("b")
+    assert np.allclose(np.sort_complex(closed_loop_poles(prep)), np.sort_complex(np.roots(chi)), atol=1e-9)
+    A, B, C, D = loop_state_space(prep, "b")
     s = 1j * np.logspace(-2, 3, 11)
     ss = np.array([(C @ np.linalg.solve(si * np.eye(A.shape[0]) - A, B) + D)[0, 0] for si in s])
     assert np.allclose(ss, prep.loop_transfer("b", s), rtol=1e-9, atol=0)

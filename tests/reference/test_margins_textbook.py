@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
-from loopwise.analysis import analyse_loop
+from loopwise.testing import analyse_loop
 from loopwise.transfer import Transfer
 
 

@@ -36,7 +36,7 @@ import control
 import numpy as np
 import pytest
 
-from loopwise.analysis import analyse_loop
+from loopwise.testing import analyse_loop
 from loopwise.engine.margins import loop_margins
 from loopwise.transfer import Transfer
 

@@ -27,7 +27,7 @@ import control
 import numpy as np
 import pytest
 
-from loopwise.analysis import analyse_loop
+from loopwise.testing import analyse_loop
 from loopwise.transfer import Transfer
 
 from .findings import record

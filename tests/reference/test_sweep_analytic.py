@@ -29,11 +29,16 @@ def pm_deg(K, T):
     return 90.0 - math.degrees(K * T)
 
 
+def _swept(tmp_path_factory, name: str, k_hi: float):
+    """The sweep of MODEL with K up to `k_hi` (16 samples), recorded: (result, errors, plants)."""
+    path = tmp_path_factory.mktemp("analytic") / f"{name}.loop"
+    path.write_text(MODEL.format(k_hi=k_hi))
+    return sweep_recorded(path, samples=16)
+
+
 @pytest.fixture(scope="module")
 def inside(tmp_path_factory):
-    path = tmp_path_factory.mktemp("analytic") / "inside.loop"
-    path.write_text(MODEL.format(k_hi=1.2))
-    return sweep_recorded(path, samples=16)
+    return _swept(tmp_path_factory, "inside", 1.2)
 
 
 def test_worst_corner_and_values_inside_the_stable_region(inside):
@@ -58,9 +63,7 @@ def test_worst_corner_and_values_inside_the_stable_region(inside):
 
 @pytest.fixture(scope="module")
 def crossing(tmp_path_factory):
-    path = tmp_path_factory.mktemp("analytic") / "crossing.loop"
-    path.write_text(MODEL.format(k_hi=2.0))
-    return sweep_recorded(path, samples=16)
+    return _swept(tmp_path_factory, "crossing", 2.0)
 
 
 def test_every_plant_has_the_analytic_verdict(crossing):

@@ -43,13 +43,18 @@ CONTROL = re.compile("[\x00-\x09\x0b-\x1f\x7f-\x9f]")
 SARIF_SCHEMA = json.loads((Path(__file__).parent / "data" / "sarif-schema-2.1.0.json").read_text(encoding="utf-8"))
 
 
-@pytest.fixture(scope="module")
-def folder(tmp_path_factory) -> Path:
-    root = tmp_path_factory.mktemp("hostile")
+def _hostile_folder(tmp_path_factory, prefix: str, text: str) -> Path:
+    """A folder of models named by HOSTILE, each holding `text`, and one unreadable model."""
+    root = tmp_path_factory.mktemp(prefix)
     for name in HOSTILE:
-        (root / f"{name}.loop").write_text(LOOP)
+        (root / f"{name}.loop").write_text(text)
     (root / "broken\x1b[31m<b>`|\nx.loop").write_text(BROKEN)
     return root
+
+
+@pytest.fixture(scope="module")
+def folder(tmp_path_factory) -> Path:
+    return _hostile_folder(tmp_path_factory, "hostile", LOOP)
 
 
 def run(folder: Path, capsys, *args) -> str:
@@ -91,6 +96,29 @@ def _walk(tokens):
         yield from _walk(t.children or [])
 
 
+def _tables_are_even(tokens) -> bool:
+    """Every row of every Markdown table has as many cells as the others of its table part
+    (header or body), and there is at least one table."""
+    rows = []
+    for t in tokens:
+        if t.type in ("thead_open", "tbody_open"):
+            rows.append([])
+        if t.type == "tr_open":
+            rows[-1].append(0)
+        if t.type in ("th_open", "td_open"):
+            rows[-1][-1] += 1
+    widths = [len(set(r)) for r in rows if r]
+    return bool(widths) and all(w == 1 for w in widths)
+
+
+def _valid_machine_output(raw: str, fmt: str) -> None:
+    """SARIF or JSON text: every control character escaped, parsed, SARIF against its schema."""
+    assert not CONTROL.search(raw.replace("\n", "")), fmt  # JSON writes them as \\uXXXX
+    doc = json.loads(raw)
+    if fmt == "sarif":
+        jsonschema.Draft4Validator(SARIF_SCHEMA).validate(doc)
+
+
 def test_markdown_makes_no_heading_image_link_or_html_from_a_name(folder, capsys, tmp_path):
     out_file = tmp_path / "summary.md"
     run(folder, capsys, "--format", "markdown", "--output", str(out_file), "--quiet")
@@ -107,16 +135,7 @@ def test_markdown_makes_no_heading_image_link_or_html_from_a_name(folder, capsys
     code = [t.content for t in tokens if t.type == "code_inline"]
     assert "tick`s``here`.loop" in " ".join(code) and "<img src=x onerror=alert(1)>.loop" in " ".join(code)
     # every table row has as many cells as its header
-    rows = []
-    for t in tokens:
-        if t.type in ("thead_open", "tbody_open"):
-            rows.append([])
-        if t.type == "tr_open":
-            rows[-1].append(0)
-        if t.type in ("th_open", "td_open"):
-            rows[-1][-1] += 1
-    widths = [len(set(r)) for r in rows if r]
-    assert widths and all(w == 1 for w in widths)
+    assert _tables_are_even(tokens)
     assert "pipe|in|name" in " ".join(code)
 
 
@@ -136,10 +155,7 @@ def test_sarif_and_json_are_valid_and_escape_every_control_character(folder, cap
         out_file = tmp_path / f"out.{fmt}"
         run(folder, capsys, "--format", fmt, "--output", str(out_file), "--quiet")
         raw = out_file.read_text(encoding="utf-8")
-        assert not CONTROL.search(raw.replace("\n", "")), fmt  # JSON writes them as \\uXXXX
-        doc = json.loads(raw)
-        if fmt == "sarif":
-            jsonschema.Draft4Validator(SARIF_SCHEMA).validate(doc)
+        _valid_machine_output(raw, fmt)
     assert "\\u001b" in raw and "\\u009b" in raw  # the names kept in the data, escaped
 
 
@@ -165,11 +181,7 @@ SWEPT = LOOP.replace("input r", "param k = 2 in [1.5, 2.5]\ninput r").replace("[
 
 @pytest.fixture(scope="module")
 def swept_folder(tmp_path_factory) -> Path:
-    root = tmp_path_factory.mktemp("hostile-sweep")
-    for name in HOSTILE:
-        (root / f"{name}.loop").write_text(SWEPT)
-    (root / "broken\x1b[31m<b>`|\nx.loop").write_text(BROKEN)
-    return root
+    return _hostile_folder(tmp_path_factory, "hostile-sweep", SWEPT)
 
 
 def sweep(folder: Path, capsys, *args) -> str:
@@ -195,15 +207,7 @@ def test_sweep_markdown_makes_no_heading_image_link_or_html_from_a_name(swept_fo
     assert headings[0].startswith("loopwise sweep:") and len(headings) == 1 + len(HOSTILE) + 1
     code = " ".join(t.content for t in tokens if t.type == "code_inline")
     assert "tick`s``here`.loop" in code and "<img src=x onerror=alert(1)>" in code and "pipe|in|name" in code
-    rows = []
-    for t in tokens:
-        if t.type in ("thead_open", "tbody_open"):
-            rows.append([])
-        if t.type == "tr_open":
-            rows[-1].append(0)
-        if t.type in ("th_open", "td_open"):
-            rows[-1][-1] += 1
-    assert rows and all(len(set(r)) == 1 for r in rows if r)
+    assert _tables_are_even(tokens)
 
 
 def test_sweep_junit_sarif_and_json_are_well_formed(swept_folder, capsys, tmp_path):
@@ -217,10 +221,7 @@ def test_sweep_junit_sarif_and_json_are_well_formed(swept_folder, capsys, tmp_pa
         out_file = tmp_path / f"sweep.{fmt}"
         sweep(swept_folder, capsys, "--format", fmt, "--output", str(out_file), "--quiet")
         raw = out_file.read_text(encoding="utf-8")
-        assert not CONTROL.search(raw.replace("\n", "")), fmt
-        doc = json.loads(raw)
-        if fmt == "sarif":
-            jsonschema.Draft4Validator(SARIF_SCHEMA).validate(doc)
+        _valid_machine_output(raw, fmt)
         assert "\\u001b" in raw and "\\u009b" in raw
 
 

@@ -13,6 +13,7 @@ import argparse
 import os
 import sys
 
+from ..progress import is_terminal
 from ..report import formats
 from .options import (add_config, add_fail_on_warnings, add_jobs, add_no_progress, add_output, add_set,
                       load_settings_for, progress_wanted, write_report)
@@ -51,10 +52,7 @@ def _colour(choice: str, stream) -> bool:
         return choice == "always"
     if os.environ.get("NO_COLOR") or os.environ.get("TERM") == "dumb":
         return False
-    try:
-        return stream.isatty()
-    except (AttributeError, ValueError):
-        return False
+    return is_terminal(stream)
 
 
 def run(args) -> int:

@@ -75,6 +75,8 @@ class StackedBank:
         self.has_delay = bool(np.any(self.delay > 0))
 
     def values(self, s: np.ndarray, which: np.ndarray) -> np.ndarray:
+        """Every term's value gain * transfer(s[j]) in sample which[j], complex, shape (len(s),
+        terms); delays exact, a point on a pole gives inf or nan there."""
         s = np.asarray(s, complex).ravel()
         x = s[:, None, None]
         with np.errstate(all="ignore"):
@@ -198,6 +200,7 @@ class Batch:
 
     @property
     def samples(self) -> int:
+        """How many parameter samples (reductions) the batch holds."""
         return len(self.reductions)
 
     def _grid(self, s):

@@ -374,6 +374,8 @@ def settle(curves_found: list[list[Crossing]], Ps: list[int], evaluate: Evaluate
 
 
 def holds_minus_one(lo: float, hi: float, ok: bool) -> bool:
+    """Whether -1 lies inside the stretch (lo, hi) of the negative real axis (a tuple from
+    `stretches`, unpacked; whether it is stable does not matter here)."""
     return lo < -1.0 < hi
 
 

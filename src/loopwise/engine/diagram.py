@@ -55,6 +55,13 @@ class BreakCut:
 
 @dataclass(frozen=True, eq=False)
 class Diagram:
+    """A model's loop graph: signals and inputs as nodes, each wiring term an edge from its
+    source into the signal whose equation uses it. `signals` lists the wiring's signals in
+    a fixed order (inputs excluded), `cycles` holds the simple loops (each from its first-defined
+    signal, shortest first; `cycles_complete` is False when there were too many to list),
+    `breaks` every break's cut wires, loops and enclosing break, and `findings` the
+    structural warnings and notes."""
+
     model: Model
     graph: nx.MultiDiGraph
     signals: tuple[str, ...]  # the state of the wiring, in a fixed order (inputs excluded)
@@ -73,6 +80,11 @@ def _feeds(term: Term) -> bool:
 
 
 def build_diagram(model: Model) -> Diagram:
+    """The loop graph of a resolved model and its structural checks: unused inputs, algebraic
+    loops, loops that no break opens, breaks that open nothing or name a wire that does not
+    exist, requirements on unknown breaks, and the cascade nesting of the breaks (nesting.py).
+    Raises ModelErrors (each located) for what makes the model uncheckable; the rest are
+    findings on the diagram."""
     g = nx.MultiDiGraph()
     for name in model.inputs:
         g.add_node(name, kind="input")

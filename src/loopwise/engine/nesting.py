@@ -36,6 +36,8 @@ NESTING_CYCLES = 64
 
 
 def cycle_wires(cycles) -> list[frozenset[tuple[str, str]]]:
+    """Each cycle (its signals in loop order) as the set of its wires (source signal, equation
+    signal), the last wire closing back to the first signal."""
     return [frozenset(zip(c, (*c[1:], c[0]))) for c in cycles]
 
 

@@ -57,6 +57,7 @@ class Program:
 
     @property
     def n_kept(self) -> int:
+        """|K|, how many signals the program keeps: the size of the matrix solved at each point."""
         return len(self.kept)
 
     # --- every break at once (Sherman-Morrison) -------------------------------------

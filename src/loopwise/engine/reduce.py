@@ -61,6 +61,7 @@ class Instance:
 
     @property
     def transfer(self):
+        """The applied block's transfer function (a Transfer), or None for a plain gain."""
         return None if self.term.app is None else self.term.app.transfer
 
 
@@ -100,6 +101,8 @@ class Component:
 
     @property
     def kept(self) -> tuple[int, ...]:
+        """The signals the component's main program keeps (global signal indices): every break's
+        signal and a feedback set, so that no loop is left among the eliminated ones."""
         return self.program.kept
 
     def _groups(self, s: np.ndarray, V: np.ndarray) -> list[tuple[np.ndarray | slice, Program]]:
@@ -200,6 +203,7 @@ class Component:
 
     @property
     def has_delay(self) -> bool:
+        """Whether any of the component's terms carries a delay exp(-T s)."""
         return self.bank.has_delay
 
     def step_ok(self, sa: np.ndarray, sb: np.ndarray) -> np.ndarray:
@@ -262,6 +266,7 @@ class Reduction:
     # --- structural facts ------------------------------------------------------------
     @property
     def n(self) -> int:
+        """How many signals the wiring has (inputs excluded): the size of A(s)."""
         return len(self.signals)
 
     def block_poles(self) -> np.ndarray:
@@ -271,11 +276,14 @@ class Reduction:
         return np.concatenate(poles) if poles else np.zeros(0, complex)
 
     def block_zeros(self) -> np.ndarray:
+        """All zeros (complex, rad/s) of the block applications inside the wiring, each
+        application its own instance; blocks on input paths are left out."""
         zs = [i.transfer.zeros for i in self.instances if i.transfer is not None]
         return np.concatenate(zs) if zs else np.zeros(0, complex)
 
     @property
     def has_delay(self) -> bool:
+        """Whether any block application in the wiring carries a delay (then no state-space form exists)."""
         return any(i.transfer is not None and i.transfer.delay > 0 for i in self.instances)
 
     def cut_signal(self, name: str) -> str:
@@ -305,6 +313,10 @@ class Reduction:
 
 
 def reduce_diagram(diagram: Diagram) -> Reduction:
+    """A model's wiring reduced once (see the module text): its terms indexed by equation row
+    and source column, the terms each break cuts, the block applications on input paths,
+    and the loop components, upstream first, each with its kept signals and elimination
+    programs."""
     model = diagram.model
     signals = diagram.signals
     index = {n: i for i, n in enumerate(signals)}

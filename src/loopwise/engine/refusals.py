@@ -84,6 +84,9 @@ def _labels(red: Reduction, comp: Component, positions) -> list[tuple[str, objec
 
 
 def improper_loop(red: Reduction, comp: Component, exc: ImproperLoop) -> ModelError:
+    """LW403 for a loop of the wiring whose gain grows without bound at high frequency (an
+    ideal derivative with nothing to roll it off): names the loop's signals and its
+    improper blocks, located at the first improper block."""
     model = red.diagram.model
     insts = [red.instances[comp.instances[p]] for p in exc.positions]
     names = list(dict.fromkeys(model.hidden_owner.get(red.signals[i.row], red.signals[i.row]) for i in insts))

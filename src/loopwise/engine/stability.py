@@ -70,6 +70,12 @@ class Contour:
 
 @dataclass(frozen=True, eq=False)
 class NyquistCount:
+    """One break's count on the indented contour: P, the poles of its loop transfer L inside
+    the contour (strictly in the right half plane with the default indentation); N, the
+    clockwise encirclements of -1 by L; Z = N + P, the closed loop's right-half-plane poles.
+    `marginal` when 1 + L touches zero on the axis, at `marginal_freq` (rad/s); `warnings`
+    as (code, message); `response`, L's samples along the contour for the margins."""
+
     P: int
     N: int
     Z: int

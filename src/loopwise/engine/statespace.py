@@ -3,8 +3,8 @@
 Each block application is realised on its own (a cascade of first- and
 second-order sections, which keeps high-order blocks well conditioned), and
 the wiring closes them up; an improper block (an ideal derivative) is realised
-together with the block it feeds. Used by the reference tests and tools (the
-check itself needs no state-space form).
+together with the block it feeds. Used by the reference tests and tools through
+`loopwise.testing` (the check itself needs no state-space form).
 """
 from __future__ import annotations
 
@@ -19,6 +19,10 @@ __all__ = ["StateSpace", "loop_state_space", "closed_loop_poles"]
 
 @dataclass(frozen=True, eq=False)
 class StateSpace:
+    """A real state-space form (A, B, C, D) of the loop transfer L = -y/v at a break (from
+    the injected v to -y), or of the whole closed loop (then B, C and D are empty); the
+    states are the block applications' own, `owners` naming the application of each state."""
+
     A: np.ndarray
     B: np.ndarray
     C: np.ndarray
@@ -171,4 +175,7 @@ def loop_state_space(red: Reduction, name: str | None = None) -> StateSpace:
 
 
 def closed_loop_poles(red: Reduction) -> np.ndarray:
+    """The closed loop's poles (complex, rad/s, unordered): the eigenvalues of the whole state
+    matrix, including poles that an exact cancellation hides from every loop transfer.
+    Blocks on input paths are left out. ValueError for a model with a delay."""
     return np.linalg.eigvals(loop_state_space(red, None).A)

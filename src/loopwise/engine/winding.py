@@ -57,6 +57,8 @@ class Piece:
     sign: float = 1.0
 
     def points(self, u: np.ndarray) -> np.ndarray:
+        """The contour points s (complex, rad/s) at parameters u in [0, 1] along the piece: j w on
+        an axis piece, j w0 + r exp(j theta) on an indentation."""
         if self.kind == "axis":
             if self.center is not None:
                 w = self.center + self.sign * self.a * (self.b / self.a) ** u
@@ -70,6 +72,7 @@ class Piece:
 
     @property
     def w_range(self) -> tuple[float, float]:
+        """The lowest and highest frequency (rad/s) that an axis piece spans."""
         if self.center is not None:
             ends = (self.center + self.sign * self.a, self.center + self.sign * self.b)
             return min(ends), max(ends)
