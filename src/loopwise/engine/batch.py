@@ -42,7 +42,7 @@ from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_LEVEL, ModelCo
                         _open_rhp, count as count_one)
 from .winding import MAX_SAMPLES, MAX_WORK, Piece, encirclements, trace
 
-__all__ = ["Batch", "StackedBank"]
+__all__ = ["Batch", "StackedBank", "wiring"]
 
 
 class StackedBank:
@@ -88,6 +88,12 @@ class StackedBank:
             if self.has_delay:
                 out *= np.exp(-s[:, None] * self.delay[which])
         return out
+
+
+def wiring(red: Reduction) -> tuple:
+    """A hashable key of a reduction's wiring (signals, terms, breaks, loop components):
+    reductions with equal keys may share a Batch, as the contract above asks."""
+    return _structure(red)
 
 
 def _structure(red: Reduction):
@@ -334,11 +340,15 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
     sample_of = owner[tr.pid]
     ext_of = None if ext is None else ext[1][ext[0].pid]
     zc, counts, redo = np.zeros(S, int), [], set()
+    # the batch pools the samples' budgets: a sample that used more than one model's trace
+    # may (winding.trace) would have stopped short alone; the one-model count decides it
+    redo |= _outgrown(owner[tr.pid], S, MAX_SAMPLES, MAX_WORK // (1 + 2 * B))
     # where sampling could not settle, the one-model count words the warnings
     redo |= {int(owner[p]) for p in tr.unresolved_pieces}
     if ext is not None:
         if not ext[0].complete:
             redo |= set(ext[1].tolist())
+        redo |= _outgrown(ext[1][ext[0].pid], S, EXTENSION_SAMPLES, MAX_WORK // B)
         redo |= {int(ext[1][p]) for p in ext[0].unresolved_pieces}
     for i, ct in enumerate(cts):
         rows = np.nonzero(sample_of == i)[0]
@@ -375,6 +385,13 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
             redo.add(i)  # a residual: the one-model count words the warning
         counts.append(mine)
     return zc, counts, redo
+
+
+def _outgrown(sample_of_point: np.ndarray, S: int, most: int, work: int) -> set[int]:
+    """The samples with more points than one model's trace allows (`most` points, `work`
+    points times traced functions): alone, their trace would have ended incomplete."""
+    used = np.bincount(sample_of_point, minlength=S)
+    return set(np.nonzero(used > min(most, work))[0].tolist())
 
 
 def _touches(resp: LoopResponse) -> bool:
