@@ -22,8 +22,8 @@ from loopwise.language.resolve import parse_model, resolve_parsed
 from loopwise.settings import Settings
 from loopwise.sweep.design import corners, space_filling, to_values
 from loopwise.sweep.driver import prepare_sweep
-from loopwise.sweep.evaluate import (BATCH, METRIC_NAMES, SampleOutcome, batches, evaluate_points,
-                                     outcome_of, outcomes_of_prepared)
+from loopwise.sweep.evaluate import (BATCH, METRIC_NAMES, MIN_BATCH, SPREAD, SampleOutcome, batches,
+                                     evaluate_points, outcome_of, outcomes_of_prepared)
 
 SERVO = Path(__file__).resolve().parents[2] / "models" / "servo_axis.loop"
 
@@ -116,7 +116,7 @@ def test_the_servo_plants_batched_are_the_plants_checked_one_by_one(batched):
     parsed, names, rows = plants(SERVO, 28)
     got = evaluate_points(parsed, names, rows)
     # the plants went through the batched engine, in batches of at most BATCH
-    assert sum(batched) == len(rows) == 36 and max(batched) <= BATCH and len(batched) == 2
+    assert sum(batched) == len(rows) == 36 and max(batched) <= BATCH and len(batched) == len(batches(36)) > 1
     ref = per_plant(parsed, names, rows)
     for g, r in zip(got, ref):
         assert_same(g, r)
@@ -171,8 +171,12 @@ def test_plants_of_different_wirings_are_batched_apart(batched):
 
 
 def test_the_batches_depend_on_the_number_of_plants_alone():
-    for count in (1, BATCH, BATCH + 1, 1000):
+    for count in (1, 3, MIN_BATCH * 2, 15, BATCH, BATCH + 1, 1000):
         cut = batches(count)
-        assert np.array_equal(np.concatenate(cut), np.arange(count))
-        assert max(len(c) for c in cut) <= BATCH and max(len(c) for c in cut) - min(len(c) for c in cut) <= 1
+        sizes = [len(c) for c in cut]
+        assert np.array_equal(np.concatenate(cut), np.arange(count))  # every plant once, in order
+        assert max(sizes) <= BATCH and max(sizes) - min(sizes) <= 1
+        # a small round still spreads over workers, in batches of MIN_BATCH or more
+        assert len(cut) >= min(SPREAD, count // MIN_BATCH) and (len(cut) == 1 or min(sizes) >= MIN_BATCH)
+    assert [len(c) for c in batches(15)] == [5, 5, 5] and len(batches(1000)) == 42
     assert batches(0) == []

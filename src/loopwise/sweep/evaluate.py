@@ -26,7 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["BreakSample", "SampleOutcome", "METRIC_NAMES", "BATCH", "batches", "evaluate_points",
+__all__ = ["BreakSample", "SampleOutcome", "METRIC_NAMES", "BATCH", "SPREAD", "MIN_BATCH", "batches", "evaluate_points",
            "outcomes_of_prepared", "outcome_of"]
 
 #: requirement metrics recorded per break (the names of `language.requirements.METRICS`)
@@ -95,18 +95,22 @@ def outcome_of(result) -> SampleOutcome:
     return SampleOutcome(tuple(breaks), None, tuple(f.code for f in result.findings if f.counts))
 
 
-#: plants counted and refined together by the batched engine: large enough that numpy's
-#: work per call outweighs Python's, small enough that a round of the local search still
-#: gives every worker a batch (bench/sweep.py)
+#: plants counted and refined together by the batched engine at most: about where the
+#: saving per plant stops growing (bench/sweep.py: the servo demo, 8 to 96 a batch)
 BATCH = 24
+#: a small round (the corners, a round of the local search or of the bisection) is still
+#: cut into up to SPREAD batches of at least MIN_BATCH plants, so that it keeps several
+#: workers busy
+SPREAD, MIN_BATCH = 4, 4
 
 
 def batches(count: int) -> list[np.ndarray]:
-    """The indices of `count` points cut into batches of at most BATCH, as even as can be.
-    The cut depends on `count` alone: `execute.py` hands each batch to a worker whole."""
+    """The indices of `count` points cut into batches of at most BATCH, as even as can be
+    (see SPREAD). The cut depends on `count` alone, never on the number of workers:
+    `execute.py` hands each batch to a worker whole."""
     if count <= 0:
         return []
-    return np.array_split(np.arange(count), -(-count // BATCH))
+    return np.array_split(np.arange(count), max(-(-count // BATCH), min(SPREAD, count // MIN_BATCH), 1))
 
 
 def evaluate_points(model, names: Sequence[str], points, fixed: Mapping[str, float] | None = None
