@@ -168,7 +168,8 @@ def _checked_together(preps: list, alone: bool = False) -> list[SampleOutcome]:
     from ..analysis import check_many, check_prepared
     from ..waivers import apply_waivers
 
-    results = [check_prepared(preps[0])] if alone else check_many(preps)
+    # a record holds no stabilising gain ranges: the batch does not search them
+    results = [check_prepared(preps[0])] if alone else check_many(preps, stabilising_gains=False)
     # the waivers mark the findings as `check` marks them (`analysis.check_model`)
     return [outcome_of(apply_waivers(r, p.model.waivers)) for r, p in zip(results, preps)]
 
