@@ -5,9 +5,11 @@ with N space-filling samples (default 1,000; corners, local search and boundarie
 on top), and the same model is checked N times with `loopwise.check_text`, each call
 with the params set to one of the sweep's space-filling points (in this process, one
 after another). The ratio of the two times is printed; the aim in the sweep issue is
-20x and under 10 s on 2 cores, which needs the batched engine: today each plant is one
-whole resolve + check behind `sweep/evaluate.py`, so expect a ratio near the number of
-worker processes.
+20x and under 10 s on 2 cores. The sweep analyses its plants in batches with the
+batched engine (`sweep/evaluate.py` over `analysis.check_many`), which saves the work
+per call but still samples each plant's curves as fully as a check does, so expect a
+ratio of about the number of worker processes times 1.1 to 1.2 (figures in
+docs/sweep.md, "Speed").
 
     python bench/sweep.py [--samples N] [--jobs J] [--checks M]
 

@@ -148,10 +148,12 @@ def check_prepared(prep: PreparedModel, indent: str = "right") -> ModelResult:
     return _finish(prep, plan, margins, gains)
 
 
-def check_many(preps: list[PreparedModel], indent: str = "right") -> list[ModelResult]:
+def check_many(preps: list[PreparedModel], indent: str = "right", stabilising_gains: bool = True
+               ) -> list[ModelResult]:
     """Many models with the same wiring (one model's parameter samples, or many single
     loops): counted and refined together (engine/batch.py), each judged as check_prepared
-    would."""
+    would. With `stabilising_gains` False the gain ranges that would stabilise an unstable
+    break are not searched (its `stabilising_gains` stay empty; a sweep records none)."""
     from .engine.batch import Batch
     from .engine.margins import break_margins, break_stabilising_gains
 
@@ -169,7 +171,7 @@ def check_many(preps: list[PreparedModel], indent: str = "right") -> list[ModelR
     margins = [{c.stmt.name: None for c in preps[i].diagram.breaks} for i in todo]
     for (n, name), m in zip(rows, found):
         margins[n][name] = m
-    rows = [(n, name) for n, plan in enumerate(plans) for name in plan.gain_names(margins[n])]
+    rows = [(n, name) for n, plan in enumerate(plans) for name in plan.gain_names(margins[n], stabilising_gains)]
     found = break_stabilising_gains(batch.evaluator(rows), [plans[n].counts[name].response for n, name in rows],
                                     [plans[n].counts[name].P for n, name in rows])
     gains = [dict() for _ in todo]
@@ -204,11 +206,11 @@ class _Plan:
     def stable_names(self) -> list[str]:
         return [r[0].stmt.name for r in self.rows if r[7]]
 
-    def gain_names(self, margins: dict) -> list[str]:
+    def gain_names(self, margins: dict, unstable: bool = True) -> list[str]:
         # for a stable break the margins already hold the stretch around k = 1; both margins
         # unbounded is the one case worth checking against the count (it also means "no
         # stretch"); no gain factor moves a mode that a cancellation hides: no range then
-        fixable = not any(h.counted for h in self.modes)
+        fixable = unstable and not any(h.counted for h in self.modes)
         return [r[0].stmt.name for r in self.rows
                 if _ambiguous(margins.get(r[0].stmt.name)) or (not r[7] and fixable)]
 

@@ -42,54 +42,38 @@ from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_LEVEL, ModelCo
                         _open_rhp, count as count_one)
 from .winding import MAX_SAMPLES, MAX_WORK, Piece, encirclements, trace
 
-__all__ = ["Batch", "StackedBank"]
+__all__ = ["Batch", "StackedBank", "wiring"]
 
 
 class StackedBank:
     """The terms of one wiring in many samples: `values(s, which)` gives, for points s[j] of
-    samples which[j], every term's value, shape (M, terms)."""
+    samples which[j], every term's value, shape (M, terms). Each sample's points go to that
+    sample's own Bank (engine/blocks.py: terms grouped by shape, no padding, no masks), so
+    a sample's values are those its one-model count sees."""
 
-    def __init__(self, banks: Sequence[Bank], transfers: Sequence[Sequence]):
-        # transfers[i][t]: sample i's term t as (gain, Transfer or None)
-        S, n = len(transfers), len(transfers[0])
-        self.samples, self.size = S, n
-        tfs = [[(g, tf) for g, tf in row] for row in transfers]
-        from ..transfer import Transfer
-        one = Transfer.constant(1.0)
-        full = [[(g, tf if tf is not None else one) for g, tf in row] for row in tfs]
-        q = max(min(tf.zeros.size, tf.poles.size) for row in full for _, tf in row)
-        qz = max(tf.zeros.size - min(tf.zeros.size, tf.poles.size) for row in full for _, tf in row)
-        qp = max(tf.poles.size - min(tf.zeros.size, tf.poles.size) for row in full for _, tf in row)
-        self.k = np.array([[g * tf.gain for g, tf in row] for row in full], float)
-        self.delay = np.array([[tf.delay for _, tf in row] for row in full], float)
-        self.pz, self.pp = np.zeros((S, n, q), complex), np.zeros((S, n, q), complex)
-        self.ez, self.ep = np.zeros((S, n, qz), complex), np.zeros((S, n, qp), complex)
-        self.mp = np.zeros((S, n, q), bool)
-        self.mz, self.mpl = np.zeros((S, n, qz), bool), np.zeros((S, n, qp), bool)
-        for i, row in enumerate(full):
-            for t, (_, tf) in enumerate(row):
-                c = min(tf.zeros.size, tf.poles.size)
-                self.pz[i, t, :c], self.pp[i, t, :c], self.mp[i, t, :c] = tf.zeros[:c], tf.poles[:c], True
-                self.ez[i, t, :tf.zeros.size - c], self.mz[i, t, :tf.zeros.size - c] = tf.zeros[c:], True
-                self.ep[i, t, :tf.poles.size - c], self.mpl[i, t, :tf.poles.size - c] = tf.poles[c:], True
+    def __init__(self, banks: Sequence[Bank]):
+        self.banks = tuple(banks)
+        self.samples, self.size = len(self.banks), self.banks[0].size
+        self.delay = np.array([b.delay for b in self.banks], float)
         self.has_delay = bool(np.any(self.delay > 0))
 
     def values(self, s: np.ndarray, which: np.ndarray) -> np.ndarray:
         """Every term's value gain * transfer(s[j]) in sample which[j], complex, shape (len(s),
         terms); delays exact, a point on a pole gives inf or nan there."""
         s = np.asarray(s, complex).ravel()
-        x = s[:, None, None]
-        with np.errstate(all="ignore"):
-            out = self.k[which].astype(complex)
-            if self.pz.shape[2]:
-                out *= np.prod(np.where(self.mp[which], (x - self.pz[which]) / (x - self.pp[which]), 1.0), axis=2)
-            if self.ez.shape[2]:
-                out *= np.prod(np.where(self.mz[which], x - self.ez[which], 1.0), axis=2)
-            if self.ep.shape[2]:
-                out /= np.prod(np.where(self.mpl[which], x - self.ep[which], 1.0), axis=2)
-            if self.has_delay:
-                out *= np.exp(-s[:, None] * self.delay[which])
+        which = np.asarray(which).ravel()
+        out = np.empty((s.size, self.size), complex)
+        order = np.argsort(which, kind="stable")
+        for idx in np.split(order, np.flatnonzero(np.diff(which[order])) + 1):
+            if idx.size:
+                out[idx] = self.banks[which[idx[0]]].values(s[idx])
         return out
+
+
+def wiring(red: Reduction) -> tuple:
+    """A hashable key of a reduction's wiring (signals, terms, breaks, loop components):
+    reductions with equal keys may share a Batch, as the contract above asks."""
+    return _structure(red)
 
 
 def _structure(red: Reduction):
@@ -104,7 +88,7 @@ class _Stacked:
     def __init__(self, comps: list, big: set[int]):
         first = comps[0]
         self.comps, self.breaks = comps, first.breaks
-        self.bank = StackedBank([c.bank for c in comps], [[(g, tf) for _, _, g, tf in c.entries] for c in comps])
+        self.bank = StackedBank([c.bank for c in comps])
         ends = [(row, col) for row, col, _, _ in first.entries]
         measured = [first.entries[p[0]][1] if p else None for p in first.cut_positions]
         cuts = [frozenset(p) for p in first.cut_positions]
@@ -337,11 +321,15 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
     sample_of = owner[tr.pid]
     ext_of = None if ext is None else ext[1][ext[0].pid]
     zc, counts, redo = np.zeros(S, int), [], set()
+    # the batch pools the samples' budgets: a sample that used more than one model's trace
+    # may (winding.trace) would have stopped short alone; the one-model count decides it
+    redo |= _outgrown(owner[tr.pid], S, MAX_SAMPLES, MAX_WORK // (1 + 2 * B))
     # where sampling could not settle, the one-model count words the warnings
     redo |= {int(owner[p]) for p in tr.unresolved_pieces}
     if ext is not None:
         if not ext[0].complete:
             redo |= set(ext[1].tolist())
+        redo |= _outgrown(ext[1][ext[0].pid], S, EXTENSION_SAMPLES, MAX_WORK // B)
         redo |= {int(ext[1][p]) for p in ext[0].unresolved_pieces}
     for i, ct in enumerate(cts):
         rows = np.nonzero(sample_of == i)[0]
@@ -378,6 +366,13 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
             redo.add(i)  # a residual: the one-model count words the warning
         counts.append(mine)
     return zc, counts, redo
+
+
+def _outgrown(sample_of_point: np.ndarray, S: int, most: int, work: int) -> set[int]:
+    """The samples with more points than one model's trace allows (`most` points, `work`
+    points times traced functions): alone, their trace would have ended incomplete."""
+    used = np.bincount(sample_of_point, minlength=S)
+    return set(np.nonzero(used > min(most, work))[0].tolist())
 
 
 def _touches(resp: LoopResponse) -> bool:

@@ -2,10 +2,12 @@
 processes (`--jobs`), or on a Dask distributed cluster (`--cluster ADDRESS`).
 
 Each is a context manager yielding `run(model, names, values, fixed) -> outcomes`
-(the arguments of `evaluate.evaluate_points`). A batch is cut into chunks and the
-outcomes come back in the order of `values`, so the results do not depend on where
-or in how many pieces they were computed: a sweep with the same seed gives the same
-figures on one process, many processes or a cluster.
+(the arguments of `evaluate.evaluate_points`). The plants are cut into the engine's
+batches (`evaluate.batches`: the cut depends on the number of plants, never on the
+number of workers), each batch goes to one worker whole, and the outcomes come back
+in the order of `values`, so the results do not depend on where or on how many
+workers they were computed: a sweep with the same seed gives the same figures on one
+process, many processes or a cluster.
 """
 from __future__ import annotations
 
@@ -14,17 +16,16 @@ from contextlib import contextmanager
 import numpy as np
 
 from ..errors import UsageError
-from .evaluate import SampleOutcome, evaluate_points
+from .evaluate import SampleOutcome, batches, evaluate_points
 
 __all__ = ["local_batches", "cluster_batches", "CLUSTER_INSTALL"]
 
 CLUSTER_INSTALL = 'pip install "loopwise[cluster]"'
-#: chunks per worker and batch: enough to even out slow plants, few enough to keep overhead low
-CHUNKS_PER_WORKER = 4
 
 
-def _chunks(values: np.ndarray, workers: int) -> list[np.ndarray]:
-    return [c for c in np.array_split(values, min(len(values), workers * CHUNKS_PER_WORKER)) if len(c)]
+def _chunks(values: np.ndarray) -> list[np.ndarray]:
+    """The engine's batches of `values` (rows), the same for any number of workers."""
+    return [values[idx] for idx in batches(len(values))]
 
 
 def _lost(chunk: np.ndarray) -> list[SampleOutcome]:
@@ -46,7 +47,7 @@ def local_batches(jobs: int):
     with open_pool(jobs) as pool:
 
         def run(model, names, values, fixed):
-            chunks = _chunks(values, pool.workers)
+            chunks = _chunks(values)
             parts = pool.run(partial(evaluate_points, model, names, fixed=fixed), chunks, on_broken=_lost)
             return [o for part in parts for o in part]
 
@@ -66,10 +67,8 @@ def cluster_batches(address: str):
     except (OSError, TimeoutError, ValueError) as exc:
         raise UsageError(f"cannot reach the Dask scheduler at {address}: {exc}") from None
     try:
-        workers = max(1, sum(client.nthreads().values()))
-
         def run(model, names, values, fixed):
-            chunks = _chunks(values, workers)
+            chunks = _chunks(values)
             futures = client.map(evaluate_points, [model] * len(chunks), [tuple(names)] * len(chunks), chunks,
                                  [fixed] * len(chunks), pure=False)
             return [o for part in client.gather(futures) for o in part]
