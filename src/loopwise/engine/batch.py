@@ -38,6 +38,7 @@ from .blocks import Bank
 from .certificate import ScaledTerms, certificate_radius, scaling
 from .program import build_program
 from .reduce import CANCEL, CHUNK, SAFE_LEVEL, SAFE_PER_PATH, Reduction
+from .solve import distinct
 from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_LEVEL, ModelCount, NyquistCount, _dedupe,
                         _open_rhp, count as count_one)
 from .winding import MAX_SAMPLES, MAX_WORK, Piece, encirclements, trace
@@ -53,40 +54,63 @@ class StackedBank:
         # transfers[i][t]: sample i's term t as (gain, Transfer or None)
         S, n = len(transfers), len(transfers[0])
         self.samples, self.size = S, n
-        tfs = [[(g, tf) for g, tf in row] for row in transfers]
         from ..transfer import Transfer
         one = Transfer.constant(1.0)
-        full = [[(g, tf if tf is not None else one) for g, tf in row] for row in tfs]
-        q = max(min(tf.zeros.size, tf.poles.size) for row in full for _, tf in row)
-        qz = max(tf.zeros.size - min(tf.zeros.size, tf.poles.size) for row in full for _, tf in row)
-        qp = max(tf.poles.size - min(tf.zeros.size, tf.poles.size) for row in full for _, tf in row)
-        self.k = np.array([[g * tf.gain for g, tf in row] for row in full], float)
+        full = [[(g, tf if tf is not None else one) for g, tf in row] for row in transfers]
         self.delay = np.array([[tf.delay for _, tf in row] for row in full], float)
-        self.pz, self.pp = np.zeros((S, n, q), complex), np.zeros((S, n, q), complex)
-        self.ez, self.ep = np.zeros((S, n, qz), complex), np.zeros((S, n, qp), complex)
-        self.mp = np.zeros((S, n, q), bool)
-        self.mz, self.mpl = np.zeros((S, n, qz), bool), np.zeros((S, n, qp), bool)
-        for i, row in enumerate(full):
-            for t, (_, tf) in enumerate(row):
-                c = min(tf.zeros.size, tf.poles.size)
-                self.pz[i, t, :c], self.pp[i, t, :c], self.mp[i, t, :c] = tf.zeros[:c], tf.poles[:c], True
-                self.ez[i, t, :tf.zeros.size - c], self.mz[i, t, :tf.zeros.size - c] = tf.zeros[c:], True
-                self.ep[i, t, :tf.poles.size - c], self.mpl[i, t, :tf.poles.size - c] = tf.poles[c:], True
         self.has_delay = bool(np.any(self.delay > 0))
+        # per term, the samples grouped by the term's shape (paired factors, unpaired zeros,
+        # unpaired poles, delay or not), as in Bank: each group evaluates with plain
+        # broadcasting, no padding and no masks; `_group[t]` / `_pos[t]`: each sample's
+        # group and its row in that group's arrays
+        self._terms, self._group, self._pos = [], np.zeros((n, S), int), np.zeros((n, S), int)
+        for t in range(n):
+            shapes: dict[tuple[int, int, int, bool], list[int]] = {}
+            for i, row in enumerate(full):
+                tf = row[t][1]
+                c = min(tf.zeros.size, tf.poles.size)
+                shapes.setdefault((c, tf.zeros.size - c, tf.poles.size - c, tf.delay > 0), []).append(i)
+            groups = []
+            for gi, ((c, nz, npl, delayed), idx) in enumerate(shapes.items()):
+                members = [full[i][t] for i in idx]
+                self._group[t, idx], self._pos[t, idx] = gi, np.arange(len(idx))
+                groups.append((
+                    np.array([g * tf.gain for g, tf in members], float).astype(complex),
+                    np.array([tf.zeros[:c] for _, tf in members], complex).reshape(len(idx), c),
+                    np.array([tf.poles[:c] for _, tf in members], complex).reshape(len(idx), c),
+                    np.array([tf.zeros[c:] for _, tf in members], complex).reshape(len(idx), nz),
+                    np.array([tf.poles[c:] for _, tf in members], complex).reshape(len(idx), npl),
+                    np.array([tf.delay for _, tf in members]) if delayed else None))
+            self._terms.append(groups)
 
     def values(self, s: np.ndarray, which: np.ndarray) -> np.ndarray:
         s = np.asarray(s, complex).ravel()
-        x = s[:, None, None]
+        which = np.asarray(which, int).ravel()
+        out = np.empty((s.size, self.size), complex)
         with np.errstate(all="ignore"):
-            out = self.k[which].astype(complex)
-            if self.pz.shape[2]:
-                out *= np.prod(np.where(self.mp[which], (x - self.pz[which]) / (x - self.pp[which]), 1.0), axis=2)
-            if self.ez.shape[2]:
-                out *= np.prod(np.where(self.mz[which], x - self.ez[which], 1.0), axis=2)
-            if self.ep.shape[2]:
-                out /= np.prod(np.where(self.mpl[which], x - self.ep[which], 1.0), axis=2)
-            if self.has_delay:
-                out *= np.exp(-s[:, None] * self.delay[which])
+            for t, groups in enumerate(self._terms):
+                if len(groups) == 1:
+                    parts = [(slice(None), groups[0], self._pos[t][which])]
+                else:
+                    g_of = self._group[t][which]
+                    order = np.argsort(g_of, kind="stable")
+                    bounds = np.searchsorted(g_of[order], np.arange(len(groups) + 1))
+                    parts = [(order[bounds[g]:bounds[g + 1]], groups[g], None) for g in range(len(groups))
+                             if bounds[g + 1] > bounds[g]]
+                for rows, (k, pz, pp, ez, ep, T), pos in parts:
+                    if pos is None:
+                        pos = self._pos[t][which[rows]]
+                    x = s[rows][:, None]
+                    v = k[pos]
+                    if pz.shape[1]:
+                        v = v * np.prod((x - pz[pos]) / (x - pp[pos]), axis=1)
+                    if ez.shape[1]:
+                        v = v * np.prod(x - ez[pos], axis=1)
+                    if ep.shape[1]:
+                        v = v / np.prod(x - ep[pos], axis=1)
+                    if T is not None:
+                        v = v * np.exp(-x[:, 0] * T[pos])
+                    out[rows, t] = v
         return out
 
 
@@ -166,7 +190,7 @@ class _Stacked:
                 g[idx] = prog.selected(V[idx], cols[idx])
             L = -g / (1.0 + g)
             bad = ~(np.abs(1.0 + g) > CANCEL * np.maximum(1.0, np.abs(g)))
-            for k in np.unique(cols[bad]):
+            for k in distinct(cols[bad]):
                 rows = np.nonzero(bad & (cols == k))[0]
                 L[rows] = self.direct(int(k), s[rows], which[rows])[2]
         return L
@@ -240,7 +264,7 @@ class Batch:
         for r in self.reductions:
             poles = r.block_poles()
             P0.append(_open_rhp(poles, indent))
-            axis.append(np.unique(np.abs(poles[poles.real == 0].imag)))
+            axis.append(distinct(np.abs(poles[poles.real == 0].imag)))
         return np.array(P0), axis
 
     def radius(self) -> np.ndarray:
@@ -289,7 +313,7 @@ class Batch:
             s = np.asarray(s, complex).ravel()
             i = np.broadcast_to(np.asarray(i, int), s.shape).ravel()
             out = np.empty(s.size, complex)
-            for c in np.unique(comp_of[i]):
+            for c in distinct(comp_of[i]):
                 sel = np.nonzero(comp_of[i] == c)[0]
                 out[sel] = self.stacks[c].loops(s[sel], sample_of[i[sel]], col_of[i[sel]])
             return out

@@ -6,7 +6,7 @@ from typing import Callable
 
 import numpy as np
 
-__all__ = ["illinois", "zoom_max", "zoom_max_many", "nonsingular"]
+__all__ = ["illinois", "zoom_max", "zoom_max_many", "nonsingular", "distinct"]
 
 
 def illinois(h: Callable, a, b, xtol_rel: float = 1e-14, max_iter: int = 100,
@@ -131,3 +131,10 @@ def nonsingular(M: np.ndarray, gross: np.ndarray, rel: float = 1e-12) -> bool:
             A[k + 1:, k:] -= f[:, None] * A[k, k:]
             G[k + 1:, k:] += np.abs(f)[:, None] * G[k, k:]
     return bool(np.all(np.isfinite(A)))
+
+
+def distinct(x) -> np.ndarray:
+    """The sorted distinct values of x (flattened), as np.unique gives them. np.unique
+    itself imports numpy.ma on its first call (about 20 ms of every CLI start-up)."""
+    x = np.sort(np.asarray(x).ravel())
+    return x[np.concatenate(([True], x[1:] != x[:-1]))] if x.size else x

@@ -25,6 +25,7 @@ from ..results import LoopResponse
 from .certificate import ImproperLoop, ScaledTerms, Uncertified, certificate_radius, closing_phase, scaling
 from .reduce import Component, Reduction
 from .refusals import check_range, check_span, check_values, improper_loop, uncertified_radius, unresolved
+from .solve import distinct
 from .winding import Piece, axis_orders, build_contour, encirclements, phase_change, trace
 
 __all__ = ["Contour", "NyquistCount", "ModelCount", "count", "prepare", "nyquist_counts"]
@@ -97,7 +98,7 @@ def _features(roots: np.ndarray) -> np.ndarray:
     for k in (-4, -2, -1, -0.5, 0.5, 1, 2, 4):
         out.append(light.imag + k * np.abs(light.real))
     f = np.concatenate(out) if out else np.zeros(0)
-    return np.unique(f[f > 0])
+    return distinct(f[f > 0])
 
 
 def _open_rhp(poles: np.ndarray, indent: str) -> int:
