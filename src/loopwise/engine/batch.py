@@ -195,10 +195,6 @@ class _Stacked:
                 L[rows] = self.direct(int(k), s[rows], which[rows])[2]
         return L
 
-    def phase_at(self, V, b):
-        with np.errstate(all="ignore"):
-            return self.program.values(V)[0] if b is None else self.program.direct(V, b)[0]
-
 
 class Batch:
     """One wiring in many parameter samples (see the module text for the contract)."""
@@ -486,8 +482,8 @@ def _step_ok(st: _Stacked, owner: np.ndarray):
 
 
 def _closing(st: _Stacked, cts: list) -> list[list[float]]:
-    """certificate.closing_phase for every sample and cut, the t-samples of all samples in
-    one evaluation per cut; a sample whose steps are not fine enough is done alone."""
+    """certificate.closing_phase for every sample and cut, the t-samples of all samples and
+    cuts in one evaluation; a sample whose steps are not fine enough is done alone."""
     from .certificate import closing_phase
     S, n = len(cts), 16
     t = np.linspace(0.0, 1.0, n + 1)
@@ -507,15 +503,23 @@ def _closing(st: _Stacked, cts: list) -> list[list[float]]:
             rows.append(V0[k][None, :] + t[:, None] * (V[k] - V0[k])[None, :])
             which.append(i)
     Vt = np.concatenate(rows)
-    out = [[0.0] * (1 + len(st.breaks)) for _ in range(S)]
-    for col, b in enumerate([None, *range(len(st.breaks))]):
-        phase = st.phase_at(Vt, b).reshape(S, 2, n + 1)
-        steps = (np.diff(phase, axis=2) + np.pi) % (2 * np.pi) - np.pi
+    # every cut from one evaluation, as certificate.closing_phases: arg det(I - A_k) =
+    # arg det(I - A_c) + arg(1 + g_k); a cut where 1 + g_k cancels is done alone
+    B = len(st.breaks)
+    with np.errstate(all="ignore"):
+        phase, _, g = st.program.values(Vt)
+        one_g = 1.0 + g
+        clean = np.all((np.abs(one_g) > CANCEL * np.maximum(1.0, np.abs(g))).reshape(S, 2 * (n + 1), B), axis=1)
+        cols = np.concatenate([phase[:, None], phase[:, None] + np.angle(one_g)], axis=1)
+        steps = (np.diff(cols.reshape(S, 2, n + 1, 1 + B), axis=2) + np.pi) % (2 * np.pi) - np.pi
         fine = np.max(np.abs(steps), axis=(1, 2)) < np.pi / 8
+        fine[:, 1:] &= clean
         branch = steps.sum(axis=2)
+    out = [[0.0] * (1 + B) for _ in range(S)]
+    for col, b in enumerate([None, *range(B)]):
         for i in range(S):
-            if fine[i]:
-                out[i][col] = float(branch[i, 0] - branch[i, 1])
+            if fine[i, col]:
+                out[i][col] = float(branch[i, 0, col] - branch[i, 1, col])
             else:
                 comp = cts[i].component
                 out[i][col] = closing_phase(comp, cts[i].terms, cts[i].scaling, b, cts[i].R)
