@@ -293,40 +293,45 @@ def _finish(prep: PreparedModel, plan: _Plan, margins: dict, gain_ranges: dict) 
                        tuple(plan.findings), tuple(plan.modes))
 
 
-def _by_component(red: Reduction, names: list[str]) -> dict[int, list[str]]:
-    groups: dict[int, list[str]] = {}
-    for n in names:
-        groups.setdefault(red.component_of[n], []).append(n)
-    return groups
+def _evaluator(red: Reduction, names: list[str]):
+    """L of break names[i[j]] at s[j], whatever component each break is in: the margins of
+    every break of the model in one vectorised pass (a point's value does not depend on
+    the points evaluated with it)."""
+    from .engine.solve import distinct
 
+    comp_of = np.array([red.component_of[n] for n in names], dtype=int)
+    col_of = np.array([red.components[red.component_of[n]].breaks.index(n) for n in names], dtype=int)
 
-def _evaluator(comp, names: list[str]):
-    """L of break names[i[j]] at s[j], for the margins of a component's breaks."""
-    cols = np.array([comp.breaks.index(n) for n in names])
-    return lambda s, i: comp.loops(s, cols[np.asarray(i, dtype=int)])
+    def evaluate(s, i):
+        s = np.asarray(s, complex).ravel()
+        i = np.broadcast_to(np.asarray(i, dtype=int), s.shape).ravel()
+        out = np.empty(s.size, complex)
+        for c in distinct(comp_of[i]):
+            sel = np.nonzero(comp_of[i] == c)[0]
+            out[sel] = red.components[c].loops(s[sel], col_of[i[sel]])
+        return out
+
+    return evaluate
 
 
 def _margins(red: Reduction, counts, names: list[str]) -> dict[str, Margins | None]:
-    """Every stable break's margins, one vectorised pass per loop component."""
+    """Every stable break's margins, one vectorised pass for all of them."""
     from .engine.margins import break_margins
 
     out: dict[str, Margins | None] = {c.stmt.name: None for c in red.diagram.breaks}
-    for k, group in _by_component(red, names).items():
-        comp = red.components[k]
-        found = break_margins(_evaluator(comp, group), [counts[n].response for n in group],
-                              [counts[n].P for n in group], tidy=True)
-        out.update(zip(group, found))
+    if names:
+        found = break_margins(_evaluator(red, names), [counts[n].response for n in names],
+                              [counts[n].P for n in names], tidy=True)
+        out.update(zip(names, found))
     return out
 
 
 def _gain_ranges(red: Reduction, counts, names: list[str]) -> dict[str, tuple]:
-    """The stabilising gain ranges of the named breaks, one pass per loop component."""
+    """The stabilising gain ranges of the named breaks, one pass for all of them."""
     from .engine.margins import break_stabilising_gains
 
-    out = {}
-    for k, group in _by_component(red, names).items():
-        comp = red.components[k]
-        found = break_stabilising_gains(_evaluator(comp, group), [counts[n].response for n in group],
-                                        [counts[n].P for n in group])
-        out.update(zip(group, found))
-    return out
+    if not names:
+        return {}
+    found = break_stabilising_gains(_evaluator(red, names), [counts[n].response for n in names],
+                                    [counts[n].P for n in names])
+    return dict(zip(names, found))

@@ -38,6 +38,7 @@ from .blocks import Bank
 from .certificate import ScaledTerms, certificate_radius, scaling
 from .program import build_program
 from .reduce import CANCEL, CHUNK, SAFE_LEVEL, SAFE_PER_PATH, Reduction
+from .solve import distinct
 from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_LEVEL, ModelCount, NyquistCount, _dedupe,
                         _open_rhp, count as count_one)
 from .winding import MAX_SAMPLES, MAX_WORK, Piece, encirclements, trace
@@ -152,14 +153,10 @@ class _Stacked:
                 g[idx] = prog.selected(V[idx], cols[idx])
             L = -g / (1.0 + g)
             bad = ~(np.abs(1.0 + g) > CANCEL * np.maximum(1.0, np.abs(g)))
-            for k in np.unique(cols[bad]):
+            for k in distinct(cols[bad]):
                 rows = np.nonzero(bad & (cols == k))[0]
                 L[rows] = self.direct(int(k), s[rows], which[rows])[2]
         return L
-
-    def phase_at(self, V, b):
-        with np.errstate(all="ignore"):
-            return self.program.values(V)[0] if b is None else self.program.direct(V, b)[0]
 
 
 class Batch:
@@ -227,7 +224,7 @@ class Batch:
         for r in self.reductions:
             poles = r.block_poles()
             P0.append(_open_rhp(poles, indent))
-            axis.append(np.unique(np.abs(poles[poles.real == 0].imag)))
+            axis.append(distinct(np.abs(poles[poles.real == 0].imag)))
         return np.array(P0), axis
 
     def radius(self) -> np.ndarray:
@@ -244,7 +241,12 @@ class Batch:
         """Every sample's Z and break counts, as stability.count gives them for one model,
         with every sample's contour traced in the same batched rounds."""
         from .stability import prepare
-        contours = [prepare(r, indent, for_margins) for r in self.reductions]
+        # the margins' reach of every sample in one stacked evaluation per component
+        contours = [prepare(r, indent, False) for r in self.reductions]
+        if for_margins:
+            for c, st in enumerate(self.stacks):
+                for cs, reach in zip(contours, _reach(st, [cs[c] for cs in contours])):
+                    cs[c] = replace(cs[c], reach=reach)
         Z = np.array([sum(_open_rhp(p, indent) for p in _outside_poles(r)) for r in self.reductions])
         per = [dict() for _ in self.reductions]
         redo: set[int] = set()
@@ -276,12 +278,37 @@ class Batch:
             s = np.asarray(s, complex).ravel()
             i = np.broadcast_to(np.asarray(i, int), s.shape).ravel()
             out = np.empty(s.size, complex)
-            for c in np.unique(comp_of[i]):
+            for c in distinct(comp_of[i]):
                 sel = np.nonzero(comp_of[i] == c)[0]
                 out[sel] = self.stacks[c].loops(s[sel], sample_of[i[sel]], col_of[i[sel]])
             return out
 
         return evaluate
+
+
+def _reach(st: _Stacked, cts: list) -> list[float]:
+    """stability._margin_reach for every sample: the same grid and rule, all samples' points
+    in one evaluation."""
+    if not st.breaks:
+        return [ct.R for ct in cts]
+    S, n = len(cts), 201
+    R = np.array([ct.R for ct in cts])
+    w = R[:, None] * np.logspace(-6.0, 4.0, n)[None, :]
+    s, which = 1j * w.ravel(), np.repeat(np.arange(S), n)
+    g = np.zeros((s.size, len(st.breaks)), complex)
+    with np.errstate(all="ignore"):
+        V = st.bank.values(s, which)
+        for idx, prog in st._groups(V):
+            g[idx] = prog.values(V[idx])[2]
+        mag = np.abs(g / (1.0 + g)).reshape(S, n, -1)
+    out = []
+    for i in range(S):
+        big = np.nonzero((~(mag[i] < REACH_LEVEL)).any(axis=1))[0]
+        unit = np.nonzero((~(mag[i] < 1.0)).any(axis=1))[0]
+        last_small = max(R[i], float(w[i, min(big[-1] + 1, n - 1)])) if big.size else R[i]
+        last_unit = float(w[i, unit[-1]]) if unit.size else 0.0
+        out.append(float(min(max(1.5 * last_small, 30.0 * last_unit, R[i]), 1e4 * R[i])))
+    return out
 
 
 def _outside_poles(r: Reduction) -> list[np.ndarray]:
@@ -318,8 +345,12 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
         return np.zeros(S, int), [dict() for _ in range(S)], set(range(S))
     closes = _closing(st, cts)
     ext = _extension(st, cts) if B else None
+    # pieces are listed sample by sample and a trace is ordered by piece: each sample's
+    # samples are one contiguous run (bounds by bisection, not a scan per sample)
     sample_of = owner[tr.pid]
+    at = np.searchsorted(sample_of, np.arange(S + 1))
     ext_of = None if ext is None else ext[1][ext[0].pid]
+    ext_at = None if ext is None else np.searchsorted(ext_of, np.arange(S + 1))
     zc, counts, redo = np.zeros(S, int), [], set()
     # the batch pools the samples' budgets: a sample that used more than one model's trace
     # may (winding.trace) would have stopped short alone; the one-model count decides it
@@ -332,7 +363,7 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
         redo |= _outgrown(ext[1][ext[0].pid], S, EXTENSION_SAMPLES, MAX_WORK // B)
         redo |= {int(ext[1][p]) for p in ext[0].unresolved_pieces}
     for i, ct in enumerate(cts):
-        rows = np.nonzero(sample_of == i)[0]
+        rows = np.arange(at[i], at[i + 1])
         vals, s0, on0 = tr.values[rows], tr.s[rows], tr.on_axis[rows]
         turn = float(np.angle(s0[-1]) - np.angle(s0[0]))
         with np.errstate(invalid="ignore"):
@@ -342,7 +373,7 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
         close_full = closes[i][0]
         wz, err = encirclements(stp[0] + close_full)
         zc[i] = ct.P0 + wz
-        er = np.nonzero(ext_of == i)[0][1:] if ext is not None else np.zeros(0, int)
+        er = np.arange(ext_at[i] + 1, ext_at[i + 1]) if ext is not None else np.zeros(0, int)
         mine = {}
         for k, name in enumerate(st.breaks):
             close_k = closes[i][1 + k]
@@ -426,30 +457,44 @@ def _step_ok(st: _Stacked, owner: np.ndarray):
 
 
 def _closing(st: _Stacked, cts: list) -> list[list[float]]:
-    """certificate.closing_phase for every sample and cut, the t-samples of all samples in
-    one evaluation per cut; a sample whose steps are not fine enough is done alone."""
+    """certificate.closing_phase for every sample and cut, the t-samples of all samples and
+    cuts in one evaluation; a sample whose steps are not fine enough is done alone."""
     from .certificate import closing_phase
     S, n = len(cts), 16
     t = np.linspace(0.0, 1.0, n + 1)
     rows, which = [], []
+    ends = np.zeros((S, 2), complex)  # s = R and s = jR of every sample, evaluated together
+    ends[:, 0].real = ends[:, 1].imag = [ct.R for ct in cts]
+    with np.errstate(all="ignore"):
+        V_ends = st.bank.values(ends.ravel(), np.repeat(np.arange(S), 2)).reshape(S, 2, -1)
     for i, ct in enumerate(cts):
         terms, d = ct.terms, ct.scaling
-        s = np.array([complex(ct.R, 0.0), complex(0.0, ct.R)])
+        s = ends[i]
         with np.errstate(all="ignore"):
-            V = st.bank.values(s, np.array([i, i]))
+            V = V_ends[i]
             expo = (d[terms.rows] - d[terms.cols])[None, :]
             V0 = np.where(terms.delayed, 0.0, terms.limit)[None, :] * s[:, None] ** expo
         for k in range(2):
             rows.append(V0[k][None, :] + t[:, None] * (V[k] - V0[k])[None, :])
             which.append(i)
     Vt = np.concatenate(rows)
-    out = [[0.0] * (1 + len(st.breaks)) for _ in range(S)]
-    for col, b in enumerate([None, *range(len(st.breaks))]):
-        phase = st.phase_at(Vt, b).reshape(S, 2, n + 1)
-        steps = (np.diff(phase, axis=2) + np.pi) % (2 * np.pi) - np.pi
+    # every cut from one evaluation, as certificate.closing_phases: arg det(I - A_k) =
+    # arg det(I - A_c) + arg(1 + g_k); a cut where 1 + g_k cancels is done alone
+    B = len(st.breaks)
+    with np.errstate(all="ignore"):
+        phase, _, g = st.program.values(Vt)
+        one_g = 1.0 + g
+        clean = np.all((np.abs(one_g) > CANCEL * np.maximum(1.0, np.abs(g))).reshape(S, 2 * (n + 1), B), axis=1)
+        cols = np.concatenate([phase[:, None], phase[:, None] + np.angle(one_g)], axis=1)
+        steps = (np.diff(cols.reshape(S, 2, n + 1, 1 + B), axis=2) + np.pi) % (2 * np.pi) - np.pi
+        fine = np.max(np.abs(steps), axis=(1, 2)) < np.pi / 8
+        fine[:, 1:] &= clean
+        branch = steps.sum(axis=2)
+    out = [[0.0] * (1 + B) for _ in range(S)]
+    for col, b in enumerate([None, *range(B)]):
         for i in range(S):
-            if np.max(np.abs(steps[i])) < np.pi / 8:
-                out[i][col] = float(steps[i, 0].sum() - steps[i, 1].sum())
+            if fine[i, col]:
+                out[i][col] = float(branch[i, 0, col] - branch[i, 1, col])
             else:
                 comp = cts[i].component
                 out[i][col] = closing_phase(comp, cts[i].terms, cts[i].scaling, b, cts[i].R)

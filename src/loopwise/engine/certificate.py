@@ -14,10 +14,11 @@ from __future__ import annotations
 import numpy as np
 
 from ..transfer import Transfer
-from .reduce import Component
+from .reduce import CANCEL, Component
 from .solve import nonsingular
 
-__all__ = ["ImproperLoop", "Uncertified", "ScaledTerms", "scaling", "certificate_radius", "closing_phase"]
+__all__ = ["ImproperLoop", "Uncertified", "ScaledTerms", "scaling", "certificate_radius", "closing_phase",
+           "closing_phases"]
 
 
 class ImproperLoop(Exception):
@@ -240,3 +241,35 @@ def closing_phase(comp: Component, terms: "ScaledTerms", d: np.ndarray, b: int |
             n *= 4
         branch.append(float(np.sum(steps)))
     return branch[0] - branch[1]
+
+
+def closing_phases(comp: Component, terms: "ScaledTerms", d: np.ndarray, R: float) -> list[float]:
+    """closing_phase of det(I - A_c) and of every break's det(I - A_k) (in the order of
+    `comp.breaks`), from one evaluation at the t-samples of both ends.
+
+    det(I - A_k) = det(I - A_c)(1 + g_k) (Sherman-Morrison, as in the count), so at each
+    t-sample arg det(I - A_k) = arg det(I - A_c) + arg(1 + g_k): one propagation serves
+    every break instead of one per break. A cut whose 1 + g_k cancels at some sample
+    (reduce.CANCEL) or whose steps are not all below pi/8 is done alone (closing_phase).
+    """
+    n = 16
+    s = np.array([complex(R, 0.0), complex(0.0, R)])
+    t = np.linspace(0.0, 1.0, n + 1)
+    with np.errstate(all="ignore"):
+        V = comp.bank.values(s)
+        expo = (d[terms.rows] - d[terms.cols])[None, :]
+        V0 = np.where(terms.delayed, 0.0, terms.limit)[None, :] * s[:, None] ** expo
+        Vt = np.concatenate([V0[k][None, :] + t[:, None] * (V[k] - V0[k])[None, :] for k in range(2)])
+        phase, _, g = comp.program.values(Vt)
+        one_g = 1.0 + g
+        clean = np.all(np.abs(one_g) > CANCEL * np.maximum(1.0, np.abs(g)), axis=0)
+        cols = np.concatenate([phase[:, None], phase[:, None] + np.angle(one_g)], axis=1)
+        steps = (np.diff(cols.reshape(2, n + 1, -1), axis=1) + np.pi) % (2 * np.pi) - np.pi
+        fine = np.max(np.abs(steps), axis=(0, 1)) < np.pi / 8
+    out = []
+    for col, b in enumerate([None, *range(len(comp.breaks))]):
+        if fine[col] and (b is None or clean[b]):
+            out.append(float(np.sum(steps[0, :, col])) - float(np.sum(steps[1, :, col])))
+        else:
+            out.append(closing_phase(comp, terms, d, b, R))
+    return out

@@ -17,7 +17,7 @@ from typing import Callable
 import numpy as np
 
 from ..results import LoopResponse
-from .solve import illinois
+from .solve import distinct, illinois
 
 __all__ = ["Curve", "Crossing", "upper_curve", "add_tail", "crossings", "stretches", "settle",
            "gain_margins", "gain_factors", "refine", "HORIZON", "Evaluate"]
@@ -346,7 +346,7 @@ def stretches(found: list[Crossing], P: int) -> list[tuple[float, float, bool]]:
     ups = np.array([c.up for c in found], dtype=int)
     order = np.argsort(xs, kind="stable")
     xs, counts = xs[order], np.concatenate([[0], np.cumsum(ups[order])])
-    finite = np.unique(xs[np.isfinite(xs) & (xs < 0)])
+    finite = distinct(xs[np.isfinite(xs) & (xs < 0)])
     bounds = np.concatenate([[-math.inf], finite, [0.0]])
     lo, hi = bounds[:-1], bounds[1:]
     with np.errstate(all="ignore"):

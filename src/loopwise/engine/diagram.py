@@ -181,8 +181,10 @@ def _cycles(g, model: Model):
     hashes vary between runs), so they are put in a fixed order here.
     """
     order = {n: i for i, n in enumerate(model.signals)}
-    sub = g.subgraph(model.signals)
-    simple = nx.DiGraph(sub)
+    # a plain DiGraph of the signals' wires (a subgraph view of the multigraph is slow to copy)
+    simple = nx.DiGraph()
+    simple.add_nodes_from(n for n in g if n in order)
+    simple.add_edges_from((u, v) for u, v in g.edges() if u in order and v in order)
     cycles = []
     complete = True
     for cyc in nx.simple_cycles(simple):

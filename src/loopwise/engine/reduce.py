@@ -34,6 +34,7 @@ from ..language.resolve import Term
 from .blocks import Bank
 from .diagram import Diagram
 from .program import Program, build_program
+from .solve import distinct
 
 __all__ = ["Instance", "Component", "Reduction", "reduce_diagram", "ComponentValues", "CANCEL"]
 
@@ -177,7 +178,7 @@ class Component:
                 g[idx] = prog.selected(V[idx], cols[idx])
             L = -g / (1.0 + g)
             bad = ~(np.abs(1.0 + g) > CANCEL * np.maximum(1.0, np.abs(g)))
-            for k in np.unique(cols[bad]):
+            for k in distinct(cols[bad]):
                 rows = np.nonzero(bad & (cols == k))[0]
                 L[rows] = self.direct(int(k), s[rows])[2]
         return L

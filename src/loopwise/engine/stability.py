@@ -22,9 +22,10 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..results import LoopResponse
-from .certificate import ImproperLoop, ScaledTerms, Uncertified, certificate_radius, closing_phase, scaling
+from .certificate import ImproperLoop, ScaledTerms, Uncertified, certificate_radius, closing_phases, scaling
 from .reduce import Component, Reduction
 from .refusals import check_range, check_span, check_values, improper_loop, uncertified_radius, unresolved
+from .solve import distinct
 from .winding import Piece, axis_orders, build_contour, encirclements, phase_change, trace
 
 __all__ = ["Contour", "NyquistCount", "ModelCount", "count", "prepare", "nyquist_counts"]
@@ -103,7 +104,7 @@ def _features(roots: np.ndarray) -> np.ndarray:
     for k in (-4, -2, -1, -0.5, 0.5, 1, 2, 4):
         out.append(light.imag + k * np.abs(light.real))
     f = np.concatenate(out) if out else np.zeros(0)
-    return np.unique(f[f > 0])
+    return distinct(f[f > 0])
 
 
 def _open_rhp(poles: np.ndarray, indent: str) -> int:
@@ -261,7 +262,8 @@ def _count_component(red: Reduction, ct: Contour) -> tuple[int, list, dict[str, 
     tr, q = _trace(red, ct)
     B = len(comp.breaks)
     steps = _steps(tr, q)
-    close_full = closing_phase(comp, ct.terms, ct.scaling, None, ct.R)
+    closes = closing_phases(comp, ct.terms, ct.scaling, ct.R)  # det(I - A_c), then each break's
+    close_full = closes[0]
     wz, err_z = encirclements(steps[0] + close_full)
     warnings = []
     if err_z > 1e-3:
@@ -271,7 +273,7 @@ def _count_component(red: Reduction, ct: Contour) -> tuple[int, list, dict[str, 
     counts = {}
     touching = []
     for k, name in enumerate(comp.breaks):
-        close_k = closing_phase(comp, ct.terms, ct.scaling, k, ct.R)
+        close_k = closes[1 + k]
         wk, err_k = encirclements(steps[0] + steps[1 + k] + close_k)
         N, err_n = encirclements(-steps[1 + k] + close_full - close_k)
         warns = []
@@ -307,7 +309,7 @@ def _count_component(red: Reduction, ct: Contour) -> tuple[int, list, dict[str, 
         for k, name in enumerate(comp.breaks):
             c = counts[name]
             if c.marginal:
-                close_k = closing_phase(comp, ct.terms, ct.scaling, k, ct.R)
+                close_k = closes[1 + k]
                 P = again.P0 + encirclements(steps[0] + steps[1 + k] + close_k)[0]
                 N = encirclements(-steps[1 + k] + close_full - close_k)[0]
                 counts[name] = replace(c, P=P, N=N, Z=P + N)

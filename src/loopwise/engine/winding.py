@@ -22,6 +22,8 @@ from typing import Callable
 
 import numpy as np
 
+from .solve import distinct
+
 __all__ = ["Piece", "Trace", "build_contour", "axis_orders", "indentation_radius", "trace", "phase_change",
            "encirclements"]
 
@@ -213,7 +215,7 @@ def _seed(piece: Piece, features: np.ndarray, max_step: float | None = None) -> 
     if max_step is not None and 2 < (hi - lo) / max_step < MAX_SAMPLES / 4:
         with np.errstate(all="ignore"):
             u = np.concatenate([u, piece.u_of(np.arange(lo, hi, max_step)[1:])])
-    return np.unique(np.clip(u[np.isfinite(u)], 0.0, 1.0))
+    return distinct(np.clip(u[np.isfinite(u)], 0.0, 1.0))
 
 
 def _accept(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT) -> np.ndarray:
