@@ -110,6 +110,14 @@ def test_poles_spread_over_24_decades_are_flagged():
     assert any(f.code == "LW483" for f in res.findings)
 
 
+def test_loops_spanning_more_than_26_decades_are_refused_before_sampling():
+    """docs/method.md, numbers beyond double precision: 1e-13 to 1e14 rad/s is 27 decades."""
+    with pytest.raises(ModelError) as err:
+        check_text(loop("1e14/((s+1e-13)*(s+1e14))*(s+1)"), "h.loop")
+    assert [e.code for e in err.value.errors] == ["LW406"]
+    assert "span 27 decades" in str(err.value.errors[0])
+
+
 def test_hidden_unstable_mode_is_named():
     # C's zero at s = 1 cancels P's pole at s = 1: L = 1/((s+2)(s+3)) looks harmless,
     # but the closed loop keeps the mode at s = 1 (Z = 1; closed-loop characteristic
