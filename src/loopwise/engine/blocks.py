@@ -1,15 +1,15 @@
 """Many block applications evaluated at once (part of the reduce stage).
 
-A `Bank` packs the factored transfers of a set of wiring terms into padded root
-arrays, so that all their values at all frequencies come from a few numpy
+A `Bank` groups the factored transfers of a set of wiring terms by shape (no padding,
+no masks), so that all their values at all frequencies come from a few numpy
 operations: `values(s)` has shape (len(s), terms). Each transfer is evaluated as
 `Transfer.evaluate` does it - every zero paired with a pole, `(s - z)/(s - p)`, so
 intermediate values stay near 1 at high order, the unpaired factors after, the
 delay as `exp(-T s)` - which keeps the exact factored form next to the poles on the
 imaginary axis (no expanded polynomial loses digits there).
 
-A bank of several parameter samples of the same terms (`stack`) evaluates to shape
-(samples, len(s), terms); batch.py builds on it.
+Many parameter samples of one wiring each keep their own Bank; batch.StackedBank sends
+each sample's points to its bank.
 """
 from __future__ import annotations
 
