@@ -12,17 +12,10 @@ import math
 
 import pytest
 
+from tests.scenarios import DELAYED
 from tests.sweep.recording import sweep_recorded
 
-MODEL = """model delayed_integrator
-param K = 1 in [0.5, {k_hi}]
-param T = 0.5 in [0.2, 1]
-input r
-e = r - y
-y = [K*exp(-T*s)/s](e)
-break loop at y
-require loop phase_margin >= 15deg
-"""
+MODEL = DELAYED  # L = K exp(-sT)/s over a box of K and T (tests/scenarios.py)
 
 
 def pm_deg(K, T):

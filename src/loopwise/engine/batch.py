@@ -37,7 +37,7 @@ from ..results import LoopResponse
 from .blocks import Bank
 from .certificate import ScaledTerms, certificate_radius, scaling
 from .program import build_program
-from .reduce import CANCEL, CHUNK, SAFE_LEVEL, SAFE_PER_PATH, Reduction
+from .reduce import CANCEL, SAFE_LEVEL, SAFE_PER_PATH, Reduction, bounded_batches
 from .solve import distinct
 from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_LEVEL, ModelCount, NyquistCount, _dedupe,
                         _open_rhp, count as count_one)
@@ -104,12 +104,7 @@ class _Stacked:
             with np.errstate(all="ignore"):
                 risky = ~(np.max(np.abs(V[:, self.big]), axis=1) < SAFE_LEVEL)
             groups = [(np.nonzero(~risky)[0], self.program), (np.nonzero(risky)[0], self.safe)]
-        out = []
-        for idx, prog in groups:
-            per_point = len(prog.feeds) * (prog.n_kept + len(self.breaks) + 1) + prog.n_kept ** 2
-            step = max(64, int(CHUNK / per_point))
-            out += [(idx[i:i + step], prog) for i in range(0, idx.size, step)]
-        return [(i, p) for i, p in out if i.size]
+        return [(i, p) for i, p in bounded_batches(groups, len(self.breaks)) if i.size]
 
     def terms(self, s, which, breaks: int | None = None):
         """log det(I - A_c), log(1 + g_k), L_k at points s of samples which (as Component.terms)."""

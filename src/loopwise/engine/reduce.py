@@ -117,12 +117,7 @@ class Component:
             for p, r in self.near:
                 risky |= (np.abs(s - p) <= r) | (np.abs(s - np.conj(p)) <= r)
             groups = [(np.nonzero(~risky)[0], self.program), (np.nonzero(risky)[0], self.safe)]
-        # bounded memory: a propagation holds (points, nodes, kept + breaks) values
-        out = []
-        for idx, prog in groups:
-            per_point = len(prog.feeds) * (prog.n_kept + len(self.breaks) + 1) + prog.n_kept ** 2
-            step = max(64, int(CHUNK / per_point))
-            out += [(idx[i:i + step], prog) for i in range(0, idx.size, step)]
+        out = bounded_batches(groups, len(self.breaks))
         if len(out) == 1 and out[0][0].size == s.size:
             return [(slice(None), out[0][1])]
         return out
@@ -311,6 +306,17 @@ class Reduction:
         s = np.atleast_1d(np.asarray(s, dtype=complex)).ravel()
         c = self.components[self.component_of[name]]
         return c.direct(c.breaks.index(name), s)[2]
+
+
+def bounded_batches(groups, n_breaks: int) -> list:
+    """(point indices, program) groups cut into batches of bounded memory: a propagation
+    holds (points, nodes, kept + breaks) values, at most about CHUNK of them at once."""
+    out = []
+    for idx, prog in groups:
+        per_point = len(prog.feeds) * (prog.n_kept + n_breaks + 1) + prog.n_kept ** 2
+        step = max(64, int(CHUNK / per_point))
+        out += [(idx[i:i + step], prog) for i in range(0, idx.size, step)]
+    return out
 
 
 def reduce_diagram(diagram: Diagram) -> Reduction:
