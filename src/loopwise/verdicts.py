@@ -13,7 +13,7 @@ import numpy as np
 from .engine.hidden import applications
 from .engine.reduce import Reduction
 from .errors import Finding, ModelError, Span
-from .language.model import Model
+from .language.model import Model, block_words
 from .results import HiddenMode
 
 __all__ = ["counted_modes", "verdict_adjustment", "mode_findings", "hidden_from_loop", "positive_feedback",
@@ -64,7 +64,7 @@ def mode_findings(red: Reduction, modes: list[HiddenMode]) -> list[Finding]:
     for h in modes:
         where = _pole_text(h.pole)
         span = spans.get(h.pole_blocks[0], Span(red.diagram.model.file, 1, 1))
-        blocks = ", ".join(f"`{b}`" for b in h.pole_blocks)
+        blocks = ", ".join(block_words(b) for b in h.pole_blocks)
         if h.code == "LW488" and not h.zero_blocks:
             out.append(Finding(
                 "warning", "LW488", f"closed-loop pole {where}, within 1e-9 (relative) of the pole of {blocks} "
@@ -74,7 +74,7 @@ def mode_findings(red: Reduction, modes: list[HiddenMode]) -> list[Finding]:
         elif h.code == "LW488":
             out.append(Finding(
                 "warning", "LW488", f"closed-loop pole {where} on the imaginary axis, hidden by a cancellation: "
-                f"pole of {blocks}, zero of " + (", ".join(f"`{b}`" for b in h.zero_blocks) or "the wiring")
+                f"pole of {blocks}, zero of " + (", ".join(block_words(b) for b in h.zero_blocks) or "the wiring")
                 + "; the mode never decays and no loop transfer shows it (marginal)", span,
                 "remove the cancellation (e.g. a PI integrator against a plant zero at s = 0) or model the "
                 "mode's damping", _mode_subject(h)))

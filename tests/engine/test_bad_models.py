@@ -169,3 +169,12 @@ def test_a_refusal_says_what_could_not_be_sampled_and_why():
     err = info.value
     assert err.code == "LW402" and "break `b`" in err.message and "rad/s" in err.message
     assert "delay" in err.hint
+
+
+def test_an_inline_transfer_is_named_by_its_place_in_messages():
+    """Its internal label `[..]@4:5` used to be printed as if it were a block name."""
+    text = "model il\ninput r\ne = r - y\ny = [1/((s+1e-160)*(s+1))](e)\nbreak b at y\n"
+    with pytest.raises(ModelError) as err:
+        check_text(text, "il.loop")
+    message = str(err.value.errors[0])
+    assert "the inline transfer at 4:5 has a pole at 1e-160 rad/s" in message and "[..]" not in message

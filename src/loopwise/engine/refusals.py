@@ -10,6 +10,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import ModelError, Span
+from ..language.model import block_words
 from .certificate import ImproperLoop, Uncertified
 from .reduce import Component, Reduction
 
@@ -36,7 +37,7 @@ def check_range(red: Reduction) -> None:
             mags = np.abs(roots[roots != 0])
             bad = mags[(mags < lo) | (mags > hi)]
             if bad.size:
-                raise ModelError("LW406", f"`{term.app.label}` has a {what} at {bad[0]:.3g} rad/s, beyond the "
+                raise ModelError("LW406", f"{block_words(term.app.label)} has a {what} at {bad[0]:.3g} rad/s, beyond the "
                                  f"engine's range ({lo:g} to {hi:g} rad/s)", term.app.span,
                                  "rescale the model's time unit or drop modes far outside the loops' bandwidth")
 
@@ -95,7 +96,7 @@ def improper_loop(red: Reduction, comp: Component, exc: ImproperLoop) -> ModelEr
     return ModelError(
         "LW403", "the closed loop is improper: the loop through " + ", ".join(f"`{n}`" for n in names)
         + " has more zeros than poles all the way round (ideal derivative in "
-        + ", ".join(f"`{b}`" for b in blocks) + "), so its gain grows without bound at high frequency",
+        + ", ".join(block_words(b) for b in blocks) + "), so its gain grows without bound at high frequency",
         first.term.app.span, "give the derivative a filter pole, e.g. Kd*s/(Tf*s + 1), or add a lag on the loop")
 
 
@@ -112,7 +113,7 @@ def uncertified_radius(red: Reduction, comp: Component, brk, exc: Uncertified) -
             "add a filter pole")
     if exc.reason == "ill-posed":
         blocks = _improper_blocks(_labels(red, comp, range(len(comp.entries))))
-        with_blocks = (" (ideal derivative in " + ", ".join(f"`{b}`" for b in blocks) + ")") if blocks else ""
+        with_blocks = (" (ideal derivative in " + ", ".join(block_words(b) for b in blocks) + ")") if blocks else ""
         if brk is None:
             return ModelError("LW403", "the closed loop is improper: at high frequency its loops cancel the "
                               f"direct path exactly{with_blocks}, so the signals are not determined", span,

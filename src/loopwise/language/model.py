@@ -9,7 +9,7 @@ from . import ast
 from ..waivers import Waivers
 from .requirements import Requirement
 
-__all__ = ["Quantity", "Block", "Application", "Term", "Model"]
+__all__ = ["Quantity", "Block", "Application", "Term", "Model", "block_words"]
 
 
 @dataclass(frozen=True)
@@ -27,6 +27,14 @@ class Block:
     name: str
     transfer: Transfer
     span: Span
+
+
+def block_words(label: str) -> str:
+    """A block application's label as messages write it: `` `C` `` for a named block, "the
+    inline transfer at 4:5" for a bracketed one (its label is `[..]@4:5`)."""
+    if label.startswith("[..]@"):
+        return f"the inline transfer at {label[5:]}"
+    return f"`{label}`"
 
 
 @dataclass(frozen=True, eq=False)
