@@ -19,7 +19,7 @@ def test_a_local_dask_cluster_gives_the_local_results(tmp_path):
     options = SweepOptions(samples=5, seed=11)
     local = sweep_paths([path], options=options, jobs=1).to_dict()
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                                  dashboard_address=None) as cluster:
+                                  dashboard_address=":0") as cluster:  # any free port: runs side by side
         # the workers are separate processes: prove it before trusting the comparison
         with distributed.Client(cluster) as client:
             pids = set(client.run(lambda: __import__("os").getpid()).values())
