@@ -129,3 +129,15 @@ def test_a_frequency_limit_written_in_hz_shows_its_value_in_hz():
     value = reqs[0].value
     assert words[0] == f"crossover >= 0.5Hz (value {value / (2 * 3.141592653589793):.4g} Hz)"
     assert words[1] == f"crossover <= 2 (value {value:.4g} rad/s)"
+
+
+def test_a_loop_without_gain_crossover_shows_an_unbounded_delay_margin():
+    """|L| < 1 everywhere: no delay brings L to -1. The table showed `inf` for the phase
+    margin but `none` for the delay margin, which reads as no margin at all."""
+    from loopwise import check_text
+    from loopwise.report.summary import BREAK_COLUMNS, break_row
+
+    b = check_text("model lo\ninput r\ne = r - y\ny = [0.5/(s+1)](e)\nbreak b at y\n").breaks[0]
+    assert b.margins.delay_margin_s is None  # JSON: null, unbounded (docs/results.md)
+    cells = dict(zip([h for h, _, _ in BREAK_COLUMNS], break_row(b)))
+    assert cells["PM deg"] == "inf" and cells["delay margin"] == "inf"

@@ -182,7 +182,12 @@ def _margin(b, get: Callable, fmt: str, unbounded: str = "inf") -> str:
 
 
 def _delay(b) -> str:
-    return "-" if b.margins is None else fmt_time(b.margins.delay_margin_s)
+    # no gain crossover: no added delay brings L to -1, unbounded like the phase margin
+    # (it read "none", as if there were no margin at all)
+    if b.margins is None:
+        return "-"
+    value = b.margins.delay_margin_s
+    return "inf" if value is None else fmt_time(value)
 
 
 def _disk(b) -> str:
