@@ -228,6 +228,11 @@ def closing_phase(comp: Component, terms: "ScaledTerms", d: np.ndarray, b: int |
         # each term's delay-free limit at infinity in the scaled frame, back in the unscaled one
         expo = (d[terms.rows] - d[terms.cols])[None, :]
         V0 = np.where(terms.delayed, 0.0, terms.limit)[None, :] * s[:, None] ** expo
+    # Enough t-samples that no step can alias: the radius certifies rho(X) < 0.9 (see
+    # certificate_radius), so each factor arg(1 - t lambda) moves at most
+    # |lambda| / (1 - |lambda|) < 9 rad per unit t, all N of them < 9N; with 3N steps or
+    # more every true step is below 3 rad < pi, and the wrapped steps are the true ones.
+    exact = max(16, 3 * len(comp.signals))
     branch = []
     for k in range(2):
         n = 16
@@ -236,9 +241,9 @@ def closing_phase(comp: Component, terms: "ScaledTerms", d: np.ndarray, b: int |
             Vt = V0[k][None, :] + t[:, None] * (V[k] - V0[k])[None, :]
             phase = comp.phase_at(Vt, b)
             steps = (np.diff(phase) + np.pi) % (2 * np.pi) - np.pi
-            if np.max(np.abs(steps)) < np.pi / 8 or n >= 4096:
+            if np.max(np.abs(steps)) < np.pi / 8 or n >= exact:
                 break
-            n *= 4
+            n = min(4 * n, exact)
         branch.append(float(np.sum(steps)))
     return branch[0] - branch[1]
 
