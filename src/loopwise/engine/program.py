@@ -63,12 +63,11 @@ class Program:
     # --- every break at once (Sherman-Morrison) -------------------------------------
     def values(self, V: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Phase and log|.| of det(I - A_c), and g_k = e_sig^T (I - A_c)^-1 u_k for every break."""
-        m = V.shape[0]
-        S, U, Xm = self._reduced(V, m)
+        S, U, Xm = self._reduced(V)
         M = np.eye(self.n_kept)[None] - S
         phase, logabs = _logdet(M)
         if not U.shape[2]:
-            return phase, logabs, np.zeros((m, 0), complex)
+            return phase, logabs, np.zeros((V.shape[0], 0), complex)
         X = U / M[:, :1, :1] if self.n_kept == 1 else solve(M, U)
         g = self._measure(X, Xm)
         if self.n_kept > 1:
@@ -94,19 +93,7 @@ class Program:
         m = V.shape[0]
         nk = self.n_kept
         pick = [cols == b for b in range(len(self.measured))]
-        X: list[np.ndarray | None] = [None] * len(self.feeds)
-        rows = np.zeros((m, nk, nk + 1), complex)
-        for node in list(range(nk, len(self.feeds))) + list(range(nk)):
-            acc = rows[:, node] if node < nk else np.zeros((m, nk + 1), complex)
-            for p, src in self.feeds[node]:
-                if src < nk:
-                    acc[:, src] += V[:, p]
-                else:
-                    acc += V[:, p, None] * X[src]
-            for p, b in self.inject[node]:
-                acc[:, nk] += np.where(pick[b], V[:, p], 0.0)
-            if node >= nk:
-                X[node] = acc
+        rows, X = self._rows(V, nk + 1, lambda p, b: (nk, np.where(pick[b], V[:, p], 0.0)))
         M = np.eye(nk)[None] - rows[:, :, :nk]
         x = self._solve_refined(M, rows[:, :, nk:])[:, :, 0]
         g = np.empty(m, complex)
@@ -120,19 +107,12 @@ class Program:
                 g[sel] = np.sum(X[node][sel, :nk] * x[sel], axis=1) + X[node][sel, nk]
         return g
 
-    def _solve_refined(self, M: np.ndarray, B: np.ndarray) -> np.ndarray:
-        if self.n_kept == 1:
-            return B / M[:, :1, :1]
-        # one step of iterative refinement: where the loops' gains are huge (integrators at
-        # low frequency) the solve alone leaves noise far above a tiny g_k
-        X = solve(M, B)
-        return X + solve(M, B - M @ X)
-
-    def _reduced(self, V: np.ndarray, m: int):
-        """S (m, |K|, |K|), U (m, |K|, breaks) and, for each break whose signal is eliminated,
-        that signal's row [coefficients of x_K | injections] (None where it is kept)."""
-        nk = self.n_kept
-        width = nk + len(self.measured)
+    def _rows(self, V: np.ndarray, width: int, injection):
+        """Through the eliminated nodes in topological order, then into the kept ones: each
+        node's row [coefficients of x_K | injection columns], shape (points, width).
+        `injection(p, b)` gives (column, values) of break b's cut term at bank position p.
+        Returns the kept nodes' rows (points, |K|, width) and every eliminated node's row."""
+        m, nk = V.shape[0], self.n_kept
         X: list[np.ndarray | None] = [None] * len(self.feeds)
         rows = np.zeros((m, nk, width), complex)
         for node in list(range(nk, len(self.feeds))) + list(range(nk)):
@@ -143,9 +123,25 @@ class Program:
                 else:
                     acc += V[:, p, None] * X[src]
             for p, b in self.inject[node]:
-                acc[:, nk + b] += V[:, p]
+                col, values = injection(p, b)
+                acc[:, col] += values
             if node >= nk:
                 X[node] = acc
+        return rows, X
+
+    def _solve_refined(self, M: np.ndarray, B: np.ndarray) -> np.ndarray:
+        if self.n_kept == 1:
+            return B / M[:, :1, :1]
+        # one step of iterative refinement: where the loops' gains are huge (integrators at
+        # low frequency) the solve alone leaves noise far above a tiny g_k
+        X = solve(M, B)
+        return X + solve(M, B - M @ X)
+
+    def _reduced(self, V: np.ndarray):
+        """S (m, |K|, |K|), U (m, |K|, breaks) and, for each break whose signal is eliminated,
+        that signal's row [coefficients of x_K | injections] (None where it is kept)."""
+        nk = self.n_kept
+        rows, X = self._rows(V, nk + len(self.measured), lambda p, b: (nk + b, V[:, p]))
         Xm = [None if node < nk else X[node] for node in self.measured]
         return rows[:, :, :nk], rows[:, :, nk:], Xm
 
