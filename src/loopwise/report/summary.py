@@ -14,6 +14,7 @@ import math
 from dataclasses import dataclass
 from typing import Callable
 
+from ..language.units import to_si
 from ..results import LIBRARY_NOTE, is_library
 from .numbers import finite, fmt_quantity, fmt_time
 
@@ -132,9 +133,9 @@ def requirement_text(r) -> str:
     limit = getattr(r, "limit_text", "") or fmt_quantity(r.limit, r.unit)
     value = fmt_quantity(r.value, r.unit)
     if r.unit == "rad/s" and r.value is not None and math.isfinite(r.value):
-        for suffix, scale in (("kHz", 2.0e3 * math.pi), ("Hz", 2.0 * math.pi)):
+        for suffix in ("kHz", "Hz"):  # the language's own frequency units (language/units.py)
             if limit.endswith(suffix):
-                value = fmt_quantity(r.value / scale, suffix)
+                value = fmt_quantity(r.value / to_si(1.0, suffix), suffix)
                 break
     return f"{r.metric} {r.op} {limit} (value {value})"
 
