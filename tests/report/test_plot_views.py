@@ -86,11 +86,9 @@ def test_loop_fallen_to_rounding_noise_at_low_frequency_still_draws():
     the lowest two samples gave 0.0 to a negative power (an internal error that lost
     the whole `report`). The slope where it is read is checked against the phase the
     view draws there: -90 deg per net integrator, i.e. +90 deg per zero at s = 0."""
-    import sys
-    sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
-    from reference.loopsets import nested_cascade
     from loopwise.analysis import check_text
     from loopwise.report.geometry import _asymptote, unwrapped_phase_deg
+    from tests.reference.loopsets import nested_cascade
 
     result = check_text(nested_cascade(8).text())
     for b in result.breaks:
