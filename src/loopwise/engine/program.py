@@ -19,7 +19,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Program", "build_program", "solve"]
+__all__ = ["Program", "build_program", "solve", "scaled"]
 
 
 def solve(M: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -34,6 +34,36 @@ def solve(M: np.ndarray, b: np.ndarray) -> np.ndarray:
             except np.linalg.LinAlgError:
                 pass
         return out
+
+
+def _exponents(x: np.ndarray, axis: int) -> np.ndarray:
+    """The binary exponent of the largest |x| along `axis` (0 where all are 0 or not finite)."""
+    with np.errstate(all="ignore"):
+        top = np.max(np.abs(x), axis=axis)
+    return np.frexp(np.where(np.isfinite(top), top, 0.0))[1]
+
+
+def _ldexp(x: np.ndarray, e: np.ndarray) -> np.ndarray:
+    """x 2^e for complex x, exactly (no intermediate 2^e that could overflow)."""
+    return np.ldexp(x.real, e) + 1j * np.ldexp(x.imag, e)
+
+
+def scaled(M: np.ndarray, B: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """M 2^-c, B 2^-b and the exponents E = b - c with M^-1 B = (M 2^-c)^-1 (B 2^-b) 2^E
+    entry by entry (batched; E has the shape of B).
+
+    Along a cascade of integrators the kept signals' responses span more than double
+    precision (1e-400 to 1e300 at one frequency with 47 nested loops) while every g_k
+    itself is of moderate size. Column j of M is scaled by 2^-c_j (c_j the exponent of its
+    largest entry), column k of B by its own 2^-b_k, so the scaled solution stays in range.
+    Scaling by powers of two is exact and leaves partial pivoting's choices and every
+    rounding of the factorisation and the substitutions as they were (the LU of M D is
+    L (U D)): where M^-1 B is representable, the scaled solution times 2^E is the unscaled
+    solve's result bit for bit.
+    """
+    c = np.clip(_exponents(M, 1), -1000, 1000)  # (points, kept)
+    b = np.clip(_exponents(B, 1), -1000, 1000)  # (points, columns)
+    return M * np.ldexp(1.0, -c)[:, None, :], B * np.ldexp(1.0, -b)[:, None, :], b[:, None, :] - c[:, :, None]
 
 
 def _logdet(M: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -68,24 +98,28 @@ class Program:
         phase, logabs = _logdet(M)
         if not U.shape[2]:
             return phase, logabs, np.zeros((V.shape[0], 0), complex)
-        X = U / M[:, :1, :1] if self.n_kept == 1 else solve(M, U)
-        g = self._measure(X, Xm)
+        if self.n_kept == 1:
+            X, E = U / M[:, :1, :1], np.zeros(U.shape, int)
+        else:
+            Ms, Us, E = scaled(M, U)
+            X = solve(Ms, Us)
+        g = self._measure(X, E, Xm)
         if self.n_kept > 1:
             # one step of iterative refinement where some g_k is small: where the loops'
             # gains are huge (integrators at low frequency) the solve alone leaves noise
             # far above a tiny g_k
             idx = np.nonzero(np.any(np.abs(g) < 1e-6, axis=1))[0]
             if idx.size:
-                X = X[idx] + solve(M[idx], U[idx] - M[idx] @ X[idx])
-                g[idx] = self._measure(X, [None if x is None else x[idx] for x in Xm])
+                X = X[idx] + solve(Ms[idx], Us[idx] - Ms[idx] @ X[idx])
+                g[idx] = self._measure(X, E[idx], [None if x is None else x[idx] for x in Xm])
         return phase, logabs, g
 
-    def _measure(self, X: np.ndarray, Xm) -> np.ndarray:
-        """g_k from the kept values of every break's solution (X: points, kept, breaks)."""
+    def _measure(self, X: np.ndarray, E: np.ndarray, Xm) -> np.ndarray:
+        """g_k from the kept values of every break's solution, X 2^E (points, kept, breaks)."""
         g = np.empty((X.shape[0], X.shape[2]), complex)
         for b, node in enumerate(self.measured):
-            g[:, b] = X[:, node, b] if Xm[b] is None else \
-                np.sum(Xm[b][:, :self.n_kept] * X[:, :, b], axis=1) + Xm[b][:, self.n_kept + b]
+            g[:, b] = _ldexp(X[:, node, b], E[:, node, b]) if Xm[b] is None else \
+                np.sum(_ldexp(Xm[b][:, :self.n_kept] * X[:, :, b], E[:, :, b]), axis=1) + Xm[b][:, self.n_kept + b]
         return g
 
     def selected(self, V: np.ndarray, cols: np.ndarray) -> np.ndarray:
@@ -95,16 +129,17 @@ class Program:
         pick = [cols == b for b in range(len(self.measured))]
         rows, X = self._rows(V, nk + 1, lambda p, b: (nk, np.where(pick[b], V[:, p], 0.0)))
         M = np.eye(nk)[None] - rows[:, :, :nk]
-        x = self._solve_refined(M, rows[:, :, nk:])[:, :, 0]
+        x, e = self._solve_refined(M, rows[:, :, nk:])
+        x, e = x[:, :, 0], e[:, :, 0]
         g = np.empty(m, complex)
         for b, node in enumerate(self.measured):
             sel = pick[b]
             if not sel.any():
                 continue
             if node < nk:
-                g[sel] = x[sel, node]
+                g[sel] = _ldexp(x[sel, node], e[sel, node])
             else:
-                g[sel] = np.sum(X[node][sel, :nk] * x[sel], axis=1) + X[node][sel, nk]
+                g[sel] = np.sum(_ldexp(X[node][sel, :nk] * x[sel], e[sel]), axis=1) + X[node][sel, nk]
         return g
 
     def _rows(self, V: np.ndarray, width: int, injection):
@@ -129,13 +164,15 @@ class Program:
                 X[node] = acc
         return rows, X
 
-    def _solve_refined(self, M: np.ndarray, B: np.ndarray) -> np.ndarray:
+    def _solve_refined(self, M: np.ndarray, B: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """X and exponents E with M^-1 B = X 2^E (see `scaled`)."""
         if self.n_kept == 1:
-            return B / M[:, :1, :1]
+            return B / M[:, :1, :1], np.zeros(B.shape, int)
         # one step of iterative refinement: where the loops' gains are huge (integrators at
         # low frequency) the solve alone leaves noise far above a tiny g_k
-        X = solve(M, B)
-        return X + solve(M, B - M @ X)
+        Ms, Bs, E = scaled(M, B)
+        X = solve(Ms, Bs)
+        return X + solve(Ms, Bs - Ms @ X), E
 
     def _reduced(self, V: np.ndarray):
         """S (m, |K|, |K|), U (m, |K|, breaks) and, for each break whose signal is eliminated,
@@ -201,7 +238,11 @@ class Program:
     def _finish(self, X, M, c, const) -> np.ndarray:
         """Every node's value: x_K = M^-1 c, x_H = X x_K + constants."""
         nk = self.n_kept
-        xk = c / M[:, 0, :1] if nk == 1 else solve(M, c[:, :, None])[:, :, 0]
+        if nk == 1:
+            xk = c / M[:, 0, :1]
+        else:
+            Ms, cs, E = scaled(M, c[:, :, None])
+            xk = _ldexp(solve(Ms, cs)[:, :, 0], E[:, :, 0])
         out = np.zeros((c.shape[0], len(self.feeds)), complex)
         out[:, :nk] = xk
         for node in range(nk, len(self.feeds)):
