@@ -1,0 +1,63 @@
+"""Nested cascades of 47 loops (23 decades of poles) against an exact Routh count.
+
+The reference is the closed loop's characteristic polynomial built from the stages'
+coefficients as exact rationals (`Cascade.characteristic`) and its Routh array's first
+column in 1000- and 2000-digit arithmetic (`routh_rhp`, mpmath): with roots over 23
+decades its coefficients span hundreds of decades, so neither python-control's poles
+nor numpy's roots are a reference at this size. At 48 loops and more the engine's solve
+leaves double precision's range at the low end of the contour: the model is refused
+(LW406) at once, not after a minute of sampling (docs/method.md, numbers beyond double
+precision). No timing is asserted here; bench/engine.py times the growth.
+"""
+from __future__ import annotations
+
+from dataclasses import replace
+
+import pytest
+
+from loopwise.analysis import check_text
+from loopwise.errors import ModelError
+
+from .loopsets import Cascade, nested_cascade, routh_rhp
+
+
+def _with_gain(c: Cascade, k: int, factor: float) -> Cascade:
+    """The cascade with loop k's controller gain times `factor`."""
+    stages = list(c.stages)
+    stages[k - 1] = replace(stages[k - 1], c_num=tuple(x * factor for x in stages[k - 1].c_num))
+    return replace(c, stages=tuple(stages))
+
+
+def test_routh_helper_counts_known_polynomials():
+    """(s - 1)(s + 2)(s^2 + s + 1): one RHP root; (s^2 - s + 4)(s + 3): two (factored by hand)."""
+    from fractions import Fraction as F
+
+    # (s - 1)(s + 2) = s^2 + s - 2; times (s^2 + s + 1): s^4 + 2 s^3 + 0 s^2 - s - 2
+    assert routh_rhp([F(1), F(2), F(0), F(-1), F(-2)], digits=50) == 1
+    # (s^2 - s + 4)(s + 3) = s^3 + 2 s^2 + s + 12
+    assert routh_rhp([F(1), F(2), F(1), F(12)], digits=50) == 2
+
+
+@pytest.mark.parametrize("loop, factor", [(None, 1.0), (20, 10.0)])
+def test_47_nested_loops_match_the_exact_routh_count(loop, factor):
+    c = nested_cascade(47)
+    if loop is not None:
+        c = _with_gain(c, loop, factor)
+    want = routh_rhp(c.characteristic())
+    res = check_text(c.text(), "cascade.loop")
+    assert res.closed_loop_rhp_poles == want
+    assert res.stable == (want == 0)
+    # every break's own count agrees with the whole model's (Z_k = P_k + N_k)
+    assert all(b.closed_loop_rhp_poles == want for b in res.breaks)
+    if loop is not None:
+        assert want > 0  # the test also covers an unstable verdict
+
+
+def test_50_nested_loops_are_refused_as_beyond_double_precision():
+    c = nested_cascade(50)
+    assert routh_rhp(c.characteristic()) == 0  # stable: the refusal is no verdict
+    with pytest.raises(ModelError) as err:
+        check_text(c.text(), "cascade.loop")
+    codes = [e.code for e in err.value.errors]
+    assert codes == ["LW406"], codes
+    assert "double precision" in str(err.value.errors[0])
