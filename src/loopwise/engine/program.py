@@ -15,7 +15,7 @@ two of them (tens of integrators in series would overflow near s = 0).
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -84,6 +84,8 @@ class Program:
     measured: tuple[int, ...]  # per break: local node of its signal (kept or eliminated)
     cuts: tuple[frozenset[int], ...]  # per break: bank positions of its cut terms
     head: dict  # bank position -> local node it feeds
+    #: _rows' sparsity patterns by row width (filled on first use; see _pattern)
+    _patterns: dict = field(default_factory=dict, repr=False, compare=False)
 
     @property
     def n_kept(self) -> int:
@@ -111,7 +113,7 @@ class Program:
             idx = np.nonzero(np.any(np.abs(g) < 1e-6, axis=1))[0]
             if idx.size:
                 X = X[idx] + solve(Ms[idx], Us[idx] - Ms[idx] @ X[idx])
-                g[idx] = self._measure(X, E[idx], [None if x is None else x[idx] for x in Xm])
+                g[idx] = self._measure(X, E[idx], [None if x is None else (x[0], x[1][idx]) for x in Xm])
         return phase, logabs, g
 
     def _measure(self, X: np.ndarray, E: np.ndarray, Xm) -> np.ndarray:
@@ -119,7 +121,7 @@ class Program:
         g = np.empty((X.shape[0], X.shape[2]), complex)
         for b, node in enumerate(self.measured):
             g[:, b] = _ldexp(X[:, node, b], E[:, node, b]) if Xm[b] is None else \
-                np.sum(_ldexp(Xm[b][:, :self.n_kept] * X[:, :, b], E[:, :, b]), axis=1) + Xm[b][:, self.n_kept + b]
+                self._row_value(Xm[b], X[:, :, b], E[:, :, b], self.n_kept + b)
         return g
 
     def selected(self, V: np.ndarray, cols: np.ndarray) -> np.ndarray:
@@ -139,30 +141,82 @@ class Program:
             if node < nk:
                 g[sel] = _ldexp(x[sel, node], e[sel, node])
             else:
-                g[sel] = np.sum(_ldexp(X[node][sel, :nk] * x[sel], e[sel]), axis=1) + X[node][sel, nk]
+                g[sel] = self._row_value((X[node][0], X[node][1][sel]), x[sel], e[sel], nk)
         return g
 
     def _rows(self, V: np.ndarray, width: int, injection):
         """Through the eliminated nodes in topological order, then into the kept ones: each
-        node's row [coefficients of x_K | injection columns], shape (points, width).
+        node's row [coefficients of x_K | injection columns], width `width`.
         `injection(p, b)` gives (column, values) of break b's cut term at bank position p.
-        Returns the kept nodes' rows (points, |K|, width) and every eliminated node's row."""
+        Returns the kept nodes' rows (points, |K|, width) and, for every eliminated node,
+        its row's structurally nonzero columns and their values, (columns, (points, k)).
+
+        An eliminated node's row is nonzero only in the columns its sources reach: a few
+        kept signals and the breaks cut upstream along its chain (in a nested cascade a
+        handful of the |K| + breaks). Carrying those alone performs, column by column,
+        the same additions in the same order as the full rows, so the values are the same;
+        only the additions of exact zeros are left out."""
         m, nk = V.shape[0], self.n_kept
-        X: list[np.ndarray | None] = [None] * len(self.feeds)
+        X: list[tuple[np.ndarray, np.ndarray] | None] = [None] * len(self.feeds)
         rows = np.zeros((m, nk, width), complex)
+        pattern = self._pattern(width, lambda p, b: injection(p, b)[0])
         for node in list(range(nk, len(self.feeds))) + list(range(nk)):
-            acc = rows[:, node] if node < nk else np.zeros((m, width), complex)
-            for p, src in self.feeds[node]:
+            cols, at_feed, at_inject = pattern[node]
+            acc = rows[:, node] if node < nk else np.zeros((m, cols.size), complex)
+            for (p, src), at in zip(self.feeds[node], at_feed):
                 if src < nk:
-                    acc[:, src] += V[:, p]
+                    acc[:, at] += V[:, p]
+                elif at is None:
+                    acc += V[:, p, None] * X[src][1]
                 else:
-                    acc += V[:, p, None] * X[src]
-            for p, b in self.inject[node]:
-                col, values = injection(p, b)
-                acc[:, col] += values
+                    acc[:, at] += V[:, p, None] * X[src][1]
+            for (p, b), at in zip(self.inject[node], at_inject):
+                acc[:, at] += injection(p, b)[1]
             if node >= nk:
-                X[node] = acc
+                X[node] = (cols, acc)
         return rows, X
+
+    def _pattern(self, width: int, column) -> list:
+        """Per node: its row's structurally nonzero columns (all `width` for a kept node),
+        where each feed adds into them (an index, an index array, or None for all of
+        them in order) and where each injection goes; built once per row width (the
+        injection's column depends only on it) and kept."""
+        cache = self._patterns
+        if width in cache:
+            return cache[width]
+        nk = self.n_kept
+        out: list = [None] * len(self.feeds)
+        for node in list(range(nk, len(self.feeds))) + list(range(nk)):
+            targets = [column(p, b) for p, b in self.inject[node]]
+            if node < nk:
+                cols = np.arange(width)
+            else:
+                reach = set(targets)
+                for _, src in self.feeds[node]:
+                    reach.update((src,) if src < nk else out[src][0].tolist())
+                cols = np.array(sorted(reach), dtype=int)
+            where = {c: i for i, c in enumerate(cols.tolist())}
+            at_feed = []
+            for _, src in self.feeds[node]:
+                if src < nk:
+                    at_feed.append(where[src])
+                else:
+                    c = out[src][0]
+                    at = np.array([where[j] for j in c.tolist()], dtype=int)
+                    same = at.size == cols.size and bool(np.all(at == np.arange(cols.size)))
+                    at_feed.append(None if same else at)
+            out[node] = (cols, tuple(at_feed), tuple(where[t] for t in targets))
+        cache[width] = out
+        return out
+
+    def _row_value(self, row: tuple[np.ndarray, np.ndarray], x: np.ndarray, e: np.ndarray, col: int) -> np.ndarray:
+        """An eliminated signal's value from its sparse row (columns, values): sum of its
+        kept coefficients times x 2^e (points, |K|) plus its injection column `col`."""
+        cols, vals = row
+        kept = cols < self.n_kept
+        out = np.sum(_ldexp(vals[:, kept] * x[:, cols[kept]], e[:, cols[kept]]), axis=1)
+        hit = np.nonzero(cols == col)[0]
+        return out + vals[:, hit[0]] if hit.size else out
 
     def _solve_refined(self, M: np.ndarray, B: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """X and exponents E with M^-1 B = X 2^E (see `scaled`)."""
@@ -176,7 +230,8 @@ class Program:
 
     def _reduced(self, V: np.ndarray):
         """S (m, |K|, |K|), U (m, |K|, breaks) and, for each break whose signal is eliminated,
-        that signal's row [coefficients of x_K | injections] (None where it is kept)."""
+        that signal's row [coefficients of x_K | injections] as (columns, values) (None
+        where it is kept)."""
         nk = self.n_kept
         rows, X = self._rows(V, nk + len(self.measured), lambda p, b: (nk + b, V[:, p]))
         Xm = [None if node < nk else X[node] for node in self.measured]
