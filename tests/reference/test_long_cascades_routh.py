@@ -1,4 +1,5 @@
-"""Nested cascades of 47 loops (23 decades of poles) against an exact Routh count.
+"""Nested cascades of 47 loops 3 times apart (23 decades of poles) and of 60 loops 2 times
+apart against an exact Routh count.
 
 The reference is the closed loop's characteristic polynomial built from the stages'
 coefficients as exact rationals (`Cascade.characteristic`) and its Routh array's first
@@ -51,6 +52,18 @@ def test_47_nested_loops_match_the_exact_routh_count(loop, factor):
     assert all(b.closed_loop_rhp_poles == want for b in res.breaks)
     if loop is not None:
         assert want > 0  # the test also covers an unstable verdict
+
+
+@pytest.mark.parametrize("n", [30, 60])
+def test_nested_loops_2_times_apart_match_the_exact_routh_count(n):
+    """Loops 2 times apart span fewer decades (18 at 60 loops): 60 breaks are counted.
+    At this spacing the generated tuning leaves the cascade unstable at 30 loops (Routh: 2)
+    and stable at 60 (Routh: 0), so both verdicts are covered."""
+    c = nested_cascade(n, separation=2.0)
+    want = routh_rhp(c.characteristic())
+    res = check_text(c.text(), "cascade.loop")
+    assert res.closed_loop_rhp_poles == want
+    assert all(b.closed_loop_rhp_poles == want for b in res.breaks)
 
 
 def test_50_nested_loops_are_refused_as_beyond_double_precision():
