@@ -180,9 +180,9 @@ print(json.dumps({"cpu": time.process_time() - t0}))
 def bench_scale(sizes, previous, previous_max: int, close: list[int] = ()) -> None:
     print("\n== growth with the number of breaks (one check each, CPU s)")
     print(f"  {'model':>28} {'breaks':>6} {'loopwise s':>11} {'growth':>7} {'previous s':>11}")
-    # loops 3 times apart (23 decades at 47 loops, the most the engine certifies; from 48
-    # on it refuses, LW406, and the time is that of the refusal), then loops 2 times apart
-    # (fewer decades for as many breaks)
+    # loops 3 times apart (23 decades at 47 loops; of 48 to 53 loops only 50 is counted,
+    # the others are refused, LW406, and the time is that of the refusal; from 54 on the
+    # span alone refuses them), then loops 2 times apart (fewer decades for as many breaks)
     rows = [(f"nested cascade {n}", "sep3", n, nested_cascade(n).text()) for n in sizes]
     rows += [(f"nested cascade {n}, 2x apart", "sep2", n, nested_cascade(n, separation=2.0).text()) for n in close]
     rows.append(("100 independent loops", None, 100, independent(100)))
