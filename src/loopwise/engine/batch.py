@@ -39,8 +39,8 @@ from .certificate import ScaledTerms, certificate_radius, scaling
 from .program import build_program
 from .reduce import CANCEL, SAFE_LEVEL, SAFE_PER_PATH, Reduction, bounded_batches
 from .solve import distinct
-from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_LEVEL, ModelCount, NyquistCount, _dedupe,
-                        _open_rhp, count as count_one)
+from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_GRID, REACH_LEVEL, ModelCount, NyquistCount,
+                        _dedupe, _open_rhp, count as count_one, extension_pieces, reach_rule, stops_short)
 from .winding import MAX_SAMPLES, MAX_WORK, Piece, encirclements, trace
 
 __all__ = ["Batch", "StackedBank", "wiring"]
@@ -232,22 +232,25 @@ class Batch:
         return out
 
     # --- the certified count of every sample -----------------------------------------
-    def count(self, indent: str = "right", for_margins: bool = True) -> list[ModelCount]:
+    def count(self, indent: str = "right", for_margins: bool = True, short: bool = False) -> list[ModelCount]:
         """Every sample's Z and break counts, as stability.count gives them for one model,
-        with every sample's contour traced in the same batched rounds."""
+        with every sample's contour traced in the same batched rounds. With `short` (a
+        sweep's), the margins' extension stops at the settling frequency where there is
+        one (stability.extension_pieces; the counts say where: NyquistCount.short); a
+        sample counted again alone gets the whole extension."""
         from .stability import prepare
         # the margins' reach of every sample in one stacked evaluation per component
         contours = [prepare(r, indent, False) for r in self.reductions]
         if for_margins:
             for c, st in enumerate(self.stacks):
-                for cs, reach in zip(contours, _reach(st, [cs[c] for cs in contours])):
-                    cs[c] = replace(cs[c], reach=reach)
+                for cs, (reach, settle) in zip(contours, _reach(st, [cs[c] for cs in contours])):
+                    cs[c] = replace(cs[c], reach=reach, settle=settle)
         Z = np.array([sum(_open_rhp(p, indent) for p in _outside_poles(r)) for r in self.reductions])
         per = [dict() for _ in self.reductions]
         redo: set[int] = set()
         for c, st in enumerate(self.stacks):
             cts = [cs[c] for cs in contours]
-            zc, counts, marginal = _count_stacked(st, cts)
+            zc, counts, marginal = _count_stacked(st, cts, short)
             Z += zc
             redo |= marginal
             for i in range(self.samples):
@@ -281,14 +284,14 @@ class Batch:
         return evaluate
 
 
-def _reach(st: _Stacked, cts: list) -> list[float]:
-    """stability._margin_reach for every sample: the same grid and rule, all samples' points
-    in one evaluation."""
+def _reach(st: _Stacked, cts: list) -> list[tuple[float, float | None]]:
+    """stability._margin_reach for every sample: the same grid and rule (stability.reach_rule),
+    all samples' points in one evaluation."""
     if not st.breaks:
-        return [ct.R for ct in cts]
-    S, n = len(cts), 201
+        return [(ct.R, None) for ct in cts]
+    S, n = len(cts), REACH_GRID.size
     R = np.array([ct.R for ct in cts])
-    w = R[:, None] * np.logspace(-6.0, 4.0, n)[None, :]
+    w = R[:, None] * REACH_GRID[None, :]
     s, which = 1j * w.ravel(), np.repeat(np.arange(S), n)
     g = np.zeros((s.size, len(st.breaks)), complex)
     with np.errstate(all="ignore"):
@@ -296,14 +299,7 @@ def _reach(st: _Stacked, cts: list) -> list[float]:
         for idx, prog in st._groups(V):
             g[idx] = prog.values(V[idx])[2]
         mag = np.abs(g / (1.0 + g)).reshape(S, n, -1)
-    out = []
-    for i in range(S):
-        big = np.nonzero((~(mag[i] < REACH_LEVEL)).any(axis=1))[0]
-        unit = np.nonzero((~(mag[i] < 1.0)).any(axis=1))[0]
-        last_small = max(R[i], float(w[i, min(big[-1] + 1, n - 1)])) if big.size else R[i]
-        last_unit = float(w[i, unit[-1]]) if unit.size else 0.0
-        out.append(float(min(max(1.5 * last_small, 30.0 * last_unit, R[i]), 1e4 * R[i])))
-    return out
+    return [reach_rule(w[i], mag[i], float(R[i])) for i in range(S)]
 
 
 def _outside_poles(r: Reduction) -> list[np.ndarray]:
@@ -311,10 +307,11 @@ def _outside_poles(r: Reduction) -> list[np.ndarray]:
     return out + [t.app.transfer.poles for t in r.exogenous]
 
 
-def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set[int]]:
+def _count_stacked(st: _Stacked, cts: list, short: bool = False) -> tuple[np.ndarray, list[dict], set[int]]:
     """One loop component in every sample: each sample's Z_c and break counts (P, N local to
     the component, as stability._count_component gives them), and the samples with a
-    closed-loop pole on the axis (counted again alone by the caller)."""
+    closed-loop pole on the axis (counted again alone by the caller). With `short`, the
+    margins' extension stops at each sample's settling frequency (`Batch.count`)."""
     S, B = len(cts), len(st.breaks)
     pieces, owner = [], []
     for i, ct in enumerate(cts):
@@ -339,7 +336,8 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
     if not tr.complete:
         return np.zeros(S, int), [dict() for _ in range(S)], set(range(S))
     closes = _closing(st, cts)
-    ext = _extension(st, cts) if B else None
+    short_at = [short and stops_short(ct, float(st.bank.delay[i].sum())) for i, ct in enumerate(cts)]
+    ext = _extension(st, cts, short_at) if B else None
     # pieces are listed sample by sample and a trace is ordered by piece: each sample's
     # samples are one contiguous run (bounds by bisection, not a scan per sample)
     sample_of = owner[tr.pid]
@@ -387,7 +385,7 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
             if _touches(response):
                 redo.add(i)
             P = ct.P0 + wk
-            mine[name] = NyquistCount(P, N, P + N, False, None, (), response)
+            mine[name] = NyquistCount(P, N, P + N, False, None, (), response, ct.settle if short_at[i] else None)
         if err > 1e-3:
             redo.add(i)  # a residual: the one-model count words the warning
         counts.append(mine)
@@ -496,17 +494,19 @@ def _closing(st: _Stacked, cts: list) -> list[list[float]]:
     return out
 
 
-def _extension(st: _Stacked, cts: list):
-    """stability._extension for every sample: (trace, owner of each piece)."""
+def _extension(st: _Stacked, cts: list, short: list[bool] | None = None):
+    """stability._extension for every sample: (trace, owner of each piece). Where `short[i]`,
+    sample i's first piece alone (stability.extension_pieces)."""
     B = len(st.breaks)
     pieces, owner = [], []
     for i, ct in enumerate(cts):
-        if ct.reach > ct.R * (1 + 1e-12):
-            pieces.append(Piece("axis", ct.R, ct.reach, log=True))
-            owner.append(i)
+        mine = extension_pieces(ct.R, ct.reach, ct.settle, bool(short and short[i]))
+        pieces += mine
+        owner += [i] * len(mine)
     if not pieces:
         return None
     owner = np.array(owner)
+    traced = len(set(owner.tolist()))
 
     def evaluate(s, pid):
         which = owner[pid]
@@ -515,8 +515,9 @@ def _extension(st: _Stacked, cts: list):
             return np.log(L + 0j)
 
     steps = [None if _max_step(st, i) is None else 2.0 * _max_step(st, i) for i in owner]
+    # one model's budget per sample traced, whatever its pieces (as stability._extension)
     tr = trace(pieces, evaluate, [np.zeros(0)] * len(pieces), (REACH_LEVEL / 5,) * B,
-               EXTENSION_SAMPLES * len(pieces), _step_ok(st, owner) if st.bank.has_delay else None,
+               EXTENSION_SAMPLES * traced, _step_ok(st, owner) if st.bank.has_delay else None,
                max_step=steps, chord=EXTENSION_CHORD, midpoint=0.3, by_piece=True,
-               max_work=MAX_WORK * len(pieces))
+               max_work=MAX_WORK * traced)
     return tr, owner
