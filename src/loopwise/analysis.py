@@ -161,6 +161,11 @@ def check_many(preps: list[PreparedModel], indent: str = "right", stabilising_ga
     where it does not are checked again with the whole extension. Then only the margin
     values, verdicts and requirements are those of `check`: the responses, and the phase
     crossovers listed, stop at the settling frequency."""
+    return _check_batch(preps, indent, stabilising_gains, short)
+
+
+def _check_batch(preps: list[PreparedModel], indent: str, stabilising_gains: bool, short: bool
+                 ) -> list[ModelResult]:
     from .engine.batch import Batch
     from .engine.margins import break_margins, break_stabilising_gains
     from .engine.stability import ShortProbe
@@ -187,7 +192,8 @@ def check_many(preps: list[PreparedModel], indent: str = "right", stabilising_ga
               if plan.counts[name].short is not None}
     if again:
         again = sorted(again)
-        for n, result in zip(again, check_many([preps[todo[n]] for n in again], indent, stabilising_gains)):
+        full = _check_batch([preps[todo[n]] for n in again], indent, stabilising_gains, False)
+        for n, result in zip(again, full):
             out[todo[n]] = result
     rows = [(n, name) for n, plan in enumerate(plans) if n not in again
             for name in plan.gain_names(margins[n], stabilising_gains)]
