@@ -159,8 +159,9 @@ def check_many(preps: list[PreparedModel], indent: str = "right", stabilising_ga
     frequency wherever that leaves every margin value as the whole extension gives it
     (stability.settled; docs/method.md, "The sweep's short extension"), and the models
     where it does not are checked again with the whole extension. Then only the margin
-    values, verdicts and requirements are those of `check`: the responses, and the phase
-    crossovers listed, stop at the settling frequency."""
+    values, verdicts, requirements and warnings are those of `check` (docs/method.md says
+    which warning it may miss): the responses stop at the settling frequency, and no phase
+    crossover is listed."""
     return _check_batch(preps, indent, stabilising_gains, short)
 
 
@@ -181,7 +182,7 @@ def _check_batch(preps: list[PreparedModel], indent: str, stabilising_gains: boo
     rows = [(n, name) for n, plan in enumerate(plans) for name in plan.stable_names()]
     probe = ShortProbe([plans[n].counts[name].short is not None for n, name in rows])
     found = break_margins(batch.evaluator(rows), [plans[n].counts[name].response for n, name in rows],
-                          [plans[n].counts[name].P for n, name in rows], tidy=True, tail=probe)
+                          [plans[n].counts[name].P for n, name in rows], tidy=True, tail=probe, listed=not short)
     margins = [{c.stmt.name: None for c in preps[i].diagram.breaks} for i in todo]
     for (n, name), m in zip(rows, found):
         margins[n][name] = m
