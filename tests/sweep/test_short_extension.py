@@ -167,3 +167,22 @@ def test_evaluate_points_takes_the_short_path_for_the_servo(verdicts):
     parsed = parse_model(SERVO.read_text(), str(SERVO))
     out = evaluate_points(parsed, ["kt", "J", "Td"], np.array([[0.114, 2.9e-4, 160e-6], [0.126, 2.2e-4, 140e-6]]))
     assert len(verdicts) == 6 and all(verdicts) and all(o.stable for o in out)
+
+
+def test_a_far_extension_that_could_run_out_of_its_budget_is_traced_whole():
+    from types import SimpleNamespace
+
+    from loopwise.engine.stability import EXTENSION_SAMPLES, SHORT_BUDGET, extension_pieces, stops_short
+
+    R, reach, settle = 100.0, 1e5, 3e3
+    ct = SimpleNamespace(R=R, reach=reach, settle=settle)
+    # the step rule's count (reach - R) T / (pi/4) against a tenth of the budget
+    T_edge = SHORT_BUDGET * EXTENSION_SAMPLES * (math.pi / 4) / (reach - R)
+    assert stops_short(ct, 0.0) and stops_short(ct, 0.99 * T_edge)
+    assert not stops_short(ct, 1.01 * T_edge)
+    assert not stops_short(SimpleNamespace(R=R, reach=reach, settle=None), 0.0)
+    # the short pieces are the whole pieces' first: the same samples up to the settling frequency
+    whole, short = extension_pieces(R, reach, settle), extension_pieces(R, reach, settle, short=True)
+    assert short == whole[:1] and (whole[0].a, whole[0].b, whole[1].a, whole[1].b) == (R, settle, settle, reach)
+    assert extension_pieces(R, reach, R, short=True) == [] and extension_pieces(R, reach, R) == \
+        extension_pieces(R, reach, None)

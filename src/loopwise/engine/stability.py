@@ -206,9 +206,10 @@ def stops_short(ct: Contour, delay: float) -> bool:
     """Whether a sweep's short extension may stop at the contour's settling frequency: there
     is one, and the delay step rule alone (steps of pi/4 over the summed delays `delay`)
     asks under SHORT_BUDGET of the budget from R to the reach. Where check's whole
-    extension could run out of its budget (LW581), the sweep traces it whole too; the
-    traces of tests/sweep's delayed unstable loop take 2.7 to 3.5 times the step rule's
-    count, so a tenth of the budget leaves a factor of about 3 (observed, not proven)."""
+    extension could run out of its budget (LW581), the sweep traces it whole too. Below,
+    a trace would need ten times the step rule's count to run out; the whole extensions of
+    tests/sweep's delayed unstable loop took 2.6 to 4.5 times it (the most where the count
+    is small and the 30-a-decade seeds weigh most): observed, not proven."""
     if ct.settle is None or ct.reach <= ct.R * (1 + 1e-12):
         return False
     return (ct.reach - ct.R) * delay / (np.pi / 4) <= SHORT_BUDGET * EXTENSION_SAMPLES
