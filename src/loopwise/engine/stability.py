@@ -434,8 +434,10 @@ def _marginal(comp: Component, k: int, resp: LoopResponse) -> float | None:
     return None
 
 
-#: metrics.peaks keeps a sampled peak over the limits only when it is larger by this factor
-_PEAK_TIE = 1e-9
+#: metrics.peaks keeps a sampled peak over the limits only when it is larger by a factor
+#: 1 + 1e-9; `settled` asks a peak to beat the bound beyond the cut by this larger factor,
+#: which covers that one (it must never be smaller)
+_PEAK_TIE = 1e-6
 
 
 class ShortProbe:
@@ -483,14 +485,15 @@ def settled(nearest: float, tops: dict[str, float], last: float, gain_up_db: flo
     whole curve, given that |L| < `level` beyond the cut (the reach grid's word).
 
     Beyond the cut the curve stays in the disk |L| < level: it has no gain crossover,
-    its crossings of the negative real axis lie in (-level, 0), |S| <= 1/(1 - level),
+    its crossings of the negative real axis lie in (-level, 0], |S| <= 1/(1 - level),
     |T| <= level/(1 - level), |S - T| <= (1 + level)/(1 - level). So the phase and delay
     margins and the crossover are settled; the gain margins are when the stretch that
     holds -1 ends left of -level both before refinement (`nearest`: the nearest crossing
     right of -1 as sampled, so the same crossings are refined) and after (`gain_up_db`,
     from the refined end; None: unbounded, not settled); each peak is when its largest
-    sample (`tops`) beats the bound beyond by the peaks' own tie factor (then the same
-    sample is refined, between the same neighbours, and beats the limit at infinity);
+    sample (`tops`) beats the bound beyond by a factor 1 + _PEAK_TIE, at least the peaks'
+    own tie factor (then the same sample is refined, between the same neighbours, and
+    beats the limit at infinity);
     `last`, |L| at the cut, must be inside the disk too."""
     l = level
     bounds = {"sensitivity": 1.0 / (1.0 - l), "complementary": l / (1.0 - l), "balanced": (1.0 + l) / (1.0 - l)}
