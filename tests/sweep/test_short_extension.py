@@ -138,12 +138,12 @@ def test_the_bounds_hold_on_the_disk():
     l = SETTLE_LEVEL
     r = l * np.sqrt(np.linspace(0.0, 1.0, 401))[:, None]
     L = (r * np.exp(1j * np.linspace(-np.pi, np.pi, 721))[None, :]).ravel()
-    assert np.max(np.abs(1 / (1 + L))) <= 1 / (1 - l) * (1 + 1e-12)
-    assert np.max(np.abs(L / (1 + L))) <= l / (1 - l) * (1 + 1e-12)
-    assert np.max(np.abs((1 - L) / (1 + L))) <= (1 + l) / (1 - l) * (1 + 1e-12)
+    for value, bound in ((np.abs(1 / (1 + L)), 1 / (1 - l)), (np.abs(L / (1 + L)), l / (1 - l)),
+                         (np.abs((1 - L) / (1 + L)), (1 + l) / (1 - l))):
+        assert np.max(value) <= bound * (1 + 1e-12)
+        # ... and reached at the disk's edge (L = -l): the bounds are the suprema, not looser
+        assert np.max(value) == pytest.approx(bound, rel=1e-12)
     assert np.all(np.abs(L) < 1)  # no gain crossover
-    # and they are attained at L = -l: nothing looser would do
-    assert 1 / (1 - l) == pytest.approx(abs(1 / (1 - l)))
 
 
 def test_the_settling_frequency_is_read_on_the_reach_grid():

@@ -41,7 +41,7 @@ from .reduce import CANCEL, SAFE_LEVEL, SAFE_PER_PATH, Reduction, bounded_batche
 from .solve import distinct
 from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_GRID, REACH_LEVEL, ModelCount, NyquistCount,
                         _dedupe, _open_rhp, count as count_one, extension_pieces, reach_rule, stops_short)
-from .winding import MAX_SAMPLES, MAX_WORK, Piece, encirclements, trace
+from .winding import MAX_SAMPLES, MAX_WORK, encirclements, trace
 
 __all__ = ["Batch", "StackedBank", "wiring"]
 
