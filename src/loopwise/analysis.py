@@ -158,15 +158,10 @@ def check_many(preps: list[PreparedModel], indent: str = "right", stabilising_ga
     With `short` (a sweep's), the margins' extension stops at each model's settling
     frequency wherever that leaves every margin value as the whole extension gives it
     (stability.settled; docs/method.md, "The sweep's short extension"), and the models
-    where it does not are checked again with the whole extension. Then only the margin
-    values, verdicts, requirements and warnings are those of `check` (docs/method.md says
-    which warning it may miss): the responses stop at the settling frequency, and no phase
-    crossover is listed."""
-    return _check_batch(preps, indent, stabilising_gains, short)
-
-
-def _check_batch(preps: list[PreparedModel], indent: str, stabilising_gains: bool, short: bool
-                 ) -> list[ModelResult]:
+    where it does not get the rest of it (`Batch.lengthen`) and their margins again. Then
+    only the margin values, verdicts, requirements and warnings are those of `check`
+    (docs/method.md says which warning it may miss): the responses stop at the settling
+    frequency, and no phase crossover is listed."""
     from .engine.batch import Batch
     from .engine.margins import break_margins, break_stabilising_gains
     from .engine.stability import ShortProbe
@@ -178,34 +173,38 @@ def _check_batch(preps: list[PreparedModel], indent: str, stabilising_gains: boo
     if not todo:
         return out
     batch = Batch([preps[i].reduction for i in todo])
-    plans = [_plan(preps[i], c) for i, c in zip(todo, batch.count(indent, short=short))]
+    counts = batch.count(indent, short=short)
+    plans = [_plan(preps[i], c) for i, c in zip(todo, counts)]
+    margins = [{c.stmt.name: None for c in preps[i].diagram.breaks} for i in todo]
     rows = [(n, name) for n, plan in enumerate(plans) for name in plan.stable_names()]
     probe = ShortProbe([plans[n].counts[name].short is not None for n, name in rows])
     found = break_margins(batch.evaluator(rows), [plans[n].counts[name].response for n, name in rows],
                           [plans[n].counts[name].P for n, name in rows], tidy=True, tail=probe, listed=not short)
-    margins = [{c.stmt.name: None for c in preps[i].diagram.breaks} for i in todo]
     for (n, name), m in zip(rows, found):
         margins[n][name] = m
     # a model with a margin the short extension does not settle, or with a gain range to
-    # search on a short response, is checked again with the whole extension
+    # search on a short response, gets the rest of its extension and its margins again
     again = {n for r, ((n, _), m) in enumerate(zip(rows, found)) if not probe.settled(r, m)}
     again |= {n for n, plan in enumerate(plans) for name in plan.gain_names(margins[n], stabilising_gains)
               if plan.counts[name].short is not None}
     if again:
         again = sorted(again)
-        full = _check_batch([preps[todo[n]] for n in again], indent, stabilising_gains, False)
-        for n, result in zip(again, full):
-            out[todo[n]] = result
-    rows = [(n, name) for n, plan in enumerate(plans) if n not in again
-            for name in plan.gain_names(margins[n], stabilising_gains)]
+        for n, c in zip(again, batch.lengthen([counts[n] for n in again], again)):
+            plans[n] = _plan(preps[todo[n]], c)
+            margins[n] = {b.stmt.name: None for b in preps[todo[n]].diagram.breaks}
+        rows = [(n, name) for n in again for name in plans[n].stable_names()]
+        found = break_margins(batch.evaluator(rows), [plans[n].counts[name].response for n, name in rows],
+                              [plans[n].counts[name].P for n, name in rows], tidy=True, listed=not short)
+        for (n, name), m in zip(rows, found):
+            margins[n][name] = m
+    rows = [(n, name) for n, plan in enumerate(plans) for name in plan.gain_names(margins[n], stabilising_gains)]
     found = break_stabilising_gains(batch.evaluator(rows), [plans[n].counts[name].response for n, name in rows],
                                     [plans[n].counts[name].P for n, name in rows])
     gains = [dict() for _ in todo]
     for (n, name), g in zip(rows, found):
         gains[n][name] = g
     for n, i in enumerate(todo):
-        if n not in again:
-            out[i] = _finish(preps[i], plans[n], margins[n], gains[n])
+        out[i] = _finish(preps[i], plans[n], margins[n], gains[n])
     return out
 
 

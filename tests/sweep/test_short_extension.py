@@ -1,8 +1,8 @@
 """A sweep's short extension (engine/stability.py: `reach_rule`, `settled`, `ShortProbe`;
 docs/method.md, "The sweep's short extension"): the margins' extension of each plant stops
 at the settling frequency only where that leaves every margin value the sweep records as
-`check` gives it, and the plants where it does not are checked again with the whole
-extension.
+`check` gives it, and the plants where it does not get the rest of their extension
+(`Batch.lengthen`) and their margins again.
 
 References: `check` of the plant alone (`check_text` with the params set, what
 `loopwise check --set NAME=VALUE ...` runs), exact to the last digit; the closed-form
@@ -66,7 +66,7 @@ AS_CHECKED = {
 def test_the_servo_sweep_stops_short_and_its_worst_values_are_those_of_check_there(verdicts):
     result, errors, plants = sweep_recorded(SERVO, samples=12)
     assert not errors and result.stable_everywhere
-    # every curve of every plant was settled by the short extension: no plant checked again
+    # every curve of every plant was settled by the short extension: no plant lengthened
     assert verdicts and all(verdicts)
     text = SERVO.read_text()
     compared = 0
@@ -98,17 +98,42 @@ def test_short_and_whole_extensions_give_identical_records():
 
 #: L = K exp(-sT)/s with K T from 0.002 to 0.5: the gain margin pi/(2 K T) ranges from
 #: 10 dB to 58 dB, so the plants with K T < pi/200 (gain margin over 40 dB: the phase
-#: crossover inside |L| < SETTLE_LEVEL) cannot be settled short and are checked again
+#: crossover inside |L| < SETTLE_LEVEL) cannot be settled short and are lengthened
 SMALL_LOOP = DELAYED.replace("param K = 1 in [0.5, {k_hi}]", "param K = 0.1 in [0.01, 1]").replace(
     "param T = 0.5 in [0.2, 1]", "param T = 0.2 in [0.2, 0.5]")
 
 
-def test_plants_the_short_extension_cannot_settle_are_checked_with_the_whole_one(tmp_path, verdicts):
+@pytest.mark.parametrize("text", ["servo", "small"])
+def test_a_short_response_lengthened_is_the_whole_response(text):
+    from loopwise.engine.batch import Batch
+
+    if text == "servo":
+        parsed = parse_model(SERVO.read_text(), str(SERVO))
+        rows = [{"kt": 0.114, "J": 2.9e-4, "Td": 160e-6}, {"kt": 0.126, "J": 2.2e-4, "Td": 140e-6},
+                {"kt": 0.12, "J": 2.5e-4, "Td": 150e-6}]
+    else:
+        parsed = parse_model(SMALL_LOOP, "<small>")
+        rows = [{"K": K, "T": T} for K, T in [(0.01, 0.2), (0.05, 0.5), (0.3, 0.3), (1.0, 0.5)]]
+    reductions = [prepare_model(resolve_parsed(parsed, r)).reduction for r in rows]
+    batch = Batch(reductions)
+    short = batch.count(short=True)
+    assert all(c.short is not None for m in short for c in m.counts.values())  # every response cut
+    longer = batch.lengthen(short, list(range(len(rows))))
+    whole = Batch(reductions).count()
+    for a, b in zip(longer, whole):
+        for name, c in b.counts.items():
+            got = a.counts[name]
+            assert got.short is None and (got.P, got.N, got.Z) == (c.P, c.N, c.Z)
+            assert np.array_equal(got.response.s, c.response.s) and np.array_equal(got.response.L, c.response.L)
+            assert np.array_equal(got.response.on_axis, c.response.on_axis)
+
+
+def test_plants_the_short_extension_cannot_settle_get_the_whole_one(tmp_path, verdicts):
     path = tmp_path / "small.loop"
     path.write_text(SMALL_LOOP)
     _, errors, plants = sweep_recorded(path, samples=16)
     assert not errors
-    # both kinds in the same batches: settled short, and checked again in full
+    # both kinds in the same batches: settled short, and lengthened to the reach
     assert True in verdicts and False in verdicts
     for values, o in plants:
         K, T = values["K"], values["T"]
