@@ -39,9 +39,9 @@ from .certificate import ScaledTerms, certificate_radius, scaling
 from .program import build_program
 from .reduce import CANCEL, SAFE_LEVEL, SAFE_PER_PATH, Reduction, bounded_batches
 from .solve import distinct
-from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_LEVEL, ModelCount, NyquistCount, _dedupe,
-                        _open_rhp, count as count_one)
-from .winding import MAX_SAMPLES, MAX_WORK, Piece, encirclements, trace
+from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_GRID, REACH_LEVEL, ModelCount, NyquistCount,
+                        _dedupe, _open_rhp, count as count_one, extension_pieces, reach_rule, stops_short)
+from .winding import MAX_SAMPLES, MAX_WORK, encirclements, trace
 
 __all__ = ["Batch", "StackedBank", "wiring"]
 
@@ -232,22 +232,28 @@ class Batch:
         return out
 
     # --- the certified count of every sample -----------------------------------------
-    def count(self, indent: str = "right", for_margins: bool = True) -> list[ModelCount]:
+    def count(self, indent: str = "right", for_margins: bool = True, short: bool = False) -> list[ModelCount]:
         """Every sample's Z and break counts, as stability.count gives them for one model,
-        with every sample's contour traced in the same batched rounds."""
+        with every sample's contour traced in the same batched rounds. With `short` (a
+        sweep's), the margins' extension stops at the settling frequency where there is
+        one (stability.extension_pieces; the counts say where: NyquistCount.short); a
+        sample counted again alone gets the whole extension."""
         from .stability import prepare
         # the margins' reach of every sample in one stacked evaluation per component
         contours = [prepare(r, indent, False) for r in self.reductions]
         if for_margins:
             for c, st in enumerate(self.stacks):
-                for cs, reach in zip(contours, _reach(st, [cs[c] for cs in contours])):
-                    cs[c] = replace(cs[c], reach=reach)
+                for cs, (reach, settle) in zip(contours, _reach(st, [cs[c] for cs in contours])):
+                    cs[c] = replace(cs[c], reach=reach, settle=settle)
         Z = np.array([sum(_open_rhp(p, indent) for p in _outside_poles(r)) for r in self.reductions])
         per = [dict() for _ in self.reductions]
         redo: set[int] = set()
+        # what `lengthen` needs: the contours and each sample's extension points so far
+        self._traced = (indent, contours, [])
         for c, st in enumerate(self.stacks):
             cts = [cs[c] for cs in contours]
-            zc, counts, marginal = _count_stacked(st, cts)
+            zc, counts, marginal, used = _count_stacked(st, cts, short)
+            self._traced[2].append(used)
             Z += zc
             redo |= marginal
             for i in range(self.samples):
@@ -261,6 +267,58 @@ class Batch:
             counts = {n: replace(cnt, P=cnt.P + Z[i] - zc, Z=cnt.Z + Z[i] - zc) for n, (cnt, zc) in per[i].items()}
             out.append(ModelCount(int(Z[i]), (), counts))
         return out
+
+    def lengthen(self, counts: list[ModelCount], samples: list[int]) -> list[ModelCount]:
+        """The counts of `samples` (indices into the batch; `counts` from `count(short=True)`)
+        with every response that stops at the settling frequency carried on to the reach:
+        the far piece of the extension (stability.extension_pieces) traced for those samples,
+        so that each response is the one `count()` without `short` gives. A sample whose
+        extension, both pieces together, would not have been traced whole as one model's
+        (its budget, a point that could not be resolved, a touch of -1) is counted again
+        alone, as `count` does."""
+        indent, contours, used = self._traced
+        out = {i: c for i, c in zip(samples, counts)}
+        redo: set[int] = set()
+        for c, st in enumerate(self.stacks):
+            B = len(st.breaks)
+            mine = sorted(i for i in samples if B and any(out[i].counts[n].short is not None for n in st.breaks))
+            pieces, owner, skip = [], [], {}
+            for i in mine:
+                ct = contours[i][c]
+                whole = extension_pieces(ct.R, ct.reach, ct.settle)
+                near = extension_pieces(ct.R, ct.reach, ct.settle, short=True)
+                far = whole[len(near):]
+                pieces += far
+                owner += [i] * len(far)
+                skip[i] = not near  # no first piece: the far piece's first sample repeats R
+            if not pieces:
+                continue
+            owner = np.array(owner)
+            ext = _trace_pieces(st, pieces, owner)
+            ext_of = owner[ext.pid]
+            if not ext.complete:
+                redo |= set(mine)
+            redo |= {int(owner[p]) for p in ext.unresolved_pieces}
+            points = np.bincount(ext_of, minlength=self.samples) + used[c]
+            redo |= set(np.nonzero(points > min(EXTENSION_SAMPLES, MAX_WORK // B))[0].tolist()) & set(mine)
+            at = np.searchsorted(ext_of, np.arange(self.samples + 1))
+            for i in mine:
+                rows = np.arange(at[i] + (1 if skip[i] else 0), at[i + 1])
+                longer = dict(out[i].counts)
+                for k, name in enumerate(st.breaks):
+                    cnt = longer[name]
+                    r = cnt.response
+                    s = np.concatenate([r.s, ext.s[rows]])
+                    L = np.concatenate([r.L, np.exp(ext.values[rows, k])])
+                    on_axis = np.concatenate([r.on_axis, ext.on_axis[rows]])
+                    response = LoopResponse(*_dedupe(s, L, on_axis), r.axis_poles)
+                    if _touches(response):
+                        redo.add(i)
+                    longer[name] = replace(cnt, response=response, short=None)
+                out[i] = replace(out[i], counts=longer)
+        for i in redo:
+            out[i] = count_one(self.reductions[i], indent, True)
+        return [out[i] for i in samples]
 
     def evaluator(self, name_rows: list[tuple[int, str]]):
         """The margins' evaluator for curves (sample, break name): evaluate(s, i) gives L of
@@ -281,14 +339,14 @@ class Batch:
         return evaluate
 
 
-def _reach(st: _Stacked, cts: list) -> list[float]:
-    """stability._margin_reach for every sample: the same grid and rule, all samples' points
-    in one evaluation."""
+def _reach(st: _Stacked, cts: list) -> list[tuple[float, float | None]]:
+    """stability._margin_reach for every sample: the same grid and rule (stability.reach_rule),
+    all samples' points in one evaluation."""
     if not st.breaks:
-        return [ct.R for ct in cts]
-    S, n = len(cts), 201
+        return [(ct.R, None) for ct in cts]
+    S, n = len(cts), REACH_GRID.size
     R = np.array([ct.R for ct in cts])
-    w = R[:, None] * np.logspace(-6.0, 4.0, n)[None, :]
+    w = R[:, None] * REACH_GRID[None, :]
     s, which = 1j * w.ravel(), np.repeat(np.arange(S), n)
     g = np.zeros((s.size, len(st.breaks)), complex)
     with np.errstate(all="ignore"):
@@ -296,14 +354,7 @@ def _reach(st: _Stacked, cts: list) -> list[float]:
         for idx, prog in st._groups(V):
             g[idx] = prog.values(V[idx])[2]
         mag = np.abs(g / (1.0 + g)).reshape(S, n, -1)
-    out = []
-    for i in range(S):
-        big = np.nonzero((~(mag[i] < REACH_LEVEL)).any(axis=1))[0]
-        unit = np.nonzero((~(mag[i] < 1.0)).any(axis=1))[0]
-        last_small = max(R[i], float(w[i, min(big[-1] + 1, n - 1)])) if big.size else R[i]
-        last_unit = float(w[i, unit[-1]]) if unit.size else 0.0
-        out.append(float(min(max(1.5 * last_small, 30.0 * last_unit, R[i]), 1e4 * R[i])))
-    return out
+    return [reach_rule(w[i], mag[i], float(R[i])) for i in range(S)]
 
 
 def _outside_poles(r: Reduction) -> list[np.ndarray]:
@@ -311,10 +362,13 @@ def _outside_poles(r: Reduction) -> list[np.ndarray]:
     return out + [t.app.transfer.poles for t in r.exogenous]
 
 
-def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set[int]]:
+def _count_stacked(st: _Stacked, cts: list, short: bool = False
+                   ) -> tuple[np.ndarray, list[dict], set[int], np.ndarray]:
     """One loop component in every sample: each sample's Z_c and break counts (P, N local to
-    the component, as stability._count_component gives them), and the samples with a
-    closed-loop pole on the axis (counted again alone by the caller)."""
+    the component, as stability._count_component gives them), the samples with a
+    closed-loop pole on the axis (counted again alone by the caller), and each sample's
+    points on the margins' extension. With `short`, the extension stops at each sample's
+    settling frequency (`Batch.count`)."""
     S, B = len(cts), len(st.breaks)
     pieces, owner = [], []
     for i, ct in enumerate(cts):
@@ -337,9 +391,10 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
     tr = trace(pieces, evaluate, features, floors, MAX_SAMPLES * S, _step_ok(st, owner) if st.bank.has_delay
                else None, orders=q[owner], max_step=steps, by_piece=True, max_work=MAX_WORK * S)
     if not tr.complete:
-        return np.zeros(S, int), [dict() for _ in range(S)], set(range(S))
+        return np.zeros(S, int), [dict() for _ in range(S)], set(range(S)), np.zeros(S, int)
     closes = _closing(st, cts)
-    ext = _extension(st, cts) if B else None
+    short_at = [short and stops_short(ct, float(st.bank.delay[i].sum())) for i, ct in enumerate(cts)]
+    ext = _extension(st, cts, short_at) if B else None
     # pieces are listed sample by sample and a trace is ordered by piece: each sample's
     # samples are one contiguous run (bounds by bisection, not a scan per sample)
     sample_of = owner[tr.pid]
@@ -387,11 +442,12 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
             if _touches(response):
                 redo.add(i)
             P = ct.P0 + wk
-            mine[name] = NyquistCount(P, N, P + N, False, None, (), response)
+            mine[name] = NyquistCount(P, N, P + N, False, None, (), response, ct.settle if short_at[i] else None)
         if err > 1e-3:
             redo.add(i)  # a residual: the one-model count words the warning
         counts.append(mine)
-    return zc, counts, redo
+    used = np.zeros(S, int) if ext is None else np.bincount(ext_of, minlength=S)
+    return zc, counts, redo, used
 
 
 def _outgrown(sample_of_point: np.ndarray, S: int, most: int, work: int) -> set[int]:
@@ -496,17 +552,24 @@ def _closing(st: _Stacked, cts: list) -> list[list[float]]:
     return out
 
 
-def _extension(st: _Stacked, cts: list):
-    """stability._extension for every sample: (trace, owner of each piece)."""
-    B = len(st.breaks)
+def _extension(st: _Stacked, cts: list, short: list[bool] | None = None):
+    """stability._extension for every sample: (trace, owner of each piece). Where `short[i]`,
+    sample i's first piece alone (stability.extension_pieces)."""
     pieces, owner = [], []
     for i, ct in enumerate(cts):
-        if ct.reach > ct.R * (1 + 1e-12):
-            pieces.append(Piece("axis", ct.R, ct.reach, log=True))
-            owner.append(i)
+        mine = extension_pieces(ct.R, ct.reach, ct.settle, bool(short and short[i]))
+        pieces += mine
+        owner += [i] * len(mine)
     if not pieces:
         return None
     owner = np.array(owner)
+    return _trace_pieces(st, pieces, owner), owner
+
+
+def _trace_pieces(st: _Stacked, pieces: list, owner: np.ndarray):
+    """The trace of extension pieces of many samples (`owner[p]`: the sample of piece p), as
+    stability._extension traces one model's."""
+    B = len(st.breaks)
 
     def evaluate(s, pid):
         which = owner[pid]
@@ -515,8 +578,9 @@ def _extension(st: _Stacked, cts: list):
             return np.log(L + 0j)
 
     steps = [None if _max_step(st, i) is None else 2.0 * _max_step(st, i) for i in owner]
-    tr = trace(pieces, evaluate, [np.zeros(0)] * len(pieces), (REACH_LEVEL / 5,) * B,
-               EXTENSION_SAMPLES * len(pieces), _step_ok(st, owner) if st.bank.has_delay else None,
-               max_step=steps, chord=EXTENSION_CHORD, midpoint=0.3, by_piece=True,
-               max_work=MAX_WORK * len(pieces))
-    return tr, owner
+    # one model's budget per sample traced, whatever its pieces (as stability._extension)
+    traced = len(set(owner.tolist()))
+    return trace(pieces, evaluate, [np.zeros(0)] * len(pieces), (REACH_LEVEL / 5,) * B,
+                 EXTENSION_SAMPLES * traced, _step_ok(st, owner) if st.bank.has_delay else None,
+                 max_step=steps, chord=EXTENSION_CHORD, midpoint=0.3, by_piece=True,
+                 max_work=MAX_WORK * traced)

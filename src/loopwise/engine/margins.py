@@ -44,11 +44,14 @@ def _curves(responses: list[LoopResponse], evaluate) -> list[Curve]:
 
 
 def break_margins(evaluate, responses: list[LoopResponse], open_loop_rhp_poles: list[int],
-                  tidy: bool = False) -> list[Margins]:
+                  tidy: bool = False, tail=tail_matters, listed: bool = True) -> list[Margins]:
     """The margins of many breaks at once. `evaluate(s, i)` gives L of break i[j] at s[j]
     (delays included); `responses` the engine's samples; gain margins are given only where
     the count at -1 says the closed loop is stable (N = -P). With `tidy`, phase crossovers
-    far from the gain margins are counted rather than listed (metrics.TIDY_DB)."""
+    far from the gain margins are counted rather than listed (metrics.TIDY_DB). `tail(curve,
+    stretches)` says which curves to follow past their last sample (default
+    curve.tail_matters; a sweep's short curves: stability.ShortProbe). Without `listed`,
+    the phase crossovers are neither refined nor listed (a sweep records none)."""
     if not responses:
         return []
     curves = _curves(responses, evaluate)
@@ -57,7 +60,7 @@ def break_margins(evaluate, responses: list[LoopResponse], open_loop_rhp_poles: 
     st = settle(found, Ps, evaluate, holds_minus_one)
     # crossings past the engine's last sample matter only where they could bound the
     # stretch that holds -1 (its right end close to the origin): follow those curves on
-    late = [c for c, s in zip(curves, st) if tail_matters(c, s)]
+    late = [c for c, s in zip(curves, st) if tail(c, s)]
     if late:
         add_tail(late, evaluate)
         for c in late:
@@ -67,7 +70,7 @@ def break_margins(evaluate, responses: list[LoopResponse], open_loop_rhp_poles: 
             st[c.index] = s
     bounds = [gain_margins(s) for s in st]
     gains = gain_crossovers(curves, evaluate)
-    phases = phase_crossovers(found, evaluate, bounds, tidy)
+    phases = phase_crossovers(found, evaluate, bounds, tidy) if listed else [([], 0)] * len(found)
     pk = peaks(curves, evaluate)
     out = []
     for g, (ph, omitted), (up, down), p in zip(gains, phases, bounds, pk):
