@@ -34,7 +34,7 @@ from typing import Sequence
 import numpy as np
 
 from ..results import LoopResponse
-from .blocks import Bank
+from .blocks import Bank, FactorTable
 from .certificate import ScaledTerms, certificate_radius, scaling
 from .program import build_program
 from .reduce import CANCEL, SAFE_LEVEL, SAFE_PER_PATH, Reduction, bounded_batches
@@ -48,27 +48,22 @@ __all__ = ["Batch", "StackedBank", "wiring"]
 
 class StackedBank:
     """The terms of one wiring in many samples: `values(s, which)` gives, for points s[j] of
-    samples which[j], every term's value, shape (M, terms). Each sample's points go to that
-    sample's own Bank (engine/blocks.py: terms grouped by shape, no padding, no masks), so
-    a sample's values are those its one-model count sees."""
+    samples which[j], every term's value, shape (M, terms). The samples' factors lie in one
+    table (engine/blocks.py, FactorTable), so a round costs a few numpy operations whatever
+    the number of samples, and a sample's values are bit for bit those its own Bank (its
+    one-model count) gives."""
 
     def __init__(self, banks: Sequence[Bank]):
         self.banks = tuple(banks)
         self.samples, self.size = len(self.banks), self.banks[0].size
         self.delay = np.array([b.delay for b in self.banks], float)
         self.has_delay = bool(np.any(self.delay > 0))
+        self.table = FactorTable(self.banks)
 
     def values(self, s: np.ndarray, which: np.ndarray) -> np.ndarray:
         """Every term's value gain * transfer(s[j]) in sample which[j], complex, shape (len(s),
         terms); delays exact, a point on a pole gives inf or nan there."""
-        s = np.asarray(s, complex).ravel()
-        which = np.asarray(which).ravel()
-        out = np.empty((s.size, self.size), complex)
-        order = np.argsort(which, kind="stable")
-        for idx in np.split(order, np.flatnonzero(np.diff(which[order])) + 1):
-            if idx.size:
-                out[idx] = self.banks[which[idx[0]]].values(s[idx])
-        return out
+        return self.table.values(s, which)
 
 
 def wiring(red: Reduction) -> tuple:
