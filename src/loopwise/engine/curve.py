@@ -19,7 +19,7 @@ import numpy as np
 from ..results import LoopResponse
 from .solve import distinct, illinois
 
-__all__ = ["Curve", "Crossing", "upper_curve", "add_tail", "crossings", "stretches", "settle",
+__all__ = ["Curve", "Crossing", "upper_curve", "add_tail", "crossings", "crossings_many", "stretches", "settle",
            "gain_margins", "gain_factors", "refine", "HORIZON", "Evaluate"]
 
 #: (s, curve indices) -> L of each curve at each point
@@ -211,10 +211,39 @@ def crossings(c: Curve) -> list[Crossing]:
     lying exactly on the axis is counted once. Mirror crossings have the same position
     and direction as their upper twins.
     """
+    return crossings_many([c])[0]
+
+
+def crossings_many(curves: list[Curve]) -> list[list[Crossing]]:
+    """`crossings` of many curves: the segments of every curve (upper half, mirror, the
+    two closing chords) tested in one vectorised pass; each curve's list in the same
+    order as `crossings` gives it."""
+    a_parts, b_parts, sizes = [], [], []
+    for c in curves:
+        L = c.L
+        a_parts += [L[:-1], np.conj(L[1:]), L[-1:], np.conj(L[:1])]
+        b_parts += [L[1:], np.conj(L[:-1]), np.conj(L[-1:]), L[:1]]
+        sizes += [L.size - 1, L.size - 1, 1, 1]
+    starts = np.concatenate([[0], np.cumsum(sizes)])
+    hit, xs, ups, fracs = _segment_arrays(np.concatenate(a_parts), np.concatenate(b_parts))
+    # hits in order: curve by curve, part by part (upper, mirror, top, bottom), segment by segment
+    part = np.searchsorted(starts, hit, side="right") - 1
+    at = np.searchsorted(part, np.arange(len(sizes) + 1))
+    out = []
+    for n, c in enumerate(curves):
+        rows = [range(at[4 * n + j], at[4 * n + j + 1]) for j in range(4)]
+        base = [int(starts[4 * n + j]) for j in range(4)]
+        out.append(_crossings_of(c, [[(int(hit[r]) - base[j], float(xs[r]), 1 if ups[r] else -1, float(fracs[r]))
+                                      for r in rows[j]] for j in range(4)]))
+    return out
+
+
+def _crossings_of(c: Curve, parts) -> list[Crossing]:
+    """One curve's Crossing list from its segment crossings (upper, mirror, top, bottom)."""
     L, axis, w = c.L, c.axis, c.s.imag
     upper: dict[int, Crossing] = {}
     out: list[Crossing] = []
-    for k, x, up, t in _segment_crossings(L[:-1], L[1:]):
+    for k, x, up, t in parts[0]:
         seg_axis = bool(axis[k] and axis[k + 1])
         x = _limit(c, k, x)
         cr = Crossing(c.index, x, up, _bracket(c, k) if math.isfinite(x) and x != 0.0 else None,
@@ -225,7 +254,7 @@ def crossings(c: Curve) -> list[Crossing]:
         out.append(cr)
     # the mirror half conj(L) reversed: segment k runs conj(L[k+1]) -> conj(L[k]) and
     # crosses where its upper twin does, the same way (unless a sample lies on the axis)
-    for k, x, up, _ in _segment_crossings(np.conj(L[1:]), np.conj(L[:-1])):
+    for k, x, up, _ in parts[1]:
         twin = upper.get(k)
         if twin is not None and twin.up == up:
             out.append(twin)
@@ -234,10 +263,10 @@ def crossings(c: Curve) -> list[Crossing]:
             out.append(Crossing(c.index, x, up, _bracket(c, k) if math.isfinite(x) and x != 0.0 else None))
     # closing chord at the top: the arc at infinity maps to L(inf), which is the
     # origin when |L| still rolls off at the last samples (strictly proper L)
-    for _, x, up, _ in _segment_crossings(L[-1:], np.conj(L[-1:])):
+    for _, x, up, _ in parts[2]:
         out.append(Crossing(c.index, 0.0 if abs(x) < HORIZON or _rolls_off(c) else x, up, None))
     # closing chord at the bottom: the real axis at s = 0 (or the start of an indentation)
-    for _, x, up, _ in _segment_crossings(np.conj(L[:1]), L[:1]):
+    for _, x, up, _ in parts[3]:
         far = c.at_pole[0] or abs(x) > 1.0 / HORIZON
         out.append(Crossing(c.index, -math.inf if far else (0.0 if abs(x) < HORIZON else x), up, None))
     return out
@@ -279,9 +308,9 @@ def _limit(c: Curve, k: int, x: float) -> float:
     return x
 
 
-def _segment_crossings(a: np.ndarray, b: np.ndarray) -> list[tuple[int, float, int, float]]:
-    """(segment, position, direction, fraction along) for segments a->b crossing
-    the negative real axis; the position interpolates log|L| and arg L between
+def _segment_arrays(a: np.ndarray, b: np.ndarray):
+    """(segments, positions, upward, fractions along), arrays, for the segments a->b
+    crossing the negative real axis; the position interpolates log|L| and arg L between
     the ends (exact for a power law), falling back to the chord."""
     ya, yb = a.imag, b.imag
     hit = np.flatnonzero((ya > 0) != (yb > 0))
@@ -295,8 +324,7 @@ def _segment_crossings(a: np.ndarray, b: np.ndarray) -> list[tuple[int, float, i
         log_r = (1 - t) * np.log(np.abs(a)) + t * np.log(np.abs(b))
         x = np.where((ha != hb) & (np.abs(ha - hb) < np.pi) & np.isfinite(log_r),
                      -np.exp(log_r), x_chord)
-    return [(int(k), float(xk), 1 if y1 > 0 else -1, float(f))
-            for k, xk, y1, f in zip(hit[keep], x[keep], yb[keep], frac[keep])]
+    return hit[keep], x[keep], yb[keep] > 0, frac[keep]
 
 
 def refine(found: list[Crossing], evaluate: Evaluate | None) -> None:
