@@ -160,28 +160,30 @@ def add_tail(curves: list[Curve], evaluate: Evaluate) -> None:
             c.tail = True
             continue
         state[c.index] = [c, w_end, L_end, 0, [], 32]
+    grids_of: dict[int, np.ndarray] = {}  # np.logspace(0, 1, n + 1)[1:] by n
     for d in range(_TAIL_DECADES):
-        pending = {i: st for i, st in state.items() if st[3] < _TAIL_MAX_SAMPLES}
+        pending = [i for i, st in state.items() if st[3] < _TAIL_MAX_SAMPLES]
         grids = {}
         while pending:
-            ws = {i: st[1] * 10.0 ** d * np.logspace(0, 1, st[5] + 1)[1:] for i, st in pending.items()}
-            pts = np.concatenate([1j * w for w in ws.values()])
-            cols = np.concatenate([np.full(w.size, i) for i, w in ws.items()])
-            Lall = evaluate(pts, cols)
-            done, offset = [], 0
-            for i, w in ws.items():
-                st = pending[i]
-                Lw = Lall[offset:offset + w.size]
-                offset += w.size
-                with np.errstate(all="ignore"):
-                    steps = np.abs(np.angle(Lw / np.concatenate([[st[2]], Lw[:-1]])))
-                if steps.max() <= _TAIL_STEP or st[3] + 2 * st[5] > _TAIL_MAX_SAMPLES:
-                    grids[i] = (w, Lw)
-                    done.append(i)
+            # every pending curve's decade in one evaluation, its steps in one pass
+            sts = [state[i] for i in pending]
+            ws = [st[1] * 10.0 ** d * grids_of.setdefault(st[5], np.logspace(0, 1, st[5] + 1)[1:]) for st in sts]
+            sizes = np.array([w.size for w in ws])
+            first = np.concatenate([[0], np.cumsum(sizes)[:-1]])
+            w_all = np.concatenate(ws)
+            Lall = evaluate(1j * w_all, np.repeat(pending, sizes))
+            prev = np.concatenate([[0j], Lall[:-1]])
+            prev[first] = [st[2] for st in sts]
+            with np.errstate(all="ignore"):
+                worst = np.maximum.reduceat(np.abs(np.angle(Lall / prev)), first)
+            again = []
+            for n, (i, st) in enumerate(zip(pending, sts)):
+                if worst[n] <= _TAIL_STEP or st[3] + 2 * st[5] > _TAIL_MAX_SAMPLES:
+                    grids[i] = (ws[n], Lall[first[n]:first[n] + sizes[n]])
                 else:
                     st[5] *= 2
-            for i in done:
-                del pending[i]
+                    again.append(i)
+            pending = again
         for i, (w, Lw) in grids.items():
             st = state[i]
             st[4].append((w, Lw))
