@@ -27,12 +27,13 @@ from __future__ import annotations
 from dataclasses import dataclass
 from functools import cached_property
 
-import networkx as nx
+import heapq
+
 import numpy as np
 
 from ..language.resolve import Term
 from .blocks import Bank
-from .diagram import Diagram
+from .diagram import Diagram, strong_components
 from .program import Program, build_program
 from .solve import distinct
 
@@ -350,18 +351,13 @@ def reduce_diagram(diagram: Diagram) -> Reduction:
 def _components(signals, instances, cut_sets, diagram) -> tuple[tuple[Component, ...], tuple[int, ...]]:
     n = len(signals)
     succ: dict[int, list[int]] = {i: [] for i in range(n)}
-    flow = nx.DiGraph()
-    flow.add_nodes_from(range(n))
     for inst in instances:
         succ[inst.col].append(inst.row)
-        flow.add_edge(inst.col, inst.row)
     comps = []
     inside: set[int] = set()
     # components upstream first (a topological order of the condensation), so that a
     # loop's signals are known before the loops they feed
-    condensed = nx.condensation(flow)
-    for c in nx.lexicographical_topological_sort(condensed, key=lambda c: min(condensed.nodes[c]["members"])):
-        members = sorted(condensed.nodes[c]["members"])
+    for members in _upstream_first(n, [(i.col, i.row) for i in instances]):
         if len(members) == 1 and members[0] not in succ[members[0]]:
             continue  # no loop through this signal
         member_set = set(members)
@@ -372,6 +368,36 @@ def _components(signals, instances, cut_sets, diagram) -> tuple[tuple[Component,
         comps.append(_component(members, insts, breaks, instances, cut_sets, signals))
     outside = tuple(k for k in range(len(instances)) if k not in inside)
     return tuple(comps), outside
+
+
+def _upstream_first(n: int, edges: list[tuple[int, int]]) -> list[list[int]]:
+    """The strongly connected components (sorted member lists) in topological order of the
+    condensation, ties broken by the smallest member: at each step, of the components
+    whose feeding components are all listed, the one with the smallest member. Members
+    are unique, so the order is unique."""
+    comps = strong_components(n, edges)
+    comp_of = [0] * n
+    for c, members in enumerate(comps):
+        for m in members:
+            comp_of[m] = c
+    feeds: list[set[int]] = [set() for _ in comps]
+    waiting = [0] * len(comps)
+    for u, v in edges:
+        cu, cv = comp_of[u], comp_of[v]
+        if cu != cv and cv not in feeds[cu]:
+            feeds[cu].add(cv)
+            waiting[cv] += 1
+    ready = [(comps[c][0], c) for c in range(len(comps)) if waiting[c] == 0]
+    heapq.heapify(ready)
+    out = []
+    while ready:
+        _, c = heapq.heappop(ready)
+        out.append(comps[c])
+        for d in feeds[c]:
+            waiting[d] -= 1
+            if waiting[d] == 0:
+                heapq.heappush(ready, (comps[d][0], d))
+    return out
 
 
 def _component(members, insts, breaks, instances, cut_sets, signals) -> Component:
