@@ -119,16 +119,20 @@ class _Stacked:
             bad = ~(np.abs(one_g) > CANCEL * np.maximum(1.0, np.abs(g)))
             for k in np.nonzero(bad.any(axis=0))[0]:
                 rows = np.nonzero(bad[:, k])[0]
-                ph, lg, Lk = self.direct(int(k), s[rows], which[rows])
+                ph, lg, Lk = self._direct(int(k), V[rows])
                 log_one_g[rows, k] = (lg + 1j * ph) - log_det[rows]
                 L[rows, k] = Lk
         return log_det, log_one_g, L
 
     def direct(self, b: int, s, which):
-        s = np.asarray(s, complex).ravel()
-        phase, logabs, L = np.zeros(s.size), np.zeros(s.size), np.zeros(s.size, complex)
+        """Break b solved with its wires cut at points s of samples which (Component.direct)."""
         with np.errstate(all="ignore"):
-            V = self.bank.values(s, which)
+            return self._direct(b, self.bank.values(np.asarray(s, complex).ravel(), which))
+
+    def _direct(self, b: int, V):
+        # from the term values already at hand (a point's values do not depend on the others)
+        phase, logabs, L = np.zeros(V.shape[0]), np.zeros(V.shape[0]), np.zeros(V.shape[0], complex)
+        with np.errstate(all="ignore"):
             for idx, prog in self._groups(V):
                 phase[idx], logabs[idx], L[idx] = prog.direct(V[idx], b)
         return phase, logabs, L
@@ -145,7 +149,7 @@ class _Stacked:
             bad = ~(np.abs(1.0 + g) > CANCEL * np.maximum(1.0, np.abs(g)))
             for k in distinct(cols[bad]):
                 rows = np.nonzero(bad & (cols == k))[0]
-                L[rows] = self.direct(int(k), s[rows], which[rows])[2]
+                L[rows] = self._direct(int(k), V[rows])[2]
         return L
 
 

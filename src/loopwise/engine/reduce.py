@@ -127,7 +127,10 @@ class Component:
         """det(I - A_c) and every break's g_k at the points s (one propagation, one solve)."""
         s = np.asarray(s, dtype=complex).ravel()
         with np.errstate(all="ignore"):
-            V = self.bank.values(s)
+            return self._values(s, self.bank.values(s))
+
+    def _values(self, s: np.ndarray, V: np.ndarray) -> ComponentValues:
+        with np.errstate(all="ignore"):
             groups = self._groups(s, V)
             if len(groups) == 1:
                 return ComponentValues(*groups[0][1].values(V))
@@ -145,7 +148,9 @@ class Component:
         neither L_k nor det(I - A_k) = det(I - A)(1 + g_k) loses digits.
         """
         s = np.asarray(s, dtype=complex).ravel()
-        v = self.values(s)
+        with np.errstate(all="ignore"):
+            V = self.bank.values(s)
+        v = self._values(s, V)
         g = v.g[:, :breaks]
         with np.errstate(all="ignore"):
             one_g = 1.0 + g
@@ -155,7 +160,7 @@ class Component:
             bad = ~(np.abs(one_g) > CANCEL * np.maximum(1.0, np.abs(g)))
             for k in np.nonzero(bad.any(axis=0))[0]:
                 rows = np.nonzero(bad[:, k])[0]
-                ph, lg, Lk = self.direct(int(k), s[rows])
+                ph, lg, Lk = self._direct(int(k), s[rows], V[rows])
                 log_one_g[rows, k] = (lg + 1j * ph) - log_det[rows]
                 L[rows, k] = Lk
         return log_det, log_one_g, L
@@ -176,16 +181,20 @@ class Component:
             bad = ~(np.abs(1.0 + g) > CANCEL * np.maximum(1.0, np.abs(g)))
             for k in distinct(cols[bad]):
                 rows = np.nonzero(bad & (cols == k))[0]
-                L[rows] = self.direct(int(k), s[rows])[2]
+                L[rows] = self._direct(int(k), s[rows], V[rows])[2]
         return L
 
     def direct(self, b: int, s: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Break b solved with its wires cut: phase and log|.| of det(I - A_k), and L_k
         (accurate where L_k is far below or far above 1; see Program.direct)."""
         s = np.asarray(s, dtype=complex).ravel()
+        with np.errstate(all="ignore"):
+            return self._direct(b, s, self.bank.values(s))
+
+    def _direct(self, b: int, s: np.ndarray, V: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        # from the term values already at hand (a point's values do not depend on the others)
         phase, logabs, L = np.zeros(s.size), np.zeros(s.size), np.zeros(s.size, complex)
         with np.errstate(all="ignore"):
-            V = self.bank.values(s)
             for idx, prog in self._groups(s, V):
                 phase[idx], logabs[idx], L[idx] = prog.direct(V[idx], b)
         return phase, logabs, L
