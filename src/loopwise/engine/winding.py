@@ -294,6 +294,13 @@ def _ends(table: _Table, pa: np.ndarray, ua: np.ndarray, ub: np.ndarray):
     return table.points(pa, ua), table.points(pa, ub)
 
 
+def _carried(s: np.ndarray, qr: np.ndarray) -> np.ndarray:
+    """log(s) q per point and traced function (0 where q is 0): the log of the factor s^q
+    that a traced value f s^q carries."""
+    with np.errstate(all="ignore"):
+        return np.where(qr != 0, np.log(s)[:, None] * qr, 0.0)
+
+
 def trace(pieces: list[Piece], evaluate: Callable, features,
           floors: tuple[float | None, ...], max_samples: int = MAX_SAMPLES,
           step_ok: Callable | None = None,
@@ -339,7 +346,12 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
     ua, ub = u[ia], u[ib]
     pa = pid[ia]
     la, lb = vals[ia], vals[ib]
-    sa, sb = s[ia], s[ib]
+    # the intervals' end points and (with orders) the logs of the factors their values carry,
+    # carried from round to round like the values (the same numbers _Table.points gives)
+    sa, sb = _ends(table, pa, ua, ub)
+    qa = qb = None
+    if q is not None:
+        qa, qb = (_carried(x, q[pa] if per_piece else q[None, :]) for x in (sa, sb))
     out_s, out_v, out_pid, out_u = [s], [vals], [pid], [u]
     unresolved: list[float] = []
     unresolved_pieces: list[int] = []
@@ -357,15 +369,12 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
         out_v.append(lm)
         out_pid.append(pa)
         out_u.append(um)
-        shift = None
+        shift = qm = None
         if q is not None:
-            ends_a, ends_b = _ends(table, pa, ua, ub)
-            qr = q[pa] if per_piece else q[None, :]
-            with np.errstate(all="ignore"):
-                shift = tuple(np.where(qr != 0, np.log(x)[:, None] * qr, 0.0) for x in (ends_a, ends_b, sm))
+            qm = _carried(sm, q[pa] if per_piece else q[None, :])
+            shift = (qa, qb, qm)
         ok = _accept(la, lb, lm, floors, shift, chord, midpoint)
         if check is not None:
-            sa, sb = _ends(table, pa, ua, ub)
             ok &= check(sa, sb, pa)
         tiny = (ub - ua) < 1e-13
         if np.any(tiny & ~ok):
@@ -390,6 +399,9 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
         lb = np.concatenate([lm[redo], lb[redo]])
         la = la2
         pa = np.concatenate([pa[redo], pa[redo]])
+        sa, sb = np.concatenate([sa[redo], sm[redo]]), np.concatenate([sm[redo], sb[redo]])
+        if q is not None:
+            qa, qb = np.concatenate([qa[redo], qm[redo]]), np.concatenate([qm[redo], qb[redo]])
     else:
         complete = ua.size == 0
     s = np.concatenate(out_s)
