@@ -202,20 +202,36 @@ def _seed(piece: Piece, features: np.ndarray, max_step: float | None = None) -> 
     (rad/s), also no wider step on the axis than that (what the delay step rule would
     otherwise reach by halving), unless that alone exceeds the sample budget."""
     if piece.kind == "indent":
-        return np.linspace(0.0, 1.0, 9)
+        return _grid(9)
     if piece.log or piece.center is not None:
         decades = abs(math.log10(piece.b / piece.a))
-        u = np.linspace(0.0, 1.0, max(9, int(decades * 30) + 1))
+        u = _grid(max(9, int(decades * 30) + 1))
     else:
-        u = np.linspace(0.0, 1.0, 9)
+        u = _grid(9)
     lo, hi = piece.w_range
     inside = features[(features > lo) & (features < hi)]
+    stepped = max_step is not None and 2 < (hi - lo) / max_step < MAX_SAMPLES / 4
+    if not inside.size and not stepped:
+        return u  # already sorted, distinct and within [0, 1]
     if inside.size:
         u = np.concatenate([u, piece.u_of(inside)])
-    if max_step is not None and 2 < (hi - lo) / max_step < MAX_SAMPLES / 4:
+    if stepped:
         with np.errstate(all="ignore"):
             u = np.concatenate([u, piece.u_of(np.arange(lo, hi, max_step)[1:])])
     return distinct(np.clip(u[np.isfinite(u)], 0.0, 1.0))
+
+
+_GRIDS: dict[int, np.ndarray] = {}
+
+
+def _grid(n: int) -> np.ndarray:
+    """np.linspace(0, 1, n), made once per n (read-only: the seeds share it)."""
+    g = _GRIDS.get(n)
+    if g is None:
+        g = np.linspace(0.0, 1.0, n)
+        g.flags.writeable = False
+        _GRIDS[n] = g
+    return g
 
 
 def _accept(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT) -> np.ndarray:
