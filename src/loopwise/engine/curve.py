@@ -10,6 +10,7 @@ of `evaluate(s, i)`, the loop transfer of curve i[j] at the point s[j].
 """
 from __future__ import annotations
 
+import bisect
 import math
 from dataclasses import dataclass
 from typing import Callable
@@ -370,20 +371,28 @@ def stretches(found: list[Crossing], P: int) -> list[tuple[float, float, bool]]:
     """(lo, hi, stable) for each stretch of the negative real axis between crossings.
 
     Clockwise encirclements of a point x: the signed count of crossings on the
-    ray from x to -inf (upward crossings count +1).
+    ray from x to -inf (upward crossings count +1). Plain Python floats (a curve has a
+    few crossings; numpy's per-call cost would dominate): a stable sort with NaN last, as
+    numpy sorts, and bisection for the count.
     """
-    xs = np.array([c.x for c in found], dtype=float)
-    ups = np.array([c.up for c in found], dtype=int)
-    order = np.argsort(xs, kind="stable")
-    xs, counts = xs[order], np.concatenate([[0], np.cumsum(ups[order])])
-    finite = distinct(xs[np.isfinite(xs) & (xs < 0)])
-    bounds = np.concatenate([[-math.inf], finite, [0.0]])
-    lo, hi = bounds[:-1], bounds[1:]
-    with np.errstate(all="ignore"):
-        test = np.where(np.isinf(lo), np.where(hi < 0, 2 * hi, -1.0),
-                        np.where(hi == 0.0, lo / 2, -np.sqrt(lo * hi)))
-    N = counts[np.searchsorted(xs, test, side="left")]
-    return [(float(a), float(b), bool(n == -P)) for a, b, n in zip(lo, hi, N)]
+    ranked = sorted(found, key=lambda c: (math.isnan(c.x), 0.0 if math.isnan(c.x) else c.x))
+    xs = [c.x for c in ranked]
+    counts = [0]
+    for c in ranked:
+        counts.append(counts[-1] + c.up)
+    finite = []
+    for x in xs:
+        if -math.inf < x < 0 and (not finite or x != finite[-1]):
+            finite.append(x)
+    bounds = [-math.inf, *finite, 0.0]
+    out = []
+    for lo, hi in zip(bounds[:-1], bounds[1:]):
+        if lo == -math.inf:
+            test = 2 * hi if hi < 0 else -1.0
+        else:
+            test = lo / 2 if hi == 0.0 else -math.sqrt(lo * hi)
+        out.append((float(lo), float(hi), counts[bisect.bisect_left(xs, test)] == -P))
+    return out
 
 
 def gain_factors(lo: float, hi: float) -> tuple[float, float]:

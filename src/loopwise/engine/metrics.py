@@ -140,9 +140,10 @@ def peaks(curves: list[Curve], evaluate: Evaluate) -> list[dict[str, Peak]]:
     windows = []  # (curve position, metric position, lo, hi, sample peak)
     best = [[Peak(-math.inf, math.nan) for _ in METRICS] for _ in curves]
     for n, c in enumerate(curves):
+        runs = c.axis_runs()
         for m, (_, fn, _) in enumerate(METRICS):
             cand = None
-            for run in c.axis_runs():
+            for run in runs:
                 w = c.s[run].imag
                 with np.errstate(all="ignore"):
                     v = np.nan_to_num(fn(c.L[run]), nan=-math.inf)
