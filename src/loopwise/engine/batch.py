@@ -356,14 +356,24 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
             redo |= set(ext[1].tolist())
         redo |= _outgrown(ext[1][ext[0].pid], S, EXTENSION_SAMPLES, MAX_WORK // B)
         redo |= {int(ext[1][p]) for p in ext[0].unresolved_pieces}
+    # the elementwise work of every sample at once (the same numbers, sample by sample)
+    with np.errstate(all="ignore"):
+        D = np.diff(tr.values, axis=0).imag
+        D = np.where(np.isfinite(D), (D + np.pi) % (2 * np.pi) - np.pi, 0.0)
+        qL = q[sample_of][:, 1 + B:]
+        L_all = np.exp(tr.values[:, 1 + B:] - np.where(qL != 0, qL * np.log(tr.s)[:, None], 0.0))
+        # how near 1 + L comes to zero on every sample's axis points, trace and extension
+        # rows (a repeated point repeats its value: dropping it changes no minimum)
+        near_T = np.where(tr.on_axis[:, None], _closeness(L_all), np.inf)
+        near_T = np.minimum.reduceat(near_T, at[:-1], axis=0) if S else near_T[:0]
+        if ext is not None:
+            L_ext = np.exp(ext[0].values)
+            near_E = np.where(ext[0].on_axis[:, None], _closeness(L_ext), np.inf)
     for i, ct in enumerate(cts):
-        rows = np.arange(at[i], at[i + 1])
-        vals, s0, on0 = tr.values[rows], tr.s[rows], tr.on_axis[rows]
+        a, b = at[i], at[i + 1]
+        s0, on0 = tr.s[a:b], tr.on_axis[a:b]
         turn = float(np.angle(s0[-1]) - np.angle(s0[0]))
-        with np.errstate(invalid="ignore"):
-            d = np.diff(vals, axis=0).imag
-        d = np.where(np.isfinite(d), (d + np.pi) % (2 * np.pi) - np.pi, 0.0)
-        stp = d.sum(axis=0) - q[i] * turn
+        stp = D[a:b - 1].sum(axis=0) - q[i] * turn
         close_full = closes[i][0]
         wz, err = encirclements(stp[0] + close_full)
         zc[i] = ct.P0 + wz
@@ -374,17 +384,15 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
             wk, err_k = encirclements(stp[0] + stp[1 + k] + close_k)
             N, err_n = encirclements(-stp[1 + k] + close_full - close_k)
             err = max(err, err_k, err_n)
-            qk = q[i, 1 + B + k]
-            with np.errstate(all="ignore"):
-                L = np.exp(vals[:, 1 + B + k] - (qk * np.log(s0) if qk else 0.0))
-            s, on_axis = s0, on0
+            L, s, on_axis, near = L_all[a:b, k], s0, on0, near_T[i, k]
             if er.size:
                 s = np.concatenate([s0, ext[0].s[er]])
-                L = np.concatenate([L, np.exp(ext[0].values[er, k])])
+                L = np.concatenate([L, L_ext[er, k]])
                 on_axis = np.concatenate([on0, ext[0].on_axis[er]])
+                near = min(near, float(near_E[er, k].min()))
             response = LoopResponse(*_dedupe(s, L, on_axis), ct.axis_freqs)
-            if _touches(response):
-                redo.add(i)
+            if near < 1e-3:
+                redo.add(i)  # 1 + L comes near zero on the axis: the one-model count decides
             P = ct.P0 + wk
             mine[name] = NyquistCount(P, N, P + N, False, None, (), response)
         if err > 1e-3:
@@ -400,12 +408,11 @@ def _outgrown(sample_of_point: np.ndarray, S: int, most: int, work: int) -> set[
     return set(np.nonzero(used > min(most, work))[0].tolist())
 
 
-def _touches(resp: LoopResponse) -> bool:
-    """A sample whose 1 + L comes near zero on the axis: the one-model count decides it."""
-    L = resp.axis_L
+def _closeness(L: np.ndarray) -> np.ndarray:
+    """|1 + L| / (1 + |L|), 1 where that is NaN: below 1e-3 on the axis, 1 + L comes near
+    zero there and the one-model count decides the sample."""
     with np.errstate(invalid="ignore"):
-        rel = np.nan_to_num(np.abs(1.0 + L) / (1.0 + np.abs(L)), nan=1.0)
-    return bool(rel.size and rel.min() < 1e-3)
+        return np.nan_to_num(np.abs(1.0 + L) / (1.0 + np.abs(L)), nan=1.0)
 
 
 def _orders(st: _Stacked, cts: list) -> np.ndarray:
