@@ -248,20 +248,24 @@ def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOI
     no samples. `shift`, when given, holds for the interval's ends and midpoint the logs
     of the factors the traced values carry (a traced f s^q stands for f; rows, columns
     each): a floor applies to f, so the tests of a floored function take them off."""
-    phase_only = np.array([f is None for f in floors])
+    free = [k for k, f in enumerate(floors) if f is None]
+    ok = np.empty(la.shape, bool)
+    finite = np.empty(la.shape, bool)  # where the ratio f_b / f_a (its phase part, without a floor) is finite
     with np.errstate(all="ignore"):
-        db, dm = lb - la, lm - la
-        db = np.where(phase_only[None, :], 1j * db.imag, db)
-        dm = np.where(phase_only[None, :], 1j * dm.imag, dm)
-        rb = np.exp(db)
-        rm = np.exp(dm)
-        ok = (np.abs(rb - 1.0) <= chord) & (np.abs(1.0 / rb - 1.0) <= chord)
-        dev = np.abs(rm - 0.5 * (1.0 + rb))
-        ok &= dev <= midpoint * np.minimum(1.0, np.minimum(np.abs(rb), np.abs(rm)))
+        if free:
+            cols = slice(None) if len(free) == len(floors) else free
+            rb = np.exp(1j * (lb[:, cols] - la[:, cols]).imag)
+            rm = np.exp(1j * (lm[:, cols] - la[:, cols]).imag)
+            ok_free = (np.abs(rb - 1.0) <= chord) & (np.abs(1.0 / rb - 1.0) <= chord)
+            dev = np.abs(rm - 0.5 * (1.0 + rb))
+            ok_free &= dev <= midpoint * np.minimum(1.0, np.minimum(np.abs(rb), np.abs(rm)))
+            ok[:, cols] = ok_free
+            finite[:, cols] = np.isfinite(rb)
         # functions with a floor (the loop transfer itself) only need resolving while large
         for k, floor in enumerate(floors):
             if floor is None:
                 continue
+            finite[:, k] = np.isfinite(np.exp(lb[:, k] - la[:, k]))
             if shift is None:
                 fa, fb, fm = np.exp(la[:, k]), np.exp(lb[:, k]), np.exp(lm[:, k])
             else:
@@ -278,7 +282,7 @@ def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOI
         for k, floor in enumerate(floors):
             if floor is not None:
                 settled[:, k] |= np.isneginf(lm[:, k].real)
-    return (ok | ~np.isfinite(rb)) & settled
+    return (ok | ~finite) & settled
 
 
 class _Table:
