@@ -168,7 +168,10 @@ def add_tail(curves: list[Curve], evaluate: Evaluate) -> None:
         while pending:
             # every pending curve's decade in one evaluation, its steps in one pass
             sts = [state[i] for i in pending]
-            ws = [st[1] * 10.0 ** d * grids_of.setdefault(st[5], np.logspace(0, 1, st[5] + 1)[1:]) for st in sts]
+            for st in sts:
+                if st[5] not in grids_of:
+                    grids_of[st[5]] = np.logspace(0, 1, st[5] + 1)[1:]
+            ws = [st[1] * 10.0 ** d * grids_of[st[5]] for st in sts]
             sizes = np.array([w.size for w in ws])
             first = np.concatenate([[0], np.cumsum(sizes)[:-1]])
             w_all = np.concatenate(ws)
