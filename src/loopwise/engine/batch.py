@@ -41,7 +41,7 @@ from .reduce import CANCEL, SAFE_LEVEL, SAFE_PER_PATH, Reduction, bounded_batche
 from .solve import distinct
 from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_LEVEL, ModelCount, NyquistCount, _dedupe,
                         _open_rhp, count as count_one)
-from .winding import MAX_SAMPLES, MAX_WORK, Piece, encirclements, trace
+from .winding import MAX_SAMPLES, MAX_WORK, Piece, carried, encirclements, trace
 
 __all__ = ["Batch", "StackedBank", "wiring"]
 
@@ -329,8 +329,7 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
         log_det, log_one_g, L = st.terms(s, which)
         with np.errstate(all="ignore"):
             v = np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
-            qq = q[which]
-            return v + np.where(qq != 0, np.log(s)[:, None] * qq, 0.0)
+            return v + carried(s, q[which])
 
     floors = (None,) * (1 + B) + (1e-2,) * B
     tr = trace(pieces, evaluate, features, floors, MAX_SAMPLES * S, _step_ok(st, owner) if st.bank.has_delay

@@ -25,7 +25,7 @@ import numpy as np
 from .solve import distinct
 
 __all__ = ["Piece", "Trace", "build_contour", "axis_orders", "indentation_radius", "trace", "phase_change",
-           "encirclements"]
+           "encirclements", "carried"]
 
 CHORD = 0.35
 MIDPOINT = 0.2
@@ -314,11 +314,17 @@ def _ends(table: _Table, pa: np.ndarray, ua: np.ndarray, ub: np.ndarray):
     return table.points(pa, ua), table.points(pa, ub)
 
 
-def _carried(s: np.ndarray, qr: np.ndarray) -> np.ndarray:
+def carried(s: np.ndarray, qr: np.ndarray) -> np.ndarray:
     """log(s) q per point and traced function (0 where q is 0): the log of the factor s^q
-    that a traced value f s^q carries."""
-    with np.errstate(all="ignore"):
-        return np.where(qr != 0, np.log(s)[:, None] * qr, 0.0)
+    that a traced value f s^q carries. `qr` has one row per point, or one row for all;
+    the logarithm is taken only at the points with some q (the others are all 0)."""
+    qr = np.broadcast_to(qr, (s.size, qr.shape[-1]))
+    rows = np.flatnonzero(np.any(qr != 0, axis=1))
+    out = np.zeros(qr.shape, complex)
+    if rows.size:
+        with np.errstate(all="ignore"):
+            out[rows] = np.where(qr[rows] != 0, np.log(s[rows])[:, None] * qr[rows], 0.0)
+    return out
 
 
 def trace(pieces: list[Piece], evaluate: Callable, features,
@@ -371,7 +377,7 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
     sa, sb = _ends(table, pa, ua, ub)
     qa = qb = None
     if q is not None:
-        qa, qb = (_carried(x, q[pa] if per_piece else q[None, :]) for x in (sa, sb))
+        qa, qb = (carried(x, q[pa] if per_piece else q[None, :]) for x in (sa, sb))
     out_s, out_v, out_pid, out_u = [s], [vals], [pid], [u]
     unresolved: list[float] = []
     unresolved_pieces: list[int] = []
@@ -391,7 +397,7 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
         out_u.append(um)
         shift = qm = None
         if q is not None:
-            qm = _carried(sm, q[pa] if per_piece else q[None, :])
+            qm = carried(sm, q[pa] if per_piece else q[None, :])
             shift = (qa, qb, qm)
         ok = _accept(la, lb, lm, floors, shift, chord, midpoint)
         if check is not None:
