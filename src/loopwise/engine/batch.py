@@ -33,11 +33,13 @@ from typing import Sequence
 
 import numpy as np
 
+from ..errors import ModelError
 from ..results import LoopResponse
 from .blocks import Bank, FactorTable
 from .certificate import ScaledTerms, certificate_radius, scaling
 from .program import build_program
 from .reduce import CANCEL, SAFE_LEVEL, SAFE_PER_PATH, Reduction, bounded_batches
+from .refusals import VALUE_LIMIT, value_grids
 from .solve import distinct
 from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_LEVEL, ModelCount, NyquistCount, _dedupe,
                         _open_rhp, count as count_one)
@@ -234,9 +236,8 @@ class Batch:
     def count(self, indent: str = "right", for_margins: bool = True) -> list[ModelCount]:
         """Every sample's Z and break counts, as stability.count gives them for one model,
         with every sample's contour traced in the same batched rounds."""
-        from .stability import prepare
+        contours = self._contours(indent)
         # the margins' reach of every sample in one stacked evaluation per component
-        contours = [prepare(r, indent, False) for r in self.reductions]
         if for_margins:
             for c, st in enumerate(self.stacks):
                 for cs, reach in zip(contours, _reach(st, [cs[c] for cs in contours])):
@@ -261,6 +262,19 @@ class Batch:
             out.append(ModelCount(int(Z[i]), (), counts))
         return out
 
+    def _contours(self, indent: str) -> list[list]:
+        """stability.prepare of every sample, the overflow check of the terms' values (LW406)
+        done for all samples in one stacked evaluation per component. Where any sample is
+        refused, the samples are prepared one by one again, so that the error raised is the
+        one a one-by-one check raises first."""
+        from .stability import prepare
+        try:
+            contours = [prepare(r, indent, False, values=False) for r in self.reductions]
+            fit = all(_values_fit(st, [cs[c] for cs in contours]) for c, st in enumerate(self.stacks))
+        except ModelError:
+            fit = False
+        return contours if fit else [prepare(r, indent, False) for r in self.reductions]
+
     def evaluator(self, name_rows: list[tuple[int, str]]):
         """The margins' evaluator for curves (sample, break name): evaluate(s, i) gives L of
         curve i[j] at s[j]."""
@@ -278,6 +292,16 @@ class Batch:
             return out
 
         return evaluate
+
+
+def _values_fit(st: _Stacked, cts: list) -> bool:
+    """refusals.check_values for every sample of one component (the same grids, the same
+    values): whether no term overflows double precision on the axis below any sample's R."""
+    grids = value_grids([ct.component for ct in cts], [ct.R for ct in cts])
+    which = np.repeat(np.arange(len(cts)), [w.size for w in grids])
+    with np.errstate(all="ignore"):
+        V = st.bank.values(1j * np.concatenate(grids), which)
+        return bool(np.all(np.abs(V) < VALUE_LIMIT))
 
 
 def _reach(st: _Stacked, cts: list) -> list[float]:
