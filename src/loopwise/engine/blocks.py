@@ -17,6 +17,7 @@ sample's values are bit for bit those of its own Bank.
 """
 from __future__ import annotations
 
+from functools import cached_property
 from typing import Sequence
 
 import numpy as np
@@ -39,11 +40,17 @@ class Bank:
         self.size = len(tfs)
         self.delay = np.array([t.delay for t in tfs], dtype=float)
         self.has_delay = bool(np.any(self.delay > 0))
+
+    @cached_property
+    def groups(self) -> list:
+        """The terms grouped by shape, packed for `values` (made on first use: a batch of
+        samples evaluates from its FactorTable instead)."""
+        tfs, gains = self.transfers, self.gains
         shapes: dict[tuple[int, int, int, bool], list[int]] = {}
         for i, t in enumerate(tfs):
             c = min(t.zeros.size, t.poles.size)
             shapes.setdefault((c, t.zeros.size - c, t.poles.size - c, t.delay > 0), []).append(i)
-        self.groups = []
+        groups = []
         for (c, nz, npl, delayed), idx in shapes.items():
             members = [tfs[i] for i in idx]
             k = np.array([gains[i] * tfs[i].gain for i in idx], dtype=float)
@@ -52,7 +59,8 @@ class Bank:
             ez = np.array([t.zeros[c:] for t in members], complex).reshape(len(idx), nz)
             ep = np.array([t.poles[c:] for t in members], complex).reshape(len(idx), npl)
             T = np.array([t.delay for t in members]) if delayed else None
-            self.groups.append((np.array(idx), k, pz, pp, ez, ep, T))
+            groups.append((np.array(idx), k, pz, pp, ez, ep, T))
+        return groups
 
     def values(self, s: np.ndarray) -> np.ndarray:
         """All terms at every point: shape (len(s), terms)."""
