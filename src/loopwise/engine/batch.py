@@ -353,7 +353,7 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
         log_det, log_one_g, L = st.terms(s, which)
         with np.errstate(all="ignore"):
             v = np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
-            return v + carried(s, q[which])
+            return v + carried(s, q, which)
 
     floors = (None,) * (1 + B) + (1e-2,) * B
     tr = trace(pieces, evaluate, features, floors, MAX_SAMPLES * S, _step_ok(st, owner) if st.bank.has_delay

@@ -299,14 +299,22 @@ class _Table:
         self.sg = np.array([p.sign for p in pieces], float)
 
     def points(self, pid: np.ndarray, u: np.ndarray) -> np.ndarray:
-        k, a, b = self.kind[pid], self.a[pid], self.b[pid]
+        kind = self.kind[pid]
+        out = np.empty(u.shape, complex)
         with np.errstate(all="ignore"):
-            ratio = (b / a) ** u
-            w = np.where(k == 1, self.c[pid] + self.sg[pid] * a * ratio,
-                         np.where(k == 2, a * ratio, a + (b - a) * u))
-            theta = self.t0[pid] + (self.t1[pid] - self.t0[pid]) * u
-            arc = 1j * a + b * np.exp(1j * theta)
-        return np.where(k == 0, arc, 1j * w)
+            for k in distinct(kind):
+                at = np.flatnonzero(kind == k)
+                p, x = pid[at], u[at]
+                a, b = self.a[p], self.b[p]
+                if k == 0:
+                    out[at] = 1j * a + b * np.exp(1j * (self.t0[p] + (self.t1[p] - self.t0[p]) * x))
+                elif k == 1:
+                    out[at] = 1j * (self.c[p] + self.sg[p] * a * (b / a) ** x)
+                elif k == 2:
+                    out[at] = 1j * (a * (b / a) ** x)
+                else:
+                    out[at] = 1j * (a + (b - a) * x)
+        return out
 
 
 def _ends(table: _Table, pa: np.ndarray, ua: np.ndarray, ub: np.ndarray):
@@ -314,16 +322,20 @@ def _ends(table: _Table, pa: np.ndarray, ua: np.ndarray, ub: np.ndarray):
     return table.points(pa, ua), table.points(pa, ub)
 
 
-def carried(s: np.ndarray, qr: np.ndarray) -> np.ndarray:
+def carried(s: np.ndarray, q: np.ndarray, index: np.ndarray | None = None) -> np.ndarray:
     """log(s) q per point and traced function (0 where q is 0): the log of the factor s^q
-    that a traced value f s^q carries. `qr` has one row per point, or one row for all;
-    the logarithm is taken only at the points with some q (the others are all 0)."""
-    qr = np.broadcast_to(qr, (s.size, qr.shape[-1]))
-    rows = np.flatnonzero(np.any(qr != 0, axis=1))
-    out = np.zeros(qr.shape, complex)
+    that a traced value f s^q carries. `q` holds rows of orders, point j taking row
+    index[j] (row 0 for every point without `index`); the logarithm is taken only at the
+    points whose row has some q (the others are all 0)."""
+    some = np.any(q != 0, axis=1)
+    if index is None:
+        index = np.zeros(s.size, np.intp)
+    rows = np.flatnonzero(some[index])
+    out = np.zeros((s.size, q.shape[1]), complex)
     if rows.size:
+        qr = q[index[rows]]
         with np.errstate(all="ignore"):
-            out[rows] = np.where(qr[rows] != 0, np.log(s[rows])[:, None] * qr[rows], 0.0)
+            out[rows] = np.where(qr != 0, np.log(s[rows])[:, None] * qr, 0.0)
     return out
 
 
@@ -377,7 +389,7 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
     sa, sb = _ends(table, pa, ua, ub)
     qa = qb = None
     if q is not None:
-        qa, qb = (carried(x, q[pa] if per_piece else q[None, :]) for x in (sa, sb))
+        qa, qb = (carried(x, q, pa) if per_piece else carried(x, q[None, :]) for x in (sa, sb))
     out_s, out_v, out_pid, out_u = [s], [vals], [pid], [u]
     unresolved: list[float] = []
     unresolved_pieces: list[int] = []
@@ -397,7 +409,7 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
         out_u.append(um)
         shift = qm = None
         if q is not None:
-            qm = carried(sm, q[pa] if per_piece else q[None, :])
+            qm = carried(sm, q, pa) if per_piece else carried(sm, q[None, :])
             shift = (qa, qb, qm)
         ok = _accept(la, lb, lm, floors, shift, chord, midpoint)
         if check is not None:
