@@ -32,19 +32,20 @@ def gain_crossovers(curves: list[Curve], evaluate: Evaluate) -> list[list[GainCr
     """Every |L(jw)| = 1 for w > 0 of every curve, bracketed on the samples and solved at once."""
     roots: list[list[float]] = [[] for _ in curves]
     lo, hi, owner, flo, fhi = [], [], [], [], []
-    for n, c in enumerate(curves):
-        for run in c.axis_runs():
-            w = c.s[run].imag
-            with np.errstate(divide="ignore"):
-                mag = np.log(np.abs(c.L[run]))
-            roots[n] += [float(v) for v in w[(mag == 0.0) & (w > 0)]]
-            b = np.flatnonzero((mag[:-1] * mag[1:] < 0) & (w[:-1] > 0)
-                               & np.isfinite(mag[:-1]) & np.isfinite(mag[1:]))
-            lo += list(w[b])
-            hi += list(w[b + 1])
-            flo += list(mag[b])
-            fhi += list(mag[b + 1])
-            owner += [n] * b.size
+    # every axis run of every curve in one array (brackets never span two runs)
+    runs = [(n, run) for n, c in enumerate(curves) for run in c.axis_runs()]
+    if runs:
+        w = np.concatenate([curves[n].s[run].imag for n, run in runs])
+        curve_of = np.concatenate([np.full(run.size, n) for n, run in runs])
+        run_of = np.repeat(np.arange(len(runs)), [run.size for _, run in runs])
+        with np.errstate(divide="ignore"):
+            mag = np.log(np.abs(np.concatenate([curves[n].L[run] for n, run in runs])))
+        for j in np.flatnonzero((mag == 0.0) & (w > 0)):
+            roots[curve_of[j]].append(float(w[j]))
+        b = np.flatnonzero((run_of[:-1] == run_of[1:]) & (mag[:-1] * mag[1:] < 0) & (w[:-1] > 0)
+                           & np.isfinite(mag[:-1]) & np.isfinite(mag[1:]))
+        lo, hi, flo, fhi = list(w[b]), list(w[b + 1]), list(mag[b]), list(mag[b + 1])
+        owner = [int(n) for n in curve_of[b]]
     if lo:
         owner_a = np.array(owner)
         cols = np.array([curves[n].index for n in owner])
