@@ -234,12 +234,21 @@ def _grid(n: int) -> np.ndarray:
     return g
 
 
-def _accept(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT) -> np.ndarray:
+def _accept(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT, floored=None) -> np.ndarray:
     """Whether each interval (rows) is resolved for every function."""
-    return np.all(_accept_columns(la, lb, lm, floors, shift, chord, midpoint), axis=1)
+    return np.all(_accept_columns(la, lb, lm, floors, shift, chord, midpoint, floored), axis=1)
 
 
-def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT) -> np.ndarray:
+def _floored_values(v: np.ndarray, floors, sh: np.ndarray | None) -> np.ndarray:
+    """The values f themselves of the functions with a floor (columns in order), from traced
+    logs v (less the logs `sh` of the s^q factors they carry, when given)."""
+    cols = [k for k, f in enumerate(floors) if f is not None]
+    with np.errstate(all="ignore"):
+        return np.exp(v[:, cols] - sh[:, cols]) if sh is not None else np.exp(v[:, cols])
+
+
+def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT,
+                    floored=None) -> np.ndarray:
     """Whether each interval (rows) is resolved for each function (columns).
 
     A function without a floor is tested as f/|f|: it has the phase of f at every point
@@ -247,7 +256,9 @@ def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOI
     (tens of loop gains multiplied in det(I - A) fall hundreds of dB a decade) asks for
     no samples. `shift`, when given, holds for the interval's ends and midpoint the logs
     of the factors the traced values carry (a traced f s^q stands for f; rows, columns
-    each): a floor applies to f, so the tests of a floored function take them off."""
+    each): a floor applies to f, so the tests of a floored function take them off.
+    `floored`, when given, holds those functions' values at the ends and midpoint
+    (`_floored_values`; a trace carries them from round to round)."""
     free = [k for k, f in enumerate(floors) if f is None]
     ok = np.empty(la.shape, bool)
     finite = np.empty(la.shape, bool)  # where the ratio f_b / f_a (its phase part, without a floor) is finite
@@ -262,14 +273,16 @@ def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOI
             ok[:, cols] = ok_free
             finite[:, cols] = np.isfinite(rb)
         # functions with a floor (the loop transfer itself) only need resolving while large
+        if floored is None:
+            floored = [_floored_values(v, floors, None if shift is None else sh)
+                       for v, sh in zip((la, lb, lm), shift or (None,) * 3)]
+        j = -1
         for k, floor in enumerate(floors):
             if floor is None:
                 continue
+            j += 1
             finite[:, k] = np.isfinite(np.exp(lb[:, k] - la[:, k]))
-            if shift is None:
-                fa, fb, fm = np.exp(la[:, k]), np.exp(lb[:, k]), np.exp(lm[:, k])
-            else:
-                fa, fb, fm = (np.exp(v[:, k] - sh[:, k]) for v, sh in zip((la, lb, lm), shift))
+            fa, fb, fm = (f[:, j] for f in floored)
             scale = np.maximum(np.minimum(np.abs(fa), np.abs(fb)), floor)
             ok_k = (np.abs(fb - fa) <= chord * scale) & (np.abs(fm - 0.5 * (fa + fb)) <= midpoint * scale)
             # ... and while not huge (CEILING at both ends)
@@ -390,6 +403,8 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
     qa = qb = None
     if q is not None:
         qa, qb = (carried(x, q, pa) if per_piece else carried(x, q[None, :]) for x in (sa, sb))
+    # ... and the values of the functions with a floor (the acceptance tests need f itself)
+    fa, fb = _floored_values(la, floors, qa), _floored_values(lb, floors, qb)
     out_s, out_v, out_pid, out_u = [s], [vals], [pid], [u]
     unresolved: list[float] = []
     unresolved_pieces: list[int] = []
@@ -411,7 +426,8 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
         if q is not None:
             qm = carried(sm, q, pa) if per_piece else carried(sm, q[None, :])
             shift = (qa, qb, qm)
-        ok = _accept(la, lb, lm, floors, shift, chord, midpoint)
+        fm = _floored_values(lm, floors, qm)
+        ok = _accept(la, lb, lm, floors, shift, chord, midpoint, (fa, fb, fm))
         if check is not None:
             ok &= check(sa, sb, pa)
         tiny = (ub - ua) < 1e-13
@@ -440,6 +456,7 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
         sa, sb = np.concatenate([sa[redo], sm[redo]]), np.concatenate([sm[redo], sb[redo]])
         if q is not None:
             qa, qb = np.concatenate([qa[redo], qm[redo]]), np.concatenate([qm[redo], qb[redo]])
+        fa, fb = np.concatenate([fa[redo], fm[redo]]), np.concatenate([fm[redo], fb[redo]])
     else:
         complete = ua.size == 0
     s = np.concatenate(out_s)
