@@ -38,7 +38,7 @@ from ..results import LoopResponse
 from .blocks import Bank, FactorTable
 from .certificate import ScaledTerms, certificate_radius, scaling
 from .program import build_program
-from .reduce import CANCEL, SAFE_LEVEL, SAFE_PER_PATH, Reduction, bounded_batches
+from .reduce import CANCEL, SAFE_LEVEL, Reduction, safe_program, bounded_batches
 from .refusals import VALUE_LIMIT, value_grids
 from .solve import distinct
 from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_LEVEL, ModelCount, NyquistCount, _dedupe,
@@ -92,7 +92,7 @@ class _Stacked:
         cuts = [frozenset(p) for p in first.cut_positions]
         members = list(first.signals)
         self.program = build_program(members, ends, measured, cuts, big)
-        self.safe = build_program(members, ends, measured, cuts, big, most=SAFE_PER_PATH) if big else None
+        self.safe = safe_program(members, ends, measured, cuts, big)
         self.big = sorted(big)
 
     def _groups(self, V):

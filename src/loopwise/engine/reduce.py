@@ -37,7 +37,7 @@ from .diagram import Diagram, strong_components
 from .program import Program, build_program
 from .solve import distinct
 
-__all__ = ["Instance", "Component", "Reduction", "reduce_diagram", "ComponentValues", "CANCEL"]
+__all__ = ["Instance", "Component", "Reduction", "reduce_diagram", "ComponentValues", "safe_program", "CANCEL"]
 
 #: 1 + g_k smaller than this (relative to max(1, |g_k|)) is solved with the break's wires cut
 CANCEL = 1e-3
@@ -87,7 +87,8 @@ class Component:
     points (program.py). `safe` lets at most SAFE_PER_PATH terms with a pole in Re s >= 0
     multiply along a path through the eliminated signals; points within `near` (pole, radius) of such a
     pole, or where such a term exceeds SAFE_LEVEL, use it, so the values that are huge
-    there meet the pivoted solve rather than being multiplied together.
+    there meet the pivoted solve rather than being multiplied together. It is None where
+    the main program already keeps them apart (`safe_program`).
     """
 
     signals: tuple[int, ...]
@@ -379,6 +380,16 @@ def _components(signals, instances, cut_sets, diagram) -> tuple[tuple[Component,
     return tuple(comps), outside
 
 
+def safe_program(members, ends, measured, cuts, big: set[int]) -> Program | None:
+    """The program that lets at most SAFE_PER_PATH terms with a pole in Re s >= 0 multiply
+    along a path through the eliminated signals; None when the main program already does:
+    a path through them (a loop-free order) passes each term at most once, so with no more
+    than SAFE_PER_PATH such terms in all, both programs keep the same signals and are the
+    same program."""
+    return build_program(members, ends, measured, cuts, big, most=SAFE_PER_PATH) if len(big) > SAFE_PER_PATH \
+        else None
+
+
 def _upstream_first(n: int, edges: list[tuple[int, int]]) -> list[list[int]]:
     """The strongly connected components (sorted member lists) in topological order of the
     condensation, ties broken by the smallest member: at each step, of the components
@@ -425,7 +436,7 @@ def _component(members, insts, breaks, instances, cut_sets, signals) -> Componen
         others = roots[roots != p]
         d = float(np.min(np.abs(others - p))) if others.size else max(1.0, abs(p))
         near.append((p, NEAR * d))
-    safe = build_program(members, ends, measured, cuts, big, most=SAFE_PER_PATH) if big else None
+    safe = safe_program(members, ends, measured, cuts, big)
     bank = Bank([instances[k].term.gain for k in insts], [instances[k].transfer for k in insts])
     return Component(tuple(members), tuple(insts), tuple(breaks), bank, tuple(tuple(sorted(c)) for c in cuts),
                      entries, program, safe, tuple(near), tuple(sorted(big)))
