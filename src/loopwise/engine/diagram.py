@@ -102,7 +102,7 @@ def build_diagram(model: Model) -> Diagram:
             if not np.isfinite(term.gain):  # `1e300*1e300*x`
                 raise ModelError("LW106", "this term's gain is not a finite number (overflow in double "
                                  "precision)", term.span, "rescale the model's gains")
-    used = {u for u, _ in g.edges()}
+    used = {term.source for terms in model.equations.values() for term in terms}  # every wire's source
     for name, span in model.inputs.items():
         if name not in used:
             findings.append(Finding("warning", "LW381", f"input `{name}` is never used", span,
@@ -139,11 +139,12 @@ def _display(name: str, model: Model) -> str:
 
 
 def _algebraic_loops(model: Model, g, signals, errors) -> list[Finding]:
-    wires = [(u, v) for u, v, data in g.edges(data=True) if u in model.signals and _feeds(data["term"])]
     index = {n: i for i, n in enumerate(signals)}
-    if all(len(c) == 1 for c in strong_components(len(signals), [(index[u], index[v]) for u, v in wires])) \
-            and not any(u == v for u, v in wires):
+    pairs = [(index[term.source], index[v]) for v, terms in model.equations.items() for term in terms
+             if term.source in model.signals and _feeds(term)]
+    if all(len(c) == 1 for c in strong_components(len(signals), pairs)) and not any(u == v for u, v in pairs):
         return []  # no loop without dynamics (every component a single signal with no wire onto itself)
+    wires = [(u, v) for u, v, data in g.edges(data=True) if u in model.signals and _feeds(data["term"])]
     direct = nx.DiGraph()
     direct.add_nodes_from(signals)
     direct.add_edges_from(wires)
@@ -186,7 +187,8 @@ def _cycles(g, model: Model):
     hashes vary between runs), so they are put in a fixed order here.
     """
     order = {n: i for i, n in enumerate(model.signals)}
-    wires = {(u, v) for u, v in g.edges() if u in order and v in order}
+    wires = {(term.source, v) for v, terms in model.equations.items() for term in terms
+             if term.source in order and v in order}  # the graph's wires between signals
     found = _rooted_cycles(list(model.signals), wires)
     if found is not None:
         return sorted(found, key=lambda c: (len(c), [order[n] for n in c])), True
