@@ -432,7 +432,8 @@ def _component(members, insts, breaks, instances, cut_sets, signals) -> Componen
     program = build_program(members, ends, measured, cuts, big)
     roots = np.concatenate([np.concatenate([t.poles, t.zeros]) for t in tfs if t is not None] or [np.zeros(0)])
     near = []
-    for p in dict.fromkeys(complex(p) for t in tfs if t is not None for p in t.poles if p.real >= 0 <= p.imag):
+    upper = [t.poles[(t.poles.real >= 0) & (t.poles.imag >= 0)] for t in tfs if t is not None]
+    for p in dict.fromkeys(complex(p) for ps in upper for p in ps):
         others = roots[roots != p]
         d = float(np.min(np.abs(others - p))) if others.size else max(1.0, abs(p))
         near.append((p, NEAR * d))
