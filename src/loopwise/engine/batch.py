@@ -285,6 +285,8 @@ class Batch:
         def evaluate(s, i):
             s = np.asarray(s, complex).ravel()
             i = np.broadcast_to(np.asarray(i, int), s.shape).ravel()
+            if len(self.stacks) == 1:
+                return self.stacks[0].loops(s, sample_of[i], col_of[i])
             out = np.empty(s.size, complex)
             for c in distinct(comp_of[i]):
                 sel = np.nonzero(comp_of[i] == c)[0]
