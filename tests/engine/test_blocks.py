@@ -49,6 +49,6 @@ def test_the_values_are_those_of_the_expanded_polynomials():
         got = table.values(s, np.full(s.size, i))
         for t, (g, tf) in enumerate(zip(gains, tfs)):
             tf = tf or Transfer.constant(1.0)
-            want = g * tf.gain * np.polyval(np.atleast_1d(np.poly(tf.zeros)), s) / np.polyval(np.atleast_1d(np.poly(tf.poles)), s) \
-                * np.exp(-tf.delay * s)
+            num, den = (np.polyval(np.atleast_1d(np.poly(r)), s) for r in (tf.zeros, tf.poles))
+            want = g * tf.gain * num / den * np.exp(-tf.delay * s)
             np.testing.assert_allclose(got[:, t], want, rtol=1e-9)
