@@ -20,7 +20,7 @@ from .errors import Finding, ModelError, ModelErrors, Span
 from .language.resolve import Model, Parsed, parse_file, parse_model, resolve_parsed
 from .engine.reduce import Reduction, reduce_diagram
 from .results import BreakResult, Margins, ModelResult
-from .engine.hidden import cancelled_modes, structural_modes
+from .engine.hidden import cancelled_modes, circles, structural_modes
 from .verdicts import (check_not_zero, counted_modes, hidden_from_loop, mode_findings, positive_feedback,
                        verdict_adjustment)
 from .engine.stability import count
@@ -164,7 +164,9 @@ def check_many(preps: list[PreparedModel], indent: str = "right", stabilising_ga
     if not todo:
         return out
     batch = Batch([preps[i].reduction for i in todo])
-    plans = [_plan(preps[i], c) for i, c in zip(todo, batch.count(indent))]
+    counts = batch.count(indent)
+    known = batch.circle_orders([circles(preps[i].reduction) for i in todo])
+    plans = [_plan(preps[i], c, k) for i, c, k in zip(todo, counts, known)]
     rows = [(n, name) for n, plan in enumerate(plans) for name in plan.stable_names()]
     found = break_margins(batch.evaluator(rows), [plans[n].counts[name].response for n, name in rows],
                           [plans[n].counts[name].P for n, name in rows], tidy=True)
@@ -219,7 +221,8 @@ def _ambiguous(m: Margins | None) -> bool:
     return m is not None and m.gain_margin_up_db is None and m.gain_margin_down_db is None
 
 
-def _plan(prep: PreparedModel, result) -> _Plan:
+def _plan(prep: PreparedModel, result, known: dict | None = None) -> _Plan:
+    # known: the hidden-mode circles already wound (Batch.circle_orders)
     model, red = prep.model, prep.reduction
     findings = list(prep.diagram.findings)
     roots = np.concatenate([red.block_poles(), red.block_zeros()])
@@ -233,7 +236,7 @@ def _plan(prep: PreparedModel, result) -> _Plan:
     Z, counts = result.Z, result.counts
     for code, message in dict.fromkeys(result.warnings):
         findings.append(Finding("warning", code, message, Span(model.file, 1, 1)))
-    modes = counted_modes(cancelled_modes(red) + structural_modes(red), model)
+    modes = counted_modes(cancelled_modes(red) + structural_modes(red, known), model)
     findings.extend(mode_findings(red, modes))
     extra_rhp, hidden_axis = verdict_adjustment(modes)
     Z += extra_rhp

@@ -275,6 +275,32 @@ class Batch:
             fit = False
         return contours if fit else [prepare(r, indent, False) for r in self.reductions]
 
+    def circle_orders(self, circles: list[list[tuple[complex, int, float]]]) -> list[dict]:
+        """hidden.structural_modes' winding round its circles (`hidden.circles`, one list per
+        sample), every sample's first 64-step circles in one stacked evaluation: per sample,
+        {circle: (order, error)} for those those steps resolve (the rest are wound alone).
+        Empty where a component has a 'safe' program: only without one is the stacked
+        elimination the very program each sample's own reduction runs (one program for all
+        points, the same signals kept), so that the phases are those of Reduction.characteristic."""
+        from .hidden import circle, circle_order
+
+        out: list[dict] = [dict() for _ in circles]
+        todo = [(i, c) for i, cs in enumerate(circles) for c in cs]
+        if not todo or any(st.safe is not None for st in self.stacks):
+            return out
+        rings = [circle(p, radius, 64) for _, (p, _, radius) in todo]
+        s = np.concatenate([ring[1] for ring in rings])
+        which = np.repeat([i for i, _ in todo], 65)
+        phase = np.zeros(s.size)
+        for st in self.stacks:
+            phase = phase + st.terms(s, which, 0)[0].imag
+        phase = np.angle(np.exp(1j * phase)).reshape(len(todo), 65)
+        for (i, c), (theta, _), ph in zip(todo, rings, phase):
+            found = circle_order(ph, theta, c[1])
+            if found is not None:
+                out[i][c] = found
+        return out
+
     def evaluator(self, name_rows: list[tuple[int, str]]):
         """The margins' evaluator for curves (sample, break name): evaluate(s, i) gives L of
         curve i[j] at s[j]."""
