@@ -104,11 +104,15 @@ class _Factors:
         n = n[rows]
         ends = np.cumsum(n)
         seg = ends - n
-        pos = np.arange(ends[-1]) + np.repeat(self.start[members[rows]] - seg, n)
+        pos = np.repeat(self.start[members[rows]] - seg, n)
+        pos += np.arange(ends[-1])
         x = np.repeat(s[point[rows]], n)
-        f = x - self.roots[pos]
+        # in place: the same operations, without a fresh array for each
+        f = np.subtract(x, self.roots[pos])
         if self.poles is not None:
-            f = f / (x - self.poles[pos])
+            d = self.poles[pos]
+            np.subtract(x, d, out=d)
+            np.divide(f, d, out=f)
         return rows, np.multiply.reduceat(f, seg)
 
 
