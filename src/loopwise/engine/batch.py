@@ -33,42 +33,39 @@ from typing import Sequence
 
 import numpy as np
 
+from ..errors import ModelError
 from ..results import LoopResponse
-from .blocks import Bank
+from .blocks import Bank, FactorTable
 from .certificate import ScaledTerms, certificate_radius, scaling
 from .program import build_program
-from .reduce import CANCEL, SAFE_LEVEL, SAFE_PER_PATH, Reduction, bounded_batches
+from .reduce import CANCEL, SAFE_LEVEL, Reduction, safe_program, bounded_batches
+from .refusals import VALUE_LIMIT, value_grids
 from .solve import distinct
 from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_GRID, REACH_LEVEL, ModelCount, NyquistCount,
                         _dedupe, _open_rhp, count as count_one, extension_pieces, reach_rule, stops_short)
-from .winding import MAX_SAMPLES, MAX_WORK, encirclements, trace
+from .winding import MAX_SAMPLES, MAX_WORK, carried, encirclements, trace
 
 __all__ = ["Batch", "StackedBank", "wiring"]
 
 
 class StackedBank:
     """The terms of one wiring in many samples: `values(s, which)` gives, for points s[j] of
-    samples which[j], every term's value, shape (M, terms). Each sample's points go to that
-    sample's own Bank (engine/blocks.py: terms grouped by shape, no padding, no masks), so
-    a sample's values are those its one-model count sees."""
+    samples which[j], every term's value, shape (M, terms). The samples' factors lie in one
+    table (engine/blocks.py, FactorTable), so a round costs a few numpy operations whatever
+    the number of samples, and a sample's values are bit for bit those its own Bank (its
+    one-model count) gives."""
 
     def __init__(self, banks: Sequence[Bank]):
         self.banks = tuple(banks)
         self.samples, self.size = len(self.banks), self.banks[0].size
         self.delay = np.array([b.delay for b in self.banks], float)
         self.has_delay = bool(np.any(self.delay > 0))
+        self.table = FactorTable(self.banks)
 
     def values(self, s: np.ndarray, which: np.ndarray) -> np.ndarray:
         """Every term's value gain * transfer(s[j]) in sample which[j], complex, shape (len(s),
         terms); delays exact, a point on a pole gives inf or nan there."""
-        s = np.asarray(s, complex).ravel()
-        which = np.asarray(which).ravel()
-        out = np.empty((s.size, self.size), complex)
-        order = np.argsort(which, kind="stable")
-        for idx in np.split(order, np.flatnonzero(np.diff(which[order])) + 1):
-            if idx.size:
-                out[idx] = self.banks[which[idx[0]]].values(s[idx])
-        return out
+        return self.table.values(s, which)
 
 
 def wiring(red: Reduction) -> tuple:
@@ -95,7 +92,7 @@ class _Stacked:
         cuts = [frozenset(p) for p in first.cut_positions]
         members = list(first.signals)
         self.program = build_program(members, ends, measured, cuts, big)
-        self.safe = build_program(members, ends, measured, cuts, big, most=SAFE_PER_PATH) if big else None
+        self.safe = safe_program(members, ends, measured, cuts, big)
         self.big = sorted(big)
 
     def _groups(self, V):
@@ -124,16 +121,20 @@ class _Stacked:
             bad = ~(np.abs(one_g) > CANCEL * np.maximum(1.0, np.abs(g)))
             for k in np.nonzero(bad.any(axis=0))[0]:
                 rows = np.nonzero(bad[:, k])[0]
-                ph, lg, Lk = self.direct(int(k), s[rows], which[rows])
+                ph, lg, Lk = self._direct(int(k), V[rows])
                 log_one_g[rows, k] = (lg + 1j * ph) - log_det[rows]
                 L[rows, k] = Lk
         return log_det, log_one_g, L
 
     def direct(self, b: int, s, which):
-        s = np.asarray(s, complex).ravel()
-        phase, logabs, L = np.zeros(s.size), np.zeros(s.size), np.zeros(s.size, complex)
+        """Break b solved with its wires cut at points s of samples which (Component.direct)."""
         with np.errstate(all="ignore"):
-            V = self.bank.values(s, which)
+            return self._direct(b, self.bank.values(np.asarray(s, complex).ravel(), which))
+
+    def _direct(self, b: int, V):
+        # from the term values already at hand (a point's values do not depend on the others)
+        phase, logabs, L = np.zeros(V.shape[0]), np.zeros(V.shape[0]), np.zeros(V.shape[0], complex)
+        with np.errstate(all="ignore"):
             for idx, prog in self._groups(V):
                 phase[idx], logabs[idx], L[idx] = prog.direct(V[idx], b)
         return phase, logabs, L
@@ -150,7 +151,7 @@ class _Stacked:
             bad = ~(np.abs(1.0 + g) > CANCEL * np.maximum(1.0, np.abs(g)))
             for k in distinct(cols[bad]):
                 rows = np.nonzero(bad & (cols == k))[0]
-                L[rows] = self.direct(int(k), s[rows], which[rows])[2]
+                L[rows] = self._direct(int(k), V[rows])[2]
         return L
 
 
@@ -238,9 +239,8 @@ class Batch:
         sweep's), the margins' extension stops at the settling frequency where there is
         one (stability.extension_pieces; the counts say where: NyquistCount.short); a
         sample counted again alone gets the whole extension."""
-        from .stability import prepare
+        contours = self._contours(indent)
         # the margins' reach of every sample in one stacked evaluation per component
-        contours = [prepare(r, indent, False) for r in self.reductions]
         if for_margins:
             for c, st in enumerate(self.stacks):
                 for cs, (reach, settle) in zip(contours, _reach(st, [cs[c] for cs in contours])):
@@ -312,13 +312,52 @@ class Batch:
                     L = np.concatenate([r.L, np.exp(ext.values[rows, k])])
                     on_axis = np.concatenate([r.on_axis, ext.on_axis[rows]])
                     response = LoopResponse(*_dedupe(s, L, on_axis), r.axis_poles)
-                    if _touches(response):
+                    if response.axis_L.size and _closeness(response.axis_L).min() < 1e-3:
                         redo.add(i)
                     longer[name] = replace(cnt, response=response, short=None)
                 out[i] = replace(out[i], counts=longer)
         for i in redo:
             out[i] = count_one(self.reductions[i], indent, True)
         return [out[i] for i in samples]
+
+    def _contours(self, indent: str) -> list[list]:
+        """stability.prepare of every sample, the overflow check of the terms' values (LW406)
+        done for all samples in one stacked evaluation per component. Where any sample is
+        refused, the samples are prepared one by one again, so that the error raised is the
+        one a one-by-one check raises first."""
+        from .stability import prepare
+        try:
+            contours = [prepare(r, indent, False, values=False) for r in self.reductions]
+            fit = all(_values_fit(st, [cs[c] for cs in contours]) for c, st in enumerate(self.stacks))
+        except ModelError:
+            fit = False
+        return contours if fit else [prepare(r, indent, False) for r in self.reductions]
+
+    def circle_orders(self, circles: list[list[tuple[complex, int, float]]]) -> list[dict]:
+        """hidden.structural_modes' winding round its circles (`hidden.circles`, one list per
+        sample), every sample's first 64-step circles in one stacked evaluation: per sample,
+        {circle: (order, error)} for those those steps resolve (the rest are wound alone).
+        Empty where a component has a 'safe' program: only without one is the stacked
+        elimination the very program each sample's own reduction runs (one program for all
+        points, the same signals kept), so that the phases are those of Reduction.characteristic."""
+        from .hidden import circle, circle_order
+
+        out: list[dict] = [dict() for _ in circles]
+        todo = [(i, c) for i, cs in enumerate(circles) for c in cs]
+        if not todo or any(st.safe is not None for st in self.stacks):
+            return out
+        rings = [circle(p, radius, 64) for _, (p, _, radius) in todo]
+        s = np.concatenate([ring[1] for ring in rings])
+        which = np.repeat([i for i, _ in todo], 65)
+        phase = np.zeros(s.size)
+        for st in self.stacks:
+            phase = phase + st.terms(s, which, 0)[0].imag
+        phase = np.angle(np.exp(1j * phase)).reshape(len(todo), 65)
+        for (i, c), (theta, _), ph in zip(todo, rings, phase):
+            found = circle_order(ph, theta, c[1])
+            if found is not None:
+                out[i][c] = found
+        return out
 
     def evaluator(self, name_rows: list[tuple[int, str]]):
         """The margins' evaluator for curves (sample, break name): evaluate(s, i) gives L of
@@ -330,6 +369,8 @@ class Batch:
         def evaluate(s, i):
             s = np.asarray(s, complex).ravel()
             i = np.broadcast_to(np.asarray(i, int), s.shape).ravel()
+            if len(self.stacks) == 1:
+                return self.stacks[0].loops(s, sample_of[i], col_of[i])
             out = np.empty(s.size, complex)
             for c in distinct(comp_of[i]):
                 sel = np.nonzero(comp_of[i] == c)[0]
@@ -337,6 +378,16 @@ class Batch:
             return out
 
         return evaluate
+
+
+def _values_fit(st: _Stacked, cts: list) -> bool:
+    """refusals.check_values for every sample of one component (the same grids, the same
+    values): whether no term overflows double precision on the axis below any sample's R."""
+    grids = value_grids([ct.component for ct in cts], [ct.R for ct in cts])
+    which = np.repeat(np.arange(len(cts)), [w.size for w in grids])
+    with np.errstate(all="ignore"):
+        V = st.bank.values(1j * np.concatenate(grids), which)
+        return bool(np.all(np.abs(V) < VALUE_LIMIT))
 
 
 def _reach(st: _Stacked, cts: list) -> list[tuple[float, float | None]]:
@@ -384,8 +435,7 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
         log_det, log_one_g, L = st.terms(s, which)
         with np.errstate(all="ignore"):
             v = np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
-            qq = q[which]
-            return v + np.where(qq != 0, np.log(s)[:, None] * qq, 0.0)
+            return v + carried(s, q, which)
 
     floors = (None,) * (1 + B) + (1e-2,) * B
     tr = trace(pieces, evaluate, features, floors, MAX_SAMPLES * S, _step_ok(st, owner) if st.bank.has_delay
@@ -412,14 +462,24 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
             redo |= set(ext[1].tolist())
         redo |= _outgrown(ext[1][ext[0].pid], S, EXTENSION_SAMPLES, MAX_WORK // B)
         redo |= {int(ext[1][p]) for p in ext[0].unresolved_pieces}
+    # the elementwise work of every sample at once (the same numbers, sample by sample)
+    with np.errstate(all="ignore"):
+        D = np.diff(tr.values, axis=0).imag
+        D = np.where(np.isfinite(D), (D + np.pi) % (2 * np.pi) - np.pi, 0.0)
+        qL = q[sample_of][:, 1 + B:]
+        L_all = np.exp(tr.values[:, 1 + B:] - np.where(qL != 0, qL * np.log(tr.s)[:, None], 0.0))
+        # how near 1 + L comes to zero on every sample's axis points, trace and extension
+        # rows (a repeated point repeats its value: dropping it changes no minimum)
+        near_T = np.where(tr.on_axis[:, None], _closeness(L_all), np.inf)
+        near_T = np.minimum.reduceat(near_T, at[:-1], axis=0) if S else near_T[:0]
+        if ext is not None:
+            L_ext = np.exp(ext[0].values)
+            near_E = np.where(ext[0].on_axis[:, None], _closeness(L_ext), np.inf)
     for i, ct in enumerate(cts):
-        rows = np.arange(at[i], at[i + 1])
-        vals, s0, on0 = tr.values[rows], tr.s[rows], tr.on_axis[rows]
+        a, b = at[i], at[i + 1]
+        s0, on0 = tr.s[a:b], tr.on_axis[a:b]
         turn = float(np.angle(s0[-1]) - np.angle(s0[0]))
-        with np.errstate(invalid="ignore"):
-            d = np.diff(vals, axis=0).imag
-        d = np.where(np.isfinite(d), (d + np.pi) % (2 * np.pi) - np.pi, 0.0)
-        stp = d.sum(axis=0) - q[i] * turn
+        stp = D[a:b - 1].sum(axis=0) - q[i] * turn
         close_full = closes[i][0]
         wz, err = encirclements(stp[0] + close_full)
         zc[i] = ct.P0 + wz
@@ -430,17 +490,15 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
             wk, err_k = encirclements(stp[0] + stp[1 + k] + close_k)
             N, err_n = encirclements(-stp[1 + k] + close_full - close_k)
             err = max(err, err_k, err_n)
-            qk = q[i, 1 + B + k]
-            with np.errstate(all="ignore"):
-                L = np.exp(vals[:, 1 + B + k] - (qk * np.log(s0) if qk else 0.0))
-            s, on_axis = s0, on0
+            L, s, on_axis, near = L_all[a:b, k], s0, on0, near_T[i, k]
             if er.size:
                 s = np.concatenate([s0, ext[0].s[er]])
-                L = np.concatenate([L, np.exp(ext[0].values[er, k])])
+                L = np.concatenate([L, L_ext[er, k]])
                 on_axis = np.concatenate([on0, ext[0].on_axis[er]])
+                near = min(near, float(near_E[er, k].min()))
             response = LoopResponse(*_dedupe(s, L, on_axis), ct.axis_freqs)
-            if _touches(response):
-                redo.add(i)
+            if near < 1e-3:
+                redo.add(i)  # 1 + L comes near zero on the axis: the one-model count decides
             P = ct.P0 + wk
             mine[name] = NyquistCount(P, N, P + N, False, None, (), response, ct.settle if short_at[i] else None)
         if err > 1e-3:
@@ -457,12 +515,11 @@ def _outgrown(sample_of_point: np.ndarray, S: int, most: int, work: int) -> set[
     return set(np.nonzero(used > min(most, work))[0].tolist())
 
 
-def _touches(resp: LoopResponse) -> bool:
-    """A sample whose 1 + L comes near zero on the axis: the one-model count decides it."""
-    L = resp.axis_L
+def _closeness(L: np.ndarray) -> np.ndarray:
+    """|1 + L| / (1 + |L|), 1 where that is NaN: below 1e-3 on the axis, 1 + L comes near
+    zero there and the one-model count decides the sample."""
     with np.errstate(invalid="ignore"):
-        rel = np.nan_to_num(np.abs(1.0 + L) / (1.0 + np.abs(L)), nan=1.0)
-    return bool(rel.size and rel.min() < 1e-3)
+        return np.nan_to_num(np.abs(1.0 + L) / (1.0 + np.abs(L)), nan=1.0)
 
 
 def _orders(st: _Stacked, cts: list) -> np.ndarray:

@@ -23,7 +23,7 @@ from typing import Callable
 import numpy as np
 
 from ..results import LoopResponse, Margins
-from .curve import (Curve, add_tail, crossings, gain_factors, gain_margins, holds_minus_one, mark_poles,
+from .curve import (Curve, add_tail, crossings_many, gain_factors, gain_margins, holds_minus_one, mark_poles,
                     needs_origin, settle, tail_matters, upper_curve)
 from .metrics import disk_margin, gain_crossovers, peaks, phase_crossovers
 
@@ -55,7 +55,7 @@ def break_margins(evaluate, responses: list[LoopResponse], open_loop_rhp_poles: 
     if not responses:
         return []
     curves = _curves(responses, evaluate)
-    found = [crossings(c) for c in curves]
+    found = crossings_many(curves)
     Ps = list(open_loop_rhp_poles)
     st = settle(found, Ps, evaluate, holds_minus_one)
     # crossings past the engine's last sample matter only where they could bound the
@@ -63,8 +63,8 @@ def break_margins(evaluate, responses: list[LoopResponse], open_loop_rhp_poles: 
     late = [c for c, s in zip(curves, st) if tail(c, s)]
     if late:
         add_tail(late, evaluate)
-        for c in late:
-            found[c.index] = crossings(c)
+        for c, f in zip(late, crossings_many(late)):
+            found[c.index] = f
         again = settle([found[c.index] for c in late], [Ps[c.index] for c in late], evaluate, holds_minus_one)
         for c, s in zip(late, again):
             st[c.index] = s
@@ -99,7 +99,7 @@ def break_stabilising_gains(evaluate, responses: list[LoopResponse],
     curves = _curves(responses, evaluate)
     if evaluate is not None:
         add_tail(curves, evaluate)
-    found = [crossings(c) for c in curves]
+    found = crossings_many(curves)
     st = settle(found, list(open_loop_rhp_poles), evaluate, lambda lo, hi, ok: ok)
     return [tuple(gain_factors(lo, hi) for lo, hi, ok in s if ok) for s in st]
 

@@ -133,9 +133,10 @@ def _open_rhp(poles: np.ndarray, indent: str) -> int:
     return int(np.sum(poles.real > 0)) + (int(np.sum(poles.real == 0)) if indent == "left" else 0)
 
 
-def prepare(red: Reduction, indent: str = "right", for_margins: bool = True) -> list[Contour]:
+def prepare(red: Reduction, indent: str = "right", for_margins: bool = True, values: bool = True) -> list[Contour]:
     """One contour per loop component; ModelError (located) where no radius certifies a
-    count (LW401, LW403, LW404, LW406)."""
+    count (LW401, LW403, LW404, LW406). With `values` False the terms' values below R are
+    not checked for overflow (LW406): the caller checks them (batch.py, many samples at once)."""
     check_range(red)
     breaks = {c.stmt.name: c for c in red.diagram.breaks}
     out = []
@@ -151,7 +152,8 @@ def prepare(red: Reduction, indent: str = "right", for_margins: bool = True) -> 
             R, _ = certificate_radius(comp, terms, [(), *comp.cut_positions])
         except Uncertified as exc:
             raise uncertified_radius(red, comp, breaks.get(names[exc.cut]), exc) from None
-        check_values(red, comp, R)
+        if values:
+            check_values(red, comp, R)
         poles, zeros = comp.roots()
         roots = np.concatenate([poles, zeros])
         axis = poles[poles.real == 0]
