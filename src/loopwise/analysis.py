@@ -20,7 +20,7 @@ from .errors import Finding, ModelError, ModelErrors, Span
 from .language.resolve import Model, Parsed, parse_file, parse_model, resolve_parsed
 from .engine.reduce import Reduction, reduce_diagram
 from .results import BreakResult, Margins, ModelResult
-from .engine.hidden import cancelled_modes, structural_modes
+from .engine.hidden import cancelled_modes, circles, structural_modes
 from .verdicts import (check_not_zero, counted_modes, hidden_from_loop, mode_findings, positive_feedback,
                        verdict_adjustment)
 from .engine.stability import count
@@ -148,14 +148,23 @@ def check_prepared(prep: PreparedModel, indent: str = "right") -> ModelResult:
     return _finish(prep, plan, margins, gains)
 
 
-def check_many(preps: list[PreparedModel], indent: str = "right", stabilising_gains: bool = True
-               ) -> list[ModelResult]:
+def check_many(preps: list[PreparedModel], indent: str = "right", stabilising_gains: bool = True,
+               short: bool = False) -> list[ModelResult]:
     """Many models with the same wiring (one model's parameter samples, or many single
     loops): counted and refined together (engine/batch.py), each judged as check_prepared
     would. With `stabilising_gains` False the gain ranges that would stabilise an unstable
-    break are not searched (its `stabilising_gains` stay empty; a sweep records none)."""
+    break are not searched (its `stabilising_gains` stay empty; a sweep records none).
+
+    With `short` (a sweep's), the margins' extension stops at each model's settling
+    frequency wherever that leaves every margin value as the whole extension gives it
+    (stability.settled; docs/method.md, "The sweep's short extension"), and the models
+    where it does not get the rest of it (`Batch.lengthen`) and their margins again. Then
+    only the margin values, verdicts, requirements and warnings are those of `check`
+    (docs/method.md says which warning it may miss): the responses stop at the settling
+    frequency, and no phase crossover is listed."""
     from .engine.batch import Batch
     from .engine.margins import break_margins, break_stabilising_gains
+    from .engine.stability import ShortProbe
 
     todo = [i for i, p in enumerate(preps) if p.model.equations]
     out: list[ModelResult | None] = [None] * len(preps)
@@ -164,13 +173,31 @@ def check_many(preps: list[PreparedModel], indent: str = "right", stabilising_ga
     if not todo:
         return out
     batch = Batch([preps[i].reduction for i in todo])
-    plans = [_plan(preps[i], c) for i, c in zip(todo, batch.count(indent))]
-    rows = [(n, name) for n, plan in enumerate(plans) for name in plan.stable_names()]
-    found = break_margins(batch.evaluator(rows), [plans[n].counts[name].response for n, name in rows],
-                          [plans[n].counts[name].P for n, name in rows], tidy=True)
+    counts = batch.count(indent, short=short)
+    known = batch.circle_orders([circles(preps[i].reduction) for i in todo])
+    plans = [_plan(preps[i], c, k) for i, c, k in zip(todo, counts, known)]
     margins = [{c.stmt.name: None for c in preps[i].diagram.breaks} for i in todo]
+    rows = [(n, name) for n, plan in enumerate(plans) for name in plan.stable_names()]
+    probe = ShortProbe([plans[n].counts[name].short is not None for n, name in rows])
+    found = break_margins(batch.evaluator(rows), [plans[n].counts[name].response for n, name in rows],
+                          [plans[n].counts[name].P for n, name in rows], tidy=True, tail=probe, listed=not short)
     for (n, name), m in zip(rows, found):
         margins[n][name] = m
+    # a model with a margin the short extension does not settle, or with a gain range to
+    # search on a short response, gets the rest of its extension and its margins again
+    again = {n for r, ((n, _), m) in enumerate(zip(rows, found)) if not probe.settled(r, m)}
+    again |= {n for n, plan in enumerate(plans) for name in plan.gain_names(margins[n], stabilising_gains)
+              if plan.counts[name].short is not None}
+    if again:
+        again = sorted(again)
+        for n, c in zip(again, batch.lengthen([counts[n] for n in again], again)):
+            plans[n] = _plan(preps[todo[n]], c, known[n])
+            margins[n] = {b.stmt.name: None for b in preps[todo[n]].diagram.breaks}
+        rows = [(n, name) for n in again for name in plans[n].stable_names()]
+        found = break_margins(batch.evaluator(rows), [plans[n].counts[name].response for n, name in rows],
+                              [plans[n].counts[name].P for n, name in rows], tidy=True, listed=not short)
+        for (n, name), m in zip(rows, found):
+            margins[n][name] = m
     rows = [(n, name) for n, plan in enumerate(plans) for name in plan.gain_names(margins[n], stabilising_gains)]
     found = break_stabilising_gains(batch.evaluator(rows), [plans[n].counts[name].response for n, name in rows],
                                     [plans[n].counts[name].P for n, name in rows])
@@ -219,7 +246,8 @@ def _ambiguous(m: Margins | None) -> bool:
     return m is not None and m.gain_margin_up_db is None and m.gain_margin_down_db is None
 
 
-def _plan(prep: PreparedModel, result) -> _Plan:
+def _plan(prep: PreparedModel, result, known: dict | None = None) -> _Plan:
+    # known: the hidden-mode circles already wound (Batch.circle_orders)
     model, red = prep.model, prep.reduction
     findings = list(prep.diagram.findings)
     roots = np.concatenate([red.block_poles(), red.block_zeros()])
@@ -233,7 +261,7 @@ def _plan(prep: PreparedModel, result) -> _Plan:
     Z, counts = result.Z, result.counts
     for code, message in dict.fromkeys(result.warnings):
         findings.append(Finding("warning", code, message, Span(model.file, 1, 1)))
-    modes = counted_modes(cancelled_modes(red) + structural_modes(red), model)
+    modes = counted_modes(cancelled_modes(red) + structural_modes(red, known), model)
     findings.extend(mode_findings(red, modes))
     extra_rhp, hidden_axis = verdict_adjustment(modes)
     Z += extra_rhp

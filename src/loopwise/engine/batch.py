@@ -33,42 +33,39 @@ from typing import Sequence
 
 import numpy as np
 
+from ..errors import ModelError
 from ..results import LoopResponse
-from .blocks import Bank
+from .blocks import Bank, FactorTable
 from .certificate import ScaledTerms, certificate_radius, scaling
 from .program import build_program
-from .reduce import CANCEL, SAFE_LEVEL, SAFE_PER_PATH, Reduction, bounded_batches
+from .reduce import CANCEL, SAFE_LEVEL, Reduction, safe_program, bounded_batches
+from .refusals import VALUE_LIMIT, value_grids
 from .solve import distinct
-from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_LEVEL, ModelCount, NyquistCount, _dedupe,
-                        _open_rhp, count as count_one)
-from .winding import MAX_SAMPLES, MAX_WORK, Piece, encirclements, trace
+from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_GRID, REACH_LEVEL, ModelCount, NyquistCount,
+                        _dedupe, _open_rhp, count as count_one, extension_pieces, reach_rule, stops_short)
+from .winding import MAX_SAMPLES, MAX_WORK, carried, encirclements, trace
 
 __all__ = ["Batch", "StackedBank", "wiring"]
 
 
 class StackedBank:
     """The terms of one wiring in many samples: `values(s, which)` gives, for points s[j] of
-    samples which[j], every term's value, shape (M, terms). Each sample's points go to that
-    sample's own Bank (engine/blocks.py: terms grouped by shape, no padding, no masks), so
-    a sample's values are those its one-model count sees."""
+    samples which[j], every term's value, shape (M, terms). The samples' factors lie in one
+    table (engine/blocks.py, FactorTable), so a round costs a few numpy operations whatever
+    the number of samples, and a sample's values are bit for bit those its own Bank (its
+    one-model count) gives."""
 
     def __init__(self, banks: Sequence[Bank]):
         self.banks = tuple(banks)
         self.samples, self.size = len(self.banks), self.banks[0].size
         self.delay = np.array([b.delay for b in self.banks], float)
         self.has_delay = bool(np.any(self.delay > 0))
+        self.table = FactorTable(self.banks)
 
     def values(self, s: np.ndarray, which: np.ndarray) -> np.ndarray:
         """Every term's value gain * transfer(s[j]) in sample which[j], complex, shape (len(s),
         terms); delays exact, a point on a pole gives inf or nan there."""
-        s = np.asarray(s, complex).ravel()
-        which = np.asarray(which).ravel()
-        out = np.empty((s.size, self.size), complex)
-        order = np.argsort(which, kind="stable")
-        for idx in np.split(order, np.flatnonzero(np.diff(which[order])) + 1):
-            if idx.size:
-                out[idx] = self.banks[which[idx[0]]].values(s[idx])
-        return out
+        return self.table.values(s, which)
 
 
 def wiring(red: Reduction) -> tuple:
@@ -95,7 +92,7 @@ class _Stacked:
         cuts = [frozenset(p) for p in first.cut_positions]
         members = list(first.signals)
         self.program = build_program(members, ends, measured, cuts, big)
-        self.safe = build_program(members, ends, measured, cuts, big, most=SAFE_PER_PATH) if big else None
+        self.safe = safe_program(members, ends, measured, cuts, big)
         self.big = sorted(big)
 
     def _groups(self, V):
@@ -124,16 +121,20 @@ class _Stacked:
             bad = ~(np.abs(one_g) > CANCEL * np.maximum(1.0, np.abs(g)))
             for k in np.nonzero(bad.any(axis=0))[0]:
                 rows = np.nonzero(bad[:, k])[0]
-                ph, lg, Lk = self.direct(int(k), s[rows], which[rows])
+                ph, lg, Lk = self._direct(int(k), V[rows])
                 log_one_g[rows, k] = (lg + 1j * ph) - log_det[rows]
                 L[rows, k] = Lk
         return log_det, log_one_g, L
 
     def direct(self, b: int, s, which):
-        s = np.asarray(s, complex).ravel()
-        phase, logabs, L = np.zeros(s.size), np.zeros(s.size), np.zeros(s.size, complex)
+        """Break b solved with its wires cut at points s of samples which (Component.direct)."""
         with np.errstate(all="ignore"):
-            V = self.bank.values(s, which)
+            return self._direct(b, self.bank.values(np.asarray(s, complex).ravel(), which))
+
+    def _direct(self, b: int, V):
+        # from the term values already at hand (a point's values do not depend on the others)
+        phase, logabs, L = np.zeros(V.shape[0]), np.zeros(V.shape[0]), np.zeros(V.shape[0], complex)
+        with np.errstate(all="ignore"):
             for idx, prog in self._groups(V):
                 phase[idx], logabs[idx], L[idx] = prog.direct(V[idx], b)
         return phase, logabs, L
@@ -150,7 +151,7 @@ class _Stacked:
             bad = ~(np.abs(1.0 + g) > CANCEL * np.maximum(1.0, np.abs(g)))
             for k in distinct(cols[bad]):
                 rows = np.nonzero(bad & (cols == k))[0]
-                L[rows] = self.direct(int(k), s[rows], which[rows])[2]
+                L[rows] = self._direct(int(k), V[rows])[2]
         return L
 
 
@@ -232,22 +233,27 @@ class Batch:
         return out
 
     # --- the certified count of every sample -----------------------------------------
-    def count(self, indent: str = "right", for_margins: bool = True) -> list[ModelCount]:
+    def count(self, indent: str = "right", for_margins: bool = True, short: bool = False) -> list[ModelCount]:
         """Every sample's Z and break counts, as stability.count gives them for one model,
-        with every sample's contour traced in the same batched rounds."""
-        from .stability import prepare
+        with every sample's contour traced in the same batched rounds. With `short` (a
+        sweep's), the margins' extension stops at the settling frequency where there is
+        one (stability.extension_pieces; the counts say where: NyquistCount.short); a
+        sample counted again alone gets the whole extension."""
+        contours = self._contours(indent)
         # the margins' reach of every sample in one stacked evaluation per component
-        contours = [prepare(r, indent, False) for r in self.reductions]
         if for_margins:
             for c, st in enumerate(self.stacks):
-                for cs, reach in zip(contours, _reach(st, [cs[c] for cs in contours])):
-                    cs[c] = replace(cs[c], reach=reach)
+                for cs, (reach, settle) in zip(contours, _reach(st, [cs[c] for cs in contours])):
+                    cs[c] = replace(cs[c], reach=reach, settle=settle)
         Z = np.array([sum(_open_rhp(p, indent) for p in _outside_poles(r)) for r in self.reductions])
         per = [dict() for _ in self.reductions]
         redo: set[int] = set()
+        # what `lengthen` needs: the contours and each sample's extension points so far
+        self._traced = (indent, contours, [])
         for c, st in enumerate(self.stacks):
             cts = [cs[c] for cs in contours]
-            zc, counts, marginal = _count_stacked(st, cts)
+            zc, counts, marginal, used = _count_stacked(st, cts, short)
+            self._traced[2].append(used)
             Z += zc
             redo |= marginal
             for i in range(self.samples):
@@ -262,6 +268,97 @@ class Batch:
             out.append(ModelCount(int(Z[i]), (), counts))
         return out
 
+    def lengthen(self, counts: list[ModelCount], samples: list[int]) -> list[ModelCount]:
+        """The counts of `samples` (indices into the batch; `counts` from `count(short=True)`)
+        with every response that stops at the settling frequency carried on to the reach:
+        the far piece of the extension (stability.extension_pieces) traced for those samples,
+        so that each response is the one `count()` without `short` gives. A sample whose
+        extension, both pieces together, would not have been traced whole as one model's
+        (its budget, a point that could not be resolved, a touch of -1) is counted again
+        alone, as `count` does."""
+        indent, contours, used = self._traced
+        out = {i: c for i, c in zip(samples, counts)}
+        redo: set[int] = set()
+        for c, st in enumerate(self.stacks):
+            B = len(st.breaks)
+            mine = sorted(i for i in samples if B and any(out[i].counts[n].short is not None for n in st.breaks))
+            pieces, owner, skip = [], [], {}
+            for i in mine:
+                ct = contours[i][c]
+                whole = extension_pieces(ct.R, ct.reach, ct.settle)
+                near = extension_pieces(ct.R, ct.reach, ct.settle, short=True)
+                far = whole[len(near):]
+                pieces += far
+                owner += [i] * len(far)
+                skip[i] = not near  # no first piece: the far piece's first sample repeats R
+            if not pieces:
+                continue
+            owner = np.array(owner)
+            ext = _trace_pieces(st, pieces, owner)
+            ext_of = owner[ext.pid]
+            if not ext.complete:
+                redo |= set(mine)
+            redo |= {int(owner[p]) for p in ext.unresolved_pieces}
+            points = np.bincount(ext_of, minlength=self.samples) + used[c]
+            redo |= set(np.nonzero(points > min(EXTENSION_SAMPLES, MAX_WORK // B))[0].tolist()) & set(mine)
+            at = np.searchsorted(ext_of, np.arange(self.samples + 1))
+            for i in mine:
+                rows = np.arange(at[i] + (1 if skip[i] else 0), at[i + 1])
+                longer = dict(out[i].counts)
+                for k, name in enumerate(st.breaks):
+                    cnt = longer[name]
+                    r = cnt.response
+                    s = np.concatenate([r.s, ext.s[rows]])
+                    L = np.concatenate([r.L, np.exp(ext.values[rows, k])])
+                    on_axis = np.concatenate([r.on_axis, ext.on_axis[rows]])
+                    response = LoopResponse(*_dedupe(s, L, on_axis), r.axis_poles)
+                    if response.axis_L.size and _closeness(response.axis_L).min() < 1e-3:
+                        redo.add(i)
+                    longer[name] = replace(cnt, response=response, short=None)
+                out[i] = replace(out[i], counts=longer)
+        for i in redo:
+            out[i] = count_one(self.reductions[i], indent, True)
+        return [out[i] for i in samples]
+
+    def _contours(self, indent: str) -> list[list]:
+        """stability.prepare of every sample, the overflow check of the terms' values (LW406)
+        done for all samples in one stacked evaluation per component. Where any sample is
+        refused, the samples are prepared one by one again, so that the error raised is the
+        one a one-by-one check raises first."""
+        from .stability import prepare
+        try:
+            contours = [prepare(r, indent, False, values=False) for r in self.reductions]
+            fit = all(_values_fit(st, [cs[c] for cs in contours]) for c, st in enumerate(self.stacks))
+        except ModelError:
+            fit = False
+        return contours if fit else [prepare(r, indent, False) for r in self.reductions]
+
+    def circle_orders(self, circles: list[list[tuple[complex, int, float]]]) -> list[dict]:
+        """hidden.structural_modes' winding round its circles (`hidden.circles`, one list per
+        sample), every sample's first 64-step circles in one stacked evaluation: per sample,
+        {circle: (order, error)} for those those steps resolve (the rest are wound alone).
+        Empty where a component has a 'safe' program: only without one is the stacked
+        elimination the very program each sample's own reduction runs (one program for all
+        points, the same signals kept), so that the phases are those of Reduction.characteristic."""
+        from .hidden import circle, circle_order
+
+        out: list[dict] = [dict() for _ in circles]
+        todo = [(i, c) for i, cs in enumerate(circles) for c in cs]
+        if not todo or any(st.safe is not None for st in self.stacks):
+            return out
+        rings = [circle(p, radius, 64) for _, (p, _, radius) in todo]
+        s = np.concatenate([ring[1] for ring in rings])
+        which = np.repeat([i for i, _ in todo], 65)
+        phase = np.zeros(s.size)
+        for st in self.stacks:
+            phase = phase + st.terms(s, which, 0)[0].imag
+        phase = np.angle(np.exp(1j * phase)).reshape(len(todo), 65)
+        for (i, c), (theta, _), ph in zip(todo, rings, phase):
+            found = circle_order(ph, theta, c[1])
+            if found is not None:
+                out[i][c] = found
+        return out
+
     def evaluator(self, name_rows: list[tuple[int, str]]):
         """The margins' evaluator for curves (sample, break name): evaluate(s, i) gives L of
         curve i[j] at s[j]."""
@@ -272,6 +369,8 @@ class Batch:
         def evaluate(s, i):
             s = np.asarray(s, complex).ravel()
             i = np.broadcast_to(np.asarray(i, int), s.shape).ravel()
+            if len(self.stacks) == 1:
+                return self.stacks[0].loops(s, sample_of[i], col_of[i])
             out = np.empty(s.size, complex)
             for c in distinct(comp_of[i]):
                 sel = np.nonzero(comp_of[i] == c)[0]
@@ -281,14 +380,24 @@ class Batch:
         return evaluate
 
 
-def _reach(st: _Stacked, cts: list) -> list[float]:
-    """stability._margin_reach for every sample: the same grid and rule, all samples' points
-    in one evaluation."""
+def _values_fit(st: _Stacked, cts: list) -> bool:
+    """refusals.check_values for every sample of one component (the same grids, the same
+    values): whether no term overflows double precision on the axis below any sample's R."""
+    grids = value_grids([ct.component for ct in cts], [ct.R for ct in cts])
+    which = np.repeat(np.arange(len(cts)), [w.size for w in grids])
+    with np.errstate(all="ignore"):
+        V = st.bank.values(1j * np.concatenate(grids), which)
+        return bool(np.all(np.abs(V) < VALUE_LIMIT))
+
+
+def _reach(st: _Stacked, cts: list) -> list[tuple[float, float | None]]:
+    """stability._margin_reach for every sample: the same grid and rule (stability.reach_rule),
+    all samples' points in one evaluation."""
     if not st.breaks:
-        return [ct.R for ct in cts]
-    S, n = len(cts), 201
+        return [(ct.R, None) for ct in cts]
+    S, n = len(cts), REACH_GRID.size
     R = np.array([ct.R for ct in cts])
-    w = R[:, None] * np.logspace(-6.0, 4.0, n)[None, :]
+    w = R[:, None] * REACH_GRID[None, :]
     s, which = 1j * w.ravel(), np.repeat(np.arange(S), n)
     g = np.zeros((s.size, len(st.breaks)), complex)
     with np.errstate(all="ignore"):
@@ -296,14 +405,7 @@ def _reach(st: _Stacked, cts: list) -> list[float]:
         for idx, prog in st._groups(V):
             g[idx] = prog.values(V[idx])[2]
         mag = np.abs(g / (1.0 + g)).reshape(S, n, -1)
-    out = []
-    for i in range(S):
-        big = np.nonzero((~(mag[i] < REACH_LEVEL)).any(axis=1))[0]
-        unit = np.nonzero((~(mag[i] < 1.0)).any(axis=1))[0]
-        last_small = max(R[i], float(w[i, min(big[-1] + 1, n - 1)])) if big.size else R[i]
-        last_unit = float(w[i, unit[-1]]) if unit.size else 0.0
-        out.append(float(min(max(1.5 * last_small, 30.0 * last_unit, R[i]), 1e4 * R[i])))
-    return out
+    return [reach_rule(w[i], mag[i], float(R[i])) for i in range(S)]
 
 
 def _outside_poles(r: Reduction) -> list[np.ndarray]:
@@ -311,10 +413,13 @@ def _outside_poles(r: Reduction) -> list[np.ndarray]:
     return out + [t.app.transfer.poles for t in r.exogenous]
 
 
-def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set[int]]:
+def _count_stacked(st: _Stacked, cts: list, short: bool = False
+                   ) -> tuple[np.ndarray, list[dict], set[int], np.ndarray]:
     """One loop component in every sample: each sample's Z_c and break counts (P, N local to
-    the component, as stability._count_component gives them), and the samples with a
-    closed-loop pole on the axis (counted again alone by the caller)."""
+    the component, as stability._count_component gives them), the samples with a
+    closed-loop pole on the axis (counted again alone by the caller), and each sample's
+    points on the margins' extension. With `short`, the extension stops at each sample's
+    settling frequency (`Batch.count`)."""
     S, B = len(cts), len(st.breaks)
     pieces, owner = [], []
     for i, ct in enumerate(cts):
@@ -330,16 +435,16 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
         log_det, log_one_g, L = st.terms(s, which)
         with np.errstate(all="ignore"):
             v = np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
-            qq = q[which]
-            return v + np.where(qq != 0, np.log(s)[:, None] * qq, 0.0)
+            return v + carried(s, q, which)
 
     floors = (None,) * (1 + B) + (1e-2,) * B
     tr = trace(pieces, evaluate, features, floors, MAX_SAMPLES * S, _step_ok(st, owner) if st.bank.has_delay
                else None, orders=q[owner], max_step=steps, by_piece=True, max_work=MAX_WORK * S)
     if not tr.complete:
-        return np.zeros(S, int), [dict() for _ in range(S)], set(range(S))
+        return np.zeros(S, int), [dict() for _ in range(S)], set(range(S)), np.zeros(S, int)
     closes = _closing(st, cts)
-    ext = _extension(st, cts) if B else None
+    short_at = [short and stops_short(ct, float(st.bank.delay[i].sum())) for i, ct in enumerate(cts)]
+    ext = _extension(st, cts, short_at) if B else None
     # pieces are listed sample by sample and a trace is ordered by piece: each sample's
     # samples are one contiguous run (bounds by bisection, not a scan per sample)
     sample_of = owner[tr.pid]
@@ -357,14 +462,24 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
             redo |= set(ext[1].tolist())
         redo |= _outgrown(ext[1][ext[0].pid], S, EXTENSION_SAMPLES, MAX_WORK // B)
         redo |= {int(ext[1][p]) for p in ext[0].unresolved_pieces}
+    # the elementwise work of every sample at once (the same numbers, sample by sample)
+    with np.errstate(all="ignore"):
+        D = np.diff(tr.values, axis=0).imag
+        D = np.where(np.isfinite(D), (D + np.pi) % (2 * np.pi) - np.pi, 0.0)
+        qL = q[sample_of][:, 1 + B:]
+        L_all = np.exp(tr.values[:, 1 + B:] - np.where(qL != 0, qL * np.log(tr.s)[:, None], 0.0))
+        # how near 1 + L comes to zero on every sample's axis points, trace and extension
+        # rows (a repeated point repeats its value: dropping it changes no minimum)
+        near_T = np.where(tr.on_axis[:, None], _closeness(L_all), np.inf)
+        near_T = np.minimum.reduceat(near_T, at[:-1], axis=0) if S else near_T[:0]
+        if ext is not None:
+            L_ext = np.exp(ext[0].values)
+            near_E = np.where(ext[0].on_axis[:, None], _closeness(L_ext), np.inf)
     for i, ct in enumerate(cts):
-        rows = np.arange(at[i], at[i + 1])
-        vals, s0, on0 = tr.values[rows], tr.s[rows], tr.on_axis[rows]
+        a, b = at[i], at[i + 1]
+        s0, on0 = tr.s[a:b], tr.on_axis[a:b]
         turn = float(np.angle(s0[-1]) - np.angle(s0[0]))
-        with np.errstate(invalid="ignore"):
-            d = np.diff(vals, axis=0).imag
-        d = np.where(np.isfinite(d), (d + np.pi) % (2 * np.pi) - np.pi, 0.0)
-        stp = d.sum(axis=0) - q[i] * turn
+        stp = D[a:b - 1].sum(axis=0) - q[i] * turn
         close_full = closes[i][0]
         wz, err = encirclements(stp[0] + close_full)
         zc[i] = ct.P0 + wz
@@ -375,23 +490,22 @@ def _count_stacked(st: _Stacked, cts: list) -> tuple[np.ndarray, list[dict], set
             wk, err_k = encirclements(stp[0] + stp[1 + k] + close_k)
             N, err_n = encirclements(-stp[1 + k] + close_full - close_k)
             err = max(err, err_k, err_n)
-            qk = q[i, 1 + B + k]
-            with np.errstate(all="ignore"):
-                L = np.exp(vals[:, 1 + B + k] - (qk * np.log(s0) if qk else 0.0))
-            s, on_axis = s0, on0
+            L, s, on_axis, near = L_all[a:b, k], s0, on0, near_T[i, k]
             if er.size:
                 s = np.concatenate([s0, ext[0].s[er]])
-                L = np.concatenate([L, np.exp(ext[0].values[er, k])])
+                L = np.concatenate([L, L_ext[er, k]])
                 on_axis = np.concatenate([on0, ext[0].on_axis[er]])
+                near = min(near, float(near_E[er, k].min()))
             response = LoopResponse(*_dedupe(s, L, on_axis), ct.axis_freqs)
-            if _touches(response):
-                redo.add(i)
+            if near < 1e-3:
+                redo.add(i)  # 1 + L comes near zero on the axis: the one-model count decides
             P = ct.P0 + wk
-            mine[name] = NyquistCount(P, N, P + N, False, None, (), response)
+            mine[name] = NyquistCount(P, N, P + N, False, None, (), response, ct.settle if short_at[i] else None)
         if err > 1e-3:
             redo.add(i)  # a residual: the one-model count words the warning
         counts.append(mine)
-    return zc, counts, redo
+    used = np.zeros(S, int) if ext is None else np.bincount(ext_of, minlength=S)
+    return zc, counts, redo, used
 
 
 def _outgrown(sample_of_point: np.ndarray, S: int, most: int, work: int) -> set[int]:
@@ -401,12 +515,11 @@ def _outgrown(sample_of_point: np.ndarray, S: int, most: int, work: int) -> set[
     return set(np.nonzero(used > min(most, work))[0].tolist())
 
 
-def _touches(resp: LoopResponse) -> bool:
-    """A sample whose 1 + L comes near zero on the axis: the one-model count decides it."""
-    L = resp.axis_L
+def _closeness(L: np.ndarray) -> np.ndarray:
+    """|1 + L| / (1 + |L|), 1 where that is NaN: below 1e-3 on the axis, 1 + L comes near
+    zero there and the one-model count decides the sample."""
     with np.errstate(invalid="ignore"):
-        rel = np.nan_to_num(np.abs(1.0 + L) / (1.0 + np.abs(L)), nan=1.0)
-    return bool(rel.size and rel.min() < 1e-3)
+        return np.nan_to_num(np.abs(1.0 + L) / (1.0 + np.abs(L)), nan=1.0)
 
 
 def _orders(st: _Stacked, cts: list) -> np.ndarray:
@@ -496,17 +609,24 @@ def _closing(st: _Stacked, cts: list) -> list[list[float]]:
     return out
 
 
-def _extension(st: _Stacked, cts: list):
-    """stability._extension for every sample: (trace, owner of each piece)."""
-    B = len(st.breaks)
+def _extension(st: _Stacked, cts: list, short: list[bool] | None = None):
+    """stability._extension for every sample: (trace, owner of each piece). Where `short[i]`,
+    sample i's first piece alone (stability.extension_pieces)."""
     pieces, owner = [], []
     for i, ct in enumerate(cts):
-        if ct.reach > ct.R * (1 + 1e-12):
-            pieces.append(Piece("axis", ct.R, ct.reach, log=True))
-            owner.append(i)
+        mine = extension_pieces(ct.R, ct.reach, ct.settle, bool(short and short[i]))
+        pieces += mine
+        owner += [i] * len(mine)
     if not pieces:
         return None
     owner = np.array(owner)
+    return _trace_pieces(st, pieces, owner), owner
+
+
+def _trace_pieces(st: _Stacked, pieces: list, owner: np.ndarray):
+    """The trace of extension pieces of many samples (`owner[p]`: the sample of piece p), as
+    stability._extension traces one model's."""
+    B = len(st.breaks)
 
     def evaluate(s, pid):
         which = owner[pid]
@@ -515,8 +635,9 @@ def _extension(st: _Stacked, cts: list):
             return np.log(L + 0j)
 
     steps = [None if _max_step(st, i) is None else 2.0 * _max_step(st, i) for i in owner]
-    tr = trace(pieces, evaluate, [np.zeros(0)] * len(pieces), (REACH_LEVEL / 5,) * B,
-               EXTENSION_SAMPLES * len(pieces), _step_ok(st, owner) if st.bank.has_delay else None,
-               max_step=steps, chord=EXTENSION_CHORD, midpoint=0.3, by_piece=True,
-               max_work=MAX_WORK * len(pieces))
-    return tr, owner
+    # one model's budget per sample traced, whatever its pieces (as stability._extension)
+    traced = len(set(owner.tolist()))
+    return trace(pieces, evaluate, [np.zeros(0)] * len(pieces), (REACH_LEVEL / 5,) * B,
+                 EXTENSION_SAMPLES * traced, _step_ok(st, owner) if st.bank.has_delay else None,
+                 max_step=steps, chord=EXTENSION_CHORD, midpoint=0.3, by_piece=True,
+                 max_work=MAX_WORK * traced)

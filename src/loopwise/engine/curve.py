@@ -10,6 +10,7 @@ of `evaluate(s, i)`, the loop transfer of curve i[j] at the point s[j].
 """
 from __future__ import annotations
 
+import bisect
 import math
 from dataclasses import dataclass
 from typing import Callable
@@ -19,7 +20,7 @@ import numpy as np
 from ..results import LoopResponse
 from .solve import distinct, illinois
 
-__all__ = ["Curve", "Crossing", "upper_curve", "add_tail", "crossings", "stretches", "settle",
+__all__ = ["Curve", "Crossing", "upper_curve", "add_tail", "crossings", "crossings_many", "stretches", "settle",
            "gain_margins", "gain_factors", "refine", "HORIZON", "Evaluate"]
 
 #: (s, curve indices) -> L of each curve at each point
@@ -160,28 +161,33 @@ def add_tail(curves: list[Curve], evaluate: Evaluate) -> None:
             c.tail = True
             continue
         state[c.index] = [c, w_end, L_end, 0, [], 32]
+    grids_of: dict[int, np.ndarray] = {}  # np.logspace(0, 1, n + 1)[1:] by n
     for d in range(_TAIL_DECADES):
-        pending = {i: st for i, st in state.items() if st[3] < _TAIL_MAX_SAMPLES}
+        pending = [i for i, st in state.items() if st[3] < _TAIL_MAX_SAMPLES]
         grids = {}
         while pending:
-            ws = {i: st[1] * 10.0 ** d * np.logspace(0, 1, st[5] + 1)[1:] for i, st in pending.items()}
-            pts = np.concatenate([1j * w for w in ws.values()])
-            cols = np.concatenate([np.full(w.size, i) for i, w in ws.items()])
-            Lall = evaluate(pts, cols)
-            done, offset = [], 0
-            for i, w in ws.items():
-                st = pending[i]
-                Lw = Lall[offset:offset + w.size]
-                offset += w.size
-                with np.errstate(all="ignore"):
-                    steps = np.abs(np.angle(Lw / np.concatenate([[st[2]], Lw[:-1]])))
-                if steps.max() <= _TAIL_STEP or st[3] + 2 * st[5] > _TAIL_MAX_SAMPLES:
-                    grids[i] = (w, Lw)
-                    done.append(i)
+            # every pending curve's decade in one evaluation, its steps in one pass
+            sts = [state[i] for i in pending]
+            for st in sts:
+                if st[5] not in grids_of:
+                    grids_of[st[5]] = np.logspace(0, 1, st[5] + 1)[1:]
+            ws = [st[1] * 10.0 ** d * grids_of[st[5]] for st in sts]
+            sizes = np.array([w.size for w in ws])
+            first = np.concatenate([[0], np.cumsum(sizes)[:-1]])
+            w_all = np.concatenate(ws)
+            Lall = evaluate(1j * w_all, np.repeat(pending, sizes))
+            prev = np.concatenate([[0j], Lall[:-1]])
+            prev[first] = [st[2] for st in sts]
+            with np.errstate(all="ignore"):
+                worst = np.maximum.reduceat(np.abs(np.angle(Lall / prev)), first)
+            again = []
+            for n, (i, st) in enumerate(zip(pending, sts)):
+                if worst[n] <= _TAIL_STEP or st[3] + 2 * st[5] > _TAIL_MAX_SAMPLES:
+                    grids[i] = (ws[n], Lall[first[n]:first[n] + sizes[n]])
                 else:
                     st[5] *= 2
-            for i in done:
-                del pending[i]
+                    again.append(i)
+            pending = again
         for i, (w, Lw) in grids.items():
             st = state[i]
             st[4].append((w, Lw))
@@ -211,10 +217,39 @@ def crossings(c: Curve) -> list[Crossing]:
     lying exactly on the axis is counted once. Mirror crossings have the same position
     and direction as their upper twins.
     """
+    return crossings_many([c])[0]
+
+
+def crossings_many(curves: list[Curve]) -> list[list[Crossing]]:
+    """`crossings` of many curves: the segments of every curve (upper half, mirror, the
+    two closing chords) tested in one vectorised pass; each curve's list in the same
+    order as `crossings` gives it."""
+    a_parts, b_parts, sizes = [], [], []
+    for c in curves:
+        L = c.L
+        a_parts += [L[:-1], np.conj(L[1:]), L[-1:], np.conj(L[:1])]
+        b_parts += [L[1:], np.conj(L[:-1]), np.conj(L[-1:]), L[:1]]
+        sizes += [L.size - 1, L.size - 1, 1, 1]
+    starts = np.concatenate([[0], np.cumsum(sizes)])
+    hit, xs, ups, fracs = _segment_arrays(np.concatenate(a_parts), np.concatenate(b_parts))
+    # hits in order: curve by curve, part by part (upper, mirror, top, bottom), segment by segment
+    part = np.searchsorted(starts, hit, side="right") - 1
+    at = np.searchsorted(part, np.arange(len(sizes) + 1))
+    out = []
+    for n, c in enumerate(curves):
+        rows = [range(at[4 * n + j], at[4 * n + j + 1]) for j in range(4)]
+        base = [int(starts[4 * n + j]) for j in range(4)]
+        out.append(_crossings_of(c, [[(int(hit[r]) - base[j], float(xs[r]), 1 if ups[r] else -1, float(fracs[r]))
+                                      for r in rows[j]] for j in range(4)]))
+    return out
+
+
+def _crossings_of(c: Curve, parts) -> list[Crossing]:
+    """One curve's Crossing list from its segment crossings (upper, mirror, top, bottom)."""
     L, axis, w = c.L, c.axis, c.s.imag
     upper: dict[int, Crossing] = {}
     out: list[Crossing] = []
-    for k, x, up, t in _segment_crossings(L[:-1], L[1:]):
+    for k, x, up, t in parts[0]:
         seg_axis = bool(axis[k] and axis[k + 1])
         x = _limit(c, k, x)
         cr = Crossing(c.index, x, up, _bracket(c, k) if math.isfinite(x) and x != 0.0 else None,
@@ -225,7 +260,7 @@ def crossings(c: Curve) -> list[Crossing]:
         out.append(cr)
     # the mirror half conj(L) reversed: segment k runs conj(L[k+1]) -> conj(L[k]) and
     # crosses where its upper twin does, the same way (unless a sample lies on the axis)
-    for k, x, up, _ in _segment_crossings(np.conj(L[1:]), np.conj(L[:-1])):
+    for k, x, up, _ in parts[1]:
         twin = upper.get(k)
         if twin is not None and twin.up == up:
             out.append(twin)
@@ -234,10 +269,10 @@ def crossings(c: Curve) -> list[Crossing]:
             out.append(Crossing(c.index, x, up, _bracket(c, k) if math.isfinite(x) and x != 0.0 else None))
     # closing chord at the top: the arc at infinity maps to L(inf), which is the
     # origin when |L| still rolls off at the last samples (strictly proper L)
-    for _, x, up, _ in _segment_crossings(L[-1:], np.conj(L[-1:])):
+    for _, x, up, _ in parts[2]:
         out.append(Crossing(c.index, 0.0 if abs(x) < HORIZON or _rolls_off(c) else x, up, None))
     # closing chord at the bottom: the real axis at s = 0 (or the start of an indentation)
-    for _, x, up, _ in _segment_crossings(np.conj(L[:1]), L[:1]):
+    for _, x, up, _ in parts[3]:
         far = c.at_pole[0] or abs(x) > 1.0 / HORIZON
         out.append(Crossing(c.index, -math.inf if far else (0.0 if abs(x) < HORIZON else x), up, None))
     return out
@@ -279,9 +314,9 @@ def _limit(c: Curve, k: int, x: float) -> float:
     return x
 
 
-def _segment_crossings(a: np.ndarray, b: np.ndarray) -> list[tuple[int, float, int, float]]:
-    """(segment, position, direction, fraction along) for segments a->b crossing
-    the negative real axis; the position interpolates log|L| and arg L between
+def _segment_arrays(a: np.ndarray, b: np.ndarray):
+    """(segments, positions, upward, fractions along), arrays, for the segments a->b
+    crossing the negative real axis; the position interpolates log|L| and arg L between
     the ends (exact for a power law), falling back to the chord."""
     ya, yb = a.imag, b.imag
     hit = np.flatnonzero((ya > 0) != (yb > 0))
@@ -295,8 +330,7 @@ def _segment_crossings(a: np.ndarray, b: np.ndarray) -> list[tuple[int, float, i
         log_r = (1 - t) * np.log(np.abs(a)) + t * np.log(np.abs(b))
         x = np.where((ha != hb) & (np.abs(ha - hb) < np.pi) & np.isfinite(log_r),
                      -np.exp(log_r), x_chord)
-    return [(int(k), float(xk), 1 if y1 > 0 else -1, float(f))
-            for k, xk, y1, f in zip(hit[keep], x[keep], yb[keep], frac[keep])]
+    return hit[keep], x[keep], yb[keep] > 0, frac[keep]
 
 
 def refine(found: list[Crossing], evaluate: Evaluate | None) -> None:
@@ -340,20 +374,28 @@ def stretches(found: list[Crossing], P: int) -> list[tuple[float, float, bool]]:
     """(lo, hi, stable) for each stretch of the negative real axis between crossings.
 
     Clockwise encirclements of a point x: the signed count of crossings on the
-    ray from x to -inf (upward crossings count +1).
+    ray from x to -inf (upward crossings count +1). Plain Python floats (a curve has a
+    few crossings; numpy's per-call cost would dominate): a stable sort with NaN last, as
+    numpy sorts, and bisection for the count.
     """
-    xs = np.array([c.x for c in found], dtype=float)
-    ups = np.array([c.up for c in found], dtype=int)
-    order = np.argsort(xs, kind="stable")
-    xs, counts = xs[order], np.concatenate([[0], np.cumsum(ups[order])])
-    finite = distinct(xs[np.isfinite(xs) & (xs < 0)])
-    bounds = np.concatenate([[-math.inf], finite, [0.0]])
-    lo, hi = bounds[:-1], bounds[1:]
-    with np.errstate(all="ignore"):
-        test = np.where(np.isinf(lo), np.where(hi < 0, 2 * hi, -1.0),
-                        np.where(hi == 0.0, lo / 2, -np.sqrt(lo * hi)))
-    N = counts[np.searchsorted(xs, test, side="left")]
-    return [(float(a), float(b), bool(n == -P)) for a, b, n in zip(lo, hi, N)]
+    ranked = sorted(found, key=lambda c: (math.isnan(c.x), 0.0 if math.isnan(c.x) else c.x))
+    xs = [c.x for c in ranked]
+    counts = [0]
+    for c in ranked:
+        counts.append(counts[-1] + c.up)
+    finite = []
+    for x in xs:
+        if -math.inf < x < 0 and (not finite or x != finite[-1]):
+            finite.append(x)
+    bounds = [-math.inf, *finite, 0.0]
+    out = []
+    for lo, hi in zip(bounds[:-1], bounds[1:]):
+        if lo == -math.inf:
+            test = 2 * hi if hi < 0 else -1.0
+        else:
+            test = lo / 2 if hi == 0.0 else -math.sqrt(lo * hi)
+        out.append((float(lo), float(hi), counts[bisect.bisect_left(xs, test)] == -P))
+    return out
 
 
 def gain_factors(lo: float, hi: float) -> tuple[float, float]:

@@ -23,10 +23,12 @@ from ..language.resolve import Model, Term
 from .nesting import cycle_wires, enclosing, loop_text, opened_by, own_cycles, wide_cut_warning
 from .solve import nonsingular
 
-__all__ = ["Diagram", "BreakCut", "build_diagram", "MAX_CYCLES"]
+__all__ = ["Diagram", "BreakCut", "build_diagram", "strong_components", "MAX_CYCLES"]
 
 #: cycle enumeration stops here; larger models get their loop checks on what was found
 MAX_CYCLES = 20000
+#: path steps the plain cycle search may take before the graph library's search takes over
+SMALL_SEARCH = 20000
 
 
 @dataclass(frozen=True, eq=False)
@@ -100,7 +102,7 @@ def build_diagram(model: Model) -> Diagram:
             if not np.isfinite(term.gain):  # `1e300*1e300*x`
                 raise ModelError("LW106", "this term's gain is not a finite number (overflow in double "
                                  "precision)", term.span, "rescale the model's gains")
-    used = {u for u, _ in g.edges()}
+    used = {term.source for terms in model.equations.values() for term in terms}  # every wire's source
     for name, span in model.inputs.items():
         if name not in used:
             findings.append(Finding("warning", "LW381", f"input `{name}` is never used", span,
@@ -137,11 +139,15 @@ def _display(name: str, model: Model) -> str:
 
 
 def _algebraic_loops(model: Model, g, signals, errors) -> list[Finding]:
+    index = {n: i for i, n in enumerate(signals)}
+    pairs = [(index[term.source], index[v]) for v, terms in model.equations.items() for term in terms
+             if term.source in model.signals and _feeds(term)]
+    if all(len(c) == 1 for c in strong_components(len(signals), pairs)) and not any(u == v for u, v in pairs):
+        return []  # no loop without dynamics (every component a single signal with no wire onto itself)
+    wires = [(u, v) for u, v, data in g.edges(data=True) if u in model.signals and _feeds(data["term"])]
     direct = nx.DiGraph()
     direct.add_nodes_from(signals)
-    for u, v, data in g.edges(data=True):
-        if u in model.signals and _feeds(data["term"]):
-            direct.add_edge(u, v)
+    direct.add_edges_from(wires)
     out = []
     for comp in nx.strongly_connected_components(direct):
         if len(comp) == 1:
@@ -181,6 +187,11 @@ def _cycles(g, model: Model):
     hashes vary between runs), so they are put in a fixed order here.
     """
     order = {n: i for i, n in enumerate(model.signals)}
+    wires = {(term.source, v) for v, terms in model.equations.items() for term in terms
+             if term.source in order and v in order}  # the graph's wires between signals
+    found = _rooted_cycles(list(model.signals), wires)
+    if found is not None:
+        return sorted(found, key=lambda c: (len(c), [order[n] for n in c])), True
     # a plain DiGraph of the signals' wires (a subgraph view of the multigraph is slow to copy)
     simple = nx.DiGraph()
     simple.add_nodes_from(n for n in g if n in order)
@@ -195,6 +206,91 @@ def _cycles(g, model: Model):
             break
     cycles.sort(key=lambda c: (len(c), [order[n] for n in c]))
     return cycles, complete
+
+
+def _rooted_cycles(nodes: list[str], wires: set[tuple[str, str]]) -> list[tuple[str, ...]] | None:
+    """Every simple cycle, each once, from its first node in `nodes` order: a depth-first
+    search from each node through later nodes only (a cycle is found from its first node
+    alone). The set of simple cycles of a graph is unique, so sorted they are those of
+    the graph library's search. None when the search would exceed SMALL_SEARCH steps or
+    find MAX_CYCLES cycles: the library's search (and its cut-off) decides those."""
+    pos = {n: i for i, n in enumerate(nodes)}
+    succ: dict[int, list[int]] = {i: [] for i in range(len(nodes))}
+    for u, v in sorted(wires, key=lambda e: (pos[e[0]], pos[e[1]])):
+        succ[pos[u]].append(pos[v])
+    out: list[tuple[str, ...]] = []
+    steps = 0
+    for start in range(len(nodes)):
+        path, on_path = [start], {start}
+        stack = [iter(succ[start])]
+        while stack:
+            nxt = next(stack[-1], None)
+            if nxt is None:
+                stack.pop()
+                on_path.discard(path.pop())
+                continue
+            steps += 1
+            if steps > SMALL_SEARCH:
+                return None
+            if nxt == start:
+                out.append(tuple(nodes[i] for i in path))
+                if len(out) >= MAX_CYCLES:
+                    return None
+            elif nxt > start and nxt not in on_path:
+                path.append(nxt)
+                on_path.add(nxt)
+                stack.append(iter(succ[nxt]))
+    return out
+
+
+def strong_components(n: int, edges) -> list[list[int]]:
+    """The strongly connected components of the graph on nodes 0..n-1 with directed `edges`
+    (pairs), each a sorted list (Tarjan's algorithm, iterative). The components of a graph
+    are unique; their order here is Tarjan's (a component after every one it feeds)."""
+    succ: list[list[int]] = [[] for _ in range(n)]
+    for u, v in edges:
+        succ[u].append(v)
+    index, low, on_stack = [-1] * n, [0] * n, [False] * n
+    stack: list[int] = []
+    out: list[list[int]] = []
+    counter = 0
+    for root in range(n):
+        if index[root] >= 0:
+            continue
+        work = [(root, 0)]
+        while work:
+            v, i = work.pop()
+            if i == 0:
+                index[v] = low[v] = counter
+                counter += 1
+                stack.append(v)
+                on_stack[v] = True
+            recurse = False
+            while i < len(succ[v]):
+                w = succ[v][i]
+                i += 1
+                if index[w] < 0:
+                    work.append((v, i))
+                    work.append((w, 0))
+                    recurse = True
+                    break
+                if on_stack[w]:
+                    low[v] = min(low[v], index[w])
+            if recurse:
+                continue
+            if low[v] == index[v]:
+                comp = []
+                while True:
+                    w = stack.pop()
+                    on_stack[w] = False
+                    comp.append(w)
+                    if w == v:
+                        break
+                out.append(sorted(comp))
+            if work:
+                u = work[-1][0]
+                low[u] = min(low[u], low[v])
+    return out
 
 
 def _breaks(model: Model, g, errors) -> list[BreakCut]:

@@ -34,7 +34,7 @@ from ..results import HiddenMode
 from .reduce import Reduction
 from .winding import axis_orders, indentation_radius
 
-__all__ = ["cancelled_modes", "structural_modes", "applications"]
+__all__ = ["cancelled_modes", "structural_modes", "applications", "circles", "circle", "circle_order"]
 
 #: two roots closer than this (relative) are the same root
 _SAME = 1e-9
@@ -76,28 +76,45 @@ def cancelled_modes(red: Reduction) -> list[HiddenMode]:
     return [HiddenMode(p, m, "LW281", (label,), (label,)) for (label, p), m in found.items()]
 
 
+def circle(p: complex, radius: float, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """n + 1 angles from 0 to 2 pi and the points p + radius e^(j theta) at them."""
+    theta = np.linspace(0.0, 2 * math.pi, n + 1)
+    return theta, p + radius * np.exp(1j * theta)
+
+
+def circle_order(phase: np.ndarray, theta: np.ndarray, m: int) -> tuple[int, float] | None:
+    """The winding number of det(I - A) (s - p)^m from arg det(I - A) on `circle(p, r, n)`
+    (n = theta.size - 1), and its rounding error; None where n steps do not resolve it and
+    more are allowed (up to 4096)."""
+    n = theta.size - 1
+    steps = np.diff(phase + m * theta)
+    steps = (steps + math.pi) % (2 * math.pi) - math.pi
+    if np.all(np.isfinite(steps)) and (np.max(np.abs(steps)) < math.pi / 4 or n >= 4096):
+        total = float(np.sum(steps)) / (2 * math.pi)
+        return int(round(total)), abs(total - round(total))
+    return (0, math.inf) if n >= 4096 else None
+
+
 def _order(red: Reduction, p: complex, m: int, radius: float) -> tuple[int, float]:
     """The order of chi at p: the winding number of det(I - A) (s - p)^m round the circle
     |s - p| = radius (that of det(I - A) plus m; the factor takes det's pole of order up
     to m off, so few samples resolve it), and its rounding error."""
     n = 64
     while True:
-        theta = np.linspace(0.0, 2 * math.pi, n + 1)
-        phase, logabs = red.characteristic(p + radius * np.exp(1j * theta))
-        phase = phase + m * theta
-        steps = np.diff(phase)
-        steps = (steps + math.pi) % (2 * math.pi) - math.pi
-        if np.all(np.isfinite(steps)) and (np.max(np.abs(steps)) < math.pi / 4 or n >= 4096):
-            total = float(np.sum(steps)) / (2 * math.pi)
-            return int(round(total)), abs(total - round(total))
-        if n >= 4096:
-            return 0, math.inf
+        theta, s = circle(p, radius, n)
+        found = circle_order(red.characteristic(s)[0], theta, m)
+        if found is not None:
+            return found
         n *= 4
 
 
-def structural_modes(red: Reduction) -> list[HiddenMode]:
-    """Closed-loop poles at block poles in Re s >= 0 (cancellations between blocks,
-    LW487 / LW488; a block on an input path only, LW484)."""
+def circles(red: Reduction) -> list[tuple[complex, int, float]]:
+    """The circles (pole p, block poles m there, radius) round which `structural_modes`
+    winds det(I - A), in its order."""
+    return [(p, m, radius) for p, m, radius, *_ in _candidates(red)]
+
+
+def _candidates(red: Reduction) -> list[tuple]:
     terms = applications(red)
     poles = red.block_poles()
     roots = np.concatenate([poles, red.block_zeros()])
@@ -120,7 +137,19 @@ def structural_modes(red: Reduction) -> list[HiddenMode]:
             radius = indentation_radius(abs(p.imag), orders.get(abs(p.imag), 1), roots)
         else:
             continue  # in the right half plane and not cancelled: the count sees it
-        order, err = _order(red, p, m, radius)
+        out.append((p, m, radius, exogenous_only, pole_terms, zero_blocks))
+    return out
+
+
+def structural_modes(red: Reduction, known: dict | None = None) -> list[HiddenMode]:
+    """Closed-loop poles at block poles in Re s >= 0 (cancellations between blocks,
+    LW487 / LW488; a block on an input path only, LW484). `known` maps circles (as
+    `circles` gives them) to their (order, error) when already wound (a batch does all
+    its samples' circles at once)."""
+    out = []
+    for p, m, radius, exogenous_only, pole_terms, zero_blocks in _candidates(red):
+        found = (known or {}).get((p, m, radius))
+        order, err = found if found is not None else _order(red, p, m, radius)
         if err > 0.1 or order <= 0:
             continue
         code = "LW484" if exogenous_only else ("LW488" if p.real == 0 else "LW487")

@@ -23,7 +23,7 @@ from typing import Callable
 import numpy as np
 
 from ..results import LoopResponse, Margins
-from .curve import (Curve, add_tail, crossings, gain_factors, gain_margins, holds_minus_one, mark_poles,
+from .curve import (Curve, add_tail, crossings_many, gain_factors, gain_margins, holds_minus_one, mark_poles,
                     needs_origin, settle, tail_matters, upper_curve)
 from .metrics import disk_margin, gain_crossovers, peaks, phase_crossovers
 
@@ -44,30 +44,33 @@ def _curves(responses: list[LoopResponse], evaluate) -> list[Curve]:
 
 
 def break_margins(evaluate, responses: list[LoopResponse], open_loop_rhp_poles: list[int],
-                  tidy: bool = False) -> list[Margins]:
+                  tidy: bool = False, tail=tail_matters, listed: bool = True) -> list[Margins]:
     """The margins of many breaks at once. `evaluate(s, i)` gives L of break i[j] at s[j]
     (delays included); `responses` the engine's samples; gain margins are given only where
     the count at -1 says the closed loop is stable (N = -P). With `tidy`, phase crossovers
-    far from the gain margins are counted rather than listed (metrics.TIDY_DB)."""
+    far from the gain margins are counted rather than listed (metrics.TIDY_DB). `tail(curve,
+    stretches)` says which curves to follow past their last sample (default
+    curve.tail_matters; a sweep's short curves: stability.ShortProbe). Without `listed`,
+    the phase crossovers are neither refined nor listed (a sweep records none)."""
     if not responses:
         return []
     curves = _curves(responses, evaluate)
-    found = [crossings(c) for c in curves]
+    found = crossings_many(curves)
     Ps = list(open_loop_rhp_poles)
     st = settle(found, Ps, evaluate, holds_minus_one)
     # crossings past the engine's last sample matter only where they could bound the
     # stretch that holds -1 (its right end close to the origin): follow those curves on
-    late = [c for c, s in zip(curves, st) if tail_matters(c, s)]
+    late = [c for c, s in zip(curves, st) if tail(c, s)]
     if late:
         add_tail(late, evaluate)
-        for c in late:
-            found[c.index] = crossings(c)
+        for c, f in zip(late, crossings_many(late)):
+            found[c.index] = f
         again = settle([found[c.index] for c in late], [Ps[c.index] for c in late], evaluate, holds_minus_one)
         for c, s in zip(late, again):
             st[c.index] = s
     bounds = [gain_margins(s) for s in st]
     gains = gain_crossovers(curves, evaluate)
-    phases = phase_crossovers(found, evaluate, bounds, tidy)
+    phases = phase_crossovers(found, evaluate, bounds, tidy) if listed else [([], 0)] * len(found)
     pk = peaks(curves, evaluate)
     out = []
     for g, (ph, omitted), (up, down), p in zip(gains, phases, bounds, pk):
@@ -96,7 +99,7 @@ def break_stabilising_gains(evaluate, responses: list[LoopResponse],
     curves = _curves(responses, evaluate)
     if evaluate is not None:
         add_tail(curves, evaluate)
-    found = [crossings(c) for c in curves]
+    found = crossings_many(curves)
     st = settle(found, list(open_loop_rhp_poles), evaluate, lambda lo, hi, ok: ok)
     return [tuple(gain_factors(lo, hi) for lo, hi, ok in s if ok) for s in st]
 

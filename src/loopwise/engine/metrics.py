@@ -32,19 +32,20 @@ def gain_crossovers(curves: list[Curve], evaluate: Evaluate) -> list[list[GainCr
     """Every |L(jw)| = 1 for w > 0 of every curve, bracketed on the samples and solved at once."""
     roots: list[list[float]] = [[] for _ in curves]
     lo, hi, owner, flo, fhi = [], [], [], [], []
-    for n, c in enumerate(curves):
-        for run in c.axis_runs():
-            w = c.s[run].imag
-            with np.errstate(divide="ignore"):
-                mag = np.log(np.abs(c.L[run]))
-            roots[n] += [float(v) for v in w[(mag == 0.0) & (w > 0)]]
-            b = np.flatnonzero((mag[:-1] * mag[1:] < 0) & (w[:-1] > 0)
-                               & np.isfinite(mag[:-1]) & np.isfinite(mag[1:]))
-            lo += list(w[b])
-            hi += list(w[b + 1])
-            flo += list(mag[b])
-            fhi += list(mag[b + 1])
-            owner += [n] * b.size
+    # every axis run of every curve in one array (brackets never span two runs)
+    runs = [(n, run) for n, c in enumerate(curves) for run in c.axis_runs()]
+    if runs:
+        w = np.concatenate([curves[n].s[run].imag for n, run in runs])
+        curve_of = np.concatenate([np.full(run.size, n) for n, run in runs])
+        run_of = np.repeat(np.arange(len(runs)), [run.size for _, run in runs])
+        with np.errstate(divide="ignore"):
+            mag = np.log(np.abs(np.concatenate([curves[n].L[run] for n, run in runs])))
+        for j in np.flatnonzero((mag == 0.0) & (w > 0)):
+            roots[curve_of[j]].append(float(w[j]))
+        b = np.flatnonzero((run_of[:-1] == run_of[1:]) & (mag[:-1] * mag[1:] < 0) & (w[:-1] > 0)
+                           & np.isfinite(mag[:-1]) & np.isfinite(mag[1:]))
+        lo, hi, flo, fhi = list(w[b]), list(w[b + 1]), list(mag[b]), list(mag[b + 1])
+        owner = [int(n) for n in curve_of[b]]
     if lo:
         owner_a = np.array(owner)
         cols = np.array([curves[n].index for n in owner])
@@ -139,22 +140,33 @@ def peaks(curves: list[Curve], evaluate: Evaluate) -> list[dict[str, Peak]]:
     """
     windows = []  # (curve position, metric position, lo, hi, sample peak)
     best = [[Peak(-math.inf, math.nan) for _ in METRICS] for _ in curves]
-    for n, c in enumerate(curves):
-        for m, (_, fn, _) in enumerate(METRICS):
-            cand = None
-            for run in c.axis_runs():
-                w = c.s[run].imag
-                with np.errstate(all="ignore"):
-                    v = np.nan_to_num(fn(c.L[run]), nan=-math.inf)
-                i = int(np.argmax(v))
-                if cand is None or v[i] > cand[0]:
-                    cand = (float(v[i]), w, i)
-            if cand is None:
-                continue
-            value, w, i = cand
+    # every axis run of every curve in one array: each metric in one pass, each run's
+    # best sample (its first largest value, as argmax) by a reduction
+    runs = [(n, run) for n, c in enumerate(curves) for run in c.axis_runs()]
+    if runs:
+        w_all = np.concatenate([curves[n].s[run].imag for n, run in runs])
+        L_all = np.concatenate([curves[n].L[run] for n, run in runs])
+        sizes = np.array([run.size for _, run in runs])
+        first = np.concatenate([[0], np.cumsum(sizes)[:-1]])
+        run_of = np.repeat(np.arange(len(runs)), sizes)
+    for m, (_, fn, _) in enumerate(METRICS):
+        if not runs:
+            break
+        with np.errstate(all="ignore"):
+            v = np.nan_to_num(fn(L_all), nan=-math.inf)
+        top = np.maximum.reduceat(v, first)
+        hits = np.flatnonzero(v == top[run_of])
+        at = hits[np.searchsorted(run_of[hits], np.arange(len(runs)))] - first
+        cand: dict[int, tuple[float, int, int]] = {}
+        for r, (n, run) in enumerate(runs):
+            if n not in cand or top[r] > cand[n][0]:
+                cand[n] = (float(top[r]), r, int(at[r]))
+        for n, (value, r, i) in cand.items():
+            w = w_all[first[r]:first[r] + sizes[r]]
             best[n][m] = Peak(value, float(w[i]))
             if 0 < i < w.size - 1:
                 windows.append((n, m, float(w[i - 1]), float(w[i + 1])))
+    windows.sort(key=lambda x: (x[0], x[1]))
     if windows:
         cols = np.array([curves[n].index for n, _, _, _ in windows])
         lo = np.array([w[2] for w in windows])
@@ -179,12 +191,14 @@ def peaks(curves: list[Curve], evaluate: Evaluate) -> list[dict[str, Peak]]:
             if vi > best[n][m].value:
                 best[n][m] = Peak(float(vi), float(xi))
     out = []
+    with np.errstate(all="ignore"):
+        L_end = np.array([c.L[-1] for c in curves], complex)
+        highs = [fn(L_end) for _, fn, _ in METRICS]
     for n, c in enumerate(curves):
         integrator = bool(c.at_pole[0])
         res = {}
         for m, (name, fn, low) in enumerate(METRICS):
-            with np.errstate(all="ignore"):
-                high = float(fn(c.L[-1:])[0])
+            high = float(highs[m][n])
             limits = [Peak(high, math.inf)] + ([Peak(low, 0.0)] if integrator else [])
             top = max(limits, key=lambda p: p.value)
             b = best[n][m]

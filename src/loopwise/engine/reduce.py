@@ -27,16 +27,17 @@ from __future__ import annotations
 from dataclasses import dataclass
 from functools import cached_property
 
-import networkx as nx
+import heapq
+
 import numpy as np
 
 from ..language.resolve import Term
 from .blocks import Bank
-from .diagram import Diagram
+from .diagram import Diagram, strong_components
 from .program import Program, build_program
 from .solve import distinct
 
-__all__ = ["Instance", "Component", "Reduction", "reduce_diagram", "ComponentValues", "CANCEL"]
+__all__ = ["Instance", "Component", "Reduction", "reduce_diagram", "ComponentValues", "safe_program", "CANCEL"]
 
 #: 1 + g_k smaller than this (relative to max(1, |g_k|)) is solved with the break's wires cut
 CANCEL = 1e-3
@@ -92,7 +93,10 @@ class Component:
     points (program.py). `safe` lets at most SAFE_PER_PATH terms with a pole in Re s >= 0
     multiply along a path through the eliminated signals; points within `near` (pole, radius) of such a
     pole, or where such a term exceeds SAFE_LEVEL, use it, so the values that are huge
-    there meet the pivoted solve rather than being multiplied together.
+    there meet the pivoted solve rather than being multiplied together. It is None where
+    the main program already keeps them apart (`safe_program`). `mid` lets MID_PER_PATH
+    of them multiply and serves the points where each stays below MID_LEVEL (away from
+    the poles), when it keeps fewer signals than `safe`.
     """
 
     signals: tuple[int, ...]
@@ -138,7 +142,10 @@ class Component:
         """det(I - A_c) and every break's g_k at the points s (one propagation, one solve)."""
         s = np.asarray(s, dtype=complex).ravel()
         with np.errstate(all="ignore"):
-            V = self.bank.values(s)
+            return self._values(s, self.bank.values(s))
+
+    def _values(self, s: np.ndarray, V: np.ndarray) -> ComponentValues:
+        with np.errstate(all="ignore"):
             groups = self._groups(s, V)
             if len(groups) == 1:
                 return ComponentValues(*groups[0][1].values(V))
@@ -156,7 +163,9 @@ class Component:
         neither L_k nor det(I - A_k) = det(I - A)(1 + g_k) loses digits.
         """
         s = np.asarray(s, dtype=complex).ravel()
-        v = self.values(s)
+        with np.errstate(all="ignore"):
+            V = self.bank.values(s)
+        v = self._values(s, V)
         g = v.g[:, :breaks]
         with np.errstate(all="ignore"):
             one_g = 1.0 + g
@@ -166,7 +175,7 @@ class Component:
             bad = ~(np.abs(one_g) > CANCEL * np.maximum(1.0, np.abs(g)))
             for k in np.nonzero(bad.any(axis=0))[0]:
                 rows = np.nonzero(bad[:, k])[0]
-                ph, lg, Lk = self.direct(int(k), s[rows])
+                ph, lg, Lk = self._direct(int(k), s[rows], V[rows])
                 log_one_g[rows, k] = (lg + 1j * ph) - log_det[rows]
                 L[rows, k] = Lk
         return log_det, log_one_g, L
@@ -187,16 +196,20 @@ class Component:
             bad = ~(np.abs(1.0 + g) > CANCEL * np.maximum(1.0, np.abs(g)))
             for k in distinct(cols[bad]):
                 rows = np.nonzero(bad & (cols == k))[0]
-                L[rows] = self.direct(int(k), s[rows])[2]
+                L[rows] = self._direct(int(k), s[rows], V[rows])[2]
         return L
 
     def direct(self, b: int, s: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Break b solved with its wires cut: phase and log|.| of det(I - A_k), and L_k
         (accurate where L_k is far below or far above 1; see Program.direct)."""
         s = np.asarray(s, dtype=complex).ravel()
+        with np.errstate(all="ignore"):
+            return self._direct(b, s, self.bank.values(s))
+
+    def _direct(self, b: int, s: np.ndarray, V: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        # from the term values already at hand (a point's values do not depend on the others)
         phase, logabs, L = np.zeros(s.size), np.zeros(s.size), np.zeros(s.size, complex)
         with np.errstate(all="ignore"):
-            V = self.bank.values(s)
             for idx, prog in self._groups(s, V):
                 phase[idx], logabs[idx], L[idx] = prog.direct(V[idx], b)
         return phase, logabs, L
@@ -362,18 +375,13 @@ def reduce_diagram(diagram: Diagram) -> Reduction:
 def _components(signals, instances, cut_sets, diagram) -> tuple[tuple[Component, ...], tuple[int, ...]]:
     n = len(signals)
     succ: dict[int, list[int]] = {i: [] for i in range(n)}
-    flow = nx.DiGraph()
-    flow.add_nodes_from(range(n))
     for inst in instances:
         succ[inst.col].append(inst.row)
-        flow.add_edge(inst.col, inst.row)
     comps = []
     inside: set[int] = set()
     # components upstream first (a topological order of the condensation), so that a
     # loop's signals are known before the loops they feed
-    condensed = nx.condensation(flow)
-    for c in nx.lexicographical_topological_sort(condensed, key=lambda c: min(condensed.nodes[c]["members"])):
-        members = sorted(condensed.nodes[c]["members"])
+    for members in _upstream_first(n, [(i.col, i.row) for i in instances]):
         if len(members) == 1 and members[0] not in succ[members[0]]:
             continue  # no loop through this signal
         member_set = set(members)
@@ -384,6 +392,46 @@ def _components(signals, instances, cut_sets, diagram) -> tuple[tuple[Component,
         comps.append(_component(members, insts, breaks, instances, cut_sets, signals))
     outside = tuple(k for k in range(len(instances)) if k not in inside)
     return tuple(comps), outside
+
+
+def safe_program(members, ends, measured, cuts, big: set[int]) -> Program | None:
+    """The program that lets at most SAFE_PER_PATH terms with a pole in Re s >= 0 multiply
+    along a path through the eliminated signals; None when the main program already does:
+    a path through them (a loop-free order) passes each term at most once, so with no more
+    than SAFE_PER_PATH such terms in all, both programs keep the same signals and are the
+    same program."""
+    return build_program(members, ends, measured, cuts, big, most=SAFE_PER_PATH) if len(big) > SAFE_PER_PATH \
+        else None
+
+
+def _upstream_first(n: int, edges: list[tuple[int, int]]) -> list[list[int]]:
+    """The strongly connected components (sorted member lists) in topological order of the
+    condensation, ties broken by the smallest member: at each step, of the components
+    whose feeding components are all listed, the one with the smallest member. Members
+    are unique, so the order is unique."""
+    comps = strong_components(n, edges)
+    comp_of = [0] * n
+    for c, members in enumerate(comps):
+        for m in members:
+            comp_of[m] = c
+    feeds: list[set[int]] = [set() for _ in comps]
+    waiting = [0] * len(comps)
+    for u, v in edges:
+        cu, cv = comp_of[u], comp_of[v]
+        if cu != cv and cv not in feeds[cu]:
+            feeds[cu].add(cv)
+            waiting[cv] += 1
+    ready = [(comps[c][0], c) for c in range(len(comps)) if waiting[c] == 0]
+    heapq.heapify(ready)
+    out = []
+    while ready:
+        _, c = heapq.heappop(ready)
+        out.append(comps[c])
+        for d in feeds[c]:
+            waiting[d] -= 1
+            if waiting[d] == 0:
+                heapq.heappush(ready, (comps[d][0], d))
+    return out
 
 
 def _component(members, insts, breaks, instances, cut_sets, signals) -> Component:
@@ -398,12 +446,13 @@ def _component(members, insts, breaks, instances, cut_sets, signals) -> Componen
     program = build_program(members, ends, measured, cuts, big)
     roots = np.concatenate([np.concatenate([t.poles, t.zeros]) for t in tfs if t is not None] or [np.zeros(0)])
     near = []
-    for p in dict.fromkeys(complex(p) for t in tfs if t is not None for p in t.poles if p.real >= 0 <= p.imag):
+    upper = [t.poles[(t.poles.real >= 0) & (t.poles.imag >= 0)] for t in tfs if t is not None]
+    for p in dict.fromkeys(complex(p) for ps in upper for p in ps):
         others = roots[roots != p]
         d = float(np.min(np.abs(others - p))) if others.size else max(1.0, abs(p))
         near.append((p, NEAR * d))
-    safe = build_program(members, ends, measured, cuts, big, most=SAFE_PER_PATH) if big else None
-    mid = build_program(members, ends, measured, cuts, big, most=MID_PER_PATH) if big else None
+    safe = safe_program(members, ends, measured, cuts, big)
+    mid = build_program(members, ends, measured, cuts, big, most=MID_PER_PATH) if safe is not None else None
     if mid is not None and mid.n_kept >= safe.n_kept:
         mid = None
     bank = Bank([instances[k].term.gain for k in insts], [instances[k].transfer for k in insts])

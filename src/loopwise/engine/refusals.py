@@ -14,8 +14,8 @@ from ..language.model import block_words
 from .certificate import ImproperLoop, Uncertified
 from .reduce import Component, Reduction
 
-__all__ = ["check_range", "check_span", "check_values", "improper_loop", "uncertified_radius", "unresolved",
-           "out_of_range", "ROOT_RANGE", "VALUE_LIMIT"]
+__all__ = ["check_range", "check_span", "check_values", "value_grids", "improper_loop", "uncertified_radius",
+           "unresolved", "out_of_range", "ROOT_RANGE", "VALUE_LIMIT"]
 
 #: poles and zeros (rad/s, nonzero) must lie in this range (LW406 otherwise)
 ROOT_RANGE = (1e-150, 1e150)
@@ -58,14 +58,7 @@ def check_span(red: Reduction, comp: Component) -> None:
 
 def check_values(red: Reduction, comp: Component, R: float) -> None:
     """LW406 where a component's terms overflow double precision on the axis below R."""
-    poles, zeros = comp.roots()
-    roots = np.concatenate([poles, zeros])
-    mags = np.abs(roots[roots != 0])
-    low = float(np.min(mags)) * 1e-3 if mags.size else 1e-3
-    w = np.geomspace(min(low, R / 10), R, 301)
-    axis = np.abs(roots[roots.real == 0].imag)
-    if axis.size:
-        w = w[np.min(np.abs(w[:, None] - axis[None, :]), axis=1) > 1e-6 * w]
+    w = value_grids([comp], [R])[0]
     with np.errstate(all="ignore"):
         big = ~(np.abs(comp.bank.values(1j * w)) < VALUE_LIMIT)
     if np.any(big):
@@ -88,6 +81,27 @@ def out_of_range(red: Reduction, comp: Component, w: float) -> ModelError:
                       f"can hold{span}: the loop transfers cannot be evaluated there",
                       Span(red.diagram.model.file, 1, 1),
                       "split the model, or leave out loops and modes far outside the bandwidth of interest")
+
+
+def value_grids(comps: list[Component], Rs: list[float]) -> list[np.ndarray]:
+    """The frequencies (rad/s) where `check_values` looks at each component's terms below its
+    radius: 301 log-spaced from 1e-3 of its smallest nonzero root (or R/10) up to R, less
+    those within 1e-6 of a root on the axis. All components' grids from one geomspace."""
+    lows, axes = [], []
+    for comp, R in zip(comps, Rs):
+        poles, zeros = comp.roots()
+        roots = np.concatenate([poles, zeros])
+        mags = np.abs(roots[roots != 0])
+        low = float(np.min(mags)) * 1e-3 if mags.size else 1e-3
+        lows.append(min(low, R / 10))
+        axes.append(np.abs(roots[roots.real == 0].imag))
+    grids = np.geomspace(np.array(lows, float), np.array(Rs, float), 301).T
+    out = []
+    for w, axis in zip(grids, axes):
+        if axis.size:
+            w = w[np.min(np.abs(w[:, None] - axis[None, :]), axis=1) > 1e-6 * w]
+        out.append(w)
+    return out
 
 
 def _improper_blocks(entries) -> list[str]:

@@ -14,6 +14,10 @@ P0_c + wind(det(I - A_c,k)) = Z_c - N_k, the consistency check.
 The count uses the contour up to the certificate radius R. The margins also need
 L_k further up the axis (a delayed loop can cross -180 deg beyond R), so each
 break's response continues with an extension traced for the component's L_k alone.
+The extension is traced in two pieces, split at the settling frequency (where the
+reach grid shows every |L_k| below SETTLE_LEVEL for good): a sweep may trace the
+first piece alone when that settles every value it records (`settled`; docs/method.md,
+"The sweep's short extension").
 """
 from __future__ import annotations
 
@@ -28,14 +32,27 @@ from .refusals import check_range, check_span, check_values, improper_loop, out_
 from .solve import distinct
 from .winding import Piece, axis_orders, build_contour, encirclements, phase_change, trace
 
-__all__ = ["Contour", "NyquistCount", "ModelCount", "count", "prepare", "nyquist_counts"]
+__all__ = ["Contour", "NyquistCount", "ModelCount", "count", "prepare", "nyquist_counts", "reach_rule",
+           "extension_pieces", "stops_short", "SETTLE_LEVEL", "ShortProbe", "settled"]
 
 #: a closed-loop pole this close to the axis (|1 + L| relative to 1 + |L|) is called marginal
 MARGINAL = 1e-8
 #: the margins' extension of the axis runs until every |L_k| stays below this
 REACH_LEVEL = 1e-3
+#: the settling level: beyond the frequency where every |L_k| stays below it (on the reach
+#: grid) no crossing, crossover or peak can change a margin value that is already worse
+#: than the bounds it gives (1/l, 1/(1 - l), l/(1 - l), (1 + l)/(1 - l)); see `settled`
+SETTLE_LEVEL = 1e-2
+#: the reach grid: the margins' reach and the settling frequency are read on these
+#: multiples of R (20 a decade)
+REACH_GRID = np.logspace(-6.0, 4.0, 201)
+#: the reach never exceeds this multiple of R (the grid's end)
+REACH_CAP = 1e4
 #: sample budget of the margins' extension (the count itself has the engine's own budget)
 EXTENSION_SAMPLES = 60_000
+#: a sweep's extension stops short only where the step rule asks under this share of the
+#: budget (`stops_short`)
+SHORT_BUDGET = 0.1
 #: the extension's chord test: looser than the count's (no count depends on it; the delay
 #: step rule still keeps every turn, and the crossings found are refined)
 EXTENSION_CHORD = 0.6
@@ -62,6 +79,8 @@ class Contour:
     scaling: np.ndarray
     orders: dict
     terms: object  # certificate.ScaledTerms
+    #: where the extension is split (`reach_rule`); None: traced in one piece
+    settle: float | None = None
 
     def touching(self, freqs: tuple[float, ...]) -> "Contour":
         """The same contour with extra indentations around closed-loop poles on the axis."""
@@ -84,6 +103,9 @@ class NyquistCount:
     marginal_freq: float | None
     warnings: tuple[tuple[str, str], ...]  # (code, message) of this break's warnings
     response: LoopResponse | None = None
+    #: where `response` stops short of the margins' reach (a sweep's short extension,
+    #: engine/batch.py); None when it runs the whole way, as in `check`
+    short: float | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -111,9 +133,10 @@ def _open_rhp(poles: np.ndarray, indent: str) -> int:
     return int(np.sum(poles.real > 0)) + (int(np.sum(poles.real == 0)) if indent == "left" else 0)
 
 
-def prepare(red: Reduction, indent: str = "right", for_margins: bool = True) -> list[Contour]:
+def prepare(red: Reduction, indent: str = "right", for_margins: bool = True, values: bool = True) -> list[Contour]:
     """One contour per loop component; ModelError (located) where no radius certifies a
-    count (LW401, LW403, LW404, LW406)."""
+    count (LW401, LW403, LW404, LW406). With `values` False the terms' values below R are
+    not checked for overflow (LW406): the caller checks them (batch.py, many samples at once)."""
     check_range(red)
     breaks = {c.stmt.name: c for c in red.diagram.breaks}
     out = []
@@ -129,36 +152,82 @@ def prepare(red: Reduction, indent: str = "right", for_margins: bool = True) -> 
             R, _ = certificate_radius(comp, terms, [(), *comp.cut_positions])
         except Uncertified as exc:
             raise uncertified_radius(red, comp, breaks.get(names[exc.cut]), exc) from None
-        check_values(red, comp, R)
+        if values:
+            check_values(red, comp, R)
         poles, zeros = comp.roots()
         roots = np.concatenate([poles, zeros])
         axis = poles[poles.real == 0]
         orders = axis_orders(tf for _, _, _, tf in comp.entries)
         pieces = build_contour(axis, roots, R, indent, (), orders)
-        reach = _margin_reach(comp, R) if for_margins else R
+        reach, settle = _margin_reach(comp, R) if for_margins else (R, None)
         out.append(Contour(comp, tuple(pieces), R, reach, _open_rhp(poles, indent), _features(roots),
-                           tuple(sorted({abs(p.imag) for p in axis})), indent, roots, axis, d, orders, terms))
+                           tuple(sorted({abs(p.imag) for p in axis})), indent, roots, axis, d, orders, terms,
+                           settle))
     return out
 
 
-def _margin_reach(comp: Component, R: float) -> float:
-    """How far up the axis the margins and pictures need samples.
-
-    Until every |L_k| stays below REACH_LEVEL, and at least 30 times the last
-    frequency where some |L_k| >= 1 (so that a delay's roll-off shows in a Bode
-    view); at most 1e4 R.
-    """
+def _margin_reach(comp: Component, R: float) -> tuple[float, float | None]:
+    """How far up the axis the margins and pictures need samples, and where the extension
+    is split (`reach_rule` on the reach grid)."""
     if not comp.breaks:
-        return R
-    w = R * np.logspace(-6.0, 4.0, 201)
+        return R, None
+    w = R * REACH_GRID
     g = comp.values(1j * w).g
     with np.errstate(all="ignore"):
         mag = np.abs(g / (1.0 + g))
+    return reach_rule(w, mag, R)
+
+
+def reach_rule(w: np.ndarray, mag: np.ndarray, R: float) -> tuple[float, float | None]:
+    """The margins' reach and the settling frequency, from |L_k| (`mag`, one row per grid
+    frequency `w` = R * REACH_GRID, one column per break).
+
+    The reach: until every |L_k| stays below REACH_LEVEL, and at least 30 times the last
+    frequency where some |L_k| >= 1 (so that a delay's roll-off shows in a Bode view);
+    at most REACH_CAP R. The settling frequency: the first grid frequency after the last
+    where some |L_k| >= SETTLE_LEVEL (R when there is none), when it lies below the reach;
+    None when it does not, or when the reach is capped (the grid then says nothing of the
+    axis beyond the reach, where `check` may follow a curve on; curve.add_tail).
+
+    Both rest on the grid's samples (20 a decade): between them |L_k| is not bounded.
+    """
+    n = w.size
     big = np.nonzero((~(mag < REACH_LEVEL)).any(axis=1))[0]
     unit = np.nonzero((~(mag < 1.0)).any(axis=1))[0]
-    last_small = max(R, float(w[min(big[-1] + 1, w.size - 1)])) if big.size else R
+    last_small = max(R, float(w[min(big[-1] + 1, n - 1)])) if big.size else R
     last_unit = float(w[unit[-1]]) if unit.size else 0.0
-    return min(max(1.5 * last_small, 30.0 * last_unit, R), 1e4 * R)
+    reach = min(max(1.5 * last_small, 30.0 * last_unit, R), REACH_CAP * R)
+    above = np.nonzero((~(mag < SETTLE_LEVEL)).any(axis=1))[0]
+    if reach >= REACH_CAP * R or (above.size and above[-1] == n - 1):
+        return reach, None
+    settle = max(R, float(w[above[-1] + 1])) if above.size else R
+    return reach, (settle if settle < reach else None)
+
+
+def stops_short(ct: Contour, delay: float) -> bool:
+    """Whether a sweep's short extension may stop at the contour's settling frequency: there
+    is one, and the delay step rule alone (steps of pi/4 over the summed delays `delay`)
+    asks under SHORT_BUDGET of the budget from R to the reach. Where check's whole
+    extension could run out of its budget (LW581), the sweep traces it whole too. Below,
+    a trace would need ten times the step rule's count to run out; the whole extensions of
+    tests/sweep's delayed unstable loop took 2.6 to 4.5 times it (the most where the count
+    is small and the 30-a-decade seeds weigh most): observed, not proven."""
+    if ct.settle is None or ct.reach <= ct.R * (1 + 1e-12):
+        return False
+    return (ct.reach - ct.R) * delay / (np.pi / 4) <= SHORT_BUDGET * EXTENSION_SAMPLES
+
+
+def extension_pieces(R: float, reach: float, settle: float | None, short: bool = False) -> list[Piece]:
+    """The margins' extension from R to the reach: one piece, or two split at the settling
+    frequency (then each piece's samples do not depend on the other's, so that a sweep may
+    trace the first alone). With `short`, only the first piece (none when the settling
+    frequency is R itself: the response then stops at R)."""
+    if reach <= R * (1 + 1e-12):
+        return []
+    if settle is None:
+        return [Piece("axis", R, reach, log=True)]
+    pieces = [Piece("axis", R, settle, log=True)] if settle > R * (1 + 1e-12) else []
+    return pieces if short else pieces + [Piece("axis", settle, reach, log=True)]
 
 
 def count(red: Reduction, indent: str = "right", for_margins: bool = True) -> ModelCount:
@@ -275,7 +344,7 @@ def _count_component(red: Reduction, ct: Contour) -> tuple[int, list, dict[str, 
     if err_z > 1e-3:
         warnings.append(("LW482", "the whole-model count did not settle cleanly "
                          f"(residual {err_z:.2g}); treat the verdict with care"))
-    ext = _extension(red, ct) if B and ct.reach > ct.R * (1 + 1e-12) else None
+    ext = _extension(red, ct) if B and extension_pieces(ct.R, ct.reach, ct.settle) else None
     counts = {}
     touching = []
     for k, name in enumerate(comp.breaks):
@@ -339,7 +408,7 @@ def _extension(red: Reduction, ct: Contour):
             return np.log(-g / (1.0 + g) + 0j)
 
     step = _max_step(comp)
-    return trace([Piece("axis", ct.R, ct.reach, log=True)], evaluate, np.zeros(0),
+    return trace(extension_pieces(ct.R, ct.reach, ct.settle), evaluate, np.zeros(0),
                  (REACH_LEVEL / 5,) * len(comp.breaks), EXTENSION_SAMPLES, _step_rule(comp, red),
                  max_step=None if step is None else 2.0 * step, chord=EXTENSION_CHORD, midpoint=0.3)
 
@@ -371,6 +440,73 @@ def _marginal(comp: Component, k: int, resp: LoopResponse) -> float | None:
         if -v < MARGINAL:
             return float(x)
     return None
+
+
+#: metrics.peaks keeps a sampled peak over the limits only when it is larger by a factor
+#: 1 + 1e-9; `settled` asks a peak to beat the bound beyond the cut by this larger factor,
+#: which covers that one (it must never be smaller)
+_PEAK_TIE = 1e-6
+
+
+class ShortProbe:
+    """break_margins' `tail` rule for a sweep's rows (docs/method.md, "The sweep's short
+    extension"). A curve of a full response is followed on as `check` follows it
+    (curve.tail_matters). A curve cut at the settling frequency (`short[i]`) is not: what
+    lies beyond is the full extension's business, and `settled` says whether it can matter.
+    For those curves the probe notes what `settled` needs, from the curve as break_margins
+    holds it: the nearest crossing right of -1 before any refinement, each peaked metric's
+    largest sample, and |L| at the last sample."""
+
+    def __init__(self, short: list[bool]):
+        self.short = list(short)
+        self.seen: dict[int, tuple[float, dict[str, float], float]] = {}
+
+    def __call__(self, c, stretch_list) -> bool:
+        from .curve import crossings, tail_matters
+        from .metrics import METRICS
+
+        if not self.short[c.index]:
+            return tail_matters(c, stretch_list)
+        right = [x.x for x in crossings(c) if x.x > -1.0]
+        # the largest sample over the axis runs is the largest over all axis samples
+        L = c.L[c.axis]
+        with np.errstate(all="ignore"):
+            tops = {name: float(np.max(np.nan_to_num(fn(L), nan=-np.inf), initial=-np.inf))
+                    for name, fn, _ in METRICS}
+        self.seen[c.index] = (min(right, default=0.0), tops, float(abs(c.L[-1])))
+        return False
+
+    def settled(self, index: int, margins) -> bool:
+        """Whether the margins of curve `index` are those the full extension gives (always,
+        for a curve that is not short)."""
+        if not self.short[index]:
+            return True
+        if index not in self.seen or margins is None:
+            return False
+        nearest, tops, last = self.seen[index]
+        return settled(nearest, tops, last, margins.gain_margin_up_db)
+
+
+def settled(nearest: float, tops: dict[str, float], last: float, gain_up_db: float | None,
+            level: float = SETTLE_LEVEL) -> bool:
+    """Whether a curve cut at the settling frequency already has every margin value of the
+    whole curve, given that |L| < `level` beyond the cut (the reach grid's word).
+
+    Beyond the cut the curve stays in the disk |L| < level: it has no gain crossover,
+    its crossings of the negative real axis lie in (-level, 0], |S| <= 1/(1 - level),
+    |T| <= level/(1 - level), |S - T| <= (1 + level)/(1 - level). So the phase and delay
+    margins and the crossover are settled; the gain margins are when the stretch that
+    holds -1 ends left of -level both before refinement (`nearest`: the nearest crossing
+    right of -1 as sampled, so the same crossings are refined) and after (`gain_up_db`,
+    from the refined end; None: unbounded, not settled); each peak is when its largest
+    sample (`tops`) beats the bound beyond by a factor 1 + _PEAK_TIE, at least the peaks'
+    own tie factor (then the same sample is refined, between the same neighbours, and
+    beats the limit at infinity);
+    `last`, |L| at the cut, must be inside the disk too."""
+    l = level
+    bounds = {"sensitivity": 1.0 / (1.0 - l), "complementary": l / (1.0 - l), "balanced": (1.0 + l) / (1.0 - l)}
+    return (last < l and nearest < -l and gain_up_db is not None and gain_up_db < -20.0 * np.log10(l)
+            and all(tops.get(name, -np.inf) > (1.0 + _PEAK_TIE) * b for name, b in bounds.items()))
 
 
 def nyquist_counts(red: Reduction, indent: str = "right") -> ModelCount:

@@ -25,7 +25,7 @@ import numpy as np
 from .solve import distinct
 
 __all__ = ["Piece", "Trace", "build_contour", "axis_orders", "indentation_radius", "trace", "phase_change",
-           "encirclements"]
+           "encirclements", "carried"]
 
 CHORD = 0.35
 MIDPOINT = 0.2
@@ -202,28 +202,53 @@ def _seed(piece: Piece, features: np.ndarray, max_step: float | None = None) -> 
     (rad/s), also no wider step on the axis than that (what the delay step rule would
     otherwise reach by halving), unless that alone exceeds the sample budget."""
     if piece.kind == "indent":
-        return np.linspace(0.0, 1.0, 9)
+        return _grid(9)
     if piece.log or piece.center is not None:
         decades = abs(math.log10(piece.b / piece.a))
-        u = np.linspace(0.0, 1.0, max(9, int(decades * 30) + 1))
+        u = _grid(max(9, int(decades * 30) + 1))
     else:
-        u = np.linspace(0.0, 1.0, 9)
+        u = _grid(9)
     lo, hi = piece.w_range
     inside = features[(features > lo) & (features < hi)]
+    stepped = max_step is not None and 2 < (hi - lo) / max_step < MAX_SAMPLES / 4
+    if not inside.size and not stepped:
+        return u  # already sorted, distinct and within [0, 1]
     if inside.size:
         u = np.concatenate([u, piece.u_of(inside)])
-    if max_step is not None and 2 < (hi - lo) / max_step < MAX_SAMPLES / 4:
+    if stepped:
         with np.errstate(all="ignore"):
             u = np.concatenate([u, piece.u_of(np.arange(lo, hi, max_step)[1:])])
     return distinct(np.clip(u[np.isfinite(u)], 0.0, 1.0))
 
 
-def _accept(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT) -> np.ndarray:
+_GRIDS: dict[int, np.ndarray] = {}
+
+
+def _grid(n: int) -> np.ndarray:
+    """np.linspace(0, 1, n), made once per n (read-only: the seeds share it)."""
+    g = _GRIDS.get(n)
+    if g is None:
+        g = np.linspace(0.0, 1.0, n)
+        g.flags.writeable = False
+        _GRIDS[n] = g
+    return g
+
+
+def _accept(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT, floored=None) -> np.ndarray:
     """Whether each interval (rows) is resolved for every function."""
-    return np.all(_accept_columns(la, lb, lm, floors, shift, chord, midpoint), axis=1)
+    return np.all(_accept_columns(la, lb, lm, floors, shift, chord, midpoint, floored), axis=1)
 
 
-def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT) -> np.ndarray:
+def _floored_values(v: np.ndarray, floors, sh: np.ndarray | None) -> np.ndarray:
+    """The values f themselves of the functions with a floor (columns in order), from traced
+    logs v (less the logs `sh` of the s^q factors they carry, when given)."""
+    cols = [k for k, f in enumerate(floors) if f is not None]
+    with np.errstate(all="ignore"):
+        return np.exp(v[:, cols] - sh[:, cols]) if sh is not None else np.exp(v[:, cols])
+
+
+def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOINT,
+                    floored=None) -> np.ndarray:
     """Whether each interval (rows) is resolved for each function (columns).
 
     A function without a floor is tested as f/|f|: it has the phase of f at every point
@@ -231,25 +256,33 @@ def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOI
     (tens of loop gains multiplied in det(I - A) fall hundreds of dB a decade) asks for
     no samples. `shift`, when given, holds for the interval's ends and midpoint the logs
     of the factors the traced values carry (a traced f s^q stands for f; rows, columns
-    each): a floor applies to f, so the tests of a floored function take them off."""
-    phase_only = np.array([f is None for f in floors])
+    each): a floor applies to f, so the tests of a floored function take them off.
+    `floored`, when given, holds those functions' values at the ends and midpoint
+    (`_floored_values`; a trace carries them from round to round)."""
+    free = [k for k, f in enumerate(floors) if f is None]
+    ok = np.empty(la.shape, bool)
+    finite = np.empty(la.shape, bool)  # where the ratio f_b / f_a (its phase part, without a floor) is finite
     with np.errstate(all="ignore"):
-        db, dm = lb - la, lm - la
-        db = np.where(phase_only[None, :], 1j * db.imag, db)
-        dm = np.where(phase_only[None, :], 1j * dm.imag, dm)
-        rb = np.exp(db)
-        rm = np.exp(dm)
-        ok = (np.abs(rb - 1.0) <= chord) & (np.abs(1.0 / rb - 1.0) <= chord)
-        dev = np.abs(rm - 0.5 * (1.0 + rb))
-        ok &= dev <= midpoint * np.minimum(1.0, np.minimum(np.abs(rb), np.abs(rm)))
+        if free:
+            cols = slice(None) if len(free) == len(floors) else free
+            rb = np.exp(1j * (lb[:, cols] - la[:, cols]).imag)
+            rm = np.exp(1j * (lm[:, cols] - la[:, cols]).imag)
+            ok_free = (np.abs(rb - 1.0) <= chord) & (np.abs(1.0 / rb - 1.0) <= chord)
+            dev = np.abs(rm - 0.5 * (1.0 + rb))
+            ok_free &= dev <= midpoint * np.minimum(1.0, np.minimum(np.abs(rb), np.abs(rm)))
+            ok[:, cols] = ok_free
+            finite[:, cols] = np.isfinite(rb)
         # functions with a floor (the loop transfer itself) only need resolving while large
+        if floored is None:
+            floored = [_floored_values(v, floors, None if shift is None else sh)
+                       for v, sh in zip((la, lb, lm), shift or (None,) * 3)]
+        j = -1
         for k, floor in enumerate(floors):
             if floor is None:
                 continue
-            if shift is None:
-                fa, fb, fm = np.exp(la[:, k]), np.exp(lb[:, k]), np.exp(lm[:, k])
-            else:
-                fa, fb, fm = (np.exp(v[:, k] - sh[:, k]) for v, sh in zip((la, lb, lm), shift))
+            j += 1
+            finite[:, k] = np.isfinite(np.exp(lb[:, k] - la[:, k]))
+            fa, fb, fm = (f[:, j] for f in floored)
             scale = np.maximum(np.minimum(np.abs(fa), np.abs(fb)), floor)
             ok_k = (np.abs(fb - fa) <= chord * scale) & (np.abs(fm - 0.5 * (fa + fb)) <= midpoint * scale)
             # ... and while not huge (CEILING at both ends)
@@ -262,7 +295,7 @@ def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOI
         for k, floor in enumerate(floors):
             if floor is not None:
                 settled[:, k] |= np.isneginf(lm[:, k].real)
-    return (ok | ~np.isfinite(rb)) & settled
+    return (ok | ~finite) & settled
 
 
 class _Table:
@@ -279,19 +312,44 @@ class _Table:
         self.sg = np.array([p.sign for p in pieces], float)
 
     def points(self, pid: np.ndarray, u: np.ndarray) -> np.ndarray:
-        k, a, b = self.kind[pid], self.a[pid], self.b[pid]
+        kind = self.kind[pid]
+        out = np.empty(u.shape, complex)
         with np.errstate(all="ignore"):
-            ratio = (b / a) ** u
-            w = np.where(k == 1, self.c[pid] + self.sg[pid] * a * ratio,
-                         np.where(k == 2, a * ratio, a + (b - a) * u))
-            theta = self.t0[pid] + (self.t1[pid] - self.t0[pid]) * u
-            arc = 1j * a + b * np.exp(1j * theta)
-        return np.where(k == 0, arc, 1j * w)
+            for k in distinct(kind):
+                at = np.flatnonzero(kind == k)
+                p, x = pid[at], u[at]
+                a, b = self.a[p], self.b[p]
+                if k == 0:
+                    out[at] = 1j * a + b * np.exp(1j * (self.t0[p] + (self.t1[p] - self.t0[p]) * x))
+                elif k == 1:
+                    out[at] = 1j * (self.c[p] + self.sg[p] * a * (b / a) ** x)
+                elif k == 2:
+                    out[at] = 1j * (a * (b / a) ** x)
+                else:
+                    out[at] = 1j * (a + (b - a) * x)
+        return out
 
 
 def _ends(table: _Table, pa: np.ndarray, ua: np.ndarray, ub: np.ndarray):
     """The contour points at the ends of the intervals (piece ids pa, parameters ua, ub)."""
     return table.points(pa, ua), table.points(pa, ub)
+
+
+def carried(s: np.ndarray, q: np.ndarray, index: np.ndarray | None = None) -> np.ndarray:
+    """log(s) q per point and traced function (0 where q is 0): the log of the factor s^q
+    that a traced value f s^q carries. `q` holds rows of orders, point j taking row
+    index[j] (row 0 for every point without `index`); the logarithm is taken only at the
+    points whose row has some q (the others are all 0)."""
+    some = np.any(q != 0, axis=1)
+    if index is None:
+        index = np.zeros(s.size, np.intp)
+    rows = np.flatnonzero(some[index])
+    out = np.zeros((s.size, q.shape[1]), complex)
+    if rows.size:
+        qr = q[index[rows]]
+        with np.errstate(all="ignore"):
+            out[rows] = np.where(qr != 0, np.log(s[rows])[:, None] * qr, 0.0)
+    return out
 
 
 def trace(pieces: list[Piece], evaluate: Callable, features,
@@ -339,7 +397,14 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
     ua, ub = u[ia], u[ib]
     pa = pid[ia]
     la, lb = vals[ia], vals[ib]
-    sa, sb = s[ia], s[ib]
+    # the intervals' end points and (with orders) the logs of the factors their values carry,
+    # carried from round to round like the values (the same numbers _Table.points gives)
+    sa, sb = _ends(table, pa, ua, ub)
+    qa = qb = None
+    if q is not None:
+        qa, qb = (carried(x, q, pa) if per_piece else carried(x, q[None, :]) for x in (sa, sb))
+    # ... and the values of the functions with a floor (the acceptance tests need f itself)
+    fa, fb = _floored_values(la, floors, qa), _floored_values(lb, floors, qb)
     out_s, out_v, out_pid, out_u = [s], [vals], [pid], [u]
     unresolved: list[float] = []
     unresolved_pieces: list[int] = []
@@ -357,15 +422,13 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
         out_v.append(lm)
         out_pid.append(pa)
         out_u.append(um)
-        shift = None
+        shift = qm = None
         if q is not None:
-            ends_a, ends_b = _ends(table, pa, ua, ub)
-            qr = q[pa] if per_piece else q[None, :]
-            with np.errstate(all="ignore"):
-                shift = tuple(np.where(qr != 0, np.log(x)[:, None] * qr, 0.0) for x in (ends_a, ends_b, sm))
-        ok = _accept(la, lb, lm, floors, shift, chord, midpoint)
+            qm = carried(sm, q, pa) if per_piece else carried(sm, q[None, :])
+            shift = (qa, qb, qm)
+        fm = _floored_values(lm, floors, qm)
+        ok = _accept(la, lb, lm, floors, shift, chord, midpoint, (fa, fb, fm))
         if check is not None:
-            sa, sb = _ends(table, pa, ua, ub)
             ok &= check(sa, sb, pa)
         tiny = (ub - ua) < 1e-13
         if np.any(tiny & ~ok):
@@ -390,17 +453,32 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
         lb = np.concatenate([lm[redo], lb[redo]])
         la = la2
         pa = np.concatenate([pa[redo], pa[redo]])
+        sa, sb = np.concatenate([sa[redo], sm[redo]]), np.concatenate([sm[redo], sb[redo]])
+        if q is not None:
+            qa, qb = np.concatenate([qa[redo], qm[redo]]), np.concatenate([qm[redo], qb[redo]])
+        fa, fb = np.concatenate([fa[redo], fm[redo]]), np.concatenate([fm[redo], fb[redo]])
     else:
         complete = ua.size == 0
     s = np.concatenate(out_s)
     vals = np.concatenate(out_v)
     pid = np.concatenate(out_pid)
     u = np.concatenate(out_u)
-    order = np.lexsort((u, pid))
+    order = _by_piece_then_u(pid, u)
     s, vals, pid = s[order], vals[order], pid[order]
     on_axis = np.array([p.kind == "axis" for p in pieces], dtype=bool)[pid]
     return Trace(s, vals, on_axis, tuple(sorted(set(unresolved))), complete, stuck, pid,
                  tuple(sorted(set(unresolved_pieces))))
+
+
+def _by_piece_then_u(pid: np.ndarray, u: np.ndarray) -> np.ndarray:
+    """np.lexsort((u, pid)), faster: u sorted first, then a stable sort by piece (a radix
+    sort for up to 65,536 pieces). Only rows with equal piece and u may come out in another
+    order, and those are the same point with the same values."""
+    order = np.argsort(u)
+    key = pid[order]
+    if pid.size and pid.max() < 65536:
+        key = key.astype(np.uint16)
+    return order[np.argsort(key, kind="stable")]
 
 
 def phase_change(values: np.ndarray) -> np.ndarray:

@@ -169,7 +169,9 @@ def _checked_together(preps: list, alone: bool = False) -> list[SampleOutcome]:
     from ..waivers import apply_waivers
 
     # a record holds no stabilising gain ranges: the batch does not search them
-    results = [check_prepared(preps[0])] if alone else check_many(preps, stabilising_gains=False)
+    # the records hold margin values, never responses or crossover lists: the margins' extension
+    # may stop short where that settles every value (check_many's `short`)
+    results = [check_prepared(preps[0])] if alone else check_many(preps, stabilising_gains=False, short=True)
     # the waivers mark the findings as `check` marks them (`analysis.check_model`)
     return [outcome_of(apply_waivers(r, p.model.waivers)) for r, p in zip(results, preps)]
 
