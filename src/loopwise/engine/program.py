@@ -43,9 +43,14 @@ def _exponents(x: np.ndarray, axis: int) -> np.ndarray:
     return np.frexp(np.where(np.isfinite(top), top, 0.0))[1]
 
 
-def _ldexp(x: np.ndarray, e: np.ndarray) -> np.ndarray:
-    """x 2^e for complex x, exactly (no intermediate 2^e that could overflow)."""
-    return np.ldexp(x.real, e) + 1j * np.ldexp(x.imag, e)
+def _ldexp(x: np.ndarray, e: np.ndarray | None) -> np.ndarray:
+    """x 2^e for complex x, exactly (no intermediate 2^e that could overflow); x for e None."""
+    return x if e is None else np.ldexp(x.real, e) + 1j * np.ldexp(x.imag, e)
+
+
+def _at(e: np.ndarray | None, *index):
+    """e[index], or None (no exponents: a 1 x 1 system, solved by a division)."""
+    return None if e is None else e[index]
 
 
 def scaled(M: np.ndarray, B: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -101,7 +106,7 @@ class Program:
         if not U.shape[2]:
             return phase, logabs, np.zeros((V.shape[0], 0), complex)
         if self.n_kept == 1:
-            X, E = U / M[:, :1, :1], np.zeros(U.shape, int)
+            X, E = U / M[:, :1, :1], None
         else:
             Ms, Us, E = scaled(M, U)
             X = solve(Ms, Us)
@@ -117,11 +122,12 @@ class Program:
         return phase, logabs, g
 
     def _measure(self, X: np.ndarray, E: np.ndarray, Xm) -> np.ndarray:
-        """g_k from the kept values of every break's solution, X 2^E (points, kept, breaks)."""
+        """g_k from the kept values of every break's solution, X 2^E (points, kept, breaks; E None:
+        unscaled)."""
         g = np.empty((X.shape[0], X.shape[2]), complex)
         for b, node in enumerate(self.measured):
-            g[:, b] = _ldexp(X[:, node, b], E[:, node, b]) if Xm[b] is None else \
-                self._row_value(Xm[b], X[:, :, b], E[:, :, b], self.n_kept + b)
+            g[:, b] = _ldexp(X[:, node, b], _at(E, slice(None), node, b)) if Xm[b] is None else \
+                self._row_value(Xm[b], X[:, :, b], _at(E, slice(None), slice(None), b), self.n_kept + b)
         return g
 
     def selected(self, V: np.ndarray, cols: np.ndarray) -> np.ndarray:
@@ -132,16 +138,16 @@ class Program:
         rows, X = self._rows(V, nk + 1, lambda p, b: (nk, np.where(pick[b], V[:, p], 0.0)))
         M = np.eye(nk)[None] - rows[:, :, :nk]
         x, e = self._solve_refined(M, rows[:, :, nk:])
-        x, e = x[:, :, 0], e[:, :, 0]
+        x, e = x[:, :, 0], _at(e, slice(None), slice(None), 0)
         g = np.empty(m, complex)
         for b, node in enumerate(self.measured):
             sel = pick[b]
             if not sel.any():
                 continue
             if node < nk:
-                g[sel] = _ldexp(x[sel, node], e[sel, node])
+                g[sel] = _ldexp(x[sel, node], _at(e, sel, node))
             else:
-                g[sel] = self._row_value((X[node][0], X[node][1][sel]), x[sel], e[sel], nk)
+                g[sel] = self._row_value((X[node][0], X[node][1][sel]), x[sel], _at(e, sel), nk)
         return g
 
     def _rows(self, V: np.ndarray, width: int, injection):
@@ -214,14 +220,14 @@ class Program:
         kept coefficients times x 2^e (points, |K|) plus its injection column `col`."""
         cols, vals = row
         kept = cols < self.n_kept
-        out = np.sum(_ldexp(vals[:, kept] * x[:, cols[kept]], e[:, cols[kept]]), axis=1)
+        out = np.sum(_ldexp(vals[:, kept] * x[:, cols[kept]], _at(e, slice(None), cols[kept])), axis=1)
         hit = np.nonzero(cols == col)[0]
         return out + vals[:, hit[0]] if hit.size else out
 
     def _solve_refined(self, M: np.ndarray, B: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """X and exponents E with M^-1 B = X 2^E (see `scaled`)."""
         if self.n_kept == 1:
-            return B / M[:, :1, :1], np.zeros(B.shape, int)
+            return B / M[:, :1, :1], None
         # one step of iterative refinement: where the loops' gains are huge (integrators at
         # low frequency) the solve alone leaves noise far above a tiny g_k
         Ms, Bs, E = scaled(M, B)
