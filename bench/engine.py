@@ -194,7 +194,7 @@ def bench_scale(sizes, previous, previous_max: int, close: list[int] = ()) -> No
             t = cpu(lambda: check_prepared(prep), 1) + 0.0
             ok = True
         except Exception as exc:  # a refusal is reported, not hidden
-            t, ok = (time.process_time() - t0) / 2, False  # the warm-up run and the timed one
+            t, ok = time.process_time() - t0, False  # the warm-up run refused: the one run
             label += f" ({type(exc).__name__}: {str(exc)[:60]}...)"
         growth = ""
         if ok and group in last:
