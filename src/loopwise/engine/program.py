@@ -117,6 +117,8 @@ class Program:
             # far above a tiny g_k
             idx = np.nonzero(np.any(np.abs(g) < 1e-6, axis=1))[0]
             if idx.size:
+                if idx.size == g.shape[0]:
+                    idx = slice(None)  # every point (a long cascade): no copies of the arrays
                 X = X[idx] + solve(Ms[idx], Us[idx] - Ms[idx] @ X[idx])
                 g[idx] = self._measure(X, E[idx], [None if x is None else (x[0], x[1][idx]) for x in Xm])
         return phase, logabs, g
