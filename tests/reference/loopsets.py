@@ -18,12 +18,13 @@ from __future__ import annotations
 import math
 import re
 from dataclasses import dataclass
+from fractions import Fraction
 
 import numpy as np
 
 __all__ = [
     "LoopCase", "delay_free_loops", "closed_loop_rhp", "near_axis",
-    "Stage", "Cascade", "nested_cascade", "zpk_text", "strip_delays", "Wiring",
+    "Stage", "Cascade", "nested_cascade", "zpk_text", "strip_delays", "Wiring", "routh_rhp",
 ]
 
 
@@ -329,6 +330,34 @@ class Cascade:
             eqs[f"y{k}"] = [(ct.tf(list(st.p_num), list(st.p_den)), "u" if k == 1 else f"y{k - 1}")]
         return eqs
 
+    def characteristic(self) -> list[Fraction]:
+        """The closed loop's characteristic polynomial (descending, exact rationals): with
+        inner closed loop T_{k-1} = N/D, T_k = C_k T_{k-1} P_k / (1 + C_k T_{k-1} P_k) gives
+        D_k = cd pd D + cn pn N, N_k = cn pn N; D_n keeps every block's states (no factor is
+        cancelled), so its roots are all the closed-loop poles. The float coefficients are
+        taken exactly (the model text writes each one back to the same float)."""
+        def mul(a, b):
+            out = [Fraction(0)] * (len(a) + len(b) - 1)
+            for i, x in enumerate(a):
+                for j, y in enumerate(b):
+                    out[i + j] += x * y
+            return out
+
+        def add(a, b):
+            width = max(len(a), len(b))
+            a = [Fraction(0)] * (width - len(a)) + a
+            b = [Fraction(0)] * (width - len(b)) + b
+            return [x + y for x, y in zip(a, b)]
+
+        den, num = [Fraction(1)], [Fraction(1)]
+        for st in self.stages:
+            cn, cd, pn, pd = ([Fraction(x) for x in part] for part in (st.c_num, st.c_den, st.p_num, st.p_den))
+            num = mul(mul(cn, pn), num)
+            den = add(mul(mul(cd, pd), den), num)
+        while den[0] == 0:
+            den = den[1:]
+        return den
+
     def wiring(self) -> "Wiring":
         cuts = {self.brk(k): (f"y{k}", f"e{k}") for k in range(1, self.n + 1)}
         return Wiring(self.equations(), ("r",), cuts)
@@ -358,6 +387,41 @@ def nested_cascade(n: int, seed: int = 7, separation: float = 3.0, name: str | N
         else:
             stages.append(Stage((kp,), (1.0,), (a,), (1.0, 0.0)))
     return Cascade(tuple(stages), name or f"cascade_{n}")
+
+
+def routh_rhp(coeffs, digits: int = 1000) -> int:
+    """Roots in the open right half plane of the real polynomial `coeffs` (descending,
+    exact rationals), by the sign changes of its Routh array's first column.
+
+    The array is formed in mpmath at `digits` and at twice as many significant digits from
+    the exact coefficients; the two first columns must agree in sign and to 1e-(digits/2)
+    relative, else AssertionError (as for an exact zero in the first column, the singular
+    case this helper does not handle). A polynomial whose roots span 23 decades has
+    coefficients over hundreds of decades: eigenvalues of a companion or state matrix in
+    double precision are no reference there, and exact rational arithmetic takes a minute.
+    """
+    import mpmath
+
+    def first_column(dps: int) -> list:
+        with mpmath.workdps(dps):
+            q = [mpmath.mpf(c.numerator) / c.denominator for c in coeffs]
+            prev, cur = q[0::2], q[1::2]
+            out = [prev[0]]
+            while cur:
+                assert cur[0] != 0, "a zero in the Routh array's first column"
+                out.append(cur[0])
+                padded = cur + [mpmath.mpf(0)] * (len(prev) - len(cur))
+                nxt = [prev[i + 1] - prev[0] / cur[0] * padded[i + 1] for i in range(len(prev) - 1)]
+                while nxt and len(nxt) > len(cur) - 1 and nxt[-1] == 0:
+                    nxt.pop()
+                prev, cur = cur, nxt
+            return out
+
+    low, high = first_column(digits), first_column(2 * digits)
+    with mpmath.workdps(2 * digits):
+        assert all(abs(a - b) <= mpmath.mpf(10) ** (-digits // 2) * abs(b) for a, b in zip(low, high))
+    signs = [x > 0 for x in high]
+    return sum(a != b for a, b in zip(signs, signs[1:]))
 
 
 # ----------------------------------------------------------------------------- python-control wiring

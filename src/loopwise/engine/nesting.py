@@ -117,9 +117,11 @@ def _sign(graph, u: str, v: str) -> int:
     return 0
 
 
-def cycle_inside(graph, inner, outer) -> bool:
-    """Whether cycle `inner` is the inner loop of a cascade whose outer loop is cycle `outer`."""
-    stretch = shared_stretch(inner, outer)
+def cycle_inside(graph, inner, outer, stretch=...) -> bool:
+    """Whether cycle `inner` is the inner loop of a cascade whose outer loop is cycle `outer`
+    (`stretch`: their shared_stretch when already known)."""
+    if stretch is ...:
+        stretch = shared_stretch(inner, outer)
     if stretch is None:
         return False
     m, s = stretch[0], stretch[-1]
@@ -131,17 +133,27 @@ def cycle_inside(graph, inner, outer) -> bool:
     return _sign(graph, p_in, m) < 0 < _sign(graph, p_out, m)  # rule 2: measurement subtracted
 
 
-def _loop_inside(graph, cycles, inner: tuple[int, ...], outer: tuple[int, ...]) -> bool:
+def _loop_inside(graph, cycles, inner: tuple[int, ...], outer: tuple[int, ...], stretches: dict) -> bool:
     inner, outer = inner[:NESTING_CYCLES], outer[:NESTING_CYCLES]
-    pairs = [(cycles[b], cycles[a]) for b in inner for a in outer]
-    return (any(cycle_inside(graph, b, a) for b, a in pairs)
-            and not any(cycle_inside(graph, a, b) for b, a in pairs))
+
+    def stretch(i: int, j: int):
+        # the same stretch either way round (both cycles' runs must agree): found once a pair
+        key = (i, j) if i <= j else (j, i)
+        if key not in stretches:
+            stretches[key] = shared_stretch(cycles[i], cycles[j])
+        return stretches[key]
+
+    pairs = [(b, a) for b in inner for a in outer]
+    return (any(cycle_inside(graph, cycles[b], cycles[a], stretch(b, a)) for b, a in pairs)
+            and not any(cycle_inside(graph, cycles[a], cycles[b], stretch(a, b)) for b, a in pairs))
 
 
 def enclosing(graph, cycles, own: dict[str, tuple[int, ...]]) -> dict[str, str | None]:
     """Each break's enclosing break: the innermost of those whose loop is around its own."""
     names = list(own)
-    inside = {(b, a): a != b and _loop_inside(graph, cycles, own[b], own[a]) for b in names for a in names}
+    stretches: dict = {}
+    inside = {(b, a): a != b and _loop_inside(graph, cycles, own[b], own[a], stretches)
+              for b in names for a in names}
     out: dict[str, str | None] = {}
     for b in names:
         around = [a for a in names if inside[(b, a)]]

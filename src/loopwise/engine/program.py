@@ -15,11 +15,11 @@ two of them (tens of integrators in series would overflow near s = 0).
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["Program", "build_program", "solve"]
+__all__ = ["Program", "build_program", "solve", "scaled"]
 
 
 def solve(M: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -34,6 +34,41 @@ def solve(M: np.ndarray, b: np.ndarray) -> np.ndarray:
             except np.linalg.LinAlgError:
                 pass
         return out
+
+
+def _exponents(x: np.ndarray, axis: int) -> np.ndarray:
+    """The binary exponent of the largest |x| along `axis` (0 where all are 0 or not finite)."""
+    with np.errstate(all="ignore"):
+        top = np.max(np.abs(x), axis=axis)
+    return np.frexp(np.where(np.isfinite(top), top, 0.0))[1]
+
+
+def _ldexp(x: np.ndarray, e: np.ndarray | None) -> np.ndarray:
+    """x 2^e for complex x, exactly (no intermediate 2^e that could overflow); x for e None."""
+    return x if e is None else np.ldexp(x.real, e) + 1j * np.ldexp(x.imag, e)
+
+
+def _at(e: np.ndarray | None, *index):
+    """e[index], or None (no exponents: a 1 x 1 system, solved by a division)."""
+    return None if e is None else e[index]
+
+
+def scaled(M: np.ndarray, B: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """M 2^-c, B 2^-b and the exponents E = b - c with M^-1 B = (M 2^-c)^-1 (B 2^-b) 2^E
+    entry by entry (batched; E has the shape of B).
+
+    Along a cascade of integrators the kept signals' responses span more than double
+    precision (1e-400 to 1e300 at one frequency with 47 nested loops) while every g_k
+    itself is of moderate size. Column j of M is scaled by 2^-c_j (c_j the exponent of its
+    largest entry), column k of B by its own 2^-b_k, so the scaled solution stays in range.
+    Scaling by powers of two is exact and leaves partial pivoting's choices and every
+    rounding of the factorisation and the substitutions as they were (the LU of M D is
+    L (U D)): where M^-1 B is representable, the scaled solution times 2^E is the unscaled
+    solve's result bit for bit.
+    """
+    c = np.clip(_exponents(M, 1), -1000, 1000)  # (points, kept)
+    b = np.clip(_exponents(B, 1), -1000, 1000)  # (points, columns)
+    return M * np.ldexp(1.0, -c)[:, None, :], B * np.ldexp(1.0, -b)[:, None, :], b[:, None, :] - c[:, :, None]
 
 
 def _logdet(M: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -54,6 +89,8 @@ class Program:
     measured: tuple[int, ...]  # per break: local node of its signal (kept or eliminated)
     cuts: tuple[frozenset[int], ...]  # per break: bank positions of its cut terms
     head: dict  # bank position -> local node it feeds
+    #: _rows' sparsity patterns by row width (filled on first use; see _pattern)
+    _patterns: dict = field(default_factory=dict, repr=False, compare=False)
 
     @property
     def n_kept(self) -> int:
@@ -68,24 +105,31 @@ class Program:
         phase, logabs = _logdet(M)
         if not U.shape[2]:
             return phase, logabs, np.zeros((V.shape[0], 0), complex)
-        X = U / M[:, :1, :1] if self.n_kept == 1 else solve(M, U)
-        g = self._measure(X, Xm)
+        if self.n_kept == 1:
+            X, E = U / M[:, :1, :1], None
+        else:
+            Ms, Us, E = scaled(M, U)
+            X = solve(Ms, Us)
+        g = self._measure(X, E, Xm)
         if self.n_kept > 1:
             # one step of iterative refinement where some g_k is small: where the loops'
             # gains are huge (integrators at low frequency) the solve alone leaves noise
             # far above a tiny g_k
             idx = np.nonzero(np.any(np.abs(g) < 1e-6, axis=1))[0]
             if idx.size:
-                X = X[idx] + solve(M[idx], U[idx] - M[idx] @ X[idx])
-                g[idx] = self._measure(X, [None if x is None else x[idx] for x in Xm])
+                if idx.size == g.shape[0]:
+                    idx = slice(None)  # every point (a long cascade): no copies of the arrays
+                X = X[idx] + solve(Ms[idx], Us[idx] - Ms[idx] @ X[idx])
+                g[idx] = self._measure(X, E[idx], [None if x is None else (x[0], x[1][idx]) for x in Xm])
         return phase, logabs, g
 
-    def _measure(self, X: np.ndarray, Xm) -> np.ndarray:
-        """g_k from the kept values of every break's solution (X: points, kept, breaks)."""
+    def _measure(self, X: np.ndarray, E: np.ndarray, Xm) -> np.ndarray:
+        """g_k from the kept values of every break's solution, X 2^E (points, kept, breaks; E None:
+        unscaled)."""
         g = np.empty((X.shape[0], X.shape[2]), complex)
         for b, node in enumerate(self.measured):
-            g[:, b] = X[:, node, b] if Xm[b] is None else \
-                np.sum(Xm[b][:, :self.n_kept] * X[:, :, b], axis=1) + Xm[b][:, self.n_kept + b]
+            g[:, b] = _ldexp(X[:, node, b], _at(E, slice(None), node, b)) if Xm[b] is None else \
+                self._row_value(Xm[b], X[:, :, b], _at(E, slice(None), slice(None), b), self.n_kept + b)
         return g
 
     def selected(self, V: np.ndarray, cols: np.ndarray) -> np.ndarray:
@@ -95,51 +139,107 @@ class Program:
         pick = [cols == b for b in range(len(self.measured))]
         rows, X = self._rows(V, nk + 1, lambda p, b: (nk, np.where(pick[b], V[:, p], 0.0)))
         M = np.eye(nk)[None] - rows[:, :, :nk]
-        x = self._solve_refined(M, rows[:, :, nk:])[:, :, 0]
+        x, e = self._solve_refined(M, rows[:, :, nk:])
+        x, e = x[:, :, 0], _at(e, slice(None), slice(None), 0)
         g = np.empty(m, complex)
         for b, node in enumerate(self.measured):
             sel = pick[b]
             if not sel.any():
                 continue
             if node < nk:
-                g[sel] = x[sel, node]
+                g[sel] = _ldexp(x[sel, node], _at(e, sel, node))
             else:
-                g[sel] = np.sum(X[node][sel, :nk] * x[sel], axis=1) + X[node][sel, nk]
+                g[sel] = self._row_value((X[node][0], X[node][1][sel]), x[sel], _at(e, sel), nk)
         return g
 
     def _rows(self, V: np.ndarray, width: int, injection):
         """Through the eliminated nodes in topological order, then into the kept ones: each
-        node's row [coefficients of x_K | injection columns], shape (points, width).
+        node's row [coefficients of x_K | injection columns], width `width`.
         `injection(p, b)` gives (column, values) of break b's cut term at bank position p.
-        Returns the kept nodes' rows (points, |K|, width) and every eliminated node's row."""
+        Returns the kept nodes' rows (points, |K|, width) and, for every eliminated node,
+        its row's structurally nonzero columns and their values, (columns, (points, k)).
+
+        An eliminated node's row is nonzero only in the columns its sources reach: a few
+        kept signals and the breaks cut upstream along its chain (in a nested cascade a
+        handful of the |K| + breaks). Carrying those alone performs, column by column,
+        the same additions in the same order as the full rows, so the values are the same;
+        only the additions of exact zeros are left out."""
         m, nk = V.shape[0], self.n_kept
-        X: list[np.ndarray | None] = [None] * len(self.feeds)
+        X: list[tuple[np.ndarray, np.ndarray] | None] = [None] * len(self.feeds)
         rows = np.zeros((m, nk, width), complex)
+        pattern = self._pattern(width, lambda p, b: injection(p, b)[0])
         for node in list(range(nk, len(self.feeds))) + list(range(nk)):
-            acc = rows[:, node] if node < nk else np.zeros((m, width), complex)
-            for p, src in self.feeds[node]:
+            cols, at_feed, at_inject = pattern[node]
+            acc = rows[:, node] if node < nk else np.zeros((m, cols.size), complex)
+            for (p, src), at in zip(self.feeds[node], at_feed):
                 if src < nk:
-                    acc[:, src] += V[:, p]
+                    acc[:, at] += V[:, p]
+                elif at is None:
+                    acc += V[:, p, None] * X[src][1]
                 else:
-                    acc += V[:, p, None] * X[src]
-            for p, b in self.inject[node]:
-                col, values = injection(p, b)
-                acc[:, col] += values
+                    acc[:, at] += V[:, p, None] * X[src][1]
+            for (p, b), at in zip(self.inject[node], at_inject):
+                acc[:, at] += injection(p, b)[1]
             if node >= nk:
-                X[node] = acc
+                X[node] = (cols, acc)
         return rows, X
 
-    def _solve_refined(self, M: np.ndarray, B: np.ndarray) -> np.ndarray:
+    def _pattern(self, width: int, column) -> list:
+        """Per node: its row's structurally nonzero columns (all `width` for a kept node),
+        where each feed adds into them (an index, an index array, or None for all of
+        them in order) and where each injection goes; built once per row width (the
+        injection's column depends only on it) and kept."""
+        cache = self._patterns
+        if width in cache:
+            return cache[width]
+        nk = self.n_kept
+        out: list = [None] * len(self.feeds)
+        for node in list(range(nk, len(self.feeds))) + list(range(nk)):
+            targets = [column(p, b) for p, b in self.inject[node]]
+            if node < nk:
+                cols = np.arange(width)
+            else:
+                reach = set(targets)
+                for _, src in self.feeds[node]:
+                    reach.update((src,) if src < nk else out[src][0].tolist())
+                cols = np.array(sorted(reach), dtype=int)
+            where = {c: i for i, c in enumerate(cols.tolist())}
+            at_feed = []
+            for _, src in self.feeds[node]:
+                if src < nk:
+                    at_feed.append(where[src])
+                else:
+                    c = out[src][0]
+                    at = np.array([where[j] for j in c.tolist()], dtype=int)
+                    same = at.size == cols.size and bool(np.all(at == np.arange(cols.size)))
+                    at_feed.append(None if same else at)
+            out[node] = (cols, tuple(at_feed), tuple(where[t] for t in targets))
+        cache[width] = out
+        return out
+
+    def _row_value(self, row: tuple[np.ndarray, np.ndarray], x: np.ndarray, e: np.ndarray, col: int) -> np.ndarray:
+        """An eliminated signal's value from its sparse row (columns, values): sum of its
+        kept coefficients times x 2^e (points, |K|) plus its injection column `col`."""
+        cols, vals = row
+        kept = cols < self.n_kept
+        out = np.sum(_ldexp(vals[:, kept] * x[:, cols[kept]], _at(e, slice(None), cols[kept])), axis=1)
+        hit = np.nonzero(cols == col)[0]
+        return out + vals[:, hit[0]] if hit.size else out
+
+    def _solve_refined(self, M: np.ndarray, B: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """X and exponents E with M^-1 B = X 2^E (see `scaled`)."""
         if self.n_kept == 1:
-            return B / M[:, :1, :1]
+            return B / M[:, :1, :1], None
         # one step of iterative refinement: where the loops' gains are huge (integrators at
         # low frequency) the solve alone leaves noise far above a tiny g_k
-        X = solve(M, B)
-        return X + solve(M, B - M @ X)
+        Ms, Bs, E = scaled(M, B)
+        X = solve(Ms, Bs)
+        return X + solve(Ms, Bs - Ms @ X), E
 
     def _reduced(self, V: np.ndarray):
         """S (m, |K|, |K|), U (m, |K|, breaks) and, for each break whose signal is eliminated,
-        that signal's row [coefficients of x_K | injections] (None where it is kept)."""
+        that signal's row [coefficients of x_K | injections] as (columns, values) (None
+        where it is kept)."""
         nk = self.n_kept
         rows, X = self._rows(V, nk + len(self.measured), lambda p, b: (nk + b, V[:, p]))
         Xm = [None if node < nk else X[node] for node in self.measured]
@@ -201,7 +301,11 @@ class Program:
     def _finish(self, X, M, c, const) -> np.ndarray:
         """Every node's value: x_K = M^-1 c, x_H = X x_K + constants."""
         nk = self.n_kept
-        xk = c / M[:, 0, :1] if nk == 1 else solve(M, c[:, :, None])[:, :, 0]
+        if nk == 1:
+            xk = c / M[:, 0, :1]
+        else:
+            Ms, cs, E = scaled(M, c[:, :, None])
+            xk = _ldexp(solve(Ms, cs)[:, :, 0], E[:, :, 0])
         out = np.zeros((c.shape[0], len(self.feeds)), complex)
         out[:, :nk] = xk
         for node in range(nk, len(self.feeds)):

@@ -15,7 +15,7 @@ from .certificate import ImproperLoop, Uncertified
 from .reduce import Component, Reduction
 
 __all__ = ["check_range", "check_span", "check_values", "value_grids", "improper_loop", "uncertified_radius",
-           "unresolved", "ROOT_RANGE", "VALUE_LIMIT"]
+           "unresolved", "out_of_range", "ROOT_RANGE", "VALUE_LIMIT"]
 
 #: poles and zeros (rad/s, nonzero) must lie in this range (LW406 otherwise)
 ROOT_RANGE = (1e-150, 1e150)
@@ -66,6 +66,21 @@ def check_values(red: Reduction, comp: Component, R: float) -> None:
         raise ModelError("LW406", f"the model's transfer values overflow double precision near {w[i]:.3g} rad/s "
                          f"(beyond {VALUE_LIMIT:g})", Span(red.diagram.model.file, 1, 1),
                          "rescale the model's gains or time unit")
+
+
+def out_of_range(red: Reduction, comp: Component, w: float) -> ModelError:
+    """LW406 where the solve of a component's loops overflows double precision at a point
+    of the contour (near `w` rad/s) although its determinant there is finite: the loops'
+    signals respond over more than double precision's range (a long cascade of
+    integrators at a frequency far below its inner loops)."""
+    poles, zeros = comp.roots()
+    mags = np.abs(np.concatenate([poles, zeros]))
+    mags = mags[mags > 0]
+    span = f" (its poles and zeros span {np.log10(mags.max() / mags.min()):.0f} decades)" if mags.size else ""
+    return ModelError("LW406", f"the loops' signals near {w:.3g} rad/s differ by more than double precision "
+                      f"can hold{span}: the loop transfers cannot be evaluated there",
+                      Span(red.diagram.model.file, 1, 1),
+                      "split the model, or leave out loops and modes far outside the bandwidth of interest")
 
 
 def value_grids(comps: list[Component], Rs: list[float]) -> list[np.ndarray]:

@@ -28,7 +28,7 @@ import numpy as np
 from ..results import LoopResponse
 from .certificate import ImproperLoop, ScaledTerms, Uncertified, certificate_radius, closing_phases, scaling
 from .reduce import Component, Reduction
-from .refusals import check_range, check_span, check_values, improper_loop, uncertified_radius, unresolved
+from .refusals import check_range, check_span, check_values, improper_loop, out_of_range, uncertified_radius, unresolved
 from .solve import distinct
 from .winding import Piece, axis_orders, build_contour, encirclements, phase_change, trace
 
@@ -302,6 +302,12 @@ def _trace(red: Reduction, ct: Contour, with_breaks: bool = True):
 
     def evaluate(s):
         v = _raw(comp, s, B)
+        # NaN beside a finite determinant is no pole hit (that makes the determinant 0 or
+        # infinite) but an overflow of the solve: refuse at once rather than halving
+        # intervals that can never settle until the sample budget runs out
+        lost = np.isfinite(v[:, 0]) & np.isnan(v[:, 1:]).any(axis=1)
+        if lost.any():
+            raise out_of_range(red, comp, float(np.abs(s[lost][0])))
         if q.any():
             with np.errstate(all="ignore"):
                 v = v + np.log(s)[:, None] * q[None, :]
