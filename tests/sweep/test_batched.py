@@ -180,3 +180,24 @@ def test_the_batches_depend_on_the_number_of_plants_alone():
         assert len(cut) >= min(SPREAD, count // MIN_BATCH) and (len(cut) == 1 or min(sizes) >= MIN_BATCH)
     assert [len(c) for c in batches(15)] == [5, 5, 5] and len(batches(1000)) == 42
     assert batches(0) == []
+
+
+def test_plants_of_a_long_integrator_chain_are_checked_as_one_model_checks_them(batched, monkeypatch):
+    """A cascade of 47 loops needs the one-model count's middle elimination program and its
+    quick overflow refusal (docs/method.md), which the stacked programs lack; batched, four
+    such plants once took minutes (the stacked trace halved NaN intervals until its budget
+    ran out). check_many hands them to the one-model check instead."""
+    from tests.reference.loopsets import nested_cascade
+    from loopwise.engine import batch
+
+    parsed = parse_model(nested_cascade(47).text().replace("input r", "param g = 1 in [0.9, 1.1]\ninput r", 1)
+                         .replace("u = C1(e1)", "u = g*C1(e1)"), "<cascade>")
+    counted = []
+    monkeypatch.setattr(batch.Batch, "count", lambda self, *a, **k: counted.append(1) or [])
+    rows = np.array([[0.9], [1.0], [1.1]])
+    got = evaluate_points(parsed, ["g"], rows)
+    assert batched and not counted  # through check_many, never through the stacked count
+    ref = per_plant(parsed, ["g"], rows)
+    for g, r in zip(got, ref):
+        assert_same(g, r)
+    assert all(o.stable for o in ref) and len(ref[0].breaks) == 47
