@@ -43,7 +43,7 @@ from .refusals import VALUE_LIMIT, value_grids
 from .solve import distinct
 from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_GRID, REACH_LEVEL, ModelCount, NyquistCount,
                         _dedupe, _open_rhp, count as count_one, extension_pieces, reach_rule, stops_short)
-from .winding import MAX_SAMPLES, MAX_WORK, carried, encirclements, trace
+from .winding import MAX_SAMPLES, MAX_WORK, carried, encirclements, principal_log, trace
 
 __all__ = ["Batch", "StackedBank", "wiring"]
 
@@ -433,9 +433,9 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
     def evaluate(s, pid):
         which = owner[pid]
         log_det, log_one_g, L = st.terms(s, which)
-        with np.errstate(all="ignore"):
-            v = np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
-            return v + carried(s, q, which)
+        v = np.empty((log_det.size, 1 + 2 * B), complex)
+        v[:, 0], v[:, 1:1 + B], v[:, 1 + B:] = log_det, log_one_g, principal_log(L)
+        return carried(s, q, which, out=v)  # the s^q factors, at the samples that have some
 
     floors = (None,) * (1 + B) + (1e-2,) * B
     tr = trace(pieces, evaluate, features, floors, MAX_SAMPLES * S, _step_ok(st, owner) if st.bank.has_delay
@@ -535,7 +535,7 @@ def _orders(st: _Stacked, cts: list) -> np.ndarray:
     which = np.concatenate([idx, idx])
     log_det, log_one_g, L = st.terms(s, which)
     with np.errstate(all="ignore"):
-        v = np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
+        v = np.concatenate([log_det[:, None], log_one_g, principal_log(L)], axis=1)
         n = len(idx)
         slope = -(v[n:].real - v[:n].real) / np.log(10.0)
         whole = np.round(slope)
@@ -630,9 +630,7 @@ def _trace_pieces(st: _Stacked, pieces: list, owner: np.ndarray):
 
     def evaluate(s, pid):
         which = owner[pid]
-        _, _, L = st.terms(s, which)
-        with np.errstate(all="ignore"):
-            return np.log(L + 0j)
+        return principal_log(st.terms(s, which)[2])
 
     steps = [None if _max_step(st, i) is None else 2.0 * _max_step(st, i) for i in owner]
     # one model's budget per sample traced, whatever its pieces (as stability._extension)

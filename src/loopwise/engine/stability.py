@@ -30,7 +30,7 @@ from .certificate import ImproperLoop, ScaledTerms, Uncertified, certificate_rad
 from .reduce import Component, Reduction
 from .refusals import check_range, check_span, check_values, improper_loop, uncertified_radius, unresolved
 from .solve import distinct
-from .winding import Piece, axis_orders, build_contour, encirclements, phase_change, trace
+from .winding import Piece, axis_orders, build_contour, encirclements, phase_change, principal_log, trace
 
 __all__ = ["Contour", "NyquistCount", "ModelCount", "count", "prepare", "nyquist_counts", "reach_rule",
            "extension_pieces", "stops_short", "SETTLE_LEVEL", "ShortProbe", "settled"]
@@ -263,7 +263,7 @@ def _max_step(comp: Component) -> float | None:
 def _raw(comp: Component, s: np.ndarray, B: int) -> np.ndarray:
     log_det, log_one_g, L = comp.terms(s, B)
     with np.errstate(all="ignore"):
-        return np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
+        return np.concatenate([log_det[:, None], log_one_g, principal_log(L)], axis=1)
 
 
 def _origin_orders(comp: Component, ct: Contour, B: int) -> np.ndarray:
@@ -399,7 +399,7 @@ def _extension(red: Reduction, ct: Contour):
     def evaluate(s):
         g = comp.values(s).g
         with np.errstate(all="ignore"):
-            return np.log(-g / (1.0 + g) + 0j)
+            return principal_log(-g / (1.0 + g))
 
     step = _max_step(comp)
     return trace(extension_pieces(ct.R, ct.reach, ct.settle), evaluate, np.zeros(0),

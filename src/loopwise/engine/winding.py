@@ -25,7 +25,7 @@ import numpy as np
 from .solve import distinct
 
 __all__ = ["Piece", "Trace", "build_contour", "axis_orders", "indentation_radius", "trace", "phase_change",
-           "encirclements", "carried"]
+           "encirclements", "carried", "principal_log"]
 
 CHORD = 0.35
 MIDPOINT = 0.2
@@ -335,20 +335,46 @@ def _ends(table: _Table, pa: np.ndarray, ua: np.ndarray, ub: np.ndarray):
     return table.points(pa, ua), table.points(pa, ub)
 
 
-def carried(s: np.ndarray, q: np.ndarray, index: np.ndarray | None = None) -> np.ndarray:
+def principal_log(z: np.ndarray) -> np.ndarray:
+    """The complex logarithm np.log(z + 0j), computed as log|z| + j arctan2(Im z, Re z).
+
+    The same principal branch (the angle in (-pi, pi], a negative zero part read as +0 as
+    `z + 0j` reads it, log|0| = -inf with angle 0, NaN and infinite parts staying
+    non-finite); the two differ only by rounding (np.log forms both parts its own way),
+    and this form costs a fraction of np.log's on complex arrays."""
+    z = z + 0j
+    out = np.empty(z.shape, complex)
+    with np.errstate(all="ignore"):
+        out.real = np.log(np.abs(z))
+        out.imag = np.arctan2(z.imag, z.real)
+    return out
+
+
+def carried(s: np.ndarray, q: np.ndarray, index: np.ndarray | None = None, out: np.ndarray | None = None
+            ) -> np.ndarray:
     """log(s) q per point and traced function (0 where q is 0): the log of the factor s^q
     that a traced value f s^q carries. `q` holds rows of orders, point j taking row
     index[j] (row 0 for every point without `index`); the logarithm is taken only at the
-    points whose row has some q (the others are all 0)."""
+    points whose row has some q (the others are all 0). With `out` (traced values, points
+    by functions), the logs are added to it in place, at those points only, and it is
+    returned."""
     some = np.any(q != 0, axis=1)
     if index is None:
         index = np.zeros(s.size, np.intp)
     rows = np.flatnonzero(some[index])
-    out = np.zeros((s.size, q.shape[1]), complex)
+    if out is None:
+        out = np.zeros((s.size, q.shape[1]), complex)
+        add = False
+    else:
+        add = True
     if rows.size:
         qr = q[index[rows]]
         with np.errstate(all="ignore"):
-            out[rows] = np.where(qr != 0, np.log(s[rows])[:, None] * qr, 0.0)
+            logs = np.where(qr != 0, np.log(s[rows])[:, None] * qr, 0.0)
+            if add:
+                out[rows] += logs
+            else:
+                out[rows] = logs
     return out
 
 
