@@ -466,8 +466,8 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
     with np.errstate(all="ignore"):
         D = np.diff(tr.values, axis=0).imag
         D = np.where(np.isfinite(D), (D + np.pi) % (2 * np.pi) - np.pi, 0.0)
-        qL = q[sample_of][:, 1 + B:]
-        L_all = np.exp(tr.values[:, 1 + B:] - np.where(qL != 0, qL * np.log(tr.s)[:, None], 0.0))
+        # the s^q factors' logs (the same numbers as q * log s), at the samples that carry some
+        L_all = np.exp(tr.values[:, 1 + B:] - carried(tr.s, q[:, 1 + B:], sample_of))
         # how near 1 + L comes to zero on every sample's axis points, trace and extension
         # rows (a repeated point repeats its value: dropping it changes no minimum)
         near_T = np.where(tr.on_axis[:, None], _closeness(L_all), np.inf)
@@ -475,10 +475,12 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
         if ext is not None:
             L_ext = np.exp(ext[0].values)
             near_E = np.where(ext[0].on_axis[:, None], _closeness(L_ext), np.inf)
+    # each sample's first and last contour point's angle (its turn, as stability._steps)
+    first, last = np.angle(tr.s[at[:-1]]), np.angle(tr.s[at[1:] - 1])
     for i, ct in enumerate(cts):
         a, b = at[i], at[i + 1]
         s0, on0 = tr.s[a:b], tr.on_axis[a:b]
-        turn = float(np.angle(s0[-1]) - np.angle(s0[0]))
+        turn = float(last[i] - first[i])
         stp = D[a:b - 1].sum(axis=0) - q[i] * turn
         close_full = closes[i][0]
         wz, err = encirclements(stp[0] + close_full)
