@@ -101,7 +101,10 @@ class _Stacked:
             with np.errstate(all="ignore"):
                 risky = ~(np.max(np.abs(V[:, self.big]), axis=1) < SAFE_LEVEL)
             groups = [(np.nonzero(~risky)[0], self.program), (np.nonzero(risky)[0], self.safe)]
-        return [(i, p) for i, p in bounded_batches(groups, len(self.breaks)) if i.size]
+        out = [(i, p) for i, p in bounded_batches(groups, len(self.breaks)) if i.size]
+        if len(out) == 1 and out[0][0].size == V.shape[0]:
+            return [(slice(None), out[0][1])]  # every point, one program: no copies by index
+        return out
 
     def terms(self, s, which, breaks: int | None = None):
         """log det(I - A_c), log(1 + g_k), L_k at points s of samples which (as Component.terms)."""
