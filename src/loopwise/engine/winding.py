@@ -265,13 +265,17 @@ def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOI
     with np.errstate(all="ignore"):
         if free:
             cols = slice(None) if len(free) == len(floors) else free
-            rb = np.exp(1j * (lb[:, cols] - la[:, cols]).imag)
-            rm = np.exp(1j * (lm[:, cols] - la[:, cols]).imag)
-            ok_free = (np.abs(rb - 1.0) <= chord) & (np.abs(1.0 / rb - 1.0) <= chord)
-            dev = np.abs(rm - 0.5 * (1.0 + rb))
-            ok_free &= dev <= midpoint * np.minimum(1.0, np.minimum(np.abs(rb), np.abs(rm)))
+            # f_b/f_a and f_m/f_a as unit phasors rb = exp(j d), rm = exp(j dm): the chord test
+            # |rb - 1| = |1/rb - 1| <= chord is 2 - 2 cos d <= chord^2, the midpoint test
+            # |rm - (1 + rb)/2| <= midpoint is 1 + (1 + cos d)/2 - cos dm - cos(d - dm) <=
+            # midpoint^2 (the same tests in real cosines, a fraction of complex exp's cost)
+            d = lb[:, cols].imag - la[:, cols].imag
+            dm = lm[:, cols].imag - la[:, cols].imag
+            cd = np.cos(d)
+            ok_free = 2.0 - 2.0 * cd <= chord * chord
+            ok_free &= 1.0 + 0.5 * (1.0 + cd) - np.cos(dm) - np.cos(d - dm) <= midpoint * midpoint
             ok[:, cols] = ok_free
-            finite[:, cols] = np.isfinite(rb)
+            finite[:, cols] = np.isfinite(d)
         # functions with a floor (the loop transfer itself) only need resolving while large
         if floored is None:
             floored = [_floored_values(v, floors, None if shift is None else sh)
@@ -283,10 +287,11 @@ def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOI
             j += 1
             finite[:, k] = np.isfinite(np.exp(lb[:, k] - la[:, k]))
             fa, fb, fm = (f[:, j] for f in floored)
-            scale = np.maximum(np.minimum(np.abs(fa), np.abs(fb)), floor)
+            smaller = np.minimum(np.abs(fa), np.abs(fb))
+            scale = np.maximum(smaller, floor)
             ok_k = (np.abs(fb - fa) <= chord * scale) & (np.abs(fm - 0.5 * (fa + fb)) <= midpoint * scale)
             # ... and while not huge (CEILING at both ends)
-            ok_k |= np.minimum(np.abs(fa), np.abs(fb)) >= CEILING
+            ok_k |= smaller >= CEILING
             ok[:, k] = ok_k
         # a value that is NaN (a pole hit) or infinite settles nothing; an exact zero of a
         # function with a floor (the loop transfer, cancelled to 0.0 by rounding far below
