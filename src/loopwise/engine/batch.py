@@ -43,7 +43,7 @@ from .refusals import VALUE_LIMIT, value_grids
 from .solve import distinct
 from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_GRID, REACH_LEVEL, ModelCount, NyquistCount,
                         _dedupe, _open_rhp, count as count_one, extension_pieces, reach_rule, stops_short)
-from .winding import MAX_SAMPLES, MAX_WORK, carried, encirclements, principal_log, trace
+from .winding import MAX_SAMPLES, MAX_WORK, carried, encirclements, in_chunks, principal_log, trace
 
 __all__ = ["Batch", "StackedBank", "wiring"]
 
@@ -65,7 +65,8 @@ class StackedBank:
     def values(self, s: np.ndarray, which: np.ndarray) -> np.ndarray:
         """Every term's value gain * transfer(s[j]) in sample which[j], complex, shape (len(s),
         terms); delays exact, a point on a pole gives inf or nan there."""
-        return self.table.values(s, which)
+        s = np.asarray(s, dtype=complex).ravel()
+        return in_chunks(self.table.values, s, np.broadcast_to(np.asarray(which, dtype=np.intp), s.shape))
 
 
 def wiring(red: Reduction) -> tuple:
