@@ -359,14 +359,15 @@ def principal_log(z: np.ndarray) -> np.ndarray:
     return out
 
 
-def carried(s: np.ndarray, q: np.ndarray, index: np.ndarray | None = None, out: np.ndarray | None = None
-            ) -> np.ndarray:
+def carried(s: np.ndarray, q: np.ndarray, index: np.ndarray | None = None, out: np.ndarray | None = None,
+            take_off: bool = False) -> np.ndarray:
     """log(s) q per point and traced function (0 where q is 0): the log of the factor s^q
     that a traced value f s^q carries. `q` holds rows of orders, point j taking row
     index[j] (row 0 for every point without `index`); the logarithm is taken only at the
     points whose row has some q (the others are all 0). With `out` (traced values, points
-    by functions), the logs are added to it in place, at those points only, and it is
-    returned."""
+    by functions), the logs are added to it in place (subtracted with `take_off`), at those
+    points only, and it is returned: adding or taking off the zeros elsewhere would change
+    no value."""
     some = np.any(q != 0, axis=1)
     if index is None:
         index = np.zeros(s.size, np.intp)
@@ -380,7 +381,9 @@ def carried(s: np.ndarray, q: np.ndarray, index: np.ndarray | None = None, out: 
         qr = q[index[rows]]
         with np.errstate(all="ignore"):
             logs = np.where(qr != 0, np.log(s[rows])[:, None] * qr, 0.0)
-            if add:
+            if add and take_off:
+                out[rows] -= logs
+            elif add:
                 out[rows] += logs
             else:
                 out[rows] = logs
@@ -435,11 +438,22 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
     # the intervals' end points and (with orders) the logs of the factors their values carry,
     # carried from round to round like the values (the same numbers _Table.points gives)
     sa, sb = _ends(table, pa, ua, ub)
-    qa = qb = None
-    if q is not None:
-        qa, qb = (carried(x, q, pa) if per_piece else carried(x, q[None, :]) for x in (sa, sb))
-    # ... and the values of the functions with a floor (the acceptance tests need f itself)
-    fa, fb = _floored_values(la, floors, qa), _floored_values(lb, floors, qb)
+    # ... and the values of the functions with a floor (the acceptance tests need f itself):
+    # _floored_values less the logs of the s^q factors, taken off only where some q is not 0
+    fcols = [k for k, f in enumerate(floors) if f is not None]
+    qf = None if q is None else q[:, fcols] if per_piece else q[None, fcols]
+
+    def floored(v, x, p):
+        lv = v[:, fcols]
+        if qf is not None:
+            carried(x, qf, p if per_piece else None, out=lv, take_off=True)
+        with np.errstate(all="ignore"):
+            return np.exp(lv)
+
+    def shift_of(x, p):  # the s^q factors' logs of every traced function (the stuck report's)
+        return carried(x, q, p) if per_piece else carried(x, q[None, :])
+
+    fa, fb = floored(la, sa, pa), floored(lb, sb, pa)
     out_s, out_v, out_pid, out_u = [s], [vals], [pid], [u]
     unresolved: list[float] = []
     unresolved_pieces: list[int] = []
@@ -457,11 +471,7 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
         out_v.append(lm)
         out_pid.append(pa)
         out_u.append(um)
-        shift = qm = None
-        if q is not None:
-            qm = carried(sm, q, pa) if per_piece else carried(sm, q[None, :])
-            shift = (qa, qb, qm)
-        fm = _floored_values(lm, floors, qm)
+        fm = floored(lm, sm, pa)
         ok = in_chunks(lambda *v: _accept(*v[:3], floors, None, chord, midpoint, v[3:]), la, lb, lm, fa, fb, fm)
         if check is not None:
             ok &= check(sa, sb, pa)
@@ -473,9 +483,8 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
         if total > max_samples or total * lm.shape[1] > max_work:
             complete = not np.any(redo)
             if not complete:
-                cols = ~_accept_columns(la[redo], lb[redo], lm[redo], floors,
-                                        None if shift is None else tuple(x[redo] for x in shift), chord,
-                                        midpoint)
+                shift = None if q is None else tuple(shift_of(x[redo], pa[redo]) for x in (sa, sb, sm))
+                cols = ~_accept_columns(la[redo], lb[redo], lm[redo], floors, shift, chord, midpoint)
                 by_delay = check is not None and not np.all(check(sa[redo], sb[redo], pa[redo])) \
                     if sa.shape == um.shape else False
                 w = np.abs(sm[redo].imag)
@@ -489,8 +498,6 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
         la = la2
         pa = np.concatenate([pa[redo], pa[redo]])
         sa, sb = np.concatenate([sa[redo], sm[redo]]), np.concatenate([sm[redo], sb[redo]])
-        if q is not None:
-            qa, qb = np.concatenate([qa[redo], qm[redo]]), np.concatenate([qm[redo], qb[redo]])
         fa, fb = np.concatenate([fa[redo], fm[redo]]), np.concatenate([fm[redo], fb[redo]])
     else:
         complete = ua.size == 0
