@@ -479,13 +479,19 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
         if ext is not None:
             L_ext = np.exp(ext[0].values)
             near_E = np.where(ext[0].on_axis[:, None], _closeness(L_ext), np.inf)
-    # each sample's first and last contour point's angle (its turn, as stability._steps)
+    # each sample's first and last contour point's angle (its turn, as stability._steps), and
+    # the sum of its phase steps D[a:b - 1] (rows a to b - 2: not the step into the next
+    # sample), every sample's in one pass; a sample of one point has no step
     first, last = np.angle(tr.s[at[:-1]]), np.angle(tr.s[at[1:] - 1])
+    bounds = np.ravel(np.column_stack([at[:-1], at[1:] - 1]))[:-1]
+    sums = np.add.reduceat(D, np.minimum(bounds, max(D.shape[0] - 1, 0)), axis=0)[0::2] if D.shape[0] else \
+        np.zeros((S, D.shape[1]))
+    sums[at[1:] - 1 <= at[:-1]] = 0.0
     for i, ct in enumerate(cts):
         a, b = at[i], at[i + 1]
         s0, on0 = tr.s[a:b], tr.on_axis[a:b]
         turn = float(last[i] - first[i])
-        stp = D[a:b - 1].sum(axis=0) - q[i] * turn
+        stp = sums[i] - q[i] * turn
         close_full = closes[i][0]
         wz, err = encirclements(stp[0] + close_full)
         zc[i] = ct.P0 + wz
