@@ -117,15 +117,15 @@ class ModelCount:
     counts: dict[str, NyquistCount]
 
 
+#: the seed grid's points beside a lightly damped root p: Im p + k |Re p|
+_SIDES = np.array([-4, -2, -1, -0.5, 0.5, 1, 2, 4], float)[:, None]
+
+
 def _features(roots: np.ndarray) -> np.ndarray:
     r = roots[roots != 0]
-    out = [np.abs(r)]
     upper = r[r.imag > 0]
-    out.append(upper.imag)
     light = upper[np.abs(upper.real) < 0.2 * np.abs(upper)]
-    for k in (-4, -2, -1, -0.5, 0.5, 1, 2, 4):
-        out.append(light.imag + k * np.abs(light.real))
-    f = np.concatenate(out) if out else np.zeros(0)
+    f = np.concatenate([np.abs(r), upper.imag, (light.imag + _SIDES * np.abs(light.real)).ravel()])
     return distinct(f[f > 0])
 
 
