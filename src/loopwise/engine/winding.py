@@ -268,13 +268,15 @@ def _accept_columns(la, lb, lm, floors, shift=None, chord=CHORD, midpoint=MIDPOI
     finite = np.empty(la.shape, bool)  # where the ratio f_b / f_a (its phase part, without a floor) is finite
     with np.errstate(all="ignore"):
         if free:
-            cols = slice(None) if len(free) == len(floors) else free
+            # the free functions come first in every trace: a view then, not a copy
+            cols = slice(0, len(free)) if free == list(range(len(free))) else free
             # f_b/f_a and f_m/f_a as unit phasors rb = exp(j d), rm = exp(j dm): the chord test
             # |rb - 1| = |1/rb - 1| <= chord is 2 - 2 cos d <= chord^2, the midpoint test
             # |rm - (1 + rb)/2| <= midpoint is 1 + (1 + cos d)/2 - cos dm - cos(d - dm) <=
             # midpoint^2 (the same tests in real cosines, a fraction of complex exp's cost)
-            d = lb[:, cols].imag - la[:, cols].imag
-            dm = lm[:, cols].imag - la[:, cols].imag
+            arg_a = la.imag[:, cols]
+            d = lb.imag[:, cols] - arg_a
+            dm = lm.imag[:, cols] - arg_a
             cd = np.cos(d)
             ok_free = 2.0 - 2.0 * cd <= chord * chord
             ok_free &= 1.0 + 0.5 * (1.0 + cd) - np.cos(dm) - np.cos(d - dm) <= midpoint * midpoint
@@ -337,11 +339,6 @@ class _Table:
                 else:
                     out[at] = 1j * (a + (b - a) * x)
         return out
-
-
-def _ends(table: _Table, pa: np.ndarray, ua: np.ndarray, ub: np.ndarray):
-    """The contour points at the ends of the intervals (piece ids pa, parameters ua, ub)."""
-    return table.points(pa, ua), table.points(pa, ub)
 
 
 def principal_log(z: np.ndarray) -> np.ndarray:
@@ -420,14 +417,11 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
         call = lambda x, _: evaluate(x)  # noqa: E731
         check = None if step_ok is None else (lambda a, b, _: step_ok(a, b))
     table = _Table(pieces)
-    all_u, all_piece = [], []
-    for i, p in enumerate(pieces):
-        u = _seed(p, features[i] if each else features, steps[i])
-        all_u.append(u)
-        all_piece.append(np.full(u.size, i))
+    all_u = [_seed(p, features[i] if each else features, steps[i]) for i, p in enumerate(pieces)]
     u = np.concatenate(all_u)
-    pid = np.concatenate(all_piece)
-    s = np.concatenate([pieces[i].points(uu) for i, uu in enumerate(all_u)])
+    pid = np.repeat(np.arange(len(pieces)), [x.size for x in all_u])
+    # every piece's seeds at once (the numbers Piece.points gives, from the same operations)
+    s = table.points(pid, u)
     vals = in_chunks(call, s, pid)
     # intervals between consecutive samples of the same piece
     pending = np.nonzero(pid[:-1] == pid[1:])[0]
@@ -435,9 +429,8 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
     ua, ub = u[ia], u[ib]
     pa = pid[ia]
     la, lb = vals[ia], vals[ib]
-    # the intervals' end points and (with orders) the logs of the factors their values carry,
-    # carried from round to round like the values (the same numbers _Table.points gives)
-    sa, sb = _ends(table, pa, ua, ub)
+    # the intervals' end points, carried from round to round like the values
+    sa, sb = s[ia], s[ib]
     # ... and the values of the functions with a floor (the acceptance tests need f itself):
     # _floored_values less the logs of the s^q factors, taken off only where some q is not 0
     fcols = [k for k, f in enumerate(floors) if f is not None]
@@ -453,7 +446,8 @@ def trace(pieces: list[Piece], evaluate: Callable, features,
     def shift_of(x, p):  # the s^q factors' logs of every traced function (the stuck report's)
         return carried(x, q, p) if per_piece else carried(x, q[None, :])
 
-    fa, fb = floored(la, sa, pa), floored(lb, sb, pa)
+    f_seed = floored(vals, s, pid)  # once per seed (an interval's ends share its piece)
+    fa, fb = f_seed[ia], f_seed[ib]
     out_s, out_v, out_pid, out_u = [s], [vals], [pid], [u]
     unresolved: list[float] = []
     unresolved_pieces: list[int] = []
