@@ -268,7 +268,8 @@ class Batch:
             if i in redo:  # a closed-loop pole on the axis: recount that sample alone
                 out.append(count_one(r, indent, for_margins))
                 continue
-            counts = {n: replace(cnt, P=cnt.P + Z[i] - zc, Z=cnt.Z + Z[i] - zc) for n, (cnt, zc) in per[i].items()}
+            counts = {n: replace(cnt, P=cnt.P + Z[i] - zc, Z=cnt.Z + Z[i] - zc) if Z[i] != zc else cnt
+                      for n, (cnt, zc) in per[i].items()}  # nothing to add: the count as it is
             out.append(ModelCount(int(Z[i]), (), counts))
         return out
 
