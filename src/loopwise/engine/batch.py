@@ -469,7 +469,7 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
         redo |= {int(ext[1][p]) for p in ext[0].unresolved_pieces}
     # the elementwise work of every sample at once (the same numbers, sample by sample)
     with np.errstate(all="ignore"):
-        D = np.diff(tr.values, axis=0).imag
+        D = np.diff(tr.values.imag, axis=0)  # (the imaginary part of the complex differences)
         D = np.where(np.isfinite(D), (D + np.pi) % (2 * np.pi) - np.pi, 0.0)
         # the s^q factors' logs (the same numbers as q * log s), at the samples that carry some
         L_all = np.exp(tr.values[:, 1 + B:] - carried(tr.s, q[:, 1 + B:], sample_of))
