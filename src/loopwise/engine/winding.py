@@ -530,7 +530,7 @@ def _by_piece_then_u(pid: np.ndarray, u: np.ndarray) -> np.ndarray:
 def phase_change(values: np.ndarray) -> np.ndarray:
     """Sum of the principal phase steps between consecutive samples, per function."""
     with np.errstate(invalid="ignore"):  # -inf - -inf (a loop transfer at exactly 0.0): no step
-        steps = np.diff(values, axis=0).imag
+        steps = np.diff(values.imag, axis=0)  # (the imaginary part of the complex differences)
     steps = (steps + np.pi) % (2 * np.pi) - np.pi
     steps = np.where(np.isfinite(steps), steps, 0.0)
     return steps.sum(axis=0)
