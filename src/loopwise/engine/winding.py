@@ -344,10 +344,10 @@ class _Table:
 def principal_log(z: np.ndarray) -> np.ndarray:
     """The complex logarithm np.log(z + 0j), computed as log|z| + j arctan2(Im z, Re z).
 
-    The same principal branch (the angle in (-pi, pi], a negative zero part read as +0 as
-    `z + 0j` reads it, log|0| = -inf with angle 0, NaN and infinite parts staying
-    non-finite); the two differ only by rounding (np.log forms both parts its own way),
-    and this form costs a fraction of np.log's on complex arrays."""
+    The same principal branch (the angle arctan2's, in (-pi, pi] but for rounding, a
+    negative zero part read as +0 as `z + 0j` reads it, log|0| = -inf with angle 0, NaN and
+    infinite parts staying non-finite); the two differ only by rounding (np.log forms both
+    parts its own way), and this form costs a fraction of np.log's on complex arrays."""
     z = z + 0j
     out = np.empty(z.shape, complex)
     with np.errstate(all="ignore"):
