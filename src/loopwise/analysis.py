@@ -20,7 +20,7 @@ from .errors import Finding, ModelError, ModelErrors, Span
 from .language.resolve import Model, Parsed, parse_file, parse_model, resolve_parsed
 from .engine.reduce import Reduction, reduce_diagram
 from .results import BreakResult, Margins, ModelResult
-from .engine.hidden import cancelled_modes, circles, structural_modes
+from .engine.hidden import cancelled_modes, candidates, circles, structural_modes
 from .verdicts import (check_not_zero, counted_modes, hidden_from_loop, mode_findings, positive_feedback,
                        verdict_adjustment)
 from .engine.stability import count
@@ -180,8 +180,9 @@ def check_many(preps: list[PreparedModel], indent: str = "right", stabilising_ga
         return out
     batch = Batch([preps[i].reduction for i in todo])
     counts = batch.count(indent, short=short)
-    known = batch.circle_orders([circles(preps[i].reduction) for i in todo])
-    plans = [_plan(preps[i], c, k) for i, c, k in zip(todo, counts, known)]
+    spots = [candidates(preps[i].reduction) for i in todo]  # the hidden modes' candidates, once
+    known = batch.circle_orders([circles(preps[i].reduction, f) for i, f in zip(todo, spots)])
+    plans = [_plan(preps[i], c, k, f) for i, c, k, f in zip(todo, counts, known, spots)]
     margins = [{c.stmt.name: None for c in preps[i].diagram.breaks} for i in todo]
     rows = [(n, name) for n, plan in enumerate(plans) for name in plan.stable_names()]
     probe = ShortProbe([plans[n].counts[name].short is not None for n, name in rows])
@@ -197,7 +198,7 @@ def check_many(preps: list[PreparedModel], indent: str = "right", stabilising_ga
     if again:
         again = sorted(again)
         for n, c in zip(again, batch.lengthen([counts[n] for n in again], again)):
-            plans[n] = _plan(preps[todo[n]], c, known[n])
+            plans[n] = _plan(preps[todo[n]], c, known[n], spots[n])
             margins[n] = {b.stmt.name: None for b in preps[todo[n]].diagram.breaks}
         rows = [(n, name) for n in again for name in plans[n].stable_names()]
         found = break_margins(batch.evaluator(rows), [plans[n].counts[name].response for n, name in rows],
@@ -252,8 +253,9 @@ def _ambiguous(m: Margins | None) -> bool:
     return m is not None and m.gain_margin_up_db is None and m.gain_margin_down_db is None
 
 
-def _plan(prep: PreparedModel, result, known: dict | None = None) -> _Plan:
-    # known: the hidden-mode circles already wound (Batch.circle_orders)
+def _plan(prep: PreparedModel, result, known: dict | None = None, found: list | None = None) -> _Plan:
+    # known: the hidden-mode circles already wound (Batch.circle_orders); found: their
+    # candidates (hidden.candidates), when already at hand
     model, red = prep.model, prep.reduction
     findings = list(prep.diagram.findings)
     roots = np.concatenate([red.block_poles(), red.block_zeros()])
@@ -267,7 +269,7 @@ def _plan(prep: PreparedModel, result, known: dict | None = None) -> _Plan:
     Z, counts = result.Z, result.counts
     for code, message in dict.fromkeys(result.warnings):
         findings.append(Finding("warning", code, message, Span(model.file, 1, 1)))
-    modes = counted_modes(cancelled_modes(red) + structural_modes(red, known), model)
+    modes = counted_modes(cancelled_modes(red) + structural_modes(red, known, found), model)
     findings.extend(mode_findings(red, modes))
     extra_rhp, hidden_axis = verdict_adjustment(modes)
     Z += extra_rhp

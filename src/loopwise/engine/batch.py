@@ -43,7 +43,7 @@ from .refusals import VALUE_LIMIT, value_grids
 from .solve import distinct
 from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_GRID, REACH_LEVEL, ModelCount, NyquistCount,
                         _dedupe, _open_rhp, count as count_one, extension_pieces, reach_rule, stops_short)
-from .winding import MAX_SAMPLES, MAX_WORK, carried, encirclements, trace
+from .winding import MAX_SAMPLES, MAX_WORK, carried, encirclements, in_chunks, principal_log, trace
 
 __all__ = ["Batch", "StackedBank", "wiring"]
 
@@ -65,7 +65,8 @@ class StackedBank:
     def values(self, s: np.ndarray, which: np.ndarray) -> np.ndarray:
         """Every term's value gain * transfer(s[j]) in sample which[j], complex, shape (len(s),
         terms); delays exact, a point on a pole gives inf or nan there."""
-        return self.table.values(s, which)
+        s = np.asarray(s, dtype=complex).ravel()
+        return in_chunks(self.table.values, s, np.broadcast_to(np.asarray(which, dtype=np.intp), s.shape))
 
 
 def wiring(red: Reduction) -> tuple:
@@ -101,7 +102,10 @@ class _Stacked:
             with np.errstate(all="ignore"):
                 risky = ~(np.max(np.abs(V[:, self.big]), axis=1) < SAFE_LEVEL)
             groups = [(np.nonzero(~risky)[0], self.program), (np.nonzero(risky)[0], self.safe)]
-        return [(i, p) for i, p in bounded_batches(groups, len(self.breaks)) if i.size]
+        out = [(i, p) for i, p in bounded_batches(groups, len(self.breaks)) if i.size]
+        if len(out) == 1 and out[0][0].size == V.shape[0]:
+            return [(slice(None), out[0][1])]  # every point, one program: no copies by index
+        return out
 
     def terms(self, s, which, breaks: int | None = None):
         """log det(I - A_c), log(1 + g_k), L_k at points s of samples which (as Component.terms)."""
@@ -264,7 +268,8 @@ class Batch:
             if i in redo:  # a closed-loop pole on the axis: recount that sample alone
                 out.append(count_one(r, indent, for_margins))
                 continue
-            counts = {n: replace(cnt, P=cnt.P + Z[i] - zc, Z=cnt.Z + Z[i] - zc) for n, (cnt, zc) in per[i].items()}
+            counts = {n: replace(cnt, P=cnt.P + Z[i] - zc, Z=cnt.Z + Z[i] - zc) if Z[i] != zc else cnt
+                      for n, (cnt, zc) in per[i].items()}  # nothing to add: the count as it is
             out.append(ModelCount(int(Z[i]), (), counts))
         return out
 
@@ -433,9 +438,9 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
     def evaluate(s, pid):
         which = owner[pid]
         log_det, log_one_g, L = st.terms(s, which)
-        with np.errstate(all="ignore"):
-            v = np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
-            return v + carried(s, q, which)
+        v = np.empty((log_det.size, 1 + 2 * B), complex)
+        v[:, 0], v[:, 1:1 + B], v[:, 1 + B:] = log_det, log_one_g, principal_log(L)
+        return carried(s, q, which, out=v)  # the s^q factors, at the samples that have some
 
     floors = (None,) * (1 + B) + (1e-2,) * B
     tr = trace(pieces, evaluate, features, floors, MAX_SAMPLES * S, _step_ok(st, owner) if st.bank.has_delay
@@ -464,10 +469,10 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
         redo |= {int(ext[1][p]) for p in ext[0].unresolved_pieces}
     # the elementwise work of every sample at once (the same numbers, sample by sample)
     with np.errstate(all="ignore"):
-        D = np.diff(tr.values, axis=0).imag
+        D = np.diff(tr.values.imag, axis=0)  # (the imaginary part of the complex differences)
         D = np.where(np.isfinite(D), (D + np.pi) % (2 * np.pi) - np.pi, 0.0)
-        qL = q[sample_of][:, 1 + B:]
-        L_all = np.exp(tr.values[:, 1 + B:] - np.where(qL != 0, qL * np.log(tr.s)[:, None], 0.0))
+        # the s^q factors' logs (the same numbers as q * log s), at the samples that carry some
+        L_all = np.exp(tr.values[:, 1 + B:] - carried(tr.s, q[:, 1 + B:], sample_of))
         # how near 1 + L comes to zero on every sample's axis points, trace and extension
         # rows (a repeated point repeats its value: dropping it changes no minimum)
         near_T = np.where(tr.on_axis[:, None], _closeness(L_all), np.inf)
@@ -475,11 +480,19 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
         if ext is not None:
             L_ext = np.exp(ext[0].values)
             near_E = np.where(ext[0].on_axis[:, None], _closeness(L_ext), np.inf)
+    # each sample's first and last contour point's angle (its turn, as stability._steps), and
+    # the sum of its phase steps D[a:b - 1] (rows a to b - 2: not the step into the next
+    # sample), every sample's in one pass; a sample of one point has no step
+    first, last = np.angle(tr.s[at[:-1]]), np.angle(tr.s[at[1:] - 1])
+    bounds = np.ravel(np.column_stack([at[:-1], at[1:] - 1]))[:-1]
+    sums = np.add.reduceat(D, np.minimum(bounds, max(D.shape[0] - 1, 0)), axis=0)[0::2] if D.shape[0] else \
+        np.zeros((S, D.shape[1]))
+    sums[at[1:] - 1 <= at[:-1]] = 0.0
     for i, ct in enumerate(cts):
         a, b = at[i], at[i + 1]
         s0, on0 = tr.s[a:b], tr.on_axis[a:b]
-        turn = float(np.angle(s0[-1]) - np.angle(s0[0]))
-        stp = D[a:b - 1].sum(axis=0) - q[i] * turn
+        turn = float(last[i] - first[i])
+        stp = sums[i] - q[i] * turn
         close_full = closes[i][0]
         wz, err = encirclements(stp[0] + close_full)
         zc[i] = ct.P0 + wz
@@ -535,7 +548,7 @@ def _orders(st: _Stacked, cts: list) -> np.ndarray:
     which = np.concatenate([idx, idx])
     log_det, log_one_g, L = st.terms(s, which)
     with np.errstate(all="ignore"):
-        v = np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
+        v = np.concatenate([log_det[:, None], log_one_g, principal_log(L)], axis=1)
         n = len(idx)
         slope = -(v[n:].real - v[:n].real) / np.log(10.0)
         whole = np.round(slope)
@@ -630,9 +643,7 @@ def _trace_pieces(st: _Stacked, pieces: list, owner: np.ndarray):
 
     def evaluate(s, pid):
         which = owner[pid]
-        _, _, L = st.terms(s, which)
-        with np.errstate(all="ignore"):
-            return np.log(L + 0j)
+        return principal_log(st.terms(s, which)[2])
 
     steps = [None if _max_step(st, i) is None else 2.0 * _max_step(st, i) for i in owner]
     # one model's budget per sample traced, whatever its pieces (as stability._extension)

@@ -34,7 +34,7 @@ from ..results import HiddenMode
 from .reduce import Reduction
 from .winding import axis_orders, indentation_radius
 
-__all__ = ["cancelled_modes", "structural_modes", "applications", "circles", "circle", "circle_order"]
+__all__ = ["cancelled_modes", "structural_modes", "applications", "candidates", "circles", "circle", "circle_order"]
 
 #: two roots closer than this (relative) are the same root
 _SAME = 1e-9
@@ -59,8 +59,9 @@ def _same(a: complex, b: np.ndarray) -> np.ndarray:
 def _upper(roots: np.ndarray) -> list[complex]:
     """Distinct roots with Re >= 0 and Im >= 0 (one of each conjugate pair)."""
     out: list[complex] = []
-    for r in roots:
-        if r.real >= 0 and r.imag >= 0 and not any(abs(r - q) <= _SAME * max(abs(r), abs(q)) for q in out):
+    roots = np.asarray(roots)
+    for r in roots[(roots.real >= 0) & (roots.imag >= 0)]:  # in their order
+        if not any(abs(r - q) <= _SAME * max(abs(r), abs(q)) for q in out):
             out.append(complex(r))
     return out
 
@@ -108,13 +109,15 @@ def _order(red: Reduction, p: complex, m: int, radius: float) -> tuple[int, floa
         n *= 4
 
 
-def circles(red: Reduction) -> list[tuple[complex, int, float]]:
+def circles(red: Reduction, found: list | None = None) -> list[tuple[complex, int, float]]:
     """The circles (pole p, block poles m there, radius) round which `structural_modes`
-    winds det(I - A), in its order."""
-    return [(p, m, radius) for p, m, radius, *_ in _candidates(red)]
+    winds det(I - A), in its order. `found`: `candidates(red)`, when already at hand."""
+    return [(p, m, radius) for p, m, radius, *_ in (candidates(red) if found is None else found)]
 
 
-def _candidates(red: Reduction) -> list[tuple]:
+def candidates(red: Reduction) -> list[tuple]:
+    """The block poles in Re s >= 0 that `structural_modes` looks at, with what it needs of
+    each (a batch finds them once for `circles` and `structural_modes`)."""
     terms = applications(red)
     poles = red.block_poles()
     roots = np.concatenate([poles, red.block_zeros()])
@@ -141,13 +144,13 @@ def _candidates(red: Reduction) -> list[tuple]:
     return out
 
 
-def structural_modes(red: Reduction, known: dict | None = None) -> list[HiddenMode]:
+def structural_modes(red: Reduction, known: dict | None = None, found: list | None = None) -> list[HiddenMode]:
     """Closed-loop poles at block poles in Re s >= 0 (cancellations between blocks,
     LW487 / LW488; a block on an input path only, LW484). `known` maps circles (as
     `circles` gives them) to their (order, error) when already wound (a batch does all
-    its samples' circles at once)."""
+    its samples' circles at once); `found`: `candidates(red)`, when already at hand."""
     out = []
-    for p, m, radius, exogenous_only, pole_terms, zero_blocks in _candidates(red):
+    for p, m, radius, exogenous_only, pole_terms, zero_blocks in (candidates(red) if found is None else found):
         found = (known or {}).get((p, m, radius))
         order, err = found if found is not None else _order(red, p, m, radius)
         if err > 0.1 or order <= 0:

@@ -30,7 +30,7 @@ from .certificate import ImproperLoop, ScaledTerms, Uncertified, certificate_rad
 from .reduce import Component, Reduction
 from .refusals import check_range, check_span, check_values, improper_loop, out_of_range, uncertified_radius, unresolved
 from .solve import distinct
-from .winding import Piece, axis_orders, build_contour, encirclements, phase_change, trace
+from .winding import Piece, axis_orders, build_contour, encirclements, phase_change, principal_log, trace
 
 __all__ = ["Contour", "NyquistCount", "ModelCount", "count", "prepare", "nyquist_counts", "reach_rule",
            "extension_pieces", "stops_short", "SETTLE_LEVEL", "ShortProbe", "settled"]
@@ -117,15 +117,15 @@ class ModelCount:
     counts: dict[str, NyquistCount]
 
 
+#: the seed grid's points beside a lightly damped root p: Im p + k |Re p|
+_SIDES = np.array([-4, -2, -1, -0.5, 0.5, 1, 2, 4], float)[:, None]
+
+
 def _features(roots: np.ndarray) -> np.ndarray:
     r = roots[roots != 0]
-    out = [np.abs(r)]
     upper = r[r.imag > 0]
-    out.append(upper.imag)
     light = upper[np.abs(upper.real) < 0.2 * np.abs(upper)]
-    for k in (-4, -2, -1, -0.5, 0.5, 1, 2, 4):
-        out.append(light.imag + k * np.abs(light.real))
-    f = np.concatenate(out) if out else np.zeros(0)
+    f = np.concatenate([np.abs(r), upper.imag, (light.imag + _SIDES * np.abs(light.real)).ravel()])
     return distinct(f[f > 0])
 
 
@@ -263,7 +263,7 @@ def _max_step(comp: Component) -> float | None:
 def _raw(comp: Component, s: np.ndarray, B: int) -> np.ndarray:
     log_det, log_one_g, L = comp.terms(s, B)
     with np.errstate(all="ignore"):
-        return np.concatenate([log_det[:, None], log_one_g, np.log(L + 0j)], axis=1)
+        return np.concatenate([log_det[:, None], log_one_g, principal_log(L)], axis=1)
 
 
 def _origin_orders(comp: Component, ct: Contour, B: int) -> np.ndarray:
@@ -405,7 +405,7 @@ def _extension(red: Reduction, ct: Contour):
     def evaluate(s):
         g = comp.values(s).g
         with np.errstate(all="ignore"):
-            return np.log(-g / (1.0 + g) + 0j)
+            return principal_log(-g / (1.0 + g))
 
     step = _max_step(comp)
     return trace(extension_pieces(ct.R, ct.reach, ct.settle), evaluate, np.zeros(0),
