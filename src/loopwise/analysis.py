@@ -137,15 +137,14 @@ def check_file(path, settings=None, indent: str = "right", root=None) -> ModelRe
         return _waived_verdict(prepare_file(path, settings, root), indent)
 
 
-def check_prepared(prep: PreparedModel, indent: str = "right", stabilising_gains: bool = True) -> ModelResult:
-    """The whole check of a prepared model: the count, the margins, the judgement (without
-    `stabilising_gains`, no search for the gains that would stabilise an unstable break)."""
+def check_prepared(prep: PreparedModel, indent: str = "right") -> ModelResult:
+    """The whole check of a prepared model: the count, the margins, the judgement."""
     if not prep.model.equations:
         return _library(prep)
     red = prep.reduction
     plan = _plan(prep, count(red, indent))
     margins = _margins(red, plan.counts, plan.stable_names())
-    gains = _gain_ranges(red, plan.counts, plan.gain_names(margins, stabilising_gains))
+    gains = _gain_ranges(red, plan.counts, plan.gain_names(margins))
     return _finish(prep, plan, margins, gains)
 
 
@@ -167,11 +166,6 @@ def check_many(preps: list[PreparedModel], indent: str = "right", stabilising_ga
     from .engine.margins import break_margins, break_stabilising_gains
     from .engine.stability import ShortProbe
 
-    if any(c.mid is not None for p in preps if p.model.equations for c in p.reduction.components):
-        # a long chain of integrators needs the middle elimination program and the quick
-        # overflow refusal of the one-model count (docs/method.md), which the stacked
-        # programs do not have: such models are checked one by one
-        return [check_prepared(p, indent, stabilising_gains) for p in preps]
     todo = [i for i, p in enumerate(preps) if p.model.equations]
     out: list[ModelResult | None] = [None] * len(preps)
     for i in set(range(len(preps))) - set(todo):

@@ -182,22 +182,49 @@ def test_the_batches_depend_on_the_number_of_plants_alone():
     assert batches(0) == []
 
 
-def test_plants_of_a_long_integrator_chain_are_checked_as_one_model_checks_them(batched, monkeypatch):
-    """A cascade of 47 loops needs the one-model count's middle elimination program and its
-    quick overflow refusal (docs/method.md), which the stacked programs lack; batched, four
-    such plants once took minutes (the stacked trace halved NaN intervals until its budget
-    ran out). check_many hands them to the one-model check instead."""
+def _cascade_plants(n: int):
+    """A nested cascade of n loops (tests/reference/loopsets.py) with a ranged gain."""
     from tests.reference.loopsets import nested_cascade
+
+    return parse_model(nested_cascade(n).text().replace("input r", "param g = 1 in [0.9, 1.1]\ninput r", 1)
+                       .replace("u = C1(e1)", "u = g*C1(e1)"), "<cascade>")
+
+
+def test_plants_of_a_long_integrator_chain_are_counted_together_as_one_model_counts_them(batched, monkeypatch):
+    """A cascade of 47 loops needs the middle elimination program (docs/method.md); the
+    stacked component has it too, so its plants are counted together, none alone, and get
+    what a check of each gives."""
     from loopwise.engine import batch
 
-    parsed = parse_model(nested_cascade(47).text().replace("input r", "param g = 1 in [0.9, 1.1]\ninput r", 1)
-                         .replace("u = C1(e1)", "u = g*C1(e1)"), "<cascade>")
-    counted = []
-    monkeypatch.setattr(batch.Batch, "count", lambda self, *a, **k: counted.append(1) or [])
+    alone = []
+    real = batch.count_one
+    monkeypatch.setattr(batch, "count_one", lambda *a, **k: alone.append(1) or real(*a, **k))
+    parsed = _cascade_plants(47)
     rows = np.array([[0.9], [1.0], [1.1]])
     got = evaluate_points(parsed, ["g"], rows)
-    assert batched and not counted  # through check_many, never through the stacked count
+    assert batched and not alone  # through the stacked count, no sample recounted alone
     ref = per_plant(parsed, ["g"], rows)
     for g, r in zip(got, ref):
         assert_same(g, r)
     assert all(o.stable for o in ref) and len(ref[0].breaks) == 47
+
+
+def test_a_batch_whose_solve_overflows_stops_at_once_and_each_plant_gets_its_own_refusal(monkeypatch):
+    """At 53 loops the solve overflows where the outer loops act (LW406 for one model); the
+    batched trace stops at the first such point rather than halving intervals until its
+    budget runs out (once minutes for a few plants), and every plant gets the refusal a
+    check of it alone gives."""
+    from loopwise.engine import batch
+
+    points = []
+    real = batch._Stacked.terms
+    monkeypatch.setattr(batch._Stacked, "terms",
+                        lambda self, s, *a, **k: points.append(np.size(s)) or real(self, s, *a, **k))
+    parsed = _cascade_plants(53)
+    rows = np.array([[0.9], [1.0], [1.1]])
+    got = evaluate_points(parsed, ["g"], rows)
+    ref = per_plant(parsed, ["g"], rows)
+    for g, r in zip(got, ref):
+        assert_same(g, r)
+    assert all(o.error is not None and o.error[0] == "LW406" for o in got)
+    assert sum(points) < 20_000  # a few seed rounds, not the pooled budget of 3 x 100,000 points

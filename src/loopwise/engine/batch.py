@@ -37,8 +37,7 @@ from ..errors import ModelError
 from ..results import LoopResponse
 from .blocks import Bank, FactorTable
 from .certificate import ScaledTerms, certificate_radius, scaling
-from .program import build_program
-from .reduce import CANCEL, SAFE_LEVEL, Reduction, safe_program, bounded_batches
+from .reduce import CANCEL, Reduction, elimination_programs, program_groups
 from .refusals import VALUE_LIMIT, value_grids
 from .solve import distinct
 from .stability import (EXTENSION_CHORD, EXTENSION_SAMPLES, REACH_GRID, REACH_LEVEL, ModelCount, NyquistCount,
@@ -92,20 +91,12 @@ class _Stacked:
         measured = [first.entries[p[0]][1] if p else None for p in first.cut_positions]
         cuts = [frozenset(p) for p in first.cut_positions]
         members = list(first.signals)
-        self.program = build_program(members, ends, measured, cuts, big)
-        self.safe = safe_program(members, ends, measured, cuts, big)
+        self.program, self.safe, self.mid = elimination_programs(members, ends, measured, cuts, big)
         self.big = sorted(big)
 
     def _groups(self, V):
-        groups = [(np.arange(V.shape[0]), self.program)]
-        if self.safe is not None:
-            with np.errstate(all="ignore"):
-                risky = ~(np.max(np.abs(V[:, self.big]), axis=1) < SAFE_LEVEL)
-            groups = [(np.nonzero(~risky)[0], self.program), (np.nonzero(risky)[0], self.safe)]
-        out = [(i, p) for i, p in bounded_batches(groups, len(self.breaks)) if i.size]
-        if len(out) == 1 and out[0][0].size == V.shape[0]:
-            return [(slice(None), out[0][1])]  # every point, one program: no copies by index
-        return out
+        # the samples' poles differ, so no point is known to be near one (reduce.program_groups)
+        return program_groups(V, self.big, None, (self.program, self.safe, self.mid), len(self.breaks))
 
     def terms(self, s, which, breaks: int | None = None):
         """log det(I - A_c), log(1 + g_k), L_k at points s of samples which (as Component.terms)."""
@@ -438,14 +429,19 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
     def evaluate(s, pid):
         which = owner[pid]
         log_det, log_one_g, L = st.terms(s, which)
+        if (np.isfinite(log_det) & (np.isnan(log_one_g).any(axis=1) | np.isnan(L).any(axis=1))).any():
+            raise _Overflow  # as stability._trace: no pole hit but an overflow of the solve
         v = np.empty((log_det.size, 1 + 2 * B), complex)
         v[:, 0], v[:, 1:1 + B], v[:, 1 + B:] = log_det, log_one_g, principal_log(L)
         return carried(s, q, which, out=v)  # the s^q factors, at the samples that have some
 
     floors = (None,) * (1 + B) + (1e-2,) * B
-    tr = trace(pieces, evaluate, features, floors, MAX_SAMPLES * S, _step_ok(st, owner) if st.bank.has_delay
-               else None, orders=q[owner], max_step=steps, by_piece=True, max_work=MAX_WORK * S)
-    if not tr.complete:
+    try:
+        tr = trace(pieces, evaluate, features, floors, MAX_SAMPLES * S, _step_ok(st, owner) if st.bank.has_delay
+                   else None, orders=q[owner], max_step=steps, by_piece=True, max_work=MAX_WORK * S)
+    except _Overflow:
+        tr = None  # each sample counted alone: its own count refuses it at once, or certifies it
+    if tr is None or not tr.complete:
         return np.zeros(S, int), [dict() for _ in range(S)], set(range(S)), np.zeros(S, int)
     closes = _closing(st, cts)
     short_at = [short and stops_short(ct, float(st.bank.delay[i].sum())) for i, ct in enumerate(cts)]
@@ -519,6 +515,10 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
         counts.append(mine)
     used = np.zeros(S, int) if ext is None else np.bincount(ext_of, minlength=S)
     return zc, counts, redo, used
+
+
+class _Overflow(Exception):
+    """NaN beside a finite determinant in a batched trace: the solve overflowed."""
 
 
 def _outgrown(sample_of_point: np.ndarray, S: int, most: int, work: int) -> set[int]:

@@ -18,7 +18,7 @@ from typing import Callable
 import numpy as np
 
 from ..results import LoopResponse
-from .solve import distinct, illinois
+from .solve import illinois
 
 __all__ = ["Curve", "Crossing", "upper_curve", "add_tail", "crossings", "crossings_many", "stretches", "settle",
            "gain_margins", "gain_factors", "refine", "HORIZON", "Evaluate"]

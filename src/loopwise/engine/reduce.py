@@ -37,7 +37,8 @@ from .diagram import Diagram, strong_components
 from .program import Program, build_program
 from .solve import distinct
 
-__all__ = ["Instance", "Component", "Reduction", "reduce_diagram", "ComponentValues", "safe_program", "CANCEL"]
+__all__ = ["Instance", "Component", "Reduction", "reduce_diagram", "ComponentValues", "elimination_programs",
+           "program_groups", "safe_program", "CANCEL"]
 
 #: 1 + g_k smaller than this (relative to max(1, |g_k|)) is solved with the break's wires cut
 CANCEL = 1e-3
@@ -118,25 +119,14 @@ class Component:
         return self.program.kept
 
     def _groups(self, s: np.ndarray, V: np.ndarray) -> list[tuple[np.ndarray | slice, Program]]:
-        """Which program evaluates which points: next to a pole in Re s >= 0, or where a
-        term with such a pole is huge, the safe one."""
-        if self.safe is None:
-            groups = [(np.arange(s.size), self.program)]
-        else:
-            with np.errstate(all="ignore"):
-                level = np.max(np.abs(V[:, list(self.big)]), axis=1)
+        """Which program evaluates which points (`program_groups`), next to a pole in
+        Re s >= 0 the safe one."""
+        near = None
+        if self.safe is not None:
             near = np.zeros(s.size, bool)
             for p, r in self.near:
                 near |= (np.abs(s - p) <= r) | (np.abs(s - np.conj(p)) <= r)
-            plain = (level < SAFE_LEVEL) & ~near
-            middle = ~plain & (level < MID_LEVEL) & ~near if self.mid is not None else np.zeros(s.size, bool)
-            groups = [(np.nonzero(plain)[0], self.program), (np.nonzero(middle)[0], self.mid),
-                      (np.nonzero(~plain & ~middle)[0], self.safe)]
-            groups = [(idx, prog) for idx, prog in groups if idx.size]
-        out = bounded_batches(groups, len(self.breaks))
-        if len(out) == 1 and out[0][0].size == s.size:
-            return [(slice(None), out[0][1])]
-        return out
+        return program_groups(V, self.big, near, (self.program, self.safe, self.mid), len(self.breaks))
 
     def values(self, s: np.ndarray) -> ComponentValues:
         """det(I - A_c) and every break's g_k at the points s (one propagation, one solve)."""
@@ -394,6 +384,46 @@ def _components(signals, instances, cut_sets, diagram) -> tuple[tuple[Component,
     return tuple(comps), outside
 
 
+def elimination_programs(members, ends, measured, cuts, big: set[int], program: Program | None = None
+                         ) -> tuple[Program, Program | None, Program | None]:
+    """A component's main, safe and middle programs (see `Component`): the safe one only
+    where the main one does not already keep the terms with a pole in Re s >= 0 apart,
+    the middle one only where it keeps fewer signals than the safe one. `program`: the
+    main one, if already built."""
+    if program is None:
+        program = build_program(members, ends, measured, cuts, big)
+    safe = safe_program(members, ends, measured, cuts, big)
+    mid = build_program(members, ends, measured, cuts, big, most=MID_PER_PATH) if safe is not None else None
+    if mid is not None and mid.n_kept >= safe.n_kept:
+        mid = None
+    return program, safe, mid
+
+
+def program_groups(V: np.ndarray, big, near: np.ndarray | None, programs: tuple, n_breaks: int
+                   ) -> list[tuple[np.ndarray | slice, Program]]:
+    """Which of a component's programs (main, safe, middle: `elimination_programs`)
+    evaluates which points, from the terms' values V (points, terms): where a term with a
+    pole in Re s >= 0 (bank positions `big`) is huge, or at a point `near` one of its poles
+    (a mask; None: not known), the safe one; where each stays below MID_LEVEL, the middle
+    one; elsewhere the main one. Cut into batches of bounded size."""
+    program, safe, mid = programs
+    if safe is None:
+        groups = [(np.arange(V.shape[0]), program)]
+    else:
+        with np.errstate(all="ignore"):
+            level = np.max(np.abs(V[:, list(big)]), axis=1)
+        far = ~near if near is not None else np.ones(V.shape[0], bool)
+        plain = (level < SAFE_LEVEL) & far
+        middle = ~plain & (level < MID_LEVEL) & far if mid is not None else np.zeros(V.shape[0], bool)
+        groups = [(np.nonzero(plain)[0], program), (np.nonzero(middle)[0], mid),
+                  (np.nonzero(~plain & ~middle)[0], safe)]
+        groups = [(idx, prog) for idx, prog in groups if idx.size]
+    out = bounded_batches(groups, n_breaks)
+    if len(out) == 1 and out[0][0].size == V.shape[0]:
+        return [(slice(None), out[0][1])]  # every point, one program: no copies by index
+    return out
+
+
 def safe_program(members, ends, measured, cuts, big: set[int]) -> Program | None:
     """The program that lets at most SAFE_PER_PATH terms with a pole in Re s >= 0 multiply
     along a path through the eliminated signals; None when the main program already does:
@@ -451,10 +481,7 @@ def _component(members, insts, breaks, instances, cut_sets, signals) -> Componen
         others = roots[roots != p]
         d = float(np.min(np.abs(others - p))) if others.size else max(1.0, abs(p))
         near.append((p, NEAR * d))
-    safe = safe_program(members, ends, measured, cuts, big)
-    mid = build_program(members, ends, measured, cuts, big, most=MID_PER_PATH) if safe is not None else None
-    if mid is not None and mid.n_kept >= safe.n_kept:
-        mid = None
+    _, safe, mid = elimination_programs(members, ends, measured, cuts, big, program)
     bank = Bank([instances[k].term.gain for k in insts], [instances[k].transfer for k in insts])
     return Component(tuple(members), tuple(insts), tuple(breaks), bank, tuple(tuple(sorted(c)) for c in cuts),
                      entries, program, safe, tuple(near), tuple(sorted(big)), mid)

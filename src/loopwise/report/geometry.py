@@ -396,7 +396,6 @@ def simplify_mask(p: np.ndarray, tol: float, guard: np.ndarray | None = None) ->
     segment, which does not hold the guard: the turns around it are unchanged.
     """
     p = np.asarray(p, float)
-    n = len(p)
     finite = np.all(np.isfinite(p), axis=1)
     keep = ~finite
     keep[:1] = keep[-1:] = True

@@ -249,7 +249,7 @@ def render_html(run, *, hz: bool = False, fail_on_warnings: bool = False, jobs: 
     out = ['<!DOCTYPE html>', '<html lang="en">', "<head>",
            '<meta charset="utf-8" />',
            '<meta name="viewport" content="width=device-width, initial-scale=1" />',
-           f"<title>loopwise report</title>", f"<style>{CSS}</style>", "</head>", "<body>",
+           "<title>loopwise report</title>", f"<style>{CSS}</style>", "</head>", "<body>",
            "<header><h1>loopwise report</h1>",
            f'<p class="lede">Stability and margins at every loop break; loopwise{_e(version)}. '
            "Frequencies in " + ("Hz" if hz else "rad/s") + " in the plots, rad/s in the tables.</p>",
