@@ -16,6 +16,7 @@ import math
 import numpy as np
 
 from ..transfer import Transfer
+from .diagram import acyclic
 from .reduce import CANCEL, Component
 from .solve import nonsingular
 
@@ -222,18 +223,8 @@ def _acyclic(A0: np.ndarray) -> bool:
     I - A0 is a unit triangular matrix with its rows and columns permuted, det(I - A0) = 1
     exactly, and no test of its pivots is needed (a nested cascade's limits at infinity
     run down one chain of junctions and controllers)."""
-    live = A0 != 0
-    indegree = live.sum(axis=1)  # entry (i, j): an edge j -> i
-    ready = list(np.nonzero(indegree == 0)[0])
-    seen = 0
-    while ready:
-        j = ready.pop()
-        seen += 1
-        for i in np.nonzero(live[:, j])[0]:
-            indegree[i] -= 1
-            if indegree[i] == 0:
-                ready.append(i)
-    return seen == A0.shape[0]
+    rows, cols = np.nonzero(A0)  # entry (i, j): an edge j -> i
+    return acyclic(A0.shape[0], zip(cols.tolist(), rows.tolist()))
 
 
 def _perron_side(Minv: np.ndarray, B: np.ndarray, level: float, steps: int = 24) -> bool | None:

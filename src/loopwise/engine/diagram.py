@@ -23,7 +23,7 @@ from ..language.resolve import Model, Term
 from .nesting import cycle_wires, enclosing, loop_text, opened_by, own_cycles, wide_cut_warning
 from .solve import nonsingular
 
-__all__ = ["Diagram", "BreakCut", "build_diagram", "strong_components", "MAX_CYCLES"]
+__all__ = ["Diagram", "BreakCut", "build_diagram", "acyclic", "strong_components", "MAX_CYCLES"]
 
 #: cycle enumeration stops here; larger models get their loop checks on what was found
 MAX_CYCLES = 20000
@@ -142,8 +142,8 @@ def _algebraic_loops(model: Model, g, signals, errors) -> list[Finding]:
     index = {n: i for i, n in enumerate(signals)}
     pairs = [(index[term.source], index[v]) for v, terms in model.equations.items() for term in terms
              if term.source in model.signals and _feeds(term)]
-    if all(len(c) == 1 for c in strong_components(len(signals), pairs)) and not any(u == v for u, v in pairs):
-        return []  # no loop without dynamics (every component a single signal with no wire onto itself)
+    if acyclic(len(signals), pairs):
+        return []  # no loop without dynamics
     wires = [(u, v) for u, v, data in g.edges(data=True) if u in model.signals and _feeds(data["term"])]
     direct = nx.DiGraph()
     direct.add_nodes_from(signals)
@@ -241,6 +241,13 @@ def _rooted_cycles(nodes: list[str], wires: set[tuple[str, str]]) -> list[tuple[
                 on_path.add(nxt)
                 stack.append(iter(succ[nxt]))
     return out
+
+
+def acyclic(n: int, edges) -> bool:
+    """Whether the directed graph on nodes 0..n-1 with `edges` (pairs) has no cycle: every
+    strongly connected component a single node with no edge onto itself."""
+    edges = list(edges)
+    return not any(u == v for u, v in edges) and all(len(c) == 1 for c in strong_components(n, edges))
 
 
 def strong_components(n: int, edges) -> list[list[int]]:
