@@ -46,6 +46,10 @@ from .winding import MAX_SAMPLES, MAX_WORK, carried, encirclements, in_chunks, p
 
 __all__ = ["Batch", "StackedBank", "wiring"]
 
+#: |1 + L| / (1 + |L|) below this on the axis: 1 + L comes near zero there, and the
+#: one-model count decides the sample (its marginal test and its warnings)
+TOUCH = 1e-3
+
 
 class StackedBank:
     """The terms of one wiring in many samples: `values(s, which)` gives, for points s[j] of
@@ -296,7 +300,7 @@ class Batch:
                 redo |= set(mine)
             redo |= {int(owner[p]) for p in ext.unresolved_pieces}
             points = np.bincount(ext_of, minlength=self.samples) + used[c]
-            redo |= set(np.nonzero(points > min(EXTENSION_SAMPLES, MAX_WORK // B))[0].tolist()) & set(mine)
+            redo |= _outgrown(points, EXTENSION_SAMPLES, MAX_WORK // B) & set(mine)
             at = np.searchsorted(ext_of, np.arange(self.samples + 1))
             for i in mine:
                 rows = np.arange(at[i] + (1 if skip[i] else 0), at[i + 1])
@@ -308,7 +312,7 @@ class Batch:
                     L = np.concatenate([r.L, np.exp(ext.values[rows, k])])
                     on_axis = np.concatenate([r.on_axis, ext.on_axis[rows]])
                     response = LoopResponse(*_dedupe(s, L, on_axis), r.axis_poles)
-                    if response.axis_L.size and _closeness(response.axis_L).min() < 1e-3:
+                    if response.axis_L.size and _closeness(response.axis_L).min() < TOUCH:
                         redo.add(i)
                     longer[name] = replace(cnt, response=response, short=None)
                 out[i] = replace(out[i], counts=longer)
@@ -452,16 +456,17 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
     at = np.searchsorted(sample_of, np.arange(S + 1))
     ext_of = None if ext is None else ext[1][ext[0].pid]
     ext_at = None if ext is None else np.searchsorted(ext_of, np.arange(S + 1))
+    used = np.zeros(S, int) if ext is None else np.bincount(ext_of, minlength=S)
     zc, counts, redo = np.zeros(S, int), [], set()
     # the batch pools the samples' budgets: a sample that used more than one model's trace
     # may (winding.trace) would have stopped short alone; the one-model count decides it
-    redo |= _outgrown(owner[tr.pid], S, MAX_SAMPLES, MAX_WORK // (1 + 2 * B))
+    redo |= _outgrown(np.bincount(sample_of, minlength=S), MAX_SAMPLES, MAX_WORK // (1 + 2 * B))
     # where sampling could not settle, the one-model count words the warnings
     redo |= {int(owner[p]) for p in tr.unresolved_pieces}
     if ext is not None:
         if not ext[0].complete:
             redo |= set(ext[1].tolist())
-        redo |= _outgrown(ext[1][ext[0].pid], S, EXTENSION_SAMPLES, MAX_WORK // B)
+        redo |= _outgrown(used, EXTENSION_SAMPLES, MAX_WORK // B)
         redo |= {int(ext[1][p]) for p in ext[0].unresolved_pieces}
     # the elementwise work of every sample at once (the same numbers, sample by sample)
     with np.errstate(all="ignore"):
@@ -506,14 +511,13 @@ def _count_stacked(st: _Stacked, cts: list, short: bool = False
                 on_axis = np.concatenate([on0, ext[0].on_axis[er]])
                 near = min(near, float(near_E[er, k].min()))
             response = LoopResponse(*_dedupe(s, L, on_axis), ct.axis_freqs)
-            if near < 1e-3:
+            if near < TOUCH:
                 redo.add(i)  # 1 + L comes near zero on the axis: the one-model count decides
             P = ct.P0 + wk
             mine[name] = NyquistCount(P, N, P + N, False, None, (), response, ct.settle if short_at[i] else None)
         if err > 1e-3:
             redo.add(i)  # a residual: the one-model count words the warning
         counts.append(mine)
-    used = np.zeros(S, int) if ext is None else np.bincount(ext_of, minlength=S)
     return zc, counts, redo, used
 
 
@@ -521,15 +525,15 @@ class _Overflow(Exception):
     """NaN beside a finite determinant in a batched trace: the solve overflowed."""
 
 
-def _outgrown(sample_of_point: np.ndarray, S: int, most: int, work: int) -> set[int]:
-    """The samples with more points than one model's trace allows (`most` points, `work`
-    points times traced functions): alone, their trace would have ended incomplete."""
-    used = np.bincount(sample_of_point, minlength=S)
+def _outgrown(used: np.ndarray, most: int, work: int) -> set[int]:
+    """The samples with more points (`used`, per sample) than one model's trace allows
+    (`most` points, `work` points times traced functions): alone, their trace would have
+    ended incomplete."""
     return set(np.nonzero(used > min(most, work))[0].tolist())
 
 
 def _closeness(L: np.ndarray) -> np.ndarray:
-    """|1 + L| / (1 + |L|), 1 where that is NaN: below 1e-3 on the axis, 1 + L comes near
+    """|1 + L| / (1 + |L|), 1 where that is NaN: below TOUCH on the axis, 1 + L comes near
     zero there and the one-model count decides the sample."""
     with np.errstate(invalid="ignore"):
         return np.nan_to_num(np.abs(1.0 + L) / (1.0 + np.abs(L)), nan=1.0)
